@@ -1,0 +1,64 @@
+// Package stages moves documents: it opens and parses inputs, runs the
+// configured stages over them in parallel while keeping input order, and
+// records every decision in the run's ledger and metrics files. It never
+// computes a text metric itself: those live in package filters, dedup and
+// shard; the stages here only apply thresholds and record what happened.
+package stages
+
+import "fmt"
+
+// OrderKey is a document's stable position in the input: the index of its
+// input file in the resolved input list (high 24 bits) and the index of the
+// record inside that file (low 40 bits). Comparing two keys compares input
+// order, which is what "the earliest document wins" means everywhere.
+type OrderKey uint64
+
+// Bits of an OrderKey given to the record index.
+const orderRecordBits = 40
+
+// MakeOrderKey packs an input index and a record index into an OrderKey.
+func MakeOrderKey(input int, record int64) OrderKey {
+	return OrderKey(uint64(input)<<orderRecordBits | uint64(record)&(1<<orderRecordBits-1))
+}
+
+// Input returns the input-file index of k.
+func (k OrderKey) Input() int { return int(uint64(k) >> orderRecordBits) }
+
+// Record returns the record index of k inside its input file.
+func (k OrderKey) Record() int64 { return int64(uint64(k) & (1<<orderRecordBits - 1)) }
+
+// String formats k as "input:record".
+func (k OrderKey) String() string { return fmt.Sprintf("%d:%d", k.Input(), k.Record()) }
+
+// Doc is one document moving through the pipeline.
+type Doc struct {
+	// ID is the id field of the record, or "<source>/<file>:<line>".
+	ID string
+	// Text is the document body; stages that edit replace it.
+	Text string
+	// Source is the label of the input group the document came from.
+	Source string
+	// File is the path of the input file ("-" for standard input).
+	File string
+	// Line is the 1-based line (JSONL, text blocks) or record number (WARC,
+	// Parquet rows) of the document inside File.
+	Line int64
+	// Order is the document's stable input position.
+	Order OrderKey
+	// Meta holds extra fields of the input record and values stages attach
+	// (language, confidence, token count...). It is written into output
+	// shard lines. Keys are written in sorted order, so output stays
+	// deterministic.
+	Meta map[string]any
+	// Tokens is the document's token count once the tokenizer has run
+	// (0 before).
+	Tokens int
+}
+
+// SetMeta sets one meta key, creating the map when needed.
+func (d *Doc) SetMeta(key string, v any) {
+	if d.Meta == nil {
+		d.Meta = make(map[string]any, 4)
+	}
+	d.Meta[key] = v
+}

@@ -1,0 +1,285 @@
+package stages
+
+import (
+	"fmt"
+	"math"
+	"sort"
+)
+
+// Action is what a stage decided about one document.
+type Action uint8
+
+// The three decisions a stage can make.
+const (
+	Keep Action = iota // pass the document on unchanged
+	Drop               // remove the document; Rule says why
+	Edit               // replace the text; Changes says what changed
+)
+
+// String returns "keep", "drop" or "edit", the words the ledger uses.
+func (a Action) String() string {
+	switch a {
+	case Drop:
+		return "drop"
+	case Edit:
+		return "edit"
+	}
+	return "keep"
+}
+
+// Decision is a stage's verdict on one document.
+//
+// A drop names the rule that failed, the measured value and the limit it was
+// held against. An edit carries the new text and counts of what changed
+// (e.g. {"lines_removed": 3}). Extra holds stage-specific ledger fields
+// ("of", "similarity", "eval", "item", "matches"...); they are merged into
+// the ledger record as top-level keys.
+type Decision struct {
+	Action  Action
+	Rule    string
+	Value   any
+	Limit   any
+	Text    string
+	Changes map[string]int
+	Extra   map[string]any
+	// Metrics are the values the stage measured on this document, aligned
+	// with the stage's MetricNames(). They are written to OUT/metrics/ for
+	// every document the stage saw, kept or not.
+	Metrics []float64
+	// Meta is merged into the document's Meta when the document is kept or
+	// edited (language, confidence...); it is not written to the ledger.
+	Meta map[string]any
+	// Tokens, when > 0, becomes the document's token count.
+	Tokens int
+}
+
+// KeepDoc is the decision to pass a document on unchanged.
+func KeepDoc() Decision { return Decision{} }
+
+// DropDoc is the decision to remove a document because rule measured value
+// against limit.
+func DropDoc(rule string, value, limit any) Decision {
+	return Decision{Action: Drop, Rule: rule, Value: value, Limit: limit}
+}
+
+// EditDoc is the decision to replace the document's text; rule names the
+// edit and changes counts what changed.
+func EditDoc(rule, text string, changes map[string]int) Decision {
+	return Decision{Action: Edit, Rule: rule, Text: text, Changes: changes}
+}
+
+// Stage is a per-document stage: a pure function of one document and the
+// stage's configuration. Process may be called from many goroutines at once
+// and must not keep state between calls; it must not modify d (the runner
+// applies edits).
+type Stage interface {
+	// Name is the stage's name in the ledger and manifest (its kind, or
+	// the spec's "name" key when a kind is used twice).
+	Name() string
+	// Kind is the registered kind the stage was built from.
+	Kind() string
+	// MetricNames lists the metrics Process returns in Decision.Metrics,
+	// in order. A stage that measures nothing returns nil.
+	MetricNames() []string
+	// Process decides about one document.
+	Process(d *Doc) Decision
+}
+
+// Cmp says on which side of a limit a measured value keeps the document.
+type Cmp uint8
+
+// Comparison kinds for threshold rules.
+const (
+	AtLeast Cmp = iota // keep when value >= limit (a minimum)
+	AtMost             // keep when value <= limit (a maximum)
+	Below              // keep when value < limit (a strict maximum)
+	Above              // keep when value > limit (a strict minimum)
+)
+
+// Keeps reports whether value keeps the document under limit.
+func (c Cmp) Keeps(value, limit float64) bool {
+	if math.IsNaN(value) {
+		return true // a metric that does not apply never removes
+	}
+	switch c {
+	case AtLeast:
+		return value >= limit
+	case AtMost:
+		return value <= limit
+	case Below:
+		return value < limit
+	case Above:
+		return value > limit
+	}
+	return true
+}
+
+// String returns the comparison as an operator that keeps the document.
+func (c Cmp) String() string {
+	return [...]string{">=", "<=", "<", ">"}[c]
+}
+
+// Rule is one threshold of a threshold stage: the document is dropped with
+// rule Name when Metric does not satisfy Cmp against Limit. Key is the spec
+// key that sets Limit (what-if uses it: "quality.min_words=80"). Rules are
+// evaluated in table order; the first failing rule is the one recorded.
+type Rule struct {
+	Name    string
+	Key     string
+	Metric  string
+	Cmp     Cmp
+	Limit   float64
+	Enabled bool
+}
+
+// ThresholdStage is a stage whose keep/drop decision is a fixed table of
+// rules over its metrics. What-if recomputes its decisions from the stored
+// metrics alone, so such a stage must decide exactly as ApplyRules does.
+type ThresholdStage interface {
+	Stage
+	Rules() []Rule
+}
+
+// ApplyRules returns the decision of rules over metrics named by names:
+// the first enabled rule whose metric fails its limit drops the document.
+func ApplyRules(rules []Rule, names []string, metrics []float64) Decision {
+	for _, r := range rules {
+		if !r.Enabled {
+			continue
+		}
+		i := indexOf(names, r.Metric)
+		if i < 0 || i >= len(metrics) {
+			continue
+		}
+		if !r.Cmp.Keeps(metrics[i], r.Limit) {
+			return Decision{Action: Drop, Rule: r.Name, Value: roundMetric(metrics[i]), Limit: r.Limit, Metrics: metrics}
+		}
+	}
+	return Decision{Metrics: metrics}
+}
+
+func indexOf(names []string, s string) int {
+	for i, n := range names {
+		if n == s {
+			return i
+		}
+	}
+	return -1
+}
+
+// roundMetric rounds a measured value to 6 significant decimals for the
+// ledger, so records stay short and stable across platforms.
+func roundMetric(v float64) float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return v
+	}
+	return math.Round(v*1e6) / 1e6
+}
+
+// GlobalStage is a stage that must see every document before it can decide
+// (deduplication, frequency-filtered contamination). It runs in three
+// phases so that one process and a cluster run the same code:
+//
+//   - Scan computes a document's compact keys. It is pure and runs on any
+//     worker, in any order.
+//   - Collect receives the keys in input order on one goroutine and keeps
+//     what Reduce needs (spilling to disk under the memory budget).
+//   - Reduce decides, after the last Collect, which documents to remove.
+//   - Apply returns the decision for one document; it is pure after Reduce
+//     and runs on any worker.
+type GlobalStage interface {
+	Name() string
+	Kind() string
+	Scan(d *Doc) any
+	Collect(order OrderKey, id string, keys any) error
+	Reduce() error
+	Apply(d *Doc) Decision
+	// Close releases temp files and memory.
+	Close() error
+}
+
+// Observer is implemented by stages that aggregate over the whole run
+// (e.g. a contamination report). Observe is called on one goroutine, in
+// input order, with every document the stage decided about (not shadow
+// measurements) and its decision.
+type Observer interface {
+	Observe(d *Doc, dec *Decision)
+}
+
+// Finisher is implemented by stages that write a run-level file when the
+// run ends (e.g. OUT/contamination.json). Finish is called once, after the
+// last document, with the run directory.
+type Finisher interface {
+	Finish(runDir string) error
+}
+
+// Describer is implemented by stages that have something to show in
+// `winnow check` beyond their parameters (e.g. an LSH S-curve).
+type Describer interface {
+	Describe() string
+}
+
+// Env is what a stage constructor may use besides its own parameters.
+type Env struct {
+	// SpecDir is the directory of the spec file; relative paths in stage
+	// parameters (eval sets, tokenizer files) are resolved against it.
+	SpecDir string
+	// RunDir is the output directory of the run (may be "" for `check`).
+	RunDir string
+	// TempDir is a directory for spill files, removed after the run.
+	TempDir string
+	// MemoryBudget is the number of bytes global stages may hold before
+	// spilling sorted runs to TempDir.
+	MemoryBudget int64
+	// Seed is the run seed.
+	Seed uint64
+	// Against is a previous run directory whose kept documents' keys
+	// incremental dedup compares with ("" for none).
+	Against string
+	// Checking is true under `winnow check`: constructors validate and
+	// may skip expensive loading.
+	Checking bool
+}
+
+// Kind describes one registered stage kind.
+type Kind struct {
+	// Name is the spec's "kind" value.
+	Name string
+	// Doc is one line describing the stage, shown by `winnow check`.
+	Doc string
+	// New builds a per-document stage from its parameters. Exactly one of
+	// New and NewGlobal is set.
+	New func(p *Params, env Env) (Stage, error)
+	// NewGlobal builds a global stage.
+	NewGlobal func(p *Params, env Env) (GlobalStage, error)
+}
+
+var registry = map[string]Kind{}
+
+// Register adds a stage kind to the table that specs are validated
+// against. It panics on a duplicate name (a programming error).
+func Register(k Kind) {
+	if _, dup := registry[k.Name]; dup {
+		panic(fmt.Sprintf("stages: kind %q registered twice", k.Name))
+	}
+	if (k.New == nil) == (k.NewGlobal == nil) {
+		panic(fmt.Sprintf("stages: kind %q must set exactly one of New and NewGlobal", k.Name))
+	}
+	registry[k.Name] = k
+}
+
+// Kinds returns the registered kinds sorted by name.
+func Kinds() []Kind {
+	out := make([]Kind, 0, len(registry))
+	for _, k := range registry {
+		out = append(out, k)
+	}
+	sort.Slice(out, func(i, j int) bool { return out[i].Name < out[j].Name })
+	return out
+}
+
+// LookupKind returns the registered kind with the given name.
+func LookupKind(name string) (Kind, bool) {
+	k, ok := registry[name]
+	return k, ok
+}
