@@ -1,6 +1,7 @@
 package stages
 
 import (
+	"bytes"
 	"encoding/json"
 	"math"
 	"sort"
@@ -52,6 +53,11 @@ func appendJSONValue(b []byte, v any) []byte {
 	switch x := v.(type) {
 	case nil:
 		return append(b, "null"...)
+	case RawJSON:
+		if !utf8.Valid(x) {
+			return append(b, bytes.ToValidUTF8(x, []byte("\ufffd"))...)
+		}
+		return append(b, x...)
 	case string:
 		return appendJSONString(b, x)
 	case float64:

@@ -1,0 +1,100 @@
+package main
+
+import (
+	"fmt"
+	"os"
+	"text/tabwriter"
+
+	"github.com/spf13/cobra"
+
+	"winnow/stages"
+)
+
+var checkCmd = &cobra.Command{
+	Use:   "check SPEC",
+	Short: "Validate a spec and its inputs without running it",
+	Long: `Check loads the spec, reports every unknown key, wrong type and out-of-range
+value with file:line:column, resolves every input path (a missing file or an
+empty glob is an error), builds every stage, and prints the plan: inputs,
+stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
+	Example: `  winnow check configs/default.yaml`,
+	Args:    cobra.ExactArgs(1),
+	RunE: func(cmd *cobra.Command, args []string) error {
+		spec, err := stages.LoadSpec(args[0])
+		if err != nil {
+			return err
+		}
+		inputs, err := stages.ResolveInputs(spec)
+		if err != nil {
+			return err
+		}
+		steps, err := spec.BuildStages(stages.Env{Checking: true})
+		if err != nil {
+			return err
+		}
+		if _, err := stages.OutputStage(spec.Output, stages.Env{Checking: true}); err != nil {
+			return err
+		}
+		if _, err := stages.OpenSink(spec.Output, stages.Env{Checking: true}, spec.Name); err != nil {
+			return err
+		}
+		w := os.Stdout
+		var total int64
+		bySource := map[string]int{}
+		for _, in := range inputs {
+			if in.Size > 0 {
+				total += in.Size
+			}
+			bySource[in.Spec.Source]++
+		}
+		fmt.Fprintf(w, "spec %s (name %s, seed %d, config hash %s)\n", spec.File, spec.Name, spec.Seed, spec.ConfigHash)
+		fmt.Fprintf(w, "inputs: %d files, %.1f MB\n", len(inputs), float64(total)/1e6)
+		for _, in := range spec.Inputs {
+			fmt.Fprintf(w, "  %-12s %d files, format %s\n", in.Source, bySource[in.Source], in.Format)
+		}
+		fmt.Fprintln(w, "stages:")
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+		for i, st := range steps {
+			kind := ""
+			var desc string
+			var obj any
+			if st.Stage != nil {
+				kind, obj = st.Stage.Kind(), st.Stage
+			} else {
+				kind, obj = st.Global.Kind()+" (global)", st.Global
+			}
+			k, _ := stages.LookupKind(spec.Stages[i].Kind)
+			fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\n", i+1, st.Name, kind, k.Doc)
+			if d, ok := obj.(stages.Describer); ok {
+				desc = d.Describe()
+			}
+			if ts, ok := obj.(stages.ThresholdStage); ok {
+				for _, r := range ts.Rules() {
+					if r.Enabled {
+						fmt.Fprintf(tw, "\t\t  %s\tkeep %s %s %g\n", r.Key, r.Metric, r.Cmp, r.Limit)
+					}
+				}
+			}
+			if desc != "" {
+				tw.Flush()
+				fmt.Fprintln(w, indent(desc, "      "))
+			}
+		}
+		tw.Flush()
+		fmt.Fprintln(w, "ok")
+		return nil
+	},
+}
+
+func indent(s, pre string) string {
+	out := pre
+	for i := 0; i < len(s); i++ {
+		out += string(s[i])
+		if s[i] == '\n' && i+1 < len(s) {
+			out += pre
+		}
+	}
+	return out
+}
+
+func init() { rootCmd.AddCommand(checkCmd) }

@@ -1,0 +1,202 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"path/filepath"
+	"strings"
+	"syscall"
+
+	"github.com/spf13/cobra"
+
+	"winnow/stages"
+)
+
+type contamFlags struct {
+	evals      []string
+	fields     []string
+	idField    string
+	evalFormat string
+	ngram      int
+	maxDF      int
+	source     string
+	format     string
+	textField  string
+	docID      string
+	workers    int
+	out        string
+	asJSON     bool
+	quiet      bool
+}
+
+var contamOpts contamFlags
+
+var contamCmd = &cobra.Command{
+	Use:   "contam --eval FILE... INPUT...",
+	Short: "Report which eval-set items occur in a corpus, without a full run",
+	Long: `Contam checks corpus files against held-out eval sets the way the
+decontaminate stage does (word 13-gram overlap after Unicode NFKC, case
+folding and punctuation removal; items shorter than 13 words must occur
+as a whole) and prints, per eval set, the items checked, the items found
+and the documents affected, then every contaminated item with its
+documents and the matched text. Nothing is removed.
+
+An eval set is a JSONL file (optionally .gz or .zst) or plain text (one
+item per line, or per blank-line block). --eval NAME=FILE names the set;
+otherwise it is named after the file. Inputs are read like "run" inputs:
+files, globs, directories or "-"; jsonl, text, warc or parquet; gzip or
+zstd by magic bytes.
+
+With --out DIR, contamination.json and the ledger are kept in DIR.`,
+	Example: `  winnow contam --eval evals/hull-qa.jsonl --fields question,answer raw/forum/*.jsonl.zst
+  winnow contam --eval qa=evals/a.jsonl.gz --eval evals/b.txt corpus/ --json`,
+	Args: cobra.MinimumNArgs(1),
+	RunE: func(cmd *cobra.Command, args []string) error {
+		return runContam(cmd.Context(), contamOpts, args, cmd.OutOrStdout())
+	},
+}
+
+func init() {
+	f := &contamOpts
+	fl := contamCmd.Flags()
+	fl.StringArrayVar(&f.evals, "eval", nil, "eval set file, or NAME=FILE (repeatable; globs allowed)")
+	fl.StringSliceVar(&f.fields, "fields", nil, "fields that make up an item's text, e.g. question,answer (default: every field but the id)")
+	fl.StringVar(&f.idField, "id-field", "id", "eval item id field")
+	fl.StringVar(&f.evalFormat, "eval-format", "auto", "eval file format: "+strings.Join(stages.EvalFormats, " | "))
+	fl.IntVar(&f.ngram, "ngram", 13, "n-gram length in words")
+	fl.IntVar(&f.maxDF, "max-doc-frequency", 0, "ignore n-grams found in more than this many documents (0: none; needs a second pass)")
+	fl.StringVar(&f.source, "source", "input", "source label of the inputs (used in default document ids)")
+	fl.StringVar(&f.format, "format", "auto", "input format: auto | jsonl | text | warc | parquet")
+	fl.StringVar(&f.textField, "text-field", "text", "JSONL field holding document text")
+	fl.StringVar(&f.docID, "doc-id-field", "id", "JSONL field holding document ids")
+	fl.IntVar(&f.workers, "workers", 0, "worker goroutines (default: number of cores)")
+	fl.StringVar(&f.out, "out", "", "keep contamination.json and the ledger in this directory")
+	fl.BoolVar(&f.asJSON, "json", false, "print the report as JSON")
+	fl.BoolVarP(&f.quiet, "quiet", "q", false, "no progress line")
+	contamCmd.MarkFlagRequired("eval")
+	rootCmd.AddCommand(contamCmd)
+
+	// The demo shows the leaked items its decontaminate stage found.
+	prev := demoReport
+	demoReport = func(res *stages.RunResult) error {
+		if err := prev(res); err != nil {
+			return err
+		}
+		path := filepath.Join(res.Dir, "contamination.json")
+		if _, err := os.Stat(path); err != nil {
+			return nil
+		}
+		r, err := stages.ReadContamReport(path)
+		if err != nil {
+			return err
+		}
+		fmt.Printf("\ncontamination (%s):\n", path)
+		return r.WriteTableN(os.Stdout, demoContamItems)
+	}
+}
+
+// demoContamItems is the number of contaminated items the demo lists per
+// eval set (the full list is in contamination.json).
+const demoContamItems = 10
+
+func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) error {
+	if ctx == nil {
+		ctx = context.Background()
+	}
+	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	if f.ngram < 1 || f.ngram > 64 {
+		return fmt.Errorf("--ngram %d: want 1..64", f.ngram)
+	}
+	if f.maxDF < 0 {
+		return fmt.Errorf("--max-doc-frequency %d: want 0 or more", f.maxDF)
+	}
+	var sets []*stages.EvalSet
+	names := map[string]bool{}
+	for _, e := range f.evals {
+		name, path, ok := strings.Cut(e, "=")
+		if !ok {
+			name, path = evalName(e), e
+		}
+		if names[name] {
+			return fmt.Errorf("--eval %s: eval set %q named twice (use NAME=FILE)", e, name)
+		}
+		names[name] = true
+		set, err := stages.LoadEvalSet(stages.EvalSpec{Name: name, Paths: []string{path}, Fields: f.fields,
+			IDField: f.idField, IDExplicit: f.idField != "id", Format: f.evalFormat})
+		if err != nil {
+			return err
+		}
+		sets = append(sets, set)
+	}
+	cfg := stages.DefaultDecontamConfig()
+	cfg.Ngram, cfg.Action, cfg.MaxDocFrequency = f.ngram, "flag", f.maxDF
+	d, err := stages.NewDecontaminate("decontaminate", cfg, sets)
+	if err != nil {
+		return err
+	}
+	spec := &stages.Spec{Dir: ".", Inputs: []stages.InputSpec{{Paths: args, ReadOptions: stages.ReadOptions{
+		Source: f.source, Format: stages.Format(f.format), TextField: f.textField, IDField: f.docID}}}}
+	inputs, err := stages.ResolveInputs(spec)
+	if err != nil {
+		return err
+	}
+	tmp, err := os.MkdirTemp("", "winnow-contam-")
+	if err != nil {
+		return err
+	}
+	defer os.RemoveAll(tmp)
+	runDir := filepath.Join(tmp, "run")
+	if f.out != "" {
+		runDir = f.out
+	}
+	step := stages.Step{Name: "decontaminate"}
+	if s := d.PerDocument(); s != nil {
+		step.Stage = s
+	} else {
+		step.Global = d
+	}
+	prog := newProgress(f.quiet)
+	r := &stages.Runner{Spec: spec, Steps: []stages.Step{step}, Inputs: inputs, Workers: f.workers,
+		Env: stages.Env{SpecDir: ".", RunDir: runDir, TempDir: tmp}, OnProgress: prog.update, Log: prog.logf}
+	runErr := r.Run(ctx)
+	prog.done()
+	if runErr != nil && !errors.Is(runErr, context.Canceled) {
+		return runErr
+	}
+	if f.asJSON {
+		err = stages.PrintContamination(w, filepath.Join(runDir, "contamination.json"), true)
+	} else {
+		err = d.Report().WriteTable(w)
+	}
+	if err != nil {
+		return err
+	}
+	if errors.Is(runErr, context.Canceled) {
+		return &exitError{code: 130, err: errors.New("interrupted: the report covers the documents read so far")}
+	}
+	if r.FatalInputs > 0 {
+		return &exitError{code: 3, err: fmt.Errorf("finished, but %d input file(s) could not be read to the end: the report covers the documents before the break", r.FatalInputs)}
+	}
+	if r.ErrCount > 0 {
+		fmt.Fprintf(os.Stderr, "winnow: finished; skipped %d unreadable record(s) or empty input(s)\n", r.ErrCount)
+	}
+	return nil
+}
+
+// evalName names an eval set after its file: "evals/hull-qa.jsonl.zst"
+// is "hull-qa".
+func evalName(path string) string {
+	base := filepath.Base(path)
+	for _, suf := range []string{".gz", ".zst", ".zstd", ".gzip"} {
+		base = strings.TrimSuffix(base, suf)
+	}
+	if ext := filepath.Ext(base); ext != "" && ext != base {
+		base = strings.TrimSuffix(base, ext)
+	}
+	return base
+}

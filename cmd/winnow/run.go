@@ -1,0 +1,114 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"os/signal"
+	"syscall"
+
+	"github.com/spf13/cobra"
+
+	"winnow/stages"
+)
+
+type runFlags struct {
+	out          string
+	workers      int
+	force        bool
+	allowPartial bool
+	memory       string
+	against      string
+	quiet        bool
+	asJSON       bool
+	sets         []string
+}
+
+func (f *runFlags) register(cmd *cobra.Command) {
+	cmd.Flags().StringVar(&f.out, "out", "", "output run directory (default: the spec's output.dir)")
+	cmd.Flags().IntVar(&f.workers, "workers", 0, "worker goroutines for per-document stages (default: number of cores)")
+	cmd.Flags().BoolVar(&f.force, "force", false, "replace a directory that holds a different run")
+	cmd.Flags().BoolVar(&f.allowPartial, "allow-partial", false, "exit 0 even when some input could not be read to its end")
+	cmd.Flags().StringVar(&f.memory, "memory", "", "memory budget of dedup indexes before they spill to disk, e.g. 512MiB")
+	cmd.Flags().StringVar(&f.against, "against", "", "previous run directory: also remove duplicates of what it kept")
+	cmd.Flags().BoolVarP(&f.quiet, "quiet", "q", false, "no progress line")
+	cmd.Flags().BoolVar(&f.asJSON, "json", false, "print the stage table as JSON")
+	cmd.Flags().StringArrayVar(&f.sets, "set", nil, "override a stage parameter, STAGE.KEY=VALUE (repeatable)")
+}
+
+var runOpts runFlags
+
+var runCmd = &cobra.Command{
+	Use:   "run SPEC",
+	Short: "Run a pipeline spec over its inputs",
+	Long: `Run reads the spec's inputs, applies its stages in order and writes the run
+directory: shards/, ledger/, metrics/, manifest.json (and contamination.json
+when a decontaminate stage runs). Ctrl-C stops cleanly: every decision made
+so far is flushed and the manifest says the run was interrupted.
+
+Exit status: 0 on success; 3 when some input could not be read to its end
+(unless --allow-partial); 130 when interrupted; 1 on any other error.`,
+	Example: `  winnow run configs/default.yaml --out out/ --workers 2
+  winnow run spec.yaml --set quality.min_words=80 --force`,
+	Args: cobra.ExactArgs(1),
+	RunE: func(cmd *cobra.Command, args []string) error {
+		return runSpecFile(cmd.Context(), args[0], runOpts)
+	},
+}
+
+func init() {
+	runOpts.register(runCmd)
+	rootCmd.AddCommand(runCmd)
+}
+
+func runSpecFile(ctx context.Context, path string, f runFlags) error {
+	spec, err := stages.LoadSpec(path)
+	if err != nil {
+		return err
+	}
+	_, err = runLoaded(ctx, spec, f)
+	return err
+}
+
+func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunResult, error) {
+	if ctx == nil {
+		ctx = context.Background()
+	}
+	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	mem, err := parseBytes(f.memory)
+	if err != nil {
+		return nil, fmt.Errorf("--memory: %w", err)
+	}
+	prog := newProgress(f.quiet)
+	res, err := stages.RunSpec(ctx, spec, stages.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
+		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets})
+	prog.done()
+	if res == nil {
+		return nil, err
+	}
+	if perr := printStageTable(os.Stdout, res.Manifest, f.asJSON); perr != nil {
+		return res, perr
+	}
+	if errors.Is(err, context.Canceled) {
+		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted)", res.Dir)}
+	}
+	m := res.Manifest
+	fatal := res.Runner.FatalInputs
+	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%d tokens) in %d shards to %s\n",
+		m.Totals.DocsOut, m.Totals.TokensOut, len(m.Outputs), res.Dir)
+	if fatal > 0 {
+		msg := fmt.Errorf("finished, but %d input file(s) could not be read to the end and %d record(s) were unreadable: see errors in %s/manifest.json",
+			fatal, m.ErrorCount-int64(fatal), res.Dir)
+		if f.allowPartial {
+			fmt.Fprintln(os.Stderr, "winnow:", msg)
+			return res, nil
+		}
+		return res, &exitError{code: 3, err: msg}
+	}
+	if m.ErrorCount > 0 {
+		fmt.Fprintf(os.Stderr, "winnow: finished; skipped %d unreadable record(s) or empty input(s): see ledger/read.jsonl.zst\n", m.ErrorCount)
+	}
+	return res, nil
+}

@@ -1,0 +1,75 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"strconv"
+	"strings"
+	"text/tabwriter"
+
+	"winnow/stages"
+)
+
+// printStageTable prints the per-stage document and byte flow of a run.
+func printStageTable(w io.Writer, m *stages.Manifest, asJSON bool) error {
+	if asJSON {
+		enc := json.NewEncoder(w)
+		enc.SetIndent("", "  ")
+		return enc.Encode(map[string]any{"stages": m.Stages, "totals": m.Totals, "outputs": m.Outputs, "error_count": m.ErrorCount})
+	}
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "stage\tkind\tdocs in\tdocs out\tdropped\tedited\tMB in\tMB out\ttokens out\tseconds\t")
+	for _, c := range m.Stages {
+		toks := ""
+		if c.TokensOut > 0 {
+			toks = group(c.TokensOut)
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%.2f\t%.2f\t%s\t%.2f\t\n", c.Name, c.Kind, group(c.DocsIn), group(c.DocsOut),
+			group(c.Dropped), group(c.Edited), float64(c.BytesIn)/1e6, float64(c.BytesOut)/1e6, toks, c.Seconds)
+	}
+	return tw.Flush()
+}
+
+// group formats n with thousands separators.
+func group(n int64) string {
+	s := strconv.FormatInt(n, 10)
+	neg := strings.HasPrefix(s, "-")
+	s = strings.TrimPrefix(s, "-")
+	var b strings.Builder
+	for i, c := range s {
+		if i > 0 && (len(s)-i)%3 == 0 {
+			b.WriteByte(',')
+		}
+		b.WriteRune(c)
+	}
+	if neg {
+		return "-" + b.String()
+	}
+	return b.String()
+}
+
+// parseBytes parses sizes like 512MiB, 2GB, 1e9 or 4096 ("" is 0).
+func parseBytes(s string) (int64, error) {
+	s = strings.TrimSpace(s)
+	if s == "" {
+		return 0, nil
+	}
+	units := []struct {
+		suf string
+		mul float64
+	}{{"KiB", 1 << 10}, {"MiB", 1 << 20}, {"GiB", 1 << 30}, {"TiB", 1 << 40}, {"KB", 1e3}, {"MB", 1e6}, {"GB", 1e9}, {"TB", 1e12}, {"K", 1 << 10}, {"M", 1 << 20}, {"G", 1 << 30}, {"B", 1}}
+	mul := 1.0
+	for _, u := range units {
+		if strings.HasSuffix(strings.ToUpper(s), strings.ToUpper(u.suf)) {
+			s = strings.TrimSpace(s[:len(s)-len(u.suf)])
+			mul = u.mul
+			break
+		}
+	}
+	f, err := strconv.ParseFloat(s, 64)
+	if err != nil || f < 0 {
+		return 0, fmt.Errorf("want a size like 512MiB, got %q", s)
+	}
+	return int64(f * mul), nil
+}

@@ -1,0 +1,128 @@
+package filters
+
+import (
+	"math"
+	"strings"
+	"unicode/utf8"
+)
+
+var nan = math.NaN()
+
+// Published thresholds of the MassiveWeb quality filter, Rae et al. 2021,
+// "Scaling Language Models: Methods, Analysis & Insights from Training
+// Gopher", appendix A (all from memory). The paper states them as removal
+// conditions ("remove documents with more than..."), so a value equal to a
+// limit keeps the document.
+const (
+	GopherMinWords         = 50     // "between 50 and 100,000 words"
+	GopherMaxWords         = 100000 // idem
+	GopherMinMeanWordLen   = 3.0    // "mean word length ... outside of the range of 3 to 10 characters"
+	GopherMaxMeanWordLen   = 10.0   // idem
+	GopherMaxSymbolRatio   = 0.1    // "symbol-to-word ratio greater than 0.1 for either the hash symbol or the ellipsis"
+	GopherMaxBulletLines   = 0.9    // "more than 90% of lines starting with a bullet point"
+	GopherMaxEllipsisLines = 0.3    // "more than 30% [of lines] ending with an ellipsis"
+	GopherMinAlphaWords    = 0.8    // "80% of words ... contain at least one alphabetic character"
+	GopherMinStopwords     = 2      // "at least two of the following English words: the, be, to, of, and, that, have, with"
+)
+
+// Quality holds the document-level quality metrics of Rae et al. 2021 for
+// one text.
+type Quality struct {
+	// Words is the number of whitespace-separated words.
+	Words int
+	// MeanWordLen is the mean word length in characters (NaN without words).
+	MeanWordLen float64
+	// HashRatio is the number of '#' characters per word; EllipsisRatio the
+	// number of ellipses ("..." or U+2026) per word; SymbolRatio the larger
+	// of the two, the value the paper's rule holds against 0.1 (all NaN
+	// without words).
+	HashRatio, EllipsisRatio, SymbolRatio float64
+	// BulletLines is the fraction of non-blank lines that start with a
+	// bullet; EllipsisLines the fraction that end with an ellipsis (0
+	// without lines).
+	BulletLines, EllipsisLines float64
+	// AlphaWords is the fraction of words containing a letter (NaN without
+	// words).
+	AlphaWords float64
+	// Stop is the stop-word scan (the English eight and the language list).
+	Stop StopCount
+}
+
+// MeasureQuality splits text into s and measures its quality metrics with
+// the stop-word list sw (nil: only the English eight are counted). It
+// allocates nothing once s has grown to the text's size.
+func MeasureQuality(s *Scratch, text string, sw *Stopwords) Quality {
+	s.Split(text)
+	return QualityOfSplit(s, text, sw)
+}
+
+// QualityOfSplit measures text, which s.Split(text) has already split.
+func QualityOfSplit(s *Scratch, text string, sw *Stopwords) Quality {
+	q := Quality{Words: len(s.Words)}
+	chars, alpha := 0, 0
+	for _, w := range s.Words {
+		chars += int(w.Runes)
+		if w.Alpha {
+			alpha++
+		}
+	}
+	if q.Words > 0 {
+		n := float64(q.Words)
+		q.MeanWordLen = float64(chars) / n
+		q.HashRatio = float64(strings.Count(text, "#")) / n
+		q.EllipsisRatio = float64(strings.Count(text, "...")+strings.Count(text, "\u2026")) / n
+		q.SymbolRatio = max(q.HashRatio, q.EllipsisRatio)
+		q.AlphaWords = float64(alpha) / n
+	} else {
+		q.MeanWordLen, q.HashRatio, q.EllipsisRatio, q.SymbolRatio, q.AlphaWords = nan, nan, nan, nan, nan
+	}
+	if len(s.Lines) > 0 {
+		bullets, ellipses := 0, 0
+		for _, l := range s.Lines {
+			line := text[l.Start:l.End]
+			if StartsWithBullet(line) {
+				bullets++
+			}
+			if EndsWithEllipsis(line) {
+				ellipses++
+			}
+		}
+		q.BulletLines = float64(bullets) / float64(len(s.Lines))
+		q.EllipsisLines = float64(ellipses) / float64(len(s.Lines))
+	}
+	q.Stop = CountStopwords(s, text, sw)
+	return q
+}
+
+// bulletRunes start a bullet line wherever they appear first on a line.
+// Dashes are left out on purpose: many languages open dialogue lines with
+// an em dash.
+var bulletRunes = map[rune]bool{
+	'•': true, '‣': true, '◦': true, '⁃': true, '●': true, '○': true, '▪': true, '▫': true,
+	'■': true, '□': true, '◆': true, '◇': true, '►': true, '▶': true, '➢': true, '➤': true,
+	'✓': true, '✔': true, '·': true, '∙': true,
+}
+
+// StartsWithBullet reports whether a trimmed line starts with a bullet
+// point: one of the Unicode bullet characters, or '-', '*' or '+' followed
+// by a space (so "-5 degrees" and "*emphasis*" are not bullets).
+func StartsWithBullet(line string) bool {
+	if line == "" {
+		return false
+	}
+	c := line[0]
+	if c < utf8.RuneSelf {
+		if c == '-' || c == '*' || c == '+' {
+			return len(line) == 1 || line[1] == ' ' || line[1] == '\t'
+		}
+		return false
+	}
+	r, _ := utf8.DecodeRuneInString(line)
+	return bulletRunes[r]
+}
+
+// EndsWithEllipsis reports whether a trimmed line ends with "..." or the
+// ellipsis character U+2026.
+func EndsWithEllipsis(line string) bool {
+	return strings.HasSuffix(line, "...") || strings.HasSuffix(line, "\u2026")
+}

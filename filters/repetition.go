@@ -1,0 +1,435 @@
+package filters
+
+import (
+	"github.com/zeebo/xxh3"
+)
+
+// Published thresholds of the MassiveWeb repetition filter, Rae et al.
+// 2021, appendix A, table A1 (from memory). A document is removed when a
+// fraction exceeds its limit, so a value equal to the limit keeps it.
+const (
+	GopherDupLineFrac     = 0.30 // duplicate line fraction
+	GopherDupParaFrac     = 0.30 // duplicate paragraph fraction
+	GopherDupLineCharFrac = 0.20 // duplicate line character fraction
+	GopherDupParaCharFrac = 0.20 // duplicate paragraph character fraction
+)
+
+// GopherTopNgramFrac are the limits of the top 2-, 3- and 4-gram character
+// fractions (Rae et al. 2021, table A1, from memory).
+var GopherTopNgramFrac = [3]float64{0.20, 0.18, 0.16}
+
+// GopherDupNgramFrac are the limits of the duplicate 5- to 10-gram
+// character fractions (Rae et al. 2021, table A1, from memory).
+var GopherDupNgramFrac = [6]float64{0.15, 0.14, 0.13, 0.12, 0.11, 0.10}
+
+// Tuning constants of the repetition metrics.
+const (
+	// MaxRepetitionWords bounds the words the n-gram statistics look at
+	// (the first ones of a longer text): 2.6 times the largest document
+	// the quality rules keep, and it caps the hash tables at about 50 MB.
+	MaxRepetitionWords = 1 << 18
+	// MaxRepetitionLines bounds the lines and paragraphs compared, for
+	// the same reason.
+	MaxRepetitionLines = 1 << 18
+	// keepSlots is the largest hash table a Scratch keeps between
+	// documents; larger ones (rare, long documents) are released so a
+	// pooled Scratch does not hold tens of megabytes.
+	keepSlots = 1 << 16
+	// ngramMul is the odd base B of the polynomial n-gram hash (the
+	// 64-bit golden ratio); products carry mixing into the high bits,
+	// where the tables take their index from.
+	ngramMul = 0x9E3779B97F4A7C15
+)
+
+// Repetition holds the repetition metrics of Rae et al. 2021 for one text.
+// Character counts are in characters (runes).
+type Repetition struct {
+	// DupLineFrac is the fraction of non-blank lines that repeat an
+	// earlier line; DupLineCharFrac the characters of those repeats over
+	// the characters of the text. DupParaFrac and DupParaCharFrac are the
+	// same for paragraphs (separated by blank lines).
+	DupLineFrac, DupLineCharFrac float64
+	DupParaFrac, DupParaCharFrac float64
+	// TopNgram[n-2] (n = 2, 3, 4) is the characters of the most frequent
+	// word n-gram times its count over the characters of all words,
+	// capped at 1; 0 when no n-gram repeats.
+	TopNgram [3]float64
+	// DupNgram[n-5] (n = 5..10) is the characters of the words covered by
+	// a repeated occurrence of a word n-gram (each character counted once
+	// however many occurrences overlap it) over the characters of all
+	// words.
+	DupNgram [6]float64
+}
+
+// MeasureRepetition splits text into s and measures its repetition
+// metrics. All n-gram statistics come from one pass over the word list:
+// each word is hashed once with xxh3, the n-grams ending at it are
+// combined from prefix hashes of the word hashes, and nothing is
+// allocated per word or per n-gram.
+func MeasureRepetition(s *Scratch, text string) Repetition {
+	s.Split(text)
+	return RepetitionOfSplit(s, text)
+}
+
+// Measure splits text once and returns its quality and repetition
+// metrics.
+func Measure(s *Scratch, text string, sw *Stopwords) (Quality, Repetition) {
+	s.Split(text)
+	return QualityOfSplit(s, text, sw), RepetitionOfSplit(s, text)
+}
+
+// RepetitionOfSplit measures text, which s.Split(text) has already split.
+//
+// The n-gram pass keeps a polynomial rolling hash over the xxh3 hashes of
+// the words (prefix hashes P[k+1] = P[k]*B + h(word k) modulo 2^64, so the
+// n-gram words[k..j] hashes to P[j+1] - P[k]*B^n in two operations).
+//
+// An n-gram can only repeat if the (n-1)-gram it ends with repeats, so
+// the n-gram ending at word j is looked up only when its (n-1)-gram suffix
+// has been seen before; otherwise it is certainly new and skipped. A
+// skipped occurrence is always the first occurrence of its suffix, whose
+// position the suffix's table entry keeps, so when the n-gram turns up
+// again one comparison of word hashes tells whether that skipped
+// occurrence was the same n-gram. The 2-, 3- and 4-grams are counted this
+// way (for the top n-gram fractions). For the duplicate 5..10-grams only
+// 5-grams are indexed: each occurrence links to the previous occurrence
+// of the same 5-gram, and walking those links while comparing word hashes
+// backwards gives the longest n (up to 10) for which the n-gram ending at
+// word j occurred before. A repeated n-gram always contains a repeated
+// 5-gram, so this is exact up to 64-bit hash collisions, as long as the
+// walk meets the match within maxChainWalk earlier occurrences (it nearly
+// always does at the first).
+func RepetitionOfSplit(s *Scratch, text string) Repetition {
+	var r Repetition
+	rs := &s.rep
+	defer rs.release()
+
+	// Lines and paragraphs: a repeat is an occurrence after the first.
+	lines := s.Lines[:min(len(s.Lines), MaxRepetitionLines)]
+	if len(lines) > 0 {
+		rs.lines.reset(len(lines))
+		dup, dupChars := 0, 0
+		for _, l := range lines {
+			if rs.lines.add(xxh3.HashString(text[l.Start:l.End])) {
+				dup++
+				dupChars += l.Runes
+			}
+		}
+		r.DupLineFrac = float64(dup) / float64(len(lines))
+		r.DupLineCharFrac = frac(dupChars, s.Runes)
+	}
+	paras := s.Paras[:min(len(s.Paras), MaxRepetitionLines)]
+	if len(paras) > 0 {
+		rs.paras.reset(len(paras))
+		dup, dupChars := 0, 0
+		for _, p := range paras {
+			if rs.paras.add(xxh3.HashString(text[p.Start:p.End])) {
+				dup++
+				dupChars += p.Runes
+			}
+		}
+		r.DupParaFrac = float64(dup) / float64(len(paras))
+		r.DupParaCharFrac = frac(dupChars, s.Runes)
+	}
+
+	words := s.Words[:min(len(s.Words), MaxRepetitionWords)]
+	nw := len(words)
+	if nw < 2 {
+		return r
+	}
+	hashes := s.WordHashes(text)[:nw]
+	prev := grow(rs.prev, nw)
+	rs.prev = prev
+	t2, t3, t4, t5 := &rs.t2, &rs.t3, &rs.t4, &rs.five
+	t2.reset(nw)
+	t3.reset(nw)
+	t4.reset(nw)
+	t5.reset(nw)
+	var (
+		pre      [16]uint64 // pre[k mod 16] = prefix hash of words[:k]
+		cum      [16]int    // cum[k mod 16] = characters of words[:k]
+		covEnd   [6]int     // per n: words before this index are already counted
+		dupChars [6]int
+		bestCnt  [3]int32
+		bestLen  [3]int
+	)
+	best := func(i int, c int32, runes int) {
+		if c > bestCnt[i] || (c == bestCnt[i] && runes > bestLen[i]) {
+			bestCnt[i], bestLen[i] = c, runes
+		}
+	}
+	total := 0
+	for j := 0; j < nw; j++ {
+		h := hashes[j]
+		total += int(words[j].Runes)
+		cum[(j+1)&15] = total
+		pj := pre[j&15]*ngramMul + h
+		pre[(j+1)&15] = pj
+		prev[j] = -1
+		if j < 1 {
+			continue
+		}
+		c2, f2 := t2.inc(pj-pre[(j-1)&15]*ngramPow[2], int32(j), -1)
+		if c2 < 2 || j < 2 {
+			continue
+		}
+		best(0, c2, total-cum[(j-1)&15])
+		seed := int32(-1)
+		if f2 >= 2 && hashes[f2-2] == hashes[j-2] {
+			seed = f2
+		}
+		c3, f3 := t3.inc(pj-pre[(j-2)&15]*ngramPow[3], int32(j), seed)
+		if c3 < 2 || j < 3 {
+			continue
+		}
+		best(1, c3, total-cum[(j-2)&15])
+		seed = -1
+		if f3 >= 3 && hashes[f3-3] == hashes[j-3] {
+			seed = f3
+		}
+		c4, f4 := t4.inc(pj-pre[(j-3)&15]*ngramPow[4], int32(j), seed)
+		if c4 < 2 || j < 4 {
+			continue
+		}
+		best(2, c4, total-cum[(j-3)&15])
+		p := t5.swap(pj-pre[(j-4)&15]*ngramPow[5], int32(j))
+		if p < 0 && f4 >= 4 && hashes[f4-4] == hashes[j-4] {
+			p = f4 // the skipped first occurrence of the 4-gram suffix
+		}
+		prev[j] = p
+		// Every occurrence on the chain ends with the same 5-gram (equal
+		// 5-gram hashes), so the comparison starts at the sixth word back.
+		longest := 0
+		for walk := 0; p >= 0 && walk < maxChainWalk && longest < 10; walk++ {
+			m := 5
+			for m < 10 && int(p)-m >= 0 && hashes[int(p)-m] == hashes[j-m] {
+				m++
+			}
+			longest = max(longest, m)
+			p = prev[p]
+		}
+		for n := 5; n <= longest; n++ {
+			start := max(j-n+1, covEnd[n-5])
+			dupChars[n-5] += total - cum[start&15]
+			covEnd[n-5] = j + 1
+		}
+	}
+	for i := range r.TopNgram {
+		if bestCnt[i] >= 2 {
+			r.TopNgram[i] = min(1, float64(bestCnt[i])*float64(bestLen[i])/float64(max(total, 1)))
+		}
+	}
+	for i := range r.DupNgram {
+		r.DupNgram[i] = frac(dupChars[i], total)
+	}
+	return r
+}
+
+// ngramPow[n] is ngramMul to the power n (mod 2^64).
+var ngramPow = func() (p [11]uint64) {
+	p[0] = 1
+	for i := 1; i < len(p); i++ {
+		p[i] = p[i-1] * ngramMul
+	}
+	return p
+}()
+
+// maxChainWalk bounds how many earlier occurrences of a 5-gram are
+// compared with the current one; only a text that repeats one 5-gram in
+// more than this many different contexts can be under-counted, and the
+// bound keeps such a text linear in time.
+const maxChainWalk = 64
+
+func grow[T any](b []T, n int) []T {
+	if cap(b) >= n {
+		return b[:n]
+	}
+	return make([]T, n, n+n/4)
+}
+
+func frac(a, b int) float64 {
+	if b <= 0 {
+		return 0
+	}
+	return float64(a) / float64(b)
+}
+
+// repScratch holds the tables of the repetition metrics.
+type repScratch struct {
+	lines, paras hashSet
+	t2, t3, t4   countTable // n-gram counts, n = 2, 3, 4
+	five         lastTable  // 5-gram hash -> last word index
+	prev         []int32    // previous occurrence of the 5-gram ending at each word
+}
+
+// release drops tables that grew past keepSlots.
+func (rs *repScratch) release() {
+	rs.lines.release()
+	rs.paras.release()
+	rs.t2.release()
+	rs.t3.release()
+	rs.t4.release()
+	rs.five.release()
+	if cap(rs.prev) > keepSlots {
+		rs.prev = nil
+	}
+}
+
+// tableSize returns the power-of-two slot count for n keys at a load
+// factor of at most 1/2, and its log2.
+func tableSize(n int) (int, uint) {
+	size, lg := 64, uint(6)
+	for size < 2*n {
+		size *= 2
+		lg++
+	}
+	return size, lg
+}
+
+// hashSet is an open-addressing set of non-zero 64-bit hashes with linear
+// probing, indexed by the hash's high bits.
+type hashSet struct {
+	keys  []uint64
+	shift uint
+}
+
+func (t *hashSet) reset(n int) {
+	size, lg := tableSize(n)
+	if cap(t.keys) >= size {
+		t.keys = t.keys[:size]
+		clear(t.keys)
+	} else {
+		t.keys = make([]uint64, size)
+	}
+	t.shift = 64 - lg
+}
+
+func (t *hashSet) release() {
+	if cap(t.keys) > keepSlots {
+		t.keys = nil
+	}
+}
+
+// add inserts k and reports whether it was already present.
+func (t *hashSet) add(k uint64) bool {
+	if k == 0 {
+		k = 1 // 0 marks an empty slot
+	}
+	mask := uint64(len(t.keys) - 1)
+	for j := k >> t.shift; ; j = (j + 1) & mask {
+		switch t.keys[j] {
+		case k:
+			return true
+		case 0:
+			t.keys[j] = k
+			return false
+		}
+	}
+}
+
+type countSlot struct {
+	key   uint64
+	count int32
+	first int32 // word index of the first occurrence
+}
+
+// countTable counts occurrences of 64-bit hashes and keeps the position
+// of each one's first occurrence.
+type countTable struct {
+	slots []countSlot
+	shift uint
+}
+
+func (t *countTable) reset(n int) {
+	size, lg := tableSize(n)
+	if cap(t.slots) >= size {
+		t.slots = t.slots[:size]
+		clear(t.slots)
+	} else {
+		t.slots = make([]countSlot, size)
+	}
+	t.shift = 64 - lg
+}
+
+func (t *countTable) release() {
+	if cap(t.slots) > keepSlots {
+		t.slots = nil
+	}
+}
+
+// inc counts an occurrence of k at word index at and returns the count so
+// far and the first occurrence. A new key starts at count 1 first at, or,
+// when seed >= 0 (a skipped earlier occurrence of the same key), at count
+// 2 first seed.
+func (t *countTable) inc(k uint64, at, seed int32) (int32, int32) {
+	if k == 0 {
+		k = 1 // 0 marks an empty slot
+	}
+	slots := t.slots
+	mask := uint64(len(slots) - 1)
+	for j := k >> t.shift; ; j = (j + 1) & mask {
+		e := &slots[j&mask]
+		if e.key == k {
+			e.count++
+			return e.count, e.first
+		}
+		if e.key == 0 {
+			e.key = k
+			if seed >= 0 {
+				e.count, e.first = 2, seed
+			} else {
+				e.count, e.first = 1, at
+			}
+			return e.count, e.first
+		}
+	}
+}
+
+type lastSlot struct {
+	key  uint64
+	last int32
+}
+
+// lastTable maps 64-bit hashes to the last word index they were seen at.
+type lastTable struct {
+	slots []lastSlot
+	shift uint
+}
+
+func (t *lastTable) reset(n int) {
+	size, lg := tableSize(n)
+	if cap(t.slots) >= size {
+		t.slots = t.slots[:size]
+		clear(t.slots)
+	} else {
+		t.slots = make([]lastSlot, size)
+	}
+	t.shift = 64 - lg
+}
+
+func (t *lastTable) release() {
+	if cap(t.slots) > keepSlots {
+		t.slots = nil
+	}
+}
+
+// swap records index i for k and returns the index k had before, or -1.
+func (t *lastTable) swap(k uint64, i int32) int32 {
+	if k == 0 {
+		k = 1 // 0 marks an empty slot
+	}
+	slots := t.slots
+	mask := uint64(len(slots) - 1)
+	for j := k >> t.shift; ; j = (j + 1) & mask {
+		e := &slots[j&mask]
+		if e.key == k {
+			old := e.last
+			e.last = i
+			return old
+		}
+		if e.key == 0 {
+			e.key, e.last = k, i
+			return -1
+		}
+	}
+}

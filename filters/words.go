@@ -1,0 +1,322 @@
+// Package filters measures text: word, line and paragraph statistics, the
+// quality and repetition metrics of Rae et al. 2021, the line cleaning of
+// Raffel et al. 2020, stop-word counts per language and best-effort
+// redaction of contact details. Every function here is a pure function of
+// its input text and options; nothing reads files (the stop-word lists are
+// embedded in the binary).
+//
+// The hot paths reuse a caller-provided Scratch so that measuring a
+// document allocates nothing per word: the word, line and paragraph lists
+// and the hash tables of the repetition metrics keep their capacity from
+// one document to the next.
+package filters
+
+import (
+	"unicode"
+	"unicode/utf8"
+
+	"github.com/zeebo/xxh3"
+)
+
+// Word is one whitespace-separated token of a text: the byte span
+// text[Start:End], its length in characters (runes; each invalid UTF-8
+// byte counts as one) and whether it contains a letter. Offsets are int32
+// to keep the list compact; Split measures at most the first MaxSplitBytes
+// of a text.
+type Word struct {
+	Start, End int32
+	Runes      int32
+	// Alpha is true when the word contains at least one Unicode letter.
+	Alpha bool
+	// Plain is true when the word is only lower-case ASCII letters and
+	// digits, so that NormalizeWord would return it unchanged.
+	Plain bool
+}
+
+// Line is one non-blank line of a text with surrounding whitespace
+// trimmed: the byte span text[Start:End], the character offset of Start,
+// its length in characters, and the range of its words in Scratch.Words.
+type Line struct {
+	Start, End int
+	RuneStart  int
+	Runes      int
+	FirstWord  int
+	NumWords   int
+}
+
+// Para is one paragraph: a maximal run of non-blank lines (paragraphs are
+// separated by one or more blank lines). Start/End is the trimmed byte span
+// from its first to its last line and Runes its length in characters,
+// newlines and indentation between its lines included; FirstLine/NumLines
+// index Scratch.Lines.
+type Para struct {
+	Start, End int
+	Runes      int
+	FirstLine  int
+	NumLines   int
+}
+
+// MaxSplitBytes is the longest prefix of a text that Split looks at (the
+// limit of Word's int32 offsets); longer texts are measured on this prefix.
+const MaxSplitBytes = 1<<31 - 1
+
+// Scratch holds the reusable buffers of one measuring goroutine. The zero
+// value is ready to use; a Scratch must not be shared by goroutines running
+// at the same time. After Split, Words, Lines and Paras describe the text
+// and Runes is its length in characters.
+type Scratch struct {
+	Words []Word
+	Lines []Line
+	Paras []Para
+	// Runes is the number of characters of the last split text (each
+	// invalid UTF-8 byte counts as one).
+	Runes int
+
+	rep    repScratch // tables of the repetition metrics
+	bounds []int      // rune boundaries of a segmented run (stop words)
+	starts []uint32   // first word of each line, paraBreak set after a blank line
+
+	// The last split text, by length and xxh3 digest: splitting the same
+	// text again (the quality and repetition stages one after the other)
+	// reuses the lists and word hashes. Equal digests of equal-length
+	// texts mean equal texts up to a 2^-64 chance.
+	lastLen int
+	lastSum uint64
+	valid   bool
+	hashes  []uint64 // xxh3 of each word, when hashed is true
+	hashed  bool
+}
+
+// WordHashes returns the xxh3 hash of each word of the last split text
+// (text must be that text), computing them once per split.
+func (s *Scratch) WordHashes(text string) []uint64 {
+	if !s.hashed {
+		h := grow(s.hashes, len(s.Words))
+		for i, w := range s.Words {
+			h[i] = xxh3.HashString(text[w.Start:w.End])
+		}
+		s.hashes, s.hashed = h, true
+	}
+	return s.hashes
+}
+
+// Byte classes used by the splitter.
+const (
+	clsSpace   = 1 << iota // ASCII whitespace as unicode.IsSpace sees it
+	clsNewline             // '\n'
+	clsLetter              // ASCII letter
+	clsHigh                // a byte of a multi-byte (or invalid) UTF-8 sequence
+	clsUpper               // ASCII upper-case letter
+	clsOther               // ASCII byte that is no letter, digit or space
+)
+
+var byteClass = func() (t [256]uint8) {
+	for c := 0; c < 0x80; c++ {
+		t[c] = clsOther
+	}
+	for _, c := range "\t\n\v\f\r " {
+		t[c] = clsSpace
+	}
+	t['\n'] |= clsNewline
+	for c := '0'; c <= '9'; c++ {
+		t[c] = 0
+	}
+	for c := 'a'; c <= 'z'; c++ {
+		t[c] = clsLetter
+		t[c-'a'+'A'] = clsLetter | clsUpper
+	}
+	for c := 0x80; c < 0x100; c++ {
+		t[c] = clsHigh
+	}
+	return t
+}()
+
+// spaceLead marks the UTF-8 lead bytes of the non-ASCII code points that
+// unicode.IsSpace reports as space (U+0085, U+00A0, U+1680, U+2000..U+200A,
+// U+2028, U+2029, U+202F, U+205F, U+3000); other lead bytes skip the check.
+var spaceLead = [256]bool{0xC2: true, 0xE1: true, 0xE2: true, 0xE3: true}
+
+// isSpaceAt reports whether a non-space-class byte at text[i] starts a
+// non-ASCII space, and its size.
+func isSpaceAt(text string, i int) (bool, int) {
+	r, size := utf8.DecodeRuneInString(text[i:])
+	return spaceLead[text[i]] && unicode.IsSpace(r), size
+}
+
+// Split fills s.Words, s.Lines and s.Paras for text, reusing their
+// capacity. Words are maximal runs of non-space characters, exactly as
+// strings.Fields defines them (unicode.IsSpace); lines end at '\n' (a
+// trailing '\r' is whitespace); a line without words is blank and blank
+// lines separate paragraphs. Split allocates only when a list outgrows its
+// capacity.
+func (s *Scratch) Split(text string) {
+	if len(text) > MaxSplitBytes {
+		text = text[:MaxSplitBytes]
+	}
+	sum := xxh3.HashString(text)
+	if s.valid && len(text) == s.lastLen && sum == s.lastSum {
+		return
+	}
+	s.lastLen, s.lastSum, s.valid, s.hashed = len(text), sum, true, false
+	var cont int
+	s.Words, s.starts, cont = splitWords(s.Words[:0], s.starts[:0], text)
+	s.Runes = len(text) - cont
+	s.Lines, s.Paras = splitLines(s.Lines[:0], s.Paras[:0], s.Words, s.starts, text, cont == 0)
+}
+
+// paraBreak marks an entry of Scratch.starts whose line starts a new
+// paragraph.
+const paraBreak = 1 << 31
+
+// wordSplitter holds splitWords' output in memory, so that its byte loop
+// keeps only the text, the position and the word's flags in registers.
+type wordSplitter struct {
+	words  []Word
+	starts []uint32
+	cont   int
+}
+
+// splitWords appends the words of text to words and the index of each
+// line's first word to starts (with paraBreak set after a blank line). It
+// returns them with the number of bytes of text that do not start a
+// character (so that characters = bytes - cont).
+func splitWords(words []Word, starts []uint32, text string) ([]Word, []uint32, int) {
+	ws := wordSplitter{words: words, starts: starts}
+	ws.split(text)
+	return ws.words, ws.starts, ws.cont
+}
+
+func (sp *wordSplitter) split(text string) {
+	newlines := 2 // '\n' seen since the last word, capped at 2 (the first word starts a paragraph)
+	for i := 0; i < len(text); {
+		c := text[i]
+		t := byteClass[c]
+		if t&clsSpace != 0 {
+			if c == '\n' && newlines < 2 {
+				newlines++
+			}
+			i++
+			continue
+		}
+		if t&clsHigh != 0 {
+			if isSp, size := isSpaceAt(text, i); isSp {
+				sp.cont += size - 1
+				i += size
+				continue
+			}
+		}
+		// a word starts at i
+		start := i
+		acc := uint8(0)
+		for {
+			for i < len(text) {
+				t = byteClass[text[i]]
+				if t&(clsSpace|clsHigh) != 0 {
+					break
+				}
+				acc |= t
+				i++
+			}
+			if i >= len(text) || t&clsSpace != 0 {
+				break
+			}
+			r, size := utf8.DecodeRuneInString(text[i:])
+			if spaceLead[text[i]] && unicode.IsSpace(r) {
+				break
+			}
+			if unicode.IsLetter(r) {
+				acc |= clsLetter
+			}
+			acc |= clsHigh
+			i += size
+		}
+		sp.add(text, start, i, acc, newlines)
+		newlines = 0
+	}
+}
+
+// add appends the word text[start:end] with byte classes acc, preceded by
+// the given number of newlines.
+func (sp *wordSplitter) add(text string, start, end int, acc uint8, newlines int) {
+	runes := end - start
+	if acc&clsHigh != 0 {
+		runes = utf8.RuneCountInString(text[start:end])
+		sp.cont += end - start - runes
+	}
+	if newlines > 0 {
+		st := uint32(len(sp.words))
+		if newlines >= 2 {
+			st |= paraBreak
+		}
+		sp.starts = append(sp.starts, st)
+	}
+	sp.words = append(sp.words, Word{Start: int32(start), End: int32(end), Runes: int32(runes),
+		Alpha: acc&clsLetter != 0, Plain: acc&(clsUpper|clsOther|clsHigh) == 0})
+}
+
+// splitLines appends the lines and paragraphs given by the line starts
+// that splitWords found. ascii says the text has only one-byte characters,
+// so character offsets are byte offsets.
+func splitLines(lines []Line, paras []Para, words []Word, starts []uint32, text string, ascii bool) ([]Line, []Para) {
+	pos, at := 0, 0 // the character offset of byte offset at
+	runeOffset := func(b int) int {
+		if ascii {
+			return b
+		}
+		pos += utf8.RuneCountInString(text[at:b])
+		at = b
+		return pos
+	}
+	paraFirst := 0
+	for k, st := range starts {
+		first := int(st &^ paraBreak)
+		end := len(words)
+		if k+1 < len(starts) {
+			end = int(starts[k+1] &^ paraBreak)
+		}
+		if st&paraBreak != 0 && len(lines) > 0 {
+			paras = appendPara(paras, lines, paraFirst)
+			paraFirst = len(lines)
+		}
+		a, b := words[first], words[end-1]
+		start := runeOffset(int(a.Start))
+		lines = append(lines, Line{Start: int(a.Start), End: int(b.End), RuneStart: start,
+			Runes: runeOffset(int(b.End)) - start, FirstWord: first, NumWords: end - first})
+	}
+	if len(lines) > 0 {
+		paras = appendPara(paras, lines, paraFirst)
+	}
+	return lines, paras
+}
+
+func appendPara(paras []Para, lines []Line, first int) []Para {
+	a, b := lines[first], lines[len(lines)-1]
+	runes := b.RuneStart + b.Runes - a.RuneStart
+	return append(paras, Para{Start: a.Start, End: b.End, Runes: runes, FirstLine: first, NumLines: len(lines) - first})
+}
+
+// CountWords returns the number of whitespace-separated words of s (the
+// same number as len(strings.Fields(s))) without allocating.
+func CountWords(s string) int {
+	n := 0
+	in := false
+	for i := 0; i < len(s); {
+		c := s[i]
+		space := false
+		if c < utf8.RuneSelf {
+			space = byteClass[c]&clsSpace != 0
+			i++
+		} else {
+			r, size := utf8.DecodeRuneInString(s[i:])
+			space = spaceLead[c] && unicode.IsSpace(r)
+			i += size
+		}
+		if space {
+			in = false
+		} else if !in {
+			in = true
+			n++
+		}
+	}
+	return n
+}

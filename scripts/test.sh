@@ -1,0 +1,27 @@
+#!/usr/bin/env bash
+# The project's test command (README "Set up"): installs the few system
+# tools the tests use when they are missing, then vets and tests everything.
+#   zstd, gzip  - compress test fixtures independently of winnow's own code
+#   chromium    - opens the HTML audit report headless in the audit tests
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+need=()
+command -v zstd >/dev/null 2>&1 || need+=(zstd)
+command -v gzip >/dev/null 2>&1 || need+=(gzip)
+command -v chromium >/dev/null 2>&1 || need+=(chromium)
+if [ ${#need[@]} -gt 0 ]; then
+  echo "installing: ${need[*]}" >&2
+  if [ "$(id -u)" = 0 ]; then SUDO=; else SUDO=sudo; fi
+  $SUDO apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq --no-install-recommends "${need[@]}" >/dev/null
+fi
+
+unformatted=$(gofmt -l . | grep -v '^testdata/' || true)
+if [ -n "$unformatted" ]; then
+  echo "gofmt needed on:" >&2
+  echo "$unformatted" >&2
+  exit 1
+fi
+go vet ./...
+go test ./... "$@"

@@ -1,0 +1,573 @@
+package shard
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+
+	"github.com/zeebo/xxh3"
+)
+
+// Doc is one surviving document handed to a Builder.
+type Doc struct {
+	ID, Text, Source string
+	File             string
+	Line             int64
+	// Tokens is the document's count by the builder's tokenizer; when 0
+	// and the text is not empty the builder counts it.
+	Tokens int
+	Meta   map[string]any
+}
+
+// Options configures a Builder. Zero values mean the defaults noted.
+type Options struct {
+	// Dir receives the shards (OUT/shards); report paths are relative to
+	// its parent.
+	Dir string
+	// Name prefixes shard files: <name>-00000.jsonl.zst.
+	Name string
+	// Tokenizer counts tokens; nil shards by bytes and allows no mix.
+	Tokenizer *Tokenizer
+	// ShardTokens is the target tokens per shard (default 1,000,000).
+	ShardTokens int64
+	// ShardBytes is the uncompressed bytes per shard without a tokenizer
+	// (default 256 MiB).
+	ShardBytes int64
+	// SplitTokens: longer documents are split at paragraph boundaries
+	// before mixing (default ShardTokens/100 with a mix, ShardTokens
+	// without).
+	SplitTokens int64
+	// Mix gives target token shares by source (nil: input order, all
+	// sources).
+	Mix map[string]float64
+	// BudgetTokens caps the total output (0: no cap).
+	BudgetTokens int64
+	// MaxEpochs bounds up-sampling by repetition (default 1: none).
+	MaxEpochs int
+	// TokenFiles also writes flat token-id files per shard.
+	TokenFiles bool
+	// MetaKeys lists the meta keys written; nil writes all.
+	MetaKeys []string
+	// Seed keys the document hash that orders the mix.
+	Seed uint64
+	// TempDir holds the spill and reorder files of a mix (removed at
+	// Close); default <Dir>/../.work.
+	TempDir string
+	// MemoryBudget bounds the documents held at once while reordering
+	// (default 512 MiB).
+	MemoryBudget int64
+}
+
+// Defaults.
+const (
+	DefaultShardTokens = 1_000_000
+	DefaultShardBytes  = 256 << 20
+	// defaultSplitShare: with a mix, documents are split into pieces of at
+	// most 1% of a shard, since one piece can move a shard's source share
+	// by its own size; 1% keeps the ±2-point balance reachable.
+	defaultSplitShare = 100
+	defaultMemory     = 512 << 20
+	// maxBuckets bounds the reorder files open at once.
+	maxBuckets = 256
+)
+
+// Split records a document the builder cut into pieces (a ledger edit).
+type Split struct {
+	Doc, Source, File string
+	Line              int64
+	// Rule is split_paragraphs, split_lines, split_words or split_chars:
+	// the finest boundary the cut needed.
+	Rule string
+	// Reason is "long_document" (longer than split_tokens, cut before
+	// mixing) or "shard_boundary" (cut to end a shard within ±1%).
+	Reason string
+	Pieces []string
+	Tokens int
+}
+
+// Report is what Close returns.
+type Report struct {
+	Files  []File
+	Mix    *MixReport
+	Splits []Split
+	Docs   int64
+	Tokens int64
+}
+
+// Builder writes a run's output shards. Without a tokenizer it streams
+// documents into shards cut by bytes; with one and no mix it streams them
+// in input order, ending shards at multiples of shard_tokens; with a mix it
+// spills documents in Add and selects, orders and writes them in Close.
+type Builder struct {
+	opt  Options
+	tok  *Tokenizer
+	keep func(string) bool
+	w    *shardWriter
+
+	spill    *spillWriter  // mix mode only
+	stream   *streamCutter // in-order token mode
+	asm      *assembler
+	units    []unit
+	srcIdx   map[string]uint16
+	srcNames []string
+	splits   []Split
+	line     []byte
+	docs     int64
+	closed   bool
+}
+
+// NewBuilder validates opt and prepares the output directory.
+func NewBuilder(opt Options) (*Builder, error) {
+	if opt.ShardTokens <= 0 {
+		opt.ShardTokens = DefaultShardTokens
+	}
+	if opt.ShardBytes <= 0 {
+		opt.ShardBytes = DefaultShardBytes
+	}
+	if opt.MaxEpochs <= 0 {
+		opt.MaxEpochs = 1
+	}
+	if opt.MemoryBudget <= 0 {
+		opt.MemoryBudget = defaultMemory
+	}
+	if opt.Tokenizer == nil && (opt.Mix != nil || opt.BudgetTokens > 0 || opt.TokenFiles) {
+		return nil, errors.New("mix, budget_tokens and token_files need output.tokenizer")
+	}
+	if opt.SplitTokens <= 0 {
+		opt.SplitTokens = opt.ShardTokens
+		if opt.Mix != nil {
+			opt.SplitTokens = max(1, opt.ShardTokens/defaultSplitShare)
+		}
+	}
+	if opt.SplitTokens > opt.ShardTokens {
+		return nil, fmt.Errorf("split_tokens %d is larger than shard_tokens %d", opt.SplitTokens, opt.ShardTokens)
+	}
+	if opt.Name == "" {
+		opt.Name = "shard"
+	}
+	b := &Builder{opt: opt, tok: opt.Tokenizer, srcIdx: map[string]uint16{}}
+	if opt.MetaKeys != nil {
+		set := map[string]bool{}
+		for _, k := range opt.MetaKeys {
+			set[k] = true
+		}
+		b.keep = func(k string) bool { return set[k] }
+	}
+	if err := os.MkdirAll(opt.Dir, 0o755); err != nil {
+		return nil, fmt.Errorf("output: %w", err)
+	}
+	b.w = newShardWriter(opt.Dir, opt.Name, b.tok, opt.TokenFiles)
+	if b.tok != nil {
+		b.asm = &assembler{b: b, tol: int(opt.ShardTokens / cutTolerance)}
+	}
+	if b.tok != nil && opt.Mix == nil {
+		b.stream = &streamCutter{shardTokens: opt.ShardTokens, budget: opt.BudgetTokens}
+	}
+	if b.tok != nil && opt.Mix != nil {
+		tmp := opt.TempDir
+		if tmp == "" {
+			tmp = filepath.Join(filepath.Dir(opt.Dir), ".work")
+		}
+		b.opt.TempDir = tmp
+		s, err := createSpill(tmp, "output-spill-*.zst")
+		if err != nil {
+			return nil, err
+		}
+		b.spill = s
+	}
+	return b, nil
+}
+
+// Add takes one surviving document. Documents arrive in input order.
+func (b *Builder) Add(d *Doc) error {
+	if b.closed {
+		return errors.New("output: Add after Close")
+	}
+	b.docs++
+	meta := appendMeta(nil, d.Meta, b.keep)
+	if b.tok == nil {
+		b.line = appendLineMeta(b.line[:0], d.ID, d.Text, d.Source, d.Tokens, meta)
+		if err := b.w.write(b.line, d.ID, d.Source, d.Text, d.Tokens); err != nil {
+			return err
+		}
+		if b.w.rawBytes() >= b.opt.ShardBytes {
+			return b.w.finish()
+		}
+		return nil
+	}
+	si, ok := b.srcIdx[d.Source]
+	if !ok {
+		if len(b.srcNames) >= 1<<16-1 {
+			return fmt.Errorf("output: more than %d sources", 1<<16-1)
+		}
+		si = uint16(len(b.srcNames))
+		b.srcIdx[d.Source] = si
+		b.srcNames = append(b.srcNames, d.Source)
+	}
+	tokens := d.Tokens
+	if tokens <= 0 && d.Text != "" {
+		tokens = b.tok.Count(d.Text)
+	}
+	h := xxh3.HashStringSeed(d.ID, b.opt.Seed)
+	rec := record{file: d.File, line: d.Line, id: d.ID, source: d.Source, text: d.Text, meta: meta, tokens: tokens}
+	if int64(tokens) <= b.opt.SplitTokens {
+		return b.put(&rec, h, si, 0)
+	}
+	pieces, level := packPieces(b.tok, d.Text, int(b.opt.SplitTokens))
+	sp := Split{Doc: d.ID, Source: d.Source, File: d.File, Line: d.Line, Rule: levelRule[level], Reason: "long_document", Tokens: tokens}
+	for i, p := range pieces {
+		pr := rec
+		pr.id = d.ID + "#" + strconv.Itoa(i+1)
+		pr.text = p
+		pr.tokens = b.tok.Count(p)
+		pr.original, pr.piece, pr.total = d.ID, i+1, len(pieces)
+		sp.Pieces = append(sp.Pieces, pr.id)
+		if err := b.put(&pr, h, si, min(i+1, 1<<16-1)); err != nil {
+			return err
+		}
+	}
+	if len(pieces) > 1 {
+		b.splits = append(b.splits, sp)
+	}
+	return nil
+}
+
+func (b *Builder) put(r *record, h uint64, si uint16, piece int) error {
+	if b.stream != nil {
+		return b.stream.add(b.asm, r)
+	}
+	if r.tokens >= 1<<32 {
+		return fmt.Errorf("output: document %s has %d tokens", r.id, r.tokens)
+	}
+	if len(b.units) >= 1<<32-1 {
+		return errors.New("output: too many documents")
+	}
+	b.units = append(b.units, unit{hash: h, tokens: uint32(r.tokens), src: si, piece: uint16(piece)})
+	return b.spill.put(r, false)
+}
+
+// appendLineMeta is appendLine with the meta tail already encoded.
+func appendLineMeta(b []byte, id, text, source string, tokens int, meta []byte) []byte {
+	b = appendLine(b, id, text, source, tokens, nil, nil)
+	b = b[:len(b)-2] // drop "}\n"
+	b = append(b, meta...)
+	return append(b, '}', '\n')
+}
+
+// Close writes every shard and reports them.
+func (b *Builder) Close() (*Report, error) {
+	if b.closed {
+		return nil, errors.New("output: closed twice")
+	}
+	b.closed = true
+	if b.tok == nil {
+		if err := b.w.finish(); err != nil {
+			return nil, err
+		}
+		return b.report(nil), nil
+	}
+	if b.stream != nil {
+		if err := b.w.finish(); err != nil {
+			return nil, err
+		}
+		return b.report(nil), nil
+	}
+	defer b.spill.remove()
+	if err := b.spill.close(); err != nil {
+		return nil, err
+	}
+	order, mix, err := planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
+	if err != nil {
+		return nil, fmt.Errorf("output: %w", err)
+	}
+	tokens := make([]int64, len(order))
+	for i, s := range order {
+		tokens[i] = int64(b.units[s.unit].tokens)
+	}
+	b.asm.cuts = planCuts(tokens, b.opt.ShardTokens)
+	err = b.writeReordered(b.asm, order)
+	if err == nil {
+		err = b.w.finish()
+	}
+	if err != nil {
+		b.w.abort()
+		return nil, err
+	}
+	return b.report(mix), nil
+}
+
+func (b *Builder) report(mix *MixReport) *Report {
+	r := &Report{Files: b.w.files, Mix: mix, Splits: b.splits}
+	for _, f := range r.Files {
+		r.Docs += f.Docs
+		r.Tokens += f.Tokens
+	}
+	return r
+}
+
+// Abort removes unfinished files.
+func (b *Builder) Abort() {
+	b.w.abort()
+	if b.spill != nil {
+		b.spill.remove()
+	}
+}
+
+// writeReordered writes records in mix order. The output positions are
+// cut into contiguous groups of at most half the memory budget; one pass
+// over the spill sends each record to the bucket file of each group that
+// holds one of its positions (a repeated document has several), then each
+// group is read, sorted by position and written. With one group the
+// records stay in memory.
+func (b *Builder) writeReordered(a *assembler, order []slot) error {
+	// Positions of each unit, in CSR form.
+	start := make([]uint32, len(b.units)+1)
+	for _, s := range order {
+		start[s.unit+1]++
+	}
+	for i := 1; i < len(start); i++ {
+		start[i] += start[i-1]
+	}
+	pos := make([]uint32, len(order))
+	fill := append([]uint32(nil), start[:len(b.units)]...)
+	for p, s := range order {
+		pos[fill[s.unit]] = uint32(p)
+		fill[s.unit]++
+	}
+	fill = nil
+	// Group boundaries by estimated bytes.
+	var totalTok int64
+	for _, u := range b.units {
+		totalTok += int64(u.tokens)
+	}
+	bytesPerTok := 4.0
+	if totalTok > 0 {
+		bytesPerTok = float64(b.spill.raw) / float64(totalTok)
+	}
+	groupBytes := float64(b.opt.MemoryBudget / 2)
+	var outTok int64
+	for _, s := range order {
+		outTok += int64(b.units[s.unit].tokens)
+	}
+	if g := float64(outTok) * bytesPerTok / groupBytes; g > maxBuckets {
+		groupBytes = float64(outTok) * bytesPerTok / maxBuckets
+	}
+	groupStart := []int{0}
+	acc := 0.0
+	for p, s := range order {
+		acc += float64(b.units[s.unit].tokens)*bytesPerTok + 64
+		if acc > groupBytes && p > groupStart[len(groupStart)-1] {
+			groupStart = append(groupStart, p)
+			acc = float64(b.units[s.unit].tokens)*bytesPerTok + 64
+		}
+	}
+	groupOf := func(p int) int { return sort.SearchInts(groupStart, p+1) - 1 }
+
+	r, err := openSpill(b.spill.f.Name())
+	if err != nil {
+		return err
+	}
+	defer r.close()
+	single := len(groupStart) == 1
+	var mem []record
+	var buckets []*spillWriter
+	defer func() {
+		for _, w := range buckets {
+			if w != nil {
+				w.remove()
+			}
+		}
+	}()
+	if !single {
+		buckets = make([]*spillWriter, len(groupStart))
+		for g := range buckets {
+			w, err := createSpill(b.opt.TempDir, fmt.Sprintf("output-bucket-%03d-*.zst", g))
+			if err != nil {
+				return err
+			}
+			buckets[g] = w
+		}
+	}
+	var rec record
+	for ui := 0; ui < len(b.units); ui++ {
+		if err := r.next(&rec, false); err != nil {
+			return fmt.Errorf("output: reading spill: %w", err)
+		}
+		for _, p := range pos[start[ui]:start[ui+1]] {
+			rec.pos = uint64(p)
+			if single {
+				mem = append(mem, rec)
+				continue
+			}
+			if err := buckets[groupOf(int(p))].put(&rec, true); err != nil {
+				return err
+			}
+		}
+	}
+	if single {
+		sort.Slice(mem, func(i, j int) bool { return mem[i].pos < mem[j].pos })
+		for i := range mem {
+			if err := a.add(int(mem[i].pos), &mem[i]); err != nil {
+				return err
+			}
+		}
+		return nil
+	}
+	for g, w := range buckets {
+		if err := w.close(); err != nil {
+			return err
+		}
+		br, err := openSpill(w.f.Name())
+		if err != nil {
+			return err
+		}
+		var recs []record
+		for {
+			var rr record
+			err := br.next(&rr, true)
+			if err == io.EOF {
+				break
+			}
+			if err != nil {
+				br.close()
+				return fmt.Errorf("output: reading bucket %d: %w", g, err)
+			}
+			recs = append(recs, rr)
+		}
+		br.close()
+		w.remove()
+		buckets[g] = nil
+		sort.Slice(recs, func(i, j int) bool { return recs[i].pos < recs[j].pos })
+		for i := range recs {
+			if err := a.add(int(recs[i].pos), &recs[i]); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// assembler writes records in output order and ends shards at the
+// planned cuts, splitting a document's text where a cut falls inside it.
+type assembler struct {
+	b    *Builder
+	cuts []cut
+	next int // index of the next cut
+	tol  int
+}
+
+func (a *assembler) add(p int, r *record) error {
+	w := a.b.w
+	if a.next >= len(a.cuts) || a.cuts[a.next].pos != p {
+		return a.write(r, r.id, r.text, r.tokens)
+	}
+	// One or more cuts fall in or after this record.
+	text := r.text
+	var done int64 // planned tokens of r already written
+	var parts []string
+	rule := 0
+	for a.next < len(a.cuts) && a.cuts[a.next].pos == p {
+		c := a.cuts[a.next]
+		a.next++
+		if c.offset >= int64(r.tokens) {
+			break // cut after the record
+		}
+		at, level := splitNear(a.b.tok, text, int(c.offset-done), a.tol)
+		if at <= 0 || at >= len(text) {
+			continue // nothing to cut at: the shard ends later
+		}
+		parts = append(parts, text[:at])
+		rule = max(rule, level)
+		if err := a.write(r, fmt.Sprintf("%s~%d", r.id, len(parts)), text[:at], -1); err != nil {
+			return err
+		}
+		if err := w.finish(); err != nil {
+			return err
+		}
+		done = c.offset
+		text = text[at:]
+	}
+	id := r.id
+	if len(parts) > 0 {
+		parts = append(parts, text)
+		id = fmt.Sprintf("%s~%d", r.id, len(parts))
+		sp := Split{Doc: r.id, Source: r.source, File: r.file, Line: r.line, Rule: levelRule[rule], Reason: "shard_boundary", Tokens: r.tokens}
+		for i := range parts {
+			sp.Pieces = append(sp.Pieces, fmt.Sprintf("%s~%d", r.id, i+1))
+		}
+		a.b.splits = append(a.b.splits, sp)
+		if err := a.write(r, id, text, -1); err != nil {
+			return err
+		}
+	} else if err := a.write(r, id, text, r.tokens); err != nil {
+		return err
+	}
+	// A cut after the record (possibly following splits) ends the shard.
+	if a.next > 0 && a.cuts[a.next-1].pos == p && a.cuts[a.next-1].offset >= int64(r.tokens) {
+		return w.finish()
+	}
+	return nil
+}
+
+// write emits one line; tokens < 0 means count the text.
+func (a *assembler) write(r *record, id, text string, tokens int) error {
+	if tokens < 0 {
+		tokens = a.b.tok.Count(text)
+	}
+	a.b.line = appendLineMeta(a.b.line[:0], id, text, r.source, tokens, r.meta)
+	return a.b.w.write(a.b.line, id, r.source, text, tokens)
+}
+
+// streamCutter ends shards on the fly when documents are written in input
+// order (no mix): it makes the decisions of planCuts one document at a
+// time, so nothing is spilled. Unlike planCuts it cannot know the total,
+// so a small remainder becomes a small last shard.
+type streamCutter struct {
+	shardTokens int64
+	budget      int64
+	start       int64 // tokens before the next document
+	k           int64 // index of the next ideal cut
+	full        bool  // the budget is reached
+	pos         int
+}
+
+// add writes one record, ending shards where the ideal cuts at multiples
+// of shardTokens fall.
+func (s *streamCutter) add(a *assembler, r *record) error {
+	t := int64(r.tokens)
+	if s.full || (s.budget > 0 && 2*(s.budget-s.start) <= t) {
+		s.full = true
+		return nil
+	}
+	if s.k == 0 {
+		s.k = 1
+	}
+	tol := s.shardTokens / cutTolerance
+	a.cuts, a.next = a.cuts[:0], 0
+	for c := s.k * s.shardTokens; c < s.start+t; c = s.k * s.shardTokens {
+		s.k++
+		before, after := c-s.start, s.start+t-c
+		switch {
+		case before == 0 || (before <= after && before <= tol):
+			if len(a.cuts) == 0 && a.b.w.cur != nil {
+				if err := a.b.w.finish(); err != nil {
+					return err
+				}
+			}
+		case after <= tol:
+			a.cuts = append(a.cuts, cut{pos: s.pos, offset: t})
+		default:
+			a.cuts = append(a.cuts, cut{pos: s.pos, offset: before})
+		}
+	}
+	if err := a.add(s.pos, r); err != nil {
+		return err
+	}
+	s.start += t
+	s.pos++
+	return nil
+}

@@ -1,0 +1,208 @@
+package shard
+
+import (
+	"bufio"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+
+	"github.com/klauspost/compress/zstd"
+)
+
+// Spill files hold documents between Add and Close, because mixing needs
+// every document's token count before it can choose. A record is a
+// sequence of uvarint-prefixed fields in a zstd stream:
+//
+//	pos (bucket files only), file, line, id, source, text, meta, tokens, flags
+//
+// where meta is the document's kept meta keys already encoded as the
+// `,"key":value...` tail of a shard line, so writing a shard line never
+// decodes JSON again.
+
+// spillWindow is the zstd window of spill and bucket files: small, so that
+// many bucket writers can be open at once in little memory.
+const spillWindow = 1 << 18
+
+// record is one spilled document (or piece of one).
+type record struct {
+	pos          uint64 // output position (bucket files)
+	file         string
+	line         int64
+	id, source   string
+	text         string
+	meta         []byte
+	tokens       int
+	original     string // the id before pre-splitting ("" when whole)
+	piece, total int    // 1-based piece number and count when split
+}
+
+type spillWriter struct {
+	f   *os.File
+	enc *zstd.Encoder
+	buf []byte
+	n   int64 // records
+	raw int64 // uncompressed bytes
+}
+
+func createSpill(dir, pattern string) (*spillWriter, error) {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return nil, fmt.Errorf("spill: %w", err)
+	}
+	f, err := os.CreateTemp(dir, pattern)
+	if err != nil {
+		return nil, fmt.Errorf("spill: %w", err)
+	}
+	enc, err := zstd.NewWriter(f, zstd.WithEncoderConcurrency(1), zstd.WithEncoderLevel(zstd.SpeedFastest), zstd.WithWindowSize(spillWindow))
+	if err != nil {
+		f.Close()
+		os.Remove(f.Name())
+		return nil, fmt.Errorf("spill: %w", err)
+	}
+	return &spillWriter{f: f, enc: enc}, nil
+}
+
+func appendField(b []byte, s string) []byte {
+	b = binary.AppendUvarint(b, uint64(len(s)))
+	return append(b, s...)
+}
+
+func (w *spillWriter) put(r *record, withPos bool) error {
+	b := w.buf[:0]
+	if withPos {
+		b = binary.AppendUvarint(b, r.pos)
+	}
+	b = appendField(b, r.file)
+	b = binary.AppendUvarint(b, uint64(r.line))
+	b = appendField(b, r.id)
+	b = appendField(b, r.source)
+	b = appendField(b, r.text)
+	b = binary.AppendUvarint(b, uint64(len(r.meta)))
+	b = append(b, r.meta...)
+	b = binary.AppendUvarint(b, uint64(r.tokens))
+	b = appendField(b, r.original)
+	b = binary.AppendUvarint(b, uint64(r.piece))
+	b = binary.AppendUvarint(b, uint64(r.total))
+	w.buf = b
+	w.n++
+	w.raw += int64(len(b))
+	if _, err := w.enc.Write(b); err != nil {
+		return fmt.Errorf("spill %s: %w", w.f.Name(), err)
+	}
+	return nil
+}
+
+// close finishes the stream; the file stays for reading.
+func (w *spillWriter) close() error {
+	err := w.enc.Close()
+	if cerr := w.f.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		return fmt.Errorf("spill %s: %w", w.f.Name(), err)
+	}
+	return nil
+}
+
+func (w *spillWriter) remove() {
+	w.enc.Close()
+	w.f.Close()
+	os.Remove(w.f.Name())
+}
+
+type spillReader struct {
+	f    *os.File
+	dec  *zstd.Decoder
+	br   *bufio.Reader
+	name string
+}
+
+func openSpill(path string) (*spillReader, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("spill: %w", err)
+	}
+	dec, err := zstd.NewReader(f, zstd.WithDecoderConcurrency(1), zstd.WithDecoderLowmem(true))
+	if err != nil {
+		f.Close()
+		return nil, fmt.Errorf("spill %s: %w", path, err)
+	}
+	return &spillReader{f: f, dec: dec, br: bufio.NewReaderSize(dec, 1<<16), name: path}, nil
+}
+
+func (r *spillReader) close() {
+	r.dec.Close()
+	r.f.Close()
+}
+
+func (r *spillReader) uvarint() (uint64, error) { return binary.ReadUvarint(r.br) }
+
+func (r *spillReader) field() (string, error) {
+	n, err := r.uvarint()
+	if err != nil {
+		return "", err
+	}
+	b := make([]byte, n)
+	if _, err := io.ReadFull(r.br, b); err != nil {
+		return "", err
+	}
+	return string(b), nil
+}
+
+// next reads one record; io.EOF at the clean end of the file.
+func (r *spillReader) next(rec *record, withPos bool) error {
+	var err error
+	if withPos {
+		if rec.pos, err = r.uvarint(); err != nil {
+			return err // io.EOF at the end
+		}
+	}
+	if rec.file, err = r.field(); err != nil {
+		return r.fail(err, withPos)
+	}
+	var v uint64
+	if v, err = r.uvarint(); err != nil {
+		return r.fail(err, true)
+	}
+	rec.line = int64(v)
+	if rec.id, err = r.field(); err != nil {
+		return r.fail(err, true)
+	}
+	if rec.source, err = r.field(); err != nil {
+		return r.fail(err, true)
+	}
+	if rec.text, err = r.field(); err != nil {
+		return r.fail(err, true)
+	}
+	var m string
+	if m, err = r.field(); err != nil {
+		return r.fail(err, true)
+	}
+	rec.meta = []byte(m)
+	if v, err = r.uvarint(); err != nil {
+		return r.fail(err, true)
+	}
+	rec.tokens = int(v)
+	if rec.original, err = r.field(); err != nil {
+		return r.fail(err, true)
+	}
+	if v, err = r.uvarint(); err != nil {
+		return r.fail(err, true)
+	}
+	rec.piece = int(v)
+	if v, err = r.uvarint(); err != nil {
+		return r.fail(err, true)
+	}
+	rec.total = int(v)
+	return nil
+}
+
+// fail turns an error inside a record into a corruption error; an EOF
+// before the first field of a record is the clean end.
+func (r *spillReader) fail(err error, inside bool) error {
+	if errors.Is(err, io.EOF) && !inside {
+		return io.EOF
+	}
+	return fmt.Errorf("spill %s: truncated or corrupt record: %w", r.name, err)
+}

@@ -1,0 +1,140 @@
+package stages
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
+	"time"
+)
+
+// RunOptions are the command-line choices of one run.
+type RunOptions struct {
+	// Out overrides the spec's output.dir.
+	Out     string
+	Workers int
+	// Force replaces a directory holding a different run.
+	Force bool
+	// Memory overrides the spec's memory budget (0: keep).
+	Memory int64
+	// Against is a previous run for incremental dedup.
+	Against string
+	// Version is written to the manifest.
+	Version    string
+	OnProgress func(Progress)
+	Log        func(format string, args ...any)
+	// Sets are "stage.key=value" overrides applied before stages are built.
+	Sets []string
+}
+
+// RunResult is a finished run.
+type RunResult struct {
+	Dir      string
+	Manifest *Manifest
+	Runner   *Runner
+}
+
+// ApplySets applies "stage.key=value" overrides to a spec's stage params
+// (the stage is named by its name or kind). An unknown stage is an error;
+// an unknown key is reported when the stage is built.
+func ApplySets(s *Spec, sets []string) error {
+	for _, set := range sets {
+		k, v, ok := cutString(set, "=")
+		if !ok {
+			return fmt.Errorf("--set %q: want STAGE.KEY=VALUE", set)
+		}
+		st, key, ok := cutString(k, ".")
+		if !ok {
+			return fmt.Errorf("--set %q: want STAGE.KEY=VALUE", set)
+		}
+		found := false
+		for _, sp := range s.Stages {
+			if sp.Name == st || sp.Kind == st {
+				sp.Params.SetOverride(key, v)
+				found = true
+			}
+		}
+		if !found {
+			return fmt.Errorf("--set %q: the spec has no stage %q", set, st)
+		}
+	}
+	return nil
+}
+
+func cutString(s, sep string) (string, string, bool) {
+	for i := 0; i+len(sep) <= len(s); i++ {
+		if s[i:i+len(sep)] == sep {
+			return s[:i], s[i+len(sep):], true
+		}
+	}
+	return s, "", false
+}
+
+// RunSpec runs a loaded spec end to end: resolve inputs, prepare the run
+// directory, build stages and sink, run, and write the manifest. On
+// interruption the manifest is written with interrupted=true and the error
+// is context.Canceled.
+func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
+	if err := ApplySets(s, opt.Sets); err != nil {
+		return nil, err
+	}
+	inputs, err := ResolveInputs(s)
+	if err != nil {
+		return nil, err
+	}
+	out := opt.Out
+	if out == "" {
+		out = s.OutputDir
+	}
+	if out == "" {
+		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
+	}
+	tmp, err := PrepareRunDir(out, s, inputs, opt.Force)
+	if err != nil {
+		return nil, err
+	}
+	defer os.RemoveAll(tmp)
+	abs, _ := filepath.Abs(out)
+	env := Env{SpecDir: s.Dir, RunDir: abs, TempDir: tmp, MemoryBudget: s.Memory, Seed: s.Seed, Against: opt.Against}
+	if opt.Memory > 0 {
+		env.MemoryBudget = opt.Memory
+	}
+	steps, err := s.BuildStages(env)
+	if err != nil {
+		return nil, err
+	}
+	if ts, err := OutputStage(s.Output, env); err != nil {
+		return nil, err
+	} else if ts != nil {
+		steps = append(steps, Step{Name: ts.Name(), Stage: ts})
+	}
+	sink, err := OpenSink(s.Output, env, s.Name)
+	if err != nil {
+		return nil, err
+	}
+	workers := opt.Workers
+	if workers <= 0 {
+		workers = runtime.NumCPU()
+	}
+	r := &Runner{Spec: s, Steps: steps, Inputs: inputs, Sink: sink, Env: env, Workers: workers,
+		OnProgress: opt.OnProgress, Log: opt.Log}
+	t0 := time.Now()
+	runErr := r.Run(ctx)
+	if errors.Is(runErr, context.Canceled) {
+		r.Interrupted = true
+	} else if runErr != nil {
+		return nil, runErr
+	}
+	m := BuildManifest(opt.Version, s, r, time.Since(t0).Seconds())
+	if err := WriteManifest(abs, m); err != nil {
+		return nil, err
+	}
+	return &RunResult{Dir: abs, Manifest: m, Runner: r}, runErr
+}
+
+// OutputStage returns the per-document stage the output section implies
+// (token counting when output.tokenizer is set), or nil. It is replaced by
+// the shard package's tokenizer wiring.
+var OutputStage = func(p *Params, env Env) (Stage, error) { return nil, nil }

@@ -1,0 +1,69 @@
+package stages
+
+import "winnow/shard"
+
+// tokenizeStage counts each document's tokens; the runner sets Doc.Tokens
+// from Decision.Tokens, and the count is stored as metric "tokens".
+type tokenizeStage struct {
+	name string
+	tok  *shard.Tokenizer
+}
+
+func (s *tokenizeStage) Name() string          { return s.name }
+func (s *tokenizeStage) Kind() string          { return "tokenize" }
+func (s *tokenizeStage) MetricNames() []string { return []string{"tokens"} }
+
+// Process counts d's tokens. It never drops or edits.
+func (s *tokenizeStage) Process(d *Doc) Decision {
+	n := s.tok.Count(d.Text)
+	return Decision{Tokens: n, Metrics: []float64{float64(n)}}
+}
+
+// Tokenizer returns the stage's tokenizer.
+func (s *tokenizeStage) Tokenizer() *shard.Tokenizer { return s.tok }
+
+// TokenizeStageFor returns the tokenize stage that output.tokenizer
+// implies, or nil when the output section names no tokenizer. p is the
+// spec's output mapping; every output key is read (so that a later
+// OpenSink on the same mapping reports the same errors) and Done is
+// called.
+func TokenizeStageFor(p *Params, env Env) (Stage, error) {
+	if p == nil {
+		return nil, nil
+	}
+	c, err := parseOutput(p, env)
+	if err != nil {
+		return nil, err
+	}
+	if c.tok == nil {
+		return nil, nil
+	}
+	return &tokenizeStage{name: "tokenize", tok: c.tok}, nil
+}
+
+func init() {
+	OutputStage = TokenizeStageFor
+	Register(Kind{
+		Name: "tokenize",
+		Doc:  "count tokens with a tiktoken encoding or a tokenizer.json (sets each document's token count)",
+		New: func(p *Params, env Env) (Stage, error) {
+			name := p.String("tokenizer", "cl100k_base")
+			var tok *shard.Tokenizer
+			if name != "" {
+				t, err := shard.Load(name, env.SpecDir)
+				if err != nil {
+					p.Fail("tokenizer", err)
+				}
+				tok = t
+			}
+			if err := p.Done(); err != nil {
+				return nil, err
+			}
+			if tok == nil {
+				p.Errorf("tokenizer", "must not be empty")
+				return nil, p.Done()
+			}
+			return &tokenizeStage{name: "tokenize", tok: tok}, nil
+		},
+	})
+}
