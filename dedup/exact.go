@@ -432,6 +432,7 @@ type exactSource struct {
 	err    error
 }
 
+// Next returns the next record; false at the end or on error (s.err).
 func (s *exactSource) Next() (exactRec, bool) {
 	for {
 		if s.it != nil {

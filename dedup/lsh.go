@@ -13,8 +13,10 @@ package dedup
 //
 //	key = bandHash<<32 | index
 //
-// Sorting the keys (spill.go) brings every group of documents sharing a
-// band hash together, in index (= input) order inside the group. A 32-bit
+// Sorting one band's keys (near.go: a radix sort, or spill.go's external
+// sort when the band exceeds the memory budget) brings every group of
+// documents sharing a band hash together, in index (= input) order inside
+// the group. A 32-bit
 // band hash lets unrelated documents collide now and then (about
 // b·N²/2^33 pairs for N documents); such pairs are only extra candidates,
 // which verification rejects.

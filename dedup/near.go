@@ -50,7 +50,9 @@ package dedup
 // if that run verified exactly, shingle sets) and ids of its kept
 // documents. They take indices 0..P-1, before this run's documents, so
 // they win every cluster they join: this run's documents similar to them
-// are removed "of" them. The previous run's text is never read.
+// are removed "of" them. The previous run's text is never read. When this
+// run verifies exactly but the previous key file has no shingle sets,
+// pairs involving a previous-run document are verified by signatures.
 //
 // Key file PREFIX.sigs.zst (zstd stream), written atomically:
 //

@@ -150,38 +150,34 @@ func (n Normalization) Append(dst []byte, s string) []byte {
 // the first word and ends[i-1]+1 otherwise (offsets are relative to the
 // buf passed in, which should be empty for that to hold).
 func AppendWords(buf []byte, ends []int32, s string) ([]byte, []int32) {
+	// ASCII output never outgrows the input plus one separator, so the fast
+	// path writes by index into spare capacity; the non-ASCII path appends
+	// (lower-casing may lengthen a rune) and re-establishes the capacity.
+	buf = slices.Grow(buf, len(s)+1)
+	out := buf[:cap(buf)]
+	n := len(buf)
 	inWord := false
 	for i := 0; i < len(s); {
 		c := s[i]
 		if c < utf8.RuneSelf {
-			if wordByte[c] == 0 {
+			i++
+			l := wordByte[c]
+			if l == 0 {
 				if inWord {
-					ends = append(ends, int32(len(buf)))
+					ends = append(ends, int32(n))
 					inWord = false
 				}
-				i++
 				continue
 			}
 			if !inWord {
-				if len(buf) > 0 {
-					buf = append(buf, ' ')
+				if n > 0 {
+					out[n] = ' '
+					n++
 				}
 				inWord = true
 			}
-			// Copy the whole run of ASCII word bytes, lower-cased.
-			j := i + 1
-			for j < len(s) && wordByte[s[j]] != 0 {
-				j++
-			}
-			src := s[i:j]
-			l := len(buf)
-			buf = slices.Grow(buf, len(src))[:l+len(src)]
-			dst := buf[l:]
-			dst = dst[:len(src)]
-			for p := 0; p < len(src); p++ {
-				dst[p] = wordByte[src[p]]
-			}
-			i = j
+			out[n] = l
+			n++
 			continue
 		}
 		r, size := utf8.DecodeRuneInString(s[i:])
@@ -191,21 +187,25 @@ func AppendWords(buf []byte, ends []int32, s string) ([]byte, []int32) {
 		}
 		if !(unicode.IsLetter(r) || unicode.IsDigit(r) || unicode.IsMark(r)) {
 			if inWord {
-				ends = append(ends, int32(len(buf)))
+				ends = append(ends, int32(n))
 				inWord = false
 			}
 			continue
 		}
+		buf = out[:n]
 		if !inWord {
-			if len(buf) > 0 {
+			if n > 0 {
 				buf = append(buf, ' ')
 			}
 			inWord = true
 		}
 		buf = utf8.AppendRune(buf, unicode.ToLower(r))
+		buf = slices.Grow(buf, len(s)-i+1)
+		out = buf[:cap(buf)]
+		n = len(buf)
 	}
 	if inWord {
-		ends = append(ends, int32(len(buf)))
+		ends = append(ends, int32(n))
 	}
-	return buf, ends
+	return out[:n], ends
 }

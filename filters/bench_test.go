@@ -196,8 +196,42 @@ func BenchmarkRedact(b *testing.B) {
 	benchEach(b, func(_ *Scratch, text string) { Redact(text, opt) })
 }
 
-func TestShowBenchText(t *testing.T) {
-	if testing.Verbose() {
-		t.Log(boatyardText(1, 1500))
+// benchPart measures one step of Measure on documents already split and
+// hashed, to show where the time of the combined metrics goes.
+func benchPart(b *testing.B, f func(s *Scratch, d string)) {
+	docs := benchDocs()
+	ss := make([]Scratch, len(docs))
+	en, _ := StopwordsFor("en")
+	for i, d := range docs {
+		Measure(&ss[i], d, en)
 	}
+	b.SetBytes(totalBytes(docs))
+	b.ReportAllocs()
+	cpu0 := processCPU()
+	n := 0
+	for b.Loop() {
+		for i, d := range docs {
+			f(&ss[i], d)
+		}
+		n++
+	}
+	reportCPUThroughput(b, cpu0, n, totalBytes(docs))
+}
+
+func BenchmarkPartWordHashes(b *testing.B) {
+	benchPart(b, func(s *Scratch, d string) { s.hashed = false; s.WordHashes(d) })
+}
+
+func BenchmarkPartStopwords(b *testing.B) {
+	en, _ := StopwordsFor("en")
+	benchPart(b, func(s *Scratch, d string) { CountStopwords(s, d, en) })
+}
+
+func BenchmarkPartQualityOfSplit(b *testing.B) {
+	en, _ := StopwordsFor("en")
+	benchPart(b, func(s *Scratch, d string) { QualityOfSplit(s, d, en) })
+}
+
+func BenchmarkPartRepetitionOfSplit(b *testing.B) {
+	benchPart(b, func(s *Scratch, d string) { RepetitionOfSplit(s, d) })
 }

@@ -4,6 +4,7 @@ import (
 	"strings"
 	"unicode"
 	"unicode/utf8"
+	"unsafe"
 )
 
 // Published values of the line-level cleaning of Raffel et al. 2020,
@@ -83,8 +84,8 @@ func CleanLines(text string, opt LineOptions) LineResult {
 		LoremIpsum: ContainsFold(text, "lorem ipsum"),
 		CurlyBrace: strings.IndexByte(text, '{') >= 0,
 	}
-	var out []byte
-	var cite []byte
+	out := make([]byte, 0, len(text))
+	var cite, lower []byte
 	blank := false // a blank line since the last kept line
 	rest := text
 	for len(rest) > 0 {
@@ -109,23 +110,29 @@ func CleanLines(text string, opt LineOptions) LineResult {
 		if opt.RemoveCitations && strings.IndexByte(line, '[') >= 0 {
 			cite, cites = removeCitations(cite[:0], line)
 			if cites > 0 {
-				line = strings.TrimSpace(string(cite))
+				line = strings.TrimSpace(unsafe.String(unsafe.SliceData(cite), len(cite))) // cite is not reused before line is copied
 				words, _ = wordStats(line)
 			}
 		}
-		switch {
-		case opt.RequireTerminal && !EndsWithTerminal(line):
+		if opt.RequireTerminal && !EndsWithTerminal(line) {
 			res.NoPunct++
 			continue
-		case words < opt.MinWords:
+		}
+		if words < opt.MinWords {
 			res.Short++
 			continue
-		case opt.DropJavascript && ContainsFold(line, "javascript"):
-			res.Javascript++
-			continue
-		case opt.DropPolicy && containsPolicy(line):
-			res.Policy++
-			continue
+		}
+		if opt.DropJavascript || opt.DropPolicy {
+			lower = appendLowerASCII(lower[:0], line)
+			l := unsafe.String(unsafe.SliceData(lower), len(lower))
+			if opt.DropJavascript && strings.Contains(l, "javascript") {
+				res.Javascript++
+				continue
+			}
+			if opt.DropPolicy && containsAny(l, C4PolicyPhrases) {
+				res.Policy++
+				continue
+			}
 		}
 		res.Citations += cites
 		if res.Kept > 0 {
@@ -141,7 +148,7 @@ func CleanLines(text string, opt LineOptions) LineResult {
 	}
 	res.Changed = res.Kept < res.Lines || res.Citations > 0
 	if res.Changed {
-		res.Text = string(out)
+		res.Text = unsafe.String(unsafe.SliceData(out), len(out)) // out is not used again
 	} else {
 		res.Text = text
 	}
@@ -153,7 +160,23 @@ func CleanLines(text string, opt LineOptions) LineResult {
 // characters of its longest word.
 func wordStats(line string) (words, longest int) {
 	cur := 0
-	for _, r := range line {
+	for i := 0; i < len(line); {
+		c := line[i]
+		if c < utf8.RuneSelf {
+			i++
+			if byteClass[c]&clsSpace != 0 {
+				if cur > 0 {
+					words++
+					longest = max(longest, cur)
+				}
+				cur = 0
+				continue
+			}
+			cur++
+			continue
+		}
+		r, size := utf8.DecodeRuneInString(line[i:])
+		i += size
 		if unicode.IsSpace(r) {
 			if cur > 0 {
 				words++
@@ -190,13 +213,26 @@ func EndsWithTerminal(line string) bool {
 	return isTerminal(r) && !EndsWithEllipsis(line)
 }
 
-func containsPolicy(line string) bool {
-	for _, p := range C4PolicyPhrases {
-		if ContainsFold(line, p) {
+// containsAny reports whether s contains one of subs.
+func containsAny(s string, subs []string) bool {
+	for _, p := range subs {
+		if strings.Contains(s, p) {
 			return true
 		}
 	}
 	return false
+}
+
+// appendLowerASCII appends s with ASCII letters lower-cased.
+func appendLowerASCII(dst []byte, s string) []byte {
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		if 'A' <= c && c <= 'Z' {
+			c += 'a' - 'A'
+		}
+		dst = append(dst, c)
+	}
+	return dst
 }
 
 // ContainsFold reports whether s contains sub, comparing ASCII letters
@@ -297,7 +333,8 @@ var sentenceAbbrevs = map[string]bool{
 // statistical sentence splitter the reference implementation used: a
 // sentence ends at a run of '.', '!', '?' (or their full-width forms, or
 // an ellipsis) followed, after optional closing quotes and brackets, by
-// whitespace or the end of the text, and must contain a letter or digit.
+// whitespace or the end of the text (a full-width mark needs no space),
+// and must contain a letter or digit.
 // A period after a single capital letter (an initial) or after a common
 // abbreviation does not end a sentence. Trailing text without final
 // punctuation counts as one more sentence.
@@ -305,6 +342,11 @@ func CountSentences(text string) int {
 	n := 0
 	content := false // the current sentence has a letter or digit
 	for i := 0; i < len(text); {
+		if c := text[i]; c < utf8.RuneSelf && c != '.' && c != '!' && c != '?' {
+			content = content || asciiAlnum[c]
+			i++
+			continue
+		}
 		r, size := utf8.DecodeRuneInString(text[i:])
 		if !isSentenceEnd(r) {
 			if unicode.IsLetter(r) || unicode.IsDigit(r) {
@@ -322,7 +364,8 @@ func CountSentences(text string) int {
 			}
 			j += s2
 		}
-		atBoundary := j == len(text)
+		// full-width marks end a sentence without a following space
+		atBoundary := j == len(text) || r == '\u3002' || r == '\uFF01' || r == '\uFF1F'
 		if !atBoundary {
 			r2, _ := utf8.DecodeRuneInString(text[j:])
 			atBoundary = unicode.IsSpace(r2)

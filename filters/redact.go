@@ -36,15 +36,15 @@ const (
 
 // RedactOptions selects what Redact replaces and with what.
 type RedactOptions struct {
-	Email, IP, Phone                          bool
-	EmailPlaceholder, IPPlaceholder, PhoneTag string
+	Email, IP, Phone                                  bool
+	EmailPlaceholder, IPPlaceholder, PhonePlaceholder string
 }
 
 // DefaultRedactOptions redacts all three kinds with the default
 // placeholders.
 func DefaultRedactOptions() RedactOptions {
 	return RedactOptions{Email: true, IP: true, Phone: true,
-		EmailPlaceholder: EmailPlaceholder, IPPlaceholder: IPPlaceholder, PhoneTag: PhonePlaceholder}
+		EmailPlaceholder: EmailPlaceholder, IPPlaceholder: IPPlaceholder, PhonePlaceholder: PhonePlaceholder}
 }
 
 // RedactResult is the redacted text and the number of replacements of
@@ -73,10 +73,10 @@ func Redact(text string, opt RedactOptions) RedactResult {
 		spans = findEmails(text, spans)
 	}
 	if opt.IP {
-		spans = findIPv4(text, spans)
 		if strings.IndexByte(text, ':') >= 0 {
-			spans = findIPv6(text, spans)
+			spans = findIPv6(text, spans) // first: an IPv6 address may end in dotted IPv4
 		}
+		spans = findIPv4(text, spans)
 	}
 	if opt.Phone {
 		spans = findPhones(text, spans)
@@ -99,7 +99,7 @@ func Redact(text string, opt RedactOptions) RedactResult {
 			b.WriteString(opt.IPPlaceholder)
 			res.IP++
 		default:
-			b.WriteString(opt.PhoneTag)
+			b.WriteString(opt.PhonePlaceholder)
 			res.Phone++
 		}
 		last = s.end
@@ -292,8 +292,8 @@ func findIPv6(text string, spans []span) []span {
 const maxPhoneGroups = 8
 
 func findPhones(text string, spans []span) []span {
-	var groups [maxPhoneGroups]int // digits per group
-	var seps [maxPhoneGroups]byte  // separator before each group
+	var groups [maxPhoneGroups]int    // digits per group
+	var seps [maxPhoneGroups + 1]byte // separator before each group
 	for i := 0; i < len(text); i++ {
 		c := text[i]
 		if !(isDigit(c) || c == '+' || c == '(') {

@@ -26,7 +26,7 @@ var GopherDupNgramFrac = [6]float64{0.15, 0.14, 0.13, 0.12, 0.11, 0.10}
 const (
 	// MaxRepetitionWords bounds the words the n-gram statistics look at
 	// (the first ones of a longer text): 2.6 times the largest document
-	// the quality rules keep, and it caps the hash tables at about 50 MB.
+	// the quality rules keep, and it caps the n-gram tables at 4 x 8 MB.
 	MaxRepetitionWords = 1 << 18
 	// MaxRepetitionLines bounds the lines and paragraphs compared, for
 	// the same reason.
@@ -34,7 +34,7 @@ const (
 	// keepSlots is the largest hash table a Scratch keeps between
 	// documents; larger ones (rare, long documents) are released so a
 	// pooled Scratch does not hold tens of megabytes.
-	keepSlots = 1 << 16
+	keepSlots = 1 << 17
 	// ngramMul is the odd base B of the polynomial n-gram hash (the
 	// 64-bit golden ratio); products carry mixing into the high bits,
 	// where the tables take their index from.
@@ -80,25 +80,21 @@ func Measure(s *Scratch, text string, sw *Stopwords) (Quality, Repetition) {
 
 // RepetitionOfSplit measures text, which s.Split(text) has already split.
 //
-// The n-gram pass keeps a polynomial rolling hash over the xxh3 hashes of
-// the words (prefix hashes P[k+1] = P[k]*B + h(word k) modulo 2^64, so the
-// n-gram words[k..j] hashes to P[j+1] - P[k]*B^n in two operations).
-//
-// An n-gram can only repeat if the (n-1)-gram it ends with repeats, so
-// the n-gram ending at word j is looked up only when its (n-1)-gram suffix
-// has been seen before; otherwise it is certainly new and skipped. A
-// skipped occurrence is always the first occurrence of its suffix, whose
-// position the suffix's table entry keeps, so when the n-gram turns up
-// again one comparison of word hashes tells whether that skipped
-// occurrence was the same n-gram. The 2-, 3- and 4-grams are counted this
-// way (for the top n-gram fractions). For the duplicate 5..10-grams only
-// 5-grams are indexed: each occurrence links to the previous occurrence
-// of the same 5-gram, and walking those links while comparing word hashes
-// backwards gives the longest n (up to 10) for which the n-gram ending at
-// word j occurred before. A repeated n-gram always contains a repeated
-// 5-gram, so this is exact up to 64-bit hash collisions, as long as the
-// walk meets the match within maxChainWalk earlier occurrences (it nearly
-// always does at the first).
+// The n-gram pass keeps a polynomial rolling hash over the word hashes
+// (prefix hashes P[k+1] = P[k]*B + h(word k) modulo 2^64, so the n-gram
+// words[k..j] hashes to P[j+1] - P[k]*B^n in two operations). The 2-, 3-
+// and 4-grams ending at each word are counted in one table each (for the
+// top n-gram fractions). For the duplicate 5..10-grams only 5-grams are
+// indexed: each occurrence links to the previous occurrence of the same
+// 5-gram, and walking those links while comparing word hashes backwards
+// gives the longest n (up to 10) for which the n-gram ending at the
+// current word occurred before. A repeated n-gram always contains a
+// repeated 5-gram, so this is exact up to hash collisions (the tables
+// compare 44-bit fingerprints: a document of n words has a false match
+// with probability about n^2 / 2^45), as long as the walk meets the match within maxChainWalk earlier
+// occurrences (it nearly always does at the first). The four table
+// lookups of a word are independent of each other, so the processor
+// overlaps their cache misses.
 func RepetitionOfSplit(s *Scratch, text string) Repetition {
 	var r Repetition
 	rs := &s.rep
@@ -140,10 +136,10 @@ func RepetitionOfSplit(s *Scratch, text string) Repetition {
 	hashes := s.WordHashes(text)[:nw]
 	prev := grow(rs.prev, nw)
 	rs.prev = prev
-	t2, t3, t4, t5 := &rs.t2, &rs.t3, &rs.t4, &rs.five
-	t2.reset(nw)
-	t3.reset(nw)
-	t4.reset(nw)
+	for i := range rs.top {
+		rs.top[i].reset(nw)
+	}
+	t5 := &rs.five
 	t5.reset(nw)
 	var (
 		pre      [16]uint64 // pre[k mod 16] = prefix hash of words[:k]
@@ -153,11 +149,6 @@ func RepetitionOfSplit(s *Scratch, text string) Repetition {
 		bestCnt  [3]int32
 		bestLen  [3]int
 	)
-	best := func(i int, c int32, runes int) {
-		if c > bestCnt[i] || (c == bestCnt[i] && runes > bestLen[i]) {
-			bestCnt[i], bestLen[i] = c, runes
-		}
-	}
 	total := 0
 	for j := 0; j < nw; j++ {
 		h := hashes[j]
@@ -166,37 +157,102 @@ func RepetitionOfSplit(s *Scratch, text string) Repetition {
 		pj := pre[j&15]*ngramMul + h
 		pre[(j+1)&15] = pj
 		prev[j] = -1
-		if j < 1 {
+		if j < 3 {
+			// the first words: the n-grams that already fit
+			for n := 2; n <= j+1; n++ {
+				k := pj - pre[(j-n+1)&15]*ngramPow[n]
+				t := &rs.top[n-2]
+				fp := fingerprint(k)
+				c := t.incProbe(fp, (k>>t.shift-1)&t.mask)
+				if runes := total - cum[(j-n+1)&15]; c > bestCnt[n-2] || (c == bestCnt[n-2] && runes > bestLen[n-2]) {
+					bestCnt[n-2], bestLen[n-2] = c, runes
+				}
+			}
 			continue
 		}
-		c2, f2 := t2.inc(pj-pre[(j-1)&15]*ngramPow[2], int32(j), -1)
-		if c2 < 2 || j < 2 {
+		// Count the 2-, 3- and 4-grams ending at word j. The table
+		// operations are written out three times: as a method they would
+		// not be inlined, and a call in this loop costs more than the
+		// lookup.
+		{
+			k := pj - pre[(j-2+1)&15]*ngramPow[2]
+			fp := fingerprint(k)
+			t := &rs.top[2-2]
+			idx := k >> t.shift & t.mask
+			v := t.slots[idx]
+			var c int32
+			if b2u(v&^valueMask == fp)|b2u(v == 0) != 0 { // a hit or an empty home slot, no branch on which
+				v += 1 + fp&-b2u(v == 0)
+				t.slots[idx] = v
+				c = int32(v & valueMask)
+			} else {
+				c = t.incProbe(fp, idx)
+			}
+			if c >= bestCnt[2-2] {
+				if runes := total - cum[(j-2+1)&15]; c > bestCnt[2-2] || runes > bestLen[2-2] {
+					bestCnt[2-2], bestLen[2-2] = c, runes
+				}
+			}
+		}
+		{
+			k := pj - pre[(j-3+1)&15]*ngramPow[3]
+			fp := fingerprint(k)
+			t := &rs.top[3-2]
+			idx := k >> t.shift & t.mask
+			v := t.slots[idx]
+			var c int32
+			if b2u(v&^valueMask == fp)|b2u(v == 0) != 0 { // a hit or an empty home slot, no branch on which
+				v += 1 + fp&-b2u(v == 0)
+				t.slots[idx] = v
+				c = int32(v & valueMask)
+			} else {
+				c = t.incProbe(fp, idx)
+			}
+			if c >= bestCnt[3-2] {
+				if runes := total - cum[(j-3+1)&15]; c > bestCnt[3-2] || runes > bestLen[3-2] {
+					bestCnt[3-2], bestLen[3-2] = c, runes
+				}
+			}
+		}
+		{
+			k := pj - pre[(j-4+1)&15]*ngramPow[4]
+			fp := fingerprint(k)
+			t := &rs.top[4-2]
+			idx := k >> t.shift & t.mask
+			v := t.slots[idx]
+			var c int32
+			if b2u(v&^valueMask == fp)|b2u(v == 0) != 0 { // a hit or an empty home slot, no branch on which
+				v += 1 + fp&-b2u(v == 0)
+				t.slots[idx] = v
+				c = int32(v & valueMask)
+			} else {
+				c = t.incProbe(fp, idx)
+			}
+			if c >= bestCnt[4-2] {
+				if runes := total - cum[(j-4+1)&15]; c > bestCnt[4-2] || runes > bestLen[4-2] {
+					bestCnt[4-2], bestLen[4-2] = c, runes
+				}
+			}
+		}
+		if j < 4 {
 			continue
 		}
-		best(0, c2, total-cum[(j-1)&15])
-		seed := int32(-1)
-		if f2 >= 2 && hashes[f2-2] == hashes[j-2] {
-			seed = f2
-		}
-		c3, f3 := t3.inc(pj-pre[(j-2)&15]*ngramPow[3], int32(j), seed)
-		if c3 < 2 || j < 3 {
-			continue
-		}
-		best(1, c3, total-cum[(j-2)&15])
-		seed = -1
-		if f3 >= 3 && hashes[f3-3] == hashes[j-3] {
-			seed = f3
-		}
-		c4, f4 := t4.inc(pj-pre[(j-3)&15]*ngramPow[4], int32(j), seed)
-		if c4 < 2 || j < 4 {
-			continue
-		}
-		best(2, c4, total-cum[(j-3)&15])
-		p := t5.swap(pj-pre[(j-4)&15]*ngramPow[5], int32(j))
-		if p < 0 && f4 >= 4 && hashes[f4-4] == hashes[j-4] {
-			p = f4 // the skipped first occurrence of the 4-gram suffix
+		// record the 5-gram ending at word j, linked to its previous occurrence
+		k := pj - pre[(j-4)&15]*ngramPow[5]
+		fp := fingerprint(k)
+		idx := k >> t5.shift & t5.mask
+		v := t5.slots[idx]
+		var p int32
+		if b2u(v&^valueMask == fp)|b2u(v == 0) != 0 {
+			t5.slots[idx] = fp | uint64(j+1)
+			p = int32(v&valueMask) - 1 // an empty slot gives -1
+		} else {
+			p = t5.swapProbe(fp, idx, int32(j))
 		}
 		prev[j] = p
+		if p < 0 {
+			continue
+		}
 		// Every occurrence on the chain ends with the same 5-gram (equal
 		// 5-gram hashes), so the comparison starts at the sixth word back.
 		longest := 0
@@ -257,18 +313,18 @@ func frac(a, b int) float64 {
 // repScratch holds the tables of the repetition metrics.
 type repScratch struct {
 	lines, paras hashSet
-	t2, t3, t4   countTable // n-gram counts, n = 2, 3, 4
-	five         lastTable  // 5-gram hash -> last word index
-	prev         []int32    // previous occurrence of the 5-gram ending at each word
+	top          [3]countTable // n-gram counts, n = 2, 3, 4
+	five         lastTable     // 5-gram hash -> last word index
+	prev         []int32       // previous occurrence of the 5-gram ending at each word
 }
 
 // release drops tables that grew past keepSlots.
 func (rs *repScratch) release() {
 	rs.lines.release()
 	rs.paras.release()
-	rs.t2.release()
-	rs.t3.release()
-	rs.t4.release()
+	for i := range rs.top {
+		rs.top[i].release()
+	}
 	rs.five.release()
 	if cap(rs.prev) > keepSlots {
 		rs.prev = nil
@@ -276,10 +332,12 @@ func (rs *repScratch) release() {
 }
 
 // tableSize returns the power-of-two slot count for n keys at a load
-// factor of at most 1/2, and its log2.
+// factor of at most 1/4 (measured faster than 1/2, where home-slot
+// collisions are frequent, and than 1/8, where the tables outgrow the
+// cache), and its log2.
 func tableSize(n int) (int, uint) {
 	size, lg := 64, uint(6)
-	for size < 2*n {
+	for size < 4*n {
 		size *= 2
 		lg++
 	}
@@ -327,17 +385,28 @@ func (t *hashSet) add(k uint64) bool {
 	}
 }
 
-type countSlot struct {
-	key   uint64
-	count int32
-	first int32 // word index of the first occurrence
+// Packed table slots hold the top 44 bits of a 64-bit hash (the bits the
+// slot index is also taken from, so two keys that agree there are equal
+// for the table) and a 20-bit value: a count, or a word index plus one.
+// MaxRepetitionWords < 2^20 keeps both in range.
+const (
+	valueBits = 20
+	valueMask = 1<<valueBits - 1
+)
+
+func fingerprint(k uint64) uint64 {
+	fp := k &^ valueMask
+	if fp == 0 {
+		fp = 1 << valueBits // 0 marks an empty slot
+	}
+	return fp
 }
 
-// countTable counts occurrences of 64-bit hashes and keeps the position
-// of each one's first occurrence.
+// countTable counts occurrences of 64-bit hashes in packed slots.
 type countTable struct {
-	slots []countSlot
+	slots []uint64
 	shift uint
+	mask  uint64
 }
 
 func (t *countTable) reset(n int) {
@@ -346,9 +415,9 @@ func (t *countTable) reset(n int) {
 		t.slots = t.slots[:size]
 		clear(t.slots)
 	} else {
-		t.slots = make([]countSlot, size)
+		t.slots = make([]uint64, size)
 	}
-	t.shift = 64 - lg
+	t.shift, t.mask = 64-lg, uint64(size-1)
 }
 
 func (t *countTable) release() {
@@ -357,43 +426,41 @@ func (t *countTable) release() {
 	}
 }
 
-// inc counts an occurrence of k at word index at and returns the count so
-// far and the first occurrence. A new key starts at count 1 first at, or,
-// when seed >= 0 (a skipped earlier occurrence of the same key), at count
-// 2 first seed.
-func (t *countTable) inc(k uint64, at, seed int32) (int32, int32) {
-	if k == 0 {
-		k = 1 // 0 marks an empty slot
-	}
-	slots := t.slots
-	mask := uint64(len(slots) - 1)
-	for j := k >> t.shift; ; j = (j + 1) & mask {
-		e := &slots[j&mask]
-		if e.key == k {
-			e.count++
-			return e.count, e.first
+// incProbe counts an occurrence of the key with fingerprint fp, searching
+// from slot j+1 on (RepetitionOfSplit's loop has already looked at the
+// key's home slot j), and returns its count so far.
+//
+//go:noinline
+func (t *countTable) incProbe(fp, j uint64) int32 {
+	for j = (j + 1) & t.mask; ; j = (j + 1) & t.mask {
+		v := t.slots[j]
+		if v&^valueMask == fp {
+			v++
+			t.slots[j] = v
+			return int32(v & valueMask)
 		}
-		if e.key == 0 {
-			e.key = k
-			if seed >= 0 {
-				e.count, e.first = 2, seed
-			} else {
-				e.count, e.first = 1, at
-			}
-			return e.count, e.first
+		if v == 0 {
+			t.slots[j] = fp | 1
+			return 1
 		}
 	}
 }
 
-type lastSlot struct {
-	key  uint64
-	last int32
+// b2u is 1 for true and 0 for false.
+func b2u(b bool) uint64 {
+	var u uint64
+	if b {
+		u = 1
+	}
+	return u
 }
 
-// lastTable maps 64-bit hashes to the last word index they were seen at.
+// lastTable maps 64-bit hashes to the last word index they were seen at,
+// in packed slots.
 type lastTable struct {
-	slots []lastSlot
+	slots []uint64
 	shift uint
+	mask  uint64
 }
 
 func (t *lastTable) reset(n int) {
@@ -402,9 +469,9 @@ func (t *lastTable) reset(n int) {
 		t.slots = t.slots[:size]
 		clear(t.slots)
 	} else {
-		t.slots = make([]lastSlot, size)
+		t.slots = make([]uint64, size)
 	}
-	t.shift = 64 - lg
+	t.shift, t.mask = 64-lg, uint64(size-1)
 }
 
 func (t *lastTable) release() {
@@ -413,23 +480,17 @@ func (t *lastTable) release() {
 	}
 }
 
-// swap records index i for k and returns the index k had before, or -1.
-func (t *lastTable) swap(k uint64, i int32) int32 {
-	if k == 0 {
-		k = 1 // 0 marks an empty slot
-	}
-	slots := t.slots
-	mask := uint64(len(slots) - 1)
-	for j := k >> t.shift; ; j = (j + 1) & mask {
-		e := &slots[j&mask]
-		if e.key == k {
-			old := e.last
-			e.last = i
-			return old
-		}
-		if e.key == 0 {
-			e.key, e.last = k, i
-			return -1
+// swapProbe records word index i for the key with fingerprint fp whose
+// home slot j holds another key, and returns the index it had before, or
+// -1. The home slot is handled in RepetitionOfSplit's loop.
+//
+//go:noinline
+func (t *lastTable) swapProbe(fp, j uint64, i int32) int32 {
+	for j = (j + 1) & t.mask; ; j = (j + 1) & t.mask {
+		v := t.slots[j]
+		if v&^valueMask == fp || v == 0 {
+			t.slots[j] = fp | uint64(i+1)
+			return int32(v&valueMask) - 1
 		}
 	}
 }

@@ -3,14 +3,13 @@ package filters
 import (
 	"embed"
 	"fmt"
+	"slices"
 	"sort"
 	"strings"
 	"sync"
 	"unicode"
 	"unicode/utf8"
 	"unsafe"
-
-	"github.com/zeebo/xxh3"
 )
 
 // The stop-word lists are those of the open dataset stopwords-iso (npm
@@ -43,9 +42,13 @@ var gopherStopwords = [...]string{"the", "be", "to", "of", "and", "that", "have"
 var gopherSet = func() cuckooSet {
 	var keys []uint64
 	for _, w := range gopherStopwords {
-		keys = append(keys, xxh3.HashString(w))
+		keys = append(keys, WordHash(w))
 	}
-	return newCuckooSet(keys)
+	flags := make([]bool, len(keys))
+	for i := range flags {
+		flags[i] = true
+	}
+	return newCuckooSet(keys, flags)
 }()
 
 // segmentedLangs are written without spaces between words (scriptio
@@ -65,9 +68,9 @@ type Stopwords struct {
 	words     []string  // normalized entries, sorted, unique
 	set       cuckooSet // xxh3 hashes of the entries
 	firsts    cuckooSet // hashes of the first token of multi-word entries
-	maxBytes  int      // longest normalized entry in bytes
-	maxRunes  int      // longest entry in characters (segmented matching)
-	maxTokens int      // most space-separated tokens in one entry
+	maxBytes  int       // longest normalized entry in bytes
+	maxRunes  int       // longest entry in characters (segmented matching)
+	maxTokens int       // most space-separated tokens in one entry
 }
 
 var (
@@ -160,28 +163,22 @@ func newStopwords(lang string, raw []string) *Stopwords {
 	}
 	sort.Strings(sw.words)
 	var keys, firsts []uint64
+	var flags []bool
 	for _, w := range sw.words {
-		keys = append(keys, xxh3.HashString(w))
+		keys = append(keys, WordHash(w))
+		flags = append(flags, lang == "en" && slices.Contains(gopherStopwords[:], w))
 		sw.maxBytes = max(sw.maxBytes, len(w))
 		sw.maxRunes = max(sw.maxRunes, utf8.RuneCountInString(w))
 		k := strings.Count(w, " ") + 1
 		sw.maxTokens = max(sw.maxTokens, k)
 		if k > 1 {
 			first, _, _ := strings.Cut(w, " ")
-			firsts = append(firsts, xxh3.HashString(first))
+			firsts = append(firsts, WordHash(first))
 		}
 	}
-	sw.set = newCuckooSet(keys)
-	sw.firsts = newCuckooSet(firsts)
+	sw.set = newCuckooSet(keys, flags)
+	sw.firsts = newCuckooSet(firsts, nil)
 	return sw
-}
-
-func log2(n int) int {
-	k := 0
-	for 1<<k < n {
-		k++
-	}
-	return k
 }
 
 // Words returns the normalized entries of the list, sorted.
@@ -192,12 +189,12 @@ func (sw *Stopwords) Len() int { return len(sw.words) }
 
 // lookup reports whether the normalized key b is an entry.
 func (sw *Stopwords) lookup(b []byte) bool {
-	return len(b) > 0 && len(b) <= sw.maxBytes && sw.set.has(xxh3.Hash(b))
+	return len(b) > 0 && len(b) <= sw.maxBytes && sw.set.has(WordHash(unsafe.String(&b[0], len(b))))
 }
 
 // lookupString reports whether the normalized key k is an entry.
 func (sw *Stopwords) lookupString(k string) bool {
-	return len(k) > 0 && len(k) <= sw.maxBytes && sw.set.has(xxh3.HashString(k))
+	return len(k) > 0 && len(k) <= sw.maxBytes && sw.set.has(WordHash(k))
 }
 
 // Contains reports whether word, normalized with NormalizeWord, is an
@@ -218,7 +215,8 @@ type StopCount struct {
 	// characters) and the words in other scripts.
 	Tokens int
 	// Gopher counts occurrences of the eight English words of Rae et al.
-	// 2021 (the, be, to, of, and, that, have, with).
+	// 2021 (the, be, to, of, and, that, have, with); it is counted with
+	// the English list or without a list (sw nil), and 0 with another.
 	Gopher int
 }
 
@@ -234,7 +232,7 @@ func (c StopCount) Density() float64 {
 // CountStopwords scans the words of text (as split by s.Split(text)) for
 // entries of sw; sw may be nil, then only the English eight are counted.
 // It allocates nothing once s has grown to the text's size. Entries are
-// matched by their 64-bit xxh3 hash, so a token is taken for a stop word
+// matched by their 64-bit WordHash, so a token is taken for a stop word
 // wrongly only on a hash collision (about 2^-54 per token for the longest
 // list).
 func CountStopwords(s *Scratch, text string, sw *Stopwords) StopCount {
@@ -260,11 +258,11 @@ func CountStopwords(s *Scratch, text string, sw *Stopwords) StopCount {
 				continue
 			}
 			n = unsafe.String(&b[0], len(b)) // buf outlives every use of n
-			h = xxh3.HashString(n)
+			h = wordHashAt(unsafe.String(&buf[0], len(buf)), 0, len(b))
 		}
 		c.Tokens++
-		c.Gopher += b2i(gopherSet.has(h))
 		if sw == nil {
+			c.Gopher += b2i(gopherSet.lookup(h) == 0)
 			continue
 		}
 		if multi && sw.firsts.has(h) && i+1 < len(words) {
@@ -279,9 +277,11 @@ func CountStopwords(s *Scratch, text string, sw *Stopwords) StopCount {
 				continue
 			}
 		}
-		m := b2i(sw.set.has(h))
-		c.Matches += m
-		c.Covered += m
+		m := sw.set.lookup(h) // 0: an entry of the English eight, 1: another entry
+		c.Gopher += b2i(m == 0)
+		hit := b2i(m <= 1)
+		c.Matches += hit
+		c.Covered += hit
 	}
 	return c
 }
@@ -360,10 +360,10 @@ func (sw *Stopwords) countSegmented(s *Scratch, w string, c *StopCount) {
 				continue
 			}
 			c.Tokens++
-			c.Gopher += b2i(gopherSet.has(xxh3.Hash(n)))
-			if sw.lookup(n) {
+			if m := sw.set.lookup(WordHash(string(n))); m <= 1 {
 				c.Matches++
 				c.Covered++
+				c.Gopher += b2i(m == 0)
 			}
 			continue
 		}
@@ -481,7 +481,10 @@ func NormalizeWord(dst []byte, w string) []byte {
 
 // cuckooSet is a set of 64-bit hashes in which every key sits in one of
 // two slots given by its bits (cuckoo hashing), so a lookup reads two
-// slots and compares, without a loop or a data-dependent branch.
+// slots and compares, without a loop or a data-dependent branch. Each key
+// carries one flag bit (the English eight among the English list): a key
+// is stored as its canonical form with the lowest bit set for a flagged
+// key and clear otherwise, so keys are compared on their top 63 bits.
 type cuckooSet struct {
 	slots []uint64
 	shift uint
@@ -490,22 +493,35 @@ type cuckooSet struct {
 // cuckooMul derives a key's second slot from its low bits.
 const cuckooMul = 0xBF58476D1CE4E5B9
 
+// canon returns the lookup form of hash h: lowest bit set, never 1 (a
+// stored unflagged key, canon^1, must not look like an empty slot).
+func canon(h uint64) uint64 {
+	c := h | 1
+	if c == 1 {
+		c = 3
+	}
+	return c
+}
+
 func (c *cuckooSet) slotsOf(k uint64) (uint64, uint64) {
 	return k >> c.shift, (k * cuckooMul) >> c.shift
 }
 
-// has reports whether k is in the set.
-func (c *cuckooSet) has(k uint64) bool {
-	if k == 0 {
-		k = 1 // 0 marks an empty slot
-	}
+// lookup returns 0 when hash h is in the set with its flag, 1 when it is
+// in the set without, and more otherwise.
+func (c *cuckooSet) lookup(h uint64) uint64 {
+	k := canon(h)
 	a, b := c.slotsOf(k)
-	return c.slots[a] == k || c.slots[b] == k
+	return min(c.slots[a]^k, c.slots[b]^k)
 }
 
-// newCuckooSet builds a set of keys at a load factor of at most 1/4,
-// doubling the table until every key finds a place.
-func newCuckooSet(keys []uint64) cuckooSet {
+// has reports whether hash h is in the set.
+func (c *cuckooSet) has(h uint64) bool { return c.lookup(h) <= 1 }
+
+// newCuckooSet builds a set of keys (flagged where flags[i] is true; flags
+// may be nil) at a load factor of at most 1/4, doubling the table until
+// every key finds a place.
+func newCuckooSet(keys []uint64, flags []bool) cuckooSet {
 	size, lg := 16, uint(4)
 	for size < 4*len(keys) {
 		size *= 2
@@ -513,7 +529,7 @@ func newCuckooSet(keys []uint64) cuckooSet {
 	}
 	for {
 		c := cuckooSet{slots: make([]uint64, size), shift: 64 - lg}
-		if c.fill(keys) {
+		if c.fill(keys, flags) {
 			return c
 		}
 		size *= 2
@@ -521,13 +537,15 @@ func newCuckooSet(keys []uint64) cuckooSet {
 	}
 }
 
-func (c *cuckooSet) fill(keys []uint64) bool {
-	for _, k := range keys {
-		if k == 0 {
-			k = 1
-		}
-		if c.has(k) {
+func (c *cuckooSet) fill(keys []uint64, flags []bool) bool {
+	for i, h := range keys {
+		k := canon(h)
+		if c.has(h) {
 			continue
+		}
+		v := k ^ 1 // stored form: flag in the lowest bit
+		if flags != nil && flags[i] {
+			v = k
 		}
 		a, _ := c.slotsOf(k)
 		for kick := 0; ; kick++ {
@@ -535,12 +553,12 @@ func (c *cuckooSet) fill(keys []uint64) bool {
 				return false
 			}
 			if c.slots[a] == 0 {
-				c.slots[a] = k
+				c.slots[a] = v
 				break
 			}
-			k, c.slots[a] = c.slots[a], k
+			v, c.slots[a] = c.slots[a], v
 			// move the evicted key to its other slot
-			x, y := c.slotsOf(k)
+			x, y := c.slotsOf(v | 1)
 			if x == a {
 				a = y
 			} else {

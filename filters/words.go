@@ -12,8 +12,11 @@
 package filters
 
 import (
+	"encoding/binary"
+	"math/bits"
 	"unicode"
 	"unicode/utf8"
+	"unsafe"
 
 	"github.com/zeebo/xxh3"
 )
@@ -83,22 +86,70 @@ type Scratch struct {
 	lastLen int
 	lastSum uint64
 	valid   bool
-	hashes  []uint64 // xxh3 of each word, when hashed is true
+	hashes  []uint64 // WordHash of each word, when hashed is true
 	hashed  bool
 }
 
-// WordHashes returns the xxh3 hash of each word of the last split text
+// WordHashes returns the WordHash of each word of the last split text
 // (text must be that text), computing them once per split.
 func (s *Scratch) WordHashes(text string) []uint64 {
 	if !s.hashed {
 		h := grow(s.hashes, len(s.Words))
+		tb := unsafe.Slice(unsafe.StringData(text), len(text))
+		var b [16]byte
 		for i, w := range s.Words {
-			h[i] = xxh3.HashString(text[w.Start:w.End])
+			start, l := int(w.Start), int(w.End-w.Start)
+			if l > 16 || start+16 > len(tb) {
+				h[i] = wordHashAt(text, start, start+l)
+				continue
+			}
+			// wordHashAt's fast path, inlined
+			v := tb[start : start+16 : start+16]
+			m := &padMask[l]
+			binary.LittleEndian.PutUint64(b[:8], binary.LittleEndian.Uint64(v[:8])&m[0])
+			binary.LittleEndian.PutUint64(b[8:], binary.LittleEndian.Uint64(v[8:])&m[1])
+			h[i] = xxh3.HashSeed(b[:], uint64(l))
 		}
 		s.hashes, s.hashed = h, true
 	}
 	return s.hashes
 }
+
+// WordHash is the 64-bit hash of a word (or stop-word key) used by every
+// metric: xxh3 of the word, except that a word of at most 16 bytes is
+// hashed as its bytes zero-padded to 16 with its length as the xxh3 seed,
+// so that all short words take the same code path of the hash function
+// (no branch on the length to mispredict).
+func WordHash(w string) uint64 { return wordHashAt(w, 0, len(w)) }
+
+// wordHashAt returns WordHash(text[start:end]), reading the 16 bytes at
+// start directly when the text has them.
+func wordHashAt(text string, start, end int) uint64 {
+	l := end - start
+	if l > 16 {
+		return xxh3.HashString(text[start:end])
+	}
+	var b [16]byte
+	if start+16 <= len(text) {
+		v := unsafe.Slice(unsafe.StringData(text), len(text))[start : start+16 : start+16]
+		m := &padMask[l]
+		binary.LittleEndian.PutUint64(b[:8], binary.LittleEndian.Uint64(v[:8])&m[0])
+		binary.LittleEndian.PutUint64(b[8:], binary.LittleEndian.Uint64(v[8:])&m[1])
+	} else {
+		copy(b[:], text[start:end])
+	}
+	return xxh3.HashSeed(b[:], uint64(l))
+}
+
+// padMask[l] keeps the first l of 16 little-endian bytes.
+var padMask = func() (m [17][2]uint64) {
+	for l := range m {
+		for k := 0; k < l; k++ {
+			m[l][k/8] |= 0xFF << (8 * (k % 8))
+		}
+	}
+	return m
+}()
 
 // Byte classes used by the splitter.
 const (
@@ -164,6 +215,32 @@ func (s *Scratch) Split(text string) {
 	s.Lines, s.Paras = splitLines(s.Lines[:0], s.Paras[:0], s.Words, s.starts, text, cont == 0)
 }
 
+// SWAR (SIMD within a register) helpers: eight bytes of text in a uint64,
+// little-endian; a comparison leaves bit 7 of each byte set where true.
+const (
+	loBytes = 0x0101010101010101
+	hiBits  = 0x8080808080808080
+)
+
+// byteIn marks the bytes of l (each < 0x80) in [lo, hi]: adding 0x80-lo
+// sets bit 7 exactly when b >= lo, adding 0x7F-hi exactly when b > hi,
+// and no sum carries into the next byte.
+func byteIn(l uint64, lo, hi byte) uint64 {
+	ge := (l + loBytes*uint64(0x80-lo)) & hiBits
+	gt := (l + loBytes*uint64(0x7F-hi)) & hiBits
+	return ge &^ gt
+}
+
+// loadTail returns the bytes of text from i to its end as a little-endian
+// uint64 padded with spaces, so that the end of the text ends a word.
+func loadTail(text string, i int) uint64 {
+	x := uint64(0x2020202020202020)
+	for k := 0; i+k < len(text) && k < 8; k++ {
+		x = x&^(0xFF<<(8*k)) | uint64(text[i+k])<<(8*k)
+	}
+	return x
+}
+
 // paraBreak marks an entry of Scratch.starts whose line starts a new
 // paragraph.
 const paraBreak = 1 << 31
@@ -187,6 +264,7 @@ func splitWords(words []Word, starts []uint32, text string) ([]Word, []uint32, i
 }
 
 func (sp *wordSplitter) split(text string) {
+	tb := unsafe.Slice(unsafe.StringData(text), len(text))
 	newlines := 2 // '\n' seen since the last word, capped at 2 (the first word starts a paragraph)
 	for i := 0; i < len(text); {
 		c := text[i]
@@ -205,53 +283,78 @@ func (sp *wordSplitter) split(text string) {
 				continue
 			}
 		}
-		// a word starts at i
+		// a word starts at i: find its end eight bytes at a time (SWAR)
 		start := i
-		acc := uint8(0)
+		var lanes uint64 // per byte: bit 0 letter, bit 1 neither lower-case letter nor digit
+		high := false
 		for {
-			for i < len(text) {
-				t = byteClass[text[i]]
-				if t&(clsSpace|clsHigh) != 0 {
+			var x uint64
+			if i+8 <= len(tb) {
+				x = binary.LittleEndian.Uint64(tb[i : i+8 : i+8])
+			} else {
+				x = loadTail(text, i)
+			}
+			hi := x & hiBits
+			l := x &^ hiBits
+			// stop at the first byte <= ' ' (whitespace or a control
+			// character, sorted out below) or >= 0x80
+			stop := ^(l+loBytes*(0x7F-' '))&hiBits | hi
+			m := ((stop & -stop) - 1) & hiBits // bit 7 of the bytes before it
+			lower := byteIn(l, 'a', 'z')
+			letter := byteIn(l|loBytes*0x20, 'a', 'z')
+			digit := byteIn(l, '0', '9')
+			lanes |= (letter&m)>>7 | (^(lower|digit)&m)>>6
+			i += bits.TrailingZeros64(stop) >> 3 // 8 when no byte stops the word
+			if stop == 0 {
+				continue
+			}
+			if i >= len(text) {
+				break
+			}
+			c := text[i]
+			if c < utf8.RuneSelf {
+				if byteClass[c]&clsSpace != 0 {
 					break
 				}
-				acc |= t
+				lanes |= 2 // a control character belongs to the word
 				i++
-			}
-			if i >= len(text) || t&clsSpace != 0 {
-				break
+				continue
 			}
 			r, size := utf8.DecodeRuneInString(text[i:])
-			if spaceLead[text[i]] && unicode.IsSpace(r) {
+			if spaceLead[c] && unicode.IsSpace(r) {
 				break
 			}
+			high = true
 			if unicode.IsLetter(r) {
-				acc |= clsLetter
+				lanes |= 1
 			}
-			acc |= clsHigh
 			i += size
 		}
-		sp.add(text, start, i, acc, newlines)
-		newlines = 0
+		lanes |= lanes >> 32
+		lanes |= lanes >> 16
+		lanes |= lanes >> 8
+		runes := i - start
+		if high {
+			runes = utf8.RuneCountInString(text[start:i])
+			sp.cont += i - start - runes
+		}
+		if newlines > 0 {
+			sp.lineStart(newlines)
+			newlines = 0
+		}
+		sp.words = append(sp.words, Word{Start: int32(start), End: int32(i), Runes: int32(runes),
+			Alpha: lanes&1 != 0, Plain: lanes&2 == 0 && !high})
 	}
 }
 
-// add appends the word text[start:end] with byte classes acc, preceded by
-// the given number of newlines.
-func (sp *wordSplitter) add(text string, start, end int, acc uint8, newlines int) {
-	runes := end - start
-	if acc&clsHigh != 0 {
-		runes = utf8.RuneCountInString(text[start:end])
-		sp.cont += end - start - runes
+// lineStart records that the next word starts a line (a paragraph after
+// two or more newlines).
+func (sp *wordSplitter) lineStart(newlines int) {
+	st := uint32(len(sp.words))
+	if newlines >= 2 {
+		st |= paraBreak
 	}
-	if newlines > 0 {
-		st := uint32(len(sp.words))
-		if newlines >= 2 {
-			st |= paraBreak
-		}
-		sp.starts = append(sp.starts, st)
-	}
-	sp.words = append(sp.words, Word{Start: int32(start), End: int32(end), Runes: int32(runes),
-		Alpha: acc&clsLetter != 0, Plain: acc&(clsUpper|clsOther|clsHigh) == 0})
+	sp.starts = append(sp.starts, st)
 }
 
 // splitLines appends the lines and paragraphs given by the line starts
@@ -319,4 +422,23 @@ func CountWords(s string) int {
 		}
 	}
 	return n
+}
+
+// keepWords is the largest word list (in words) a Scratch keeps after
+// Release; a longer document's buffers are dropped so that a pooled
+// Scratch does not pin tens of megabytes.
+const keepWords = 1 << 17
+
+// Release drops the buffers of s that a very long document made large.
+// Call it before putting s back into a pool.
+func (s *Scratch) Release() {
+	if cap(s.Words) > keepWords {
+		s.Words, s.hashes, s.valid, s.hashed = nil, nil, false, false
+	}
+	if cap(s.Lines) > keepWords || cap(s.starts) > keepWords {
+		s.Lines, s.Paras, s.starts, s.valid = nil, nil, nil, false
+	}
+	if cap(s.bounds) > keepWords {
+		s.bounds = nil
+	}
 }

@@ -223,10 +223,10 @@ type cacheEntry struct {
 	ids []uint32
 }
 
-// pieceCache is a bounded, lock-free, direct-mapped cache from a piece to
-// its tokens. Readers load a slot atomically and compare the key; a miss
-// computes the tokens and publishes a new entry, replacing whatever the
-// slot held. Entries are immutable, so concurrent readers and writers need
+// pieceCache is a bounded, lock-free, 2-way set-associative cache from a
+// piece to its tokens. Readers load the set's slots atomically and compare
+// keys; a miss computes the tokens and publishes a new entry, evicting the
+// older of the set's two. Entries are immutable, so concurrent readers and writers need
 // no lock, and since a piece's tokens are a pure function of the piece the
 // cache changes only speed, never results.
 type pieceCache struct {
@@ -238,20 +238,32 @@ func newPieceCache() *pieceCache {
 	return &pieceCache{seed: maphash.MakeSeed(), slots: make([]atomic.Pointer[cacheEntry], cacheSlots)}
 }
 
-func (c *pieceCache) slot(piece string) *atomic.Pointer[cacheEntry] {
-	return &c.slots[maphash.String(c.seed, piece)&(cacheSlots-1)]
+// set returns the two slots a piece may live in (2-way set associative,
+// so two frequent pieces that hash alike do not evict each other).
+func (c *pieceCache) set(piece string) (*atomic.Pointer[cacheEntry], *atomic.Pointer[cacheEntry]) {
+	i := maphash.String(c.seed, piece) & (cacheSlots - 1) &^ 1
+	return &c.slots[i], &c.slots[i+1]
 }
 
 // get returns the cached tokens of piece, or nil.
 func (c *pieceCache) get(piece string) []uint32 {
-	if ent := c.slot(piece).Load(); ent != nil && ent.key == piece {
+	a, b := c.set(piece)
+	if ent := a.Load(); ent != nil && ent.key == piece {
+		return ent.ids
+	}
+	if ent := b.Load(); ent != nil && ent.key == piece {
 		return ent.ids
 	}
 	return nil
 }
 
-// put publishes the tokens of piece (copying both).
+// put publishes the tokens of piece (copying both) in the first slot of
+// its set, moving the previous occupant to the second.
 func (c *pieceCache) put(piece string, ids []uint32) {
 	ent := &cacheEntry{key: string([]byte(piece)), ids: append([]uint32(nil), ids...)}
-	c.slot(piece).Store(ent)
+	a, b := c.set(piece)
+	if old := a.Load(); old != nil {
+		b.Store(old)
+	}
+	a.Store(ent)
 }

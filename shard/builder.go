@@ -116,7 +116,6 @@ type Builder struct {
 	srcNames []string
 	splits   []Split
 	line     []byte
-	docs     int64
 	closed   bool
 }
 
@@ -187,7 +186,6 @@ func (b *Builder) Add(d *Doc) error {
 	if b.closed {
 		return errors.New("output: Add after Close")
 	}
-	b.docs++
 	meta := appendMeta(nil, d.Meta, b.keep)
 	if b.tok == nil {
 		b.line = appendLineMeta(b.line[:0], d.ID, d.Text, d.Source, d.Tokens, meta)

@@ -248,15 +248,20 @@ func scanNumbers(s string, i, max int) int {
 // alternative (breaks false).
 func (sp *splitter) whitespace(s string, i int, breaks bool) int {
 	e, last, lastSize, runes := i, -1, 0, 0
-	firstBreak := -1
 	for e < len(s) {
 		c, n := classAt(s, e)
 		if c&cSpace == 0 {
 			break
 		}
 		if c&cBreak != 0 {
-			if firstBreak < 0 {
-				firstBreak = e
+			if breaks && sp.reference {
+				// The reference ends after the run of line breaks that
+				// starts at the first one; stopping here also keeps long
+				// runs of alternating breaks and spaces linear.
+				for e < len(s) && (s[e] == '\r' || s[e] == '\n') {
+					e++
+				}
+				return e
 			}
 			last = e
 		}
@@ -264,16 +269,7 @@ func (sp *splitter) whitespace(s string, i int, breaks bool) int {
 		e += n
 		runes++
 	}
-	if breaks && firstBreak >= 0 {
-		if sp.reference {
-			// The reference ends after the break run that starts at the
-			// first line break.
-			j := firstBreak
-			for j < e && (s[j] == '\r' || s[j] == '\n') {
-				j++
-			}
-			return j
-		}
+	if breaks && last >= 0 {
 		return last + 1
 	}
 	if e == len(s) || runes < 2 {

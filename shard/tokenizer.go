@@ -5,6 +5,7 @@
 package shard
 
 import (
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -206,7 +207,14 @@ type loadResult struct {
 func Load(spec, baseDir string) (*Tokenizer, error) {
 	key, build := resolve(spec, baseDir)
 	if build == nil {
-		return nil, fmt.Errorf("tokenizer %q: not an encoding (%s), a model name or a tokenizer.json path", spec, strings.Join(Encodings(), ", "))
+		msg := fmt.Sprintf("tokenizer %q: not an encoding (%s), a model name or a tokenizer.json path", spec, strings.Join(Encodings(), ", "))
+		for _, e := range Encodings() {
+			if editDistance(spec, e) <= 2 {
+				msg += fmt.Sprintf(" (did you mean %q?)", e)
+				break
+			}
+		}
+		return nil, errors.New(msg)
 	}
 	loadedMu.Lock()
 	r, ok := loaded[key]
@@ -319,4 +327,25 @@ func bpeFromRanks(tokens []string) (*bpe, error) {
 		}
 	}
 	return e, nil
+}
+
+// editDistance is the Levenshtein distance of a and b (for suggestions).
+func editDistance(a, b string) int {
+	prev := make([]int, len(b)+1)
+	cur := make([]int, len(b)+1)
+	for j := range prev {
+		prev[j] = j
+	}
+	for i := 1; i <= len(a); i++ {
+		cur[0] = i
+		for j := 1; j <= len(b); j++ {
+			cost := 1
+			if a[i-1] == b[j-1] {
+				cost = 0
+			}
+			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
+		}
+		prev, cur = cur, prev
+	}
+	return prev[len(b)]
 }

@@ -38,6 +38,7 @@ func BenchmarkCountOurs(b *testing.B) {
 			tok := mustLoad(b, enc)
 			tok.Count(text) // warm the cache, as a long run does
 			b.SetBytes(int64(len(text)))
+			b.ReportAllocs()
 			b.ResetTimer()
 			for i := 0; i < b.N; i++ {
 				tok.Count(text)
@@ -86,5 +87,23 @@ func BenchmarkCountColdCache(b *testing.B) {
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		tok.countNoCache(text)
+	}
+}
+
+// BenchmarkPathological measures inputs that would be quadratic for a
+// scanner that rescans whitespace or letter runs (must stay MB/s-fast).
+func BenchmarkPathological(b *testing.B) {
+	tok := mustLoad(b, "cl100k_base")
+	for name, s := range map[string]string{
+		"breaks": strings.Repeat("\n ", 1<<18),
+		"spaces": strings.Repeat(" ", 1<<19) + "x",
+		"cjk":    strings.Repeat("船坞", 1<<16),
+	} {
+		b.Run(name, func(b *testing.B) {
+			b.SetBytes(int64(len(s)))
+			for i := 0; i < b.N; i++ {
+				tok.Count(s)
+			}
+		})
 	}
 }

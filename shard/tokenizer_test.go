@@ -270,3 +270,18 @@ func FuzzCl100kMatchesReference(f *testing.F) {
 		}
 	})
 }
+
+// Long runs that make a naive scanner quadratic still match the reference
+// (kept short here; BenchmarkPathological measures long ones).
+func TestLongRuns(t *testing.T) {
+	for _, enc := range []string{"cl100k_base", "o200k_base", "r50k_base"} {
+		tok, ref := mustLoad(t, enc), reference(t, enc)
+		for _, s := range []string{strings.Repeat("\n ", 500) + "x", strings.Repeat(" \t", 400), strings.Repeat("Aǅ", 300) + "b",
+			strings.Repeat("'s", 300), strings.Repeat("9", 1000), strings.Repeat(".\n", 300)} {
+			n, _ := ref.Count(s)
+			if got := tok.Count(s); got != n {
+				t.Errorf("%s %q...: %d, reference %d", enc, clip(s)[:20], got, n)
+			}
+		}
+	}
+}

@@ -19,8 +19,13 @@ package shard
 // by up-sampling (max_epochs > 1) appears again with the same id.
 //
 // With a tokenizer each shard holds shard_tokens tokens within ±1% (the
-// last may be smaller); with a mix each shard's per-source token share is
-// within ±2 percentage points of the target. Without a tokenizer shards
+// last may be smaller): a shard ends at the document boundary nearest to
+// each multiple of shard_tokens when one lies within 0.5%, else inside the
+// document that straddles it, at a paragraph (else line, else word)
+// boundary. Without a mix, documents keep input order. With a mix,
+// documents longer than split_tokens (default shard_tokens/100) are split
+// first, sources are interleaved, and each shard's per-source token share
+// is within ±2 percentage points of the target. Without a tokenizer shards
 // are cut after the line that reaches shard_bytes uncompressed bytes.
 //
 // Token files (output.token_files: true), per shard:

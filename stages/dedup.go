@@ -42,6 +42,9 @@ func init() {
 
 // stageName returns the spec's name for a stage (the kind by default).
 func stageName(p *Params, kind string) string {
+	if p.stageName != "" {
+		return p.stageName
+	}
 	n := p.String("name", kind)
 	if n == "" {
 		return kind
@@ -128,6 +131,7 @@ func (s *exactDedupStage) Scan(d *Doc) any {
 	return h
 }
 
+// Collect adds one document's scan keys to the index, in input order.
 func (s *exactDedupStage) Collect(order OrderKey, id string, keys any) error {
 	if keys == nil {
 		return nil
@@ -146,6 +150,7 @@ func (s *exactDedupStage) Collect(order OrderKey, id string, keys any) error {
 	return s.idx.Add(uint64(order), id, h)
 }
 
+// Reduce decides which documents are duplicates and writes the run's keys.
 func (s *exactDedupStage) Reduce() error {
 	if s.paragraph {
 		return s.para.Reduce()
@@ -153,6 +158,7 @@ func (s *exactDedupStage) Reduce() error {
 	return s.idx.Reduce()
 }
 
+// Apply returns the decision Reduce made for d.
 func (s *exactDedupStage) Apply(d *Doc) Decision {
 	if s.paragraph {
 		text, n := s.para.Strip(d.Text)
@@ -178,6 +184,7 @@ func (s *exactDedupStage) Apply(d *Doc) Decision {
 	return dec
 }
 
+// Close removes the index's temp files.
 func (s *exactDedupStage) Close() error {
 	var err error
 	if s.idx != nil {
@@ -258,6 +265,7 @@ func (s *nearDedupStage) Scan(d *Doc) any {
 	return k
 }
 
+// Collect adds one document's scan keys to the index, in input order.
 func (s *nearDedupStage) Collect(order OrderKey, id string, keys any) error {
 	if keys == nil {
 		return s.idx.Add(uint64(order), id, nil)
@@ -269,8 +277,10 @@ func (s *nearDedupStage) Collect(order OrderKey, id string, keys any) error {
 	return s.idx.Add(uint64(order), id, k)
 }
 
+// Reduce decides which documents are duplicates and writes the run's keys.
 func (s *nearDedupStage) Reduce() error { return s.idx.Reduce() }
 
+// Apply returns the decision Reduce made for d.
 func (s *nearDedupStage) Apply(d *Doc) Decision {
 	m, ok := s.idx.Lookup(uint64(d.Order))
 	if !ok {
@@ -284,6 +294,7 @@ func (s *nearDedupStage) Apply(d *Doc) Decision {
 	return dec
 }
 
+// Close removes the index's temp files.
 func (s *nearDedupStage) Close() error {
 	if s.idx == nil {
 		return nil

@@ -28,8 +28,9 @@ import (
 //
 // The stage is a ThresholdStage: every rule is a limit on a stored metric
 // (language on lang_allowed, 1 when the detected code is allowed), so
-// what-if recomputes drops exactly; only the ledger value of the language
-// rule (the code) is not a metric.
+// what-if recomputes drops exactly. Only the language rule has no spec key
+// (what-if cannot change `languages`: the stored metrics do not hold the
+// code) and its ledger value is the code, not the metric.
 type langidStage struct {
 	opts      langid.Options
 	languages []string
@@ -119,7 +120,9 @@ func newLangid(p *Params, env Env) (Stage, error) {
 	s.rules = []Rule{
 		{Name: "no_language", Key: "min_letters", Metric: "letters", Cmp: AtLeast, Limit: float64(minLetters), Enabled: minLetters > 0},
 		{Name: "no_language", Key: "min_letter_share", Metric: "letter_share", Cmp: AtLeast, Limit: minShare, Enabled: minShare > 0},
-		{Name: "language", Key: "languages", Metric: "lang_allowed", Cmp: AtLeast, Limit: 1, Enabled: true},
+		// No key sets this limit: `languages` is a set, not a number, and
+		// what-if cannot vary it from the stored metrics.
+		{Name: "language", Key: "", Metric: "lang_allowed", Cmp: AtLeast, Limit: 1, Enabled: true},
 		{Name: "low_confidence", Key: "min_confidence", Metric: "lang_conf", Cmp: AtLeast, Limit: minConf, Enabled: minConf > 0},
 	}
 	if err := p.Done(); err != nil {

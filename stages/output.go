@@ -100,8 +100,11 @@ func parseOutput(p *Params, env Env) (*outputConfig, error) {
 			p.Fail("tokenizer", err)
 		}
 		c.tok = tok
+		if p.Has("shard_bytes") {
+			p.Errorf("shard_bytes", "applies only without output.tokenizer (shards are cut by shard_tokens)")
+		}
 	} else {
-		for _, k := range []string{"mix", "budget_tokens", "token_files", "split_tokens", "max_epochs"} {
+		for _, k := range []string{"shard_tokens", "mix", "budget_tokens", "token_files", "split_tokens", "max_epochs"} {
 			if p.Has(k) {
 				p.Errorf(k, "needs output.tokenizer")
 			}

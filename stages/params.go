@@ -24,7 +24,14 @@ type Params struct {
 	// Overrides replace values by key before the YAML is consulted (what-if
 	// and --set use them); values are strings parsed like YAML scalars.
 	overrides map[string]string
+	// stageName is the stage's final name in the run (set by the spec
+	// loader, which numbers repeated kinds).
+	stageName string
 }
+
+// StageName returns the name the stage has in the run (its "name" key, or
+// its kind numbered when repeated); "" outside a spec.
+func (p *Params) StageName() string { return p.stageName }
 
 // NewParams wraps a YAML mapping node. path prefixes key names in errors.
 func NewParams(file, path string, node *yaml.Node) *Params {
@@ -319,6 +326,14 @@ func (p *Params) Ignore(keys ...string) {
 // Fail records err as an error at key.
 func (p *Params) Fail(key string, err error) {
 	p.Errorf(key, "%v", err)
+}
+
+// takeErrs returns and clears the errors recorded so far (without the
+// unknown-key check of Done).
+func (p *Params) takeErrs() []error {
+	e := p.errs
+	p.errs = nil
+	return e
 }
 
 // Done reports all errors so far, plus one per unknown key with the nearest

@@ -122,8 +122,9 @@ type Runner struct {
 }
 
 type item struct {
-	rec   Record
-	input int
+	rec       Record
+	input     int
+	readBytes int // text bytes as read, before any stage edited them
 }
 
 type batch struct {
@@ -501,7 +502,7 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		out := &b.outs[i]
 		if seg.apply < 0 {
 			r.Read.DocsOut++
-			r.Read.BytesOut += int64(len(d.Text))
+			r.Read.BytesOut += int64(it.readBytes)
 		}
 		for _, res := range out.results {
 			if err := r.recordResult(d, res); err != nil {
@@ -577,11 +578,15 @@ func (r *Runner) recordResult(d *Doc, res stepResult) error {
 	} else if o, ok := st.Global.(Observer); ok {
 		o.Observe(d, dec)
 	}
+	if dec.Action == Keep && dec.Rule == "" {
+		return nil // a flag (keep with a rule) is still recorded
+	}
+	action := dec.Action.String()
 	if dec.Action == Keep {
-		return nil
+		action = "flag"
 	}
 	rec := LedgerRecord{Doc: d.ID, Source: d.Source, File: d.File, Line: d.Line, Stage: st.Name,
-		Rule: dec.Rule, Action: dec.Action.String(), Value: dec.Value, Limit: dec.Limit,
+		Rule: dec.Rule, Action: action, Value: dec.Value, Limit: dec.Limit,
 		Changes: dec.Changes, Extra: dec.Extra}
 	return r.ledger.Add(&rec)
 }
@@ -651,7 +656,11 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 				r.prog.text.Add(int64(len(rec.Doc.Text)))
 				curBytes += len(rec.Doc.Text)
 			}
-			cur.items = append(cur.items, item{rec: rec, input: in.Index})
+			it := item{rec: rec, input: in.Index}
+			if rec.Doc != nil {
+				it.readBytes = len(rec.Doc.Text)
+			}
+			cur.items = append(cur.items, it)
 			if len(cur.items) >= batchDocs || curBytes >= batchBytes {
 				return flush()
 			}

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
 
 	"github.com/zeebo/xxh3"
@@ -140,6 +141,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 				st.Name = fmt.Sprintf("%s_%d", st.Kind, names[st.Name])
 			}
 		}
+		sp.stageName = st.Name
 		s.Stages = append(s.Stages, st)
 	}
 	s.Output = p.Sub("output")
@@ -149,6 +151,31 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	s.OutputDir = s.Output.String("dir", "")
 	if s.OutputDir != "" && !filepath.IsAbs(s.OutputDir) {
 		s.OutputDir = filepath.Join(s.Dir, s.OutputDir)
+	}
+	if mix := s.Output.FloatMap("mix"); len(mix) > 0 {
+		known := map[string]bool{}
+		var srcs []string
+		for _, in := range s.Inputs {
+			if !known[in.Source] {
+				srcs = append(srcs, in.Source)
+			}
+			known[in.Source] = true
+		}
+		names := make([]string, 0, len(mix))
+		for name := range mix {
+			names = append(names, name)
+		}
+		sort.Strings(names)
+		for _, name := range names {
+			if !known[name] {
+				msg := fmt.Sprintf("mix names source %q, which no input has (sources: %s)", name, strings.Join(srcs, ", "))
+				if n := nearest(name, srcs); n != "" {
+					msg += fmt.Sprintf(" (did you mean %q?)", n)
+				}
+				s.Output.Errorf("mix", "%s", msg)
+			}
+		}
+		errs = append(errs, s.Output.takeErrs()...)
 	}
 	if err := p.Done(); err != nil {
 		errs = append([]error{err}, errs...)
@@ -204,6 +231,16 @@ func (s *Spec) BuildStages(env Env) ([]Step, error) {
 	if env.MemoryBudget == 0 {
 		env.MemoryBudget = s.Memory
 	}
+	// The memory budget is the whole run's: split it between global stages.
+	globals := int64(0)
+	for _, st := range s.Stages {
+		if k, ok := LookupKind(st.Kind); ok && k.NewGlobal != nil {
+			globals++
+		}
+	}
+	if globals > 1 {
+		env.MemoryBudget /= globals
+	}
 	var steps []Step
 	var errs []error
 	for _, st := range s.Stages {
@@ -214,6 +251,13 @@ func (s *Spec) BuildStages(env Env) ([]Step, error) {
 			step.Stage, err = k.New(st.Params, env)
 		} else {
 			step.Global, err = k.NewGlobal(st.Params, env)
+			// A global kind may run per document in some
+			// configurations (no counting pass needed).
+			if pd, ok := step.Global.(PerDocumenter); ok && err == nil {
+				if s := pd.PerDocument(); s != nil {
+					step.Stage, step.Global = s, nil
+				}
+			}
 		}
 		if err != nil {
 			errs = append(errs, err)

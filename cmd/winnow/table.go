@@ -73,3 +73,38 @@ func parseBytes(s string) (int64, error) {
 	}
 	return int64(f * mul), nil
 }
+
+// printShardTable prints each output shard's documents, tokens and
+// per-source token shares.
+func printShardTable(w io.Writer, m *stages.Manifest) {
+	if len(m.Outputs) == 0 {
+		return
+	}
+	seen := map[string]bool{}
+	var sources []string
+	for _, in := range m.Inputs {
+		if !seen[in.Source] {
+			seen[in.Source] = true
+			sources = append(sources, in.Source)
+		}
+	}
+	fmt.Fprintln(w)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprint(tw, "shard\tdocs\ttokens\t")
+	for _, s := range sources {
+		fmt.Fprintf(tw, "%s\t", s)
+	}
+	fmt.Fprintln(tw)
+	for _, o := range m.Outputs {
+		fmt.Fprintf(tw, "%s\t%s\t%s\t", o.Path, group(o.Docs), group(o.Tokens))
+		for _, s := range sources {
+			if o.Tokens > 0 {
+				fmt.Fprintf(tw, "%.1f%%\t", 100*float64(o.Source[s])/float64(o.Tokens))
+			} else {
+				fmt.Fprint(tw, "-\t")
+			}
+		}
+		fmt.Fprintln(tw)
+	}
+	tw.Flush()
+}

@@ -134,3 +134,25 @@ func BenchmarkLinguaWholeText(b *testing.B) {
 	}
 	b.ReportMetric(float64(ok)/float64(b.N), "acc")
 }
+
+// BenchmarkDetectLong measures the detector on whole declarations (one
+// page per language, 10-30 KB): the sampled cost per page is bounded, so
+// throughput grows with page length.
+func BenchmarkDetectLong(b *testing.B) {
+	d := defaultDetector(b)
+	var docs []webDoc
+	for _, c := range udhrLanguages {
+		docs = append(docs, webDoc{text: strings.Join(loadUDHR(b, c), "\n"), lang: c})
+	}
+	b.SetBytes(docBytes(docs))
+	b.ReportAllocs()
+	ok := 0
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		w := docs[i%len(docs)]
+		if d.Detect(w.text).Lang == w.lang {
+			ok++
+		}
+	}
+	b.ReportMetric(float64(ok)/float64(b.N), "acc")
+}

@@ -85,11 +85,13 @@ type Result struct {
 	// Lang is the detected candidate's ISO 639-1 code, or Undetermined.
 	Lang string
 	// Confidence in [0, 1]: the share of the document's letters in the
-	// detected language's script, times the letter-weighted mean over the
-	// samples of lingua's confidence for that language (1 when the script
-	// alone decides). 0 when Lang is Undetermined.
+	// detected language's script, times the mean over the samples of
+	// lingua's confidence for that language, each sample weighted by its
+	// number of scored trigrams (1 when the script alone decides). 0 when
+	// Lang is Undetermined.
 	Confidence float64
-	// Letters counts letters and combining marks outside markup.
+	// Letters counts letters, and combining marks that follow a letter,
+	// outside markup.
 	Letters int
 	// LetterShare is Letters over all non-space characters (markup counts
 	// as non-letters); 0 for a text without any.
@@ -131,6 +133,7 @@ type scriptRule struct {
 
 // ngramGroup scores the candidates sharing one script.
 type ngramGroup struct {
+	script script
 	model  *ngramModel
 	ids    []int                    // candidate id of model.langs[j]
 	shared *groupShared             // lingua's detectors, for close calls
@@ -165,6 +168,8 @@ type groupShared struct {
 	linguas map[uint64]lingua.LanguageDetector
 }
 
+// highAccuracyBit marks a high-accuracy detector's key. Bits 0-48 are
+// languages: lingua has 49 Latin-script languages, the largest group.
 const highAccuracyBit = 1 << 63
 
 // linguaDetector returns a lingua detector over the languages of mask
@@ -198,7 +203,7 @@ func (g *groupShared) linguaDetector(mask uint64) lingua.LanguageDetector {
 // (lingua's detectors are safe for concurrent use: their methods only read
 // the loaded models; see TestLangConcurrentDetect). The first call for a
 // candidate set loads lingua's 1-3-gram models of its languages, which
-// takes a fraction of a second.
+// takes about half a second.
 func New(opts Options) (*Detector, error) {
 	codes, err := normalizeCandidates(opts.Candidates)
 	if err != nil {
@@ -288,7 +293,7 @@ func build(codes []string, opts Options) (*Detector, error) {
 		if err != nil {
 			return nil, err
 		}
-		g := &ngramGroup{model: sh.model, shared: sh}
+		g := &ngramGroup{script: s, model: sh.model, shared: sh}
 		for i := range g.slot {
 			g.slot[i] = -1
 		}
@@ -779,12 +784,14 @@ func softmax(scores, dist []float64) float64 {
 	return best - second
 }
 
-// linguaDist asks det for the confidence values of a sample (markup
-// replaced by spaces, as the packed scorer skips it) and writes them into
-// dist, indexed like g.model.langs.
+// linguaDist asks det for the confidence values of a sample and writes
+// them into dist, indexed like g.model.langs. Lingua is given the sample
+// as the packed scorer read it: markup removed, and letters of other
+// scripts too (lingua picks the alphabet most words are in, and breaks
+// ties between alphabets at random).
 func linguaDist(g *ngramGroup, det lingua.LanguageDetector, sample string, dist []float64) {
 	clear(dist)
-	for _, v := range det.ComputeLanguageConfidenceValues(stripMarkup(sample)) {
+	for _, v := range det.ComputeLanguageConfidenceValues(linguaText(sample, g.script)) {
 		if j := g.slot[v.Language()]; j >= 0 {
 			// lingua sums in map order, so its values vary in the last
 			// bits from call to call; rounding keeps results identical.
@@ -793,23 +800,36 @@ func linguaDist(g *ngramGroup, det lingua.LanguageDetector, sample string, dist 
 	}
 }
 
-// stripMarkup replaces tags and entities by a space.
-func stripMarkup(s string) string {
-	if !strings.ContainsAny(s, "<&") {
-		return s
-	}
+// linguaText returns s with tags, entities and letters of scripts other
+// than keep replaced by spaces.
+func linguaText(s string, keep script) string {
+	t := classTable()
 	var b strings.Builder
 	b.Grow(len(s))
 	for i := 0; i < len(s); {
-		if c := s[i]; c == '<' || c == '&' {
+		c := s[i]
+		if c == '<' || c == '&' {
 			if l := markupLen(s[i:]); l > 0 {
 				b.WriteByte(' ')
 				i += l
 				continue
 			}
 		}
-		b.WriteByte(s[i])
-		i++
+		if c < utf8.RuneSelf {
+			if keep != scriptLatin && asciiKind[c] == asciiLetter {
+				c = ' '
+			}
+			b.WriteByte(c)
+			i++
+			continue
+		}
+		r, n := utf8.DecodeRuneInString(s[i:])
+		if cl := runeClass(t, r); cl&classWord != 0 && script(cl&classScript) != keep {
+			b.WriteByte(' ')
+		} else {
+			b.WriteString(s[i : i+n])
+		}
+		i += n
 	}
 	return b.String()
 }

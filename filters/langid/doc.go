@@ -59,10 +59,11 @@
 // goes to lingua on the UDHR paragraphs of 100+ characters, one in forty
 // on the generated web pages of the benchmark.
 //
-// 6. A document's language is the one with the largest letter-weighted
-// mean confidence over its samples; its confidence is that mean times the
-// share of the document's letters in the deciding script, so a page half
-// Russian, half English is about 0.5 sure of either.
+// 6. A document's language is the one with the largest mean confidence
+// over its samples, each weighted by its number of scored trigrams; its
+// confidence is that mean times the share of the document's letters in the
+// deciding script, so a page half Russian, half English is about 0.5 sure
+// of either.
 //
 // Decomposed accents (a letter then U+0301...) would split lingua's words
 // at every mark, so samples holding such marks are put into NFC first

@@ -215,3 +215,21 @@ func TestLangTableBytes(t *testing.T) {
 		t.Errorf("packed tables take %d bytes", n)
 	}
 }
+
+// TestLangLinguaText: close calls hand lingua only the sample's letters of
+// the deciding script, without markup.
+func TestLangLinguaText(t *testing.T) {
+	for _, c := range []struct {
+		in   string
+		keep script
+		want string
+	}{
+		{"<b>Hej</b> мир &amp; du", scriptLatin, " Hej        du"},
+		{"<b>Hej</b> мир &amp; du", scriptCyrillic, "      мир     "},
+		{"a < b & c", scriptLatin, "a < b & c"},
+	} {
+		if got := linguaText(c.in, c.keep); got != c.want {
+			t.Errorf("linguaText(%q, %s) = %q, want %q", c.in, scriptNames[c.keep], got, c.want)
+		}
+	}
+}

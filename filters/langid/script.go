@@ -154,6 +154,30 @@ func markupLen(s string) int {
 	return 0
 }
 
+// Kinds of ASCII bytes for the scan's fast path.
+const (
+	asciiSpace uint8 = iota
+	asciiLetter
+	asciiMarkup // '<' or '&': maybe the start of a tag or entity
+	asciiOther
+)
+
+var asciiKind = func() (t [utf8.RuneSelf]uint8) {
+	for b := range t {
+		switch {
+		case b >= 'a' && b <= 'z' || b >= 'A' && b <= 'Z':
+			t[b] = asciiLetter
+		case b == ' ' || b == '\n' || b == '\t' || b == '\r' || b == '\v' || b == '\f':
+			t[b] = asciiSpace
+		case b == '<' || b == '&':
+			t[b] = asciiMarkup
+		default:
+			t[b] = asciiOther
+		}
+	}
+	return
+}()
+
 // textStats is what one pass over the whole document measures.
 type textStats struct {
 	runes    int // all runes, markup and space included
@@ -173,27 +197,28 @@ func scanText(s string) textStats {
 	for i := 0; i < len(s); {
 		b := s[i]
 		if b < utf8.RuneSelf {
-			afterLetter = false
-			switch {
-			case b >= 'a' && b <= 'z' || b >= 'A' && b <= 'Z':
+			st.runes++
+			i++
+			switch asciiKind[b] {
+			case asciiLetter:
 				st.letters++
 				st.scripts[scriptLatin]++
 				st.nonSpace++
 				afterLetter = true
-			case b == ' ' || b == '\n' || b == '\t' || b == '\r' || b == '\v' || b == '\f':
-			case b == '<' || b == '&':
-				if n := markupLen(s[i:]); n > 0 {
-					st.runes += n // markup is ASCII or counted per byte: an upper bound is fine
+				continue
+			case asciiMarkup:
+				if n := markupLen(s[i-1:]); n > 0 {
+					st.runes += n - 1 // markup is ASCII or counted per byte: an upper bound is fine
 					st.nonSpace += n
-					i += n
+					i += n - 1
+					afterLetter = false
 					continue
 				}
 				st.nonSpace++
-			default:
+			case asciiOther:
 				st.nonSpace++
 			}
-			st.runes++
-			i++
+			afterLetter = false
 			continue
 		}
 		r, n := utf8.DecodeRuneInString(s[i:])

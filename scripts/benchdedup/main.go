@@ -109,6 +109,16 @@ func (e exactIdx) lookup(o uint64) bool                 { _, ok := e.x.Lookup(o)
 func (e exactIdx) stats() dedup.IndexStats              { return e.x.Stats() }
 func (e exactIdx) close() error                         { return e.x.Close() }
 
+// noIdx only generates the documents: the baseline cost of the harness.
+type noIdx struct{}
+
+func (noIdx) scan(t string) any                    { return nil }
+func (noIdx) add(o uint64, id string, k any) error { return nil }
+func (noIdx) reduce() error                        { return nil }
+func (noIdx) lookup(o uint64) bool                 { return false }
+func (noIdx) stats() dedup.IndexStats              { return dedup.IndexStats{} }
+func (noIdx) close() error                         { return nil }
+
 type nearIdx struct{ x *dedup.NearIndex }
 
 func (n nearIdx) scan(t string) any                    { return n.x.Key(t) }
@@ -120,7 +130,7 @@ func (n nearIdx) close() error                         { return n.x.Close() }
 
 func main() {
 	docs := flag.Int("docs", 1_000_000, "documents to generate")
-	stage := flag.String("stage", "near", "exact | near")
+	stage := flag.String("stage", "near", "exact | near | none (generate only: the harness baseline)")
 	memory := flag.Int64("memory", 128<<20, "memory budget of the index in bytes")
 	workers := flag.Int("workers", runtime.NumCPU(), "scan goroutines")
 	tmp := flag.String("tmp", os.TempDir(), "directory for spill files")
@@ -158,6 +168,8 @@ func run(n int, stage string, memory int64, workers int, tmp string, seed uint64
 			return err
 		}
 		idx = nearIdx{x}
+	case "none":
+		idx = noIdx{}
 	default:
 		return fmt.Errorf("unknown stage %q", stage)
 	}

@@ -40,10 +40,13 @@ type Histogram struct {
 	Removed []int64 `json:"removed"`
 	Other   []int64 `json:"other"`
 	// Missing counts documents where the metric does not apply (null).
-	Missing int64 `json:"missing"`
-	Docs    int64 `json:"docs"`
+	Missing int64   `json:"missing"`
+	Docs    int64   `json:"docs"`
 	Min     float64 `json:"min"`
 	Max     float64 `json:"max"`
+	// Constant is true when every measured value is the same (the report
+	// lists such metrics instead of drawing them).
+	Constant bool `json:"constant"`
 	// Thresholds are the enabled rules on this metric.
 	Thresholds []Threshold `json:"thresholds"`
 }
@@ -184,6 +187,7 @@ func newHistSet(r *Run) (*histSet, error) {
 // setRange picks Lo, Width and Bins from the column's statistics.
 func (h *Histogram) setRange(c *colStats) {
 	h.Min, h.Max = c.min, c.max
+	h.Constant = c.n > 0 && c.min == c.max
 	lo, hi := c.min, c.max
 	if len(c.res) > 0 {
 		v := append([]float64(nil), c.res...)
@@ -191,8 +195,11 @@ func (h *Histogram) setRange(c *colStats) {
 		lo = v[int(histLowQ*float64(len(v)-1))]
 		hi = v[int(math.Ceil(histHighQ*float64(len(v)-1)))]
 	}
+	// A threshold near the data is drawn inside the range: within half
+	// the data's span of it, or anywhere when every value is the same.
+	span := c.max - c.min
 	for _, t := range h.Thresholds {
-		if t.Limit >= c.min && t.Limit <= c.max {
+		if span == 0 || t.Limit >= c.min-span/2 && t.Limit <= c.max+span/2 {
 			lo, hi = math.Min(lo, t.Limit), math.Max(hi, t.Limit)
 		}
 	}

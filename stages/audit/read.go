@@ -76,12 +76,12 @@ func openLines(path string) (*lineReader, error) {
 	if err != nil {
 		return nil, err
 	}
-	z, err := zstd.NewReader(f, zstd.WithDecoderConcurrency(1))
+	z, err := zstd.NewReader(f, zstd.WithDecoderConcurrency(1), zstd.WithDecoderLowmem(true))
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
-	return &lineReader{path: path, f: f, z: z, br: bufio.NewReaderSize(z, 256<<10)}, nil
+	return &lineReader{path: path, f: f, z: z, br: bufio.NewReaderSize(z, 64<<10)}, nil
 }
 
 // next returns the next non-empty line (valid until the next call).
@@ -121,52 +121,67 @@ func (l *lineReader) close() {
 	l.f.Close()
 }
 
-// parseRecord decodes one ledger line.
+// parseRecord decodes one ledger line. The fixed keys are read by the
+// flat scanner; nested values ("changes", "items", list limits) are
+// decoded with encoding/json from their raw bytes.
 func parseRecord(b []byte) (Record, error) {
-	var m map[string]json.RawMessage
-	if err := json.Unmarshal(b, &m); err != nil {
-		return Record{}, err
-	}
 	var r Record
-	str := func(k string) string {
-		var s string
-		if raw, ok := m[k]; ok {
-			json.Unmarshal(raw, &s)
-		}
-		return s
-	}
-	r.Doc, r.Source, r.File = str("doc"), str("source"), str("file")
-	r.Stage, r.Rule, r.Action = str("stage"), str("rule"), str("action")
-	if raw, ok := m["line"]; ok {
-		if err := json.Unmarshal(raw, &r.Line); err != nil {
-			return Record{}, fmt.Errorf("line: %w", err)
-		}
-	}
-	anyOf := func(raw json.RawMessage) any {
+	var perr error
+	sc := flatScanner{b: b}
+	err := sc.object(func(key []byte, str string, num float64, kind byte) error {
 		var v any
-		json.Unmarshal(raw, &v)
-		return v
-	}
-	if raw, ok := m["value"]; ok {
-		r.Value = anyOf(raw)
-	}
-	if raw, ok := m["limit"]; ok {
-		r.Limit = anyOf(raw)
-	}
-	if raw, ok := m["changes"]; ok {
-		json.Unmarshal(raw, &r.Changes)
-	}
-	for k, raw := range m {
-		switch k {
-		case "doc", "source", "file", "line", "stage", "rule", "action", "value", "limit", "changes":
-			continue
+		switch kind {
+		case 's':
+			v = str
+		case 'n':
+			v = num
+		case 'b':
+			v = num == 1
+		case 'o':
+			if string(key) == "changes" {
+				if err := json.Unmarshal([]byte(str), &r.Changes); err != nil {
+					perr = fmt.Errorf("changes: %w", err)
+				}
+				return nil
+			}
+			if err := json.Unmarshal([]byte(str), &v); err != nil {
+				perr = fmt.Errorf("%s: %w", key, err)
+			}
 		}
-		if r.Extra == nil {
-			r.Extra = map[string]any{}
+		switch string(key) {
+		case "doc":
+			r.Doc = str
+		case "source":
+			r.Source = str
+		case "file":
+			r.File = str
+		case "line":
+			if kind != 'n' || num != math.Trunc(num) {
+				perr = fmt.Errorf("line: want an integer")
+			}
+			r.Line = int64(num)
+		case "stage":
+			r.Stage = str
+		case "rule":
+			r.Rule = str
+		case "action":
+			r.Action = str
+		case "value":
+			r.Value = v
+		case "limit":
+			r.Limit = v
+		default:
+			if r.Extra == nil {
+				r.Extra = map[string]any{}
+			}
+			r.Extra[string(key)] = v
 		}
-		r.Extra[k] = anyOf(raw)
+		return nil
+	})
+	if err == nil {
+		err = perr
 	}
-	return r, nil
+	return r, err
 }
 
 // metricsFile reads one metrics file row by row. The metric names are
@@ -263,7 +278,7 @@ func (s *flatScanner) ws() {
 
 // object calls fn for each key with the decoded value; kind is 's'
 // (string), 'n' (number), 'z' (null), 'b' (boolean, num 1 or 0) or 'o'
-// (nested, skipped).
+// (nested object or array, passed undecoded in str).
 func (s *flatScanner) object(fn func(key []byte, str string, num float64, kind byte) error) error {
 	s.ws()
 	if s.i >= len(s.b) || s.b[s.i] != '{' {
@@ -319,10 +334,11 @@ func (s *flatScanner) object(fn func(key []byte, str string, num float64, kind b
 			}
 			kind = 'b'
 		case c == '{' || c == '[':
+			start := s.i
 			if err := s.skipNested(); err != nil {
 				return err
 			}
-			kind = 'o'
+			str, kind = string(s.b[start:s.i]), 'o'
 		default:
 			j := s.i
 			for j < len(s.b) && (s.b[j] == '-' || s.b[j] == '+' || s.b[j] == '.' || s.b[j] == 'e' || s.b[j] == 'E' || (s.b[j] >= '0' && s.b[j] <= '9')) {

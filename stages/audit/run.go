@@ -38,6 +38,7 @@ type Run struct {
 
 	inputIndex map[string]int
 	rules      map[string]rulesEntry
+	replays    map[string]replayEntry
 	ledgerOnly []string // ledger files of stages that are not steps (besides read)
 }
 

@@ -22,9 +22,9 @@ type Summary struct {
 	// TokenStage names the stage whose "tokens" metric gives token
 	// counts ("" when the run counted no tokens: every token figure is
 	// then unknown).
-	TokenStage string    `json:"token_stage"`
-	Flow       []FlowRow `json:"flow"`
-	Rules      []RuleRow `json:"rules"`
+	TokenStage string      `json:"token_stage"`
+	Flow       []FlowRow   `json:"flow"`
+	Rules      []RuleRow   `json:"rules"`
 	Sources    []SourceRow `json:"sources"`
 	// Contamination is OUT/contamination.json when the run has one.
 	Contamination *stages.ContamReport `json:"contamination,omitempty"`
@@ -98,7 +98,9 @@ type RuleRow struct {
 func (r *RuleRow) Label() string { return r.Stage + "/" + r.Rule }
 
 // TokensKnownAll reports whether every removed document had a token count.
-func (r *RuleRow) TokensKnownAll() bool { return r.Action == "drop" && r.TokensDocs == r.Docs && r.Docs > 0 }
+func (r *RuleRow) TokensKnownAll() bool {
+	return r.Action == "drop" && r.TokensDocs == r.Docs && r.Docs > 0
+}
 
 // SourceRow is one source's flow.
 type SourceRow struct {

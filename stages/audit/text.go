@@ -6,6 +6,8 @@ import (
 	"strconv"
 	"strings"
 	"text/tabwriter"
+
+	"winnow/stages"
 )
 
 // Group formats n with thousands separators.
@@ -190,7 +192,7 @@ func (s *Summary) WriteText(w io.Writer) error {
 	fmt.Fprintln(w, "\ncontamination")
 	if s.Contamination == nil {
 		fmt.Fprintln(w, "  no contamination report (the run has no decontaminate stage)")
-	} else if err := s.Contamination.WriteTable(&indent{w: w}); err != nil {
+	} else if err := writeContam(&indent{w: w}, s.Contamination); err != nil {
 		return err
 	}
 
@@ -257,6 +259,7 @@ type indent struct {
 	mid bool // the last write did not end a line
 }
 
+// Write indents p.
 func (in *indent) Write(p []byte) (int, error) {
 	var b []byte
 	for _, c := range p {
@@ -270,4 +273,44 @@ func (in *indent) Write(p []byte) (int, error) {
 		return 0, err
 	}
 	return len(p), nil
+}
+
+// contamShownItems contaminated items are listed per eval set in the
+// audit text; contamination.json (and winnow contam) has them all.
+const contamShownItems = 5
+
+// writeContam prints the per-eval-set summary and the first items.
+func writeContam(w io.Writer, c *stages.ContamReport) error {
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "eval set\titems checked\tcontaminated\t%\tdocs affected\t")
+	for _, e := range c.Evals {
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%.1f%%\t%s\t\n", e.Name, Group(int64(e.Items)), Group(int64(e.ItemsContaminated)), e.Percent, Group(e.DocsAffected))
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "%d-gram overlap, action %s: %s documents scanned, %s affected (%s dropped, %s cut, %s flagged)\n", c.Ngram, c.Action,
+		Group(c.DocsScanned), Group(c.DocsAffected), Group(c.DocsDropped), Group(c.DocsEdited), Group(c.DocsFlagged))
+	for _, e := range c.Evals {
+		for i, it := range e.Contaminated {
+			if i == contamShownItems {
+				fmt.Fprintf(w, "  ... %d more in contamination.json\n", len(e.Contaminated)-contamShownItems)
+				break
+			}
+			text := it.Text
+			if len(text) > 90 {
+				text = text[:90]
+				for len(text) > 0 && !utf8Start(text[len(text)-1]) {
+					text = text[:len(text)-1]
+				}
+				text += "…"
+			}
+			eg := ""
+			if len(it.Docs) > 0 {
+				eg = ", e.g. " + it.Docs[0]
+			}
+			fmt.Fprintf(w, "  %s/%s: %s doc(s)%s: %q\n", e.Name, it.Item, Group(it.DocCount), eg, text)
+		}
+	}
+	return nil
 }

@@ -65,7 +65,7 @@ func (t *Trail) Removal() (int, *Record) {
 	return -1, nil
 }
 
-// Bytes returns the document's size as it entered step i when a metrics
+// BytesAt returns the document's size as it entered step i when a metrics
 // row tells it exactly (the row of step i, or of an earlier step with no
 // edit in between), and whether that is exact.
 func (t *Trail) BytesAt(i int) (int64, bool) {
@@ -130,6 +130,9 @@ func (s *stream) advance() error {
 				return err
 			}
 			s.curRow, s.curKey = row, row.Order
+			if s.step >= 0 {
+				s.run.Steps[s.step].MetricNames = s.mf.names
+			}
 		} else {
 			b, err := s.ledger.next()
 			if err == io.EOF {

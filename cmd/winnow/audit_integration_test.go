@@ -1,0 +1,558 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/chromedp/cdproto/cdp"
+	"github.com/chromedp/cdproto/log"
+	"github.com/chromedp/cdproto/network"
+	"github.com/chromedp/cdproto/runtime"
+	"github.com/chromedp/chromedp"
+)
+
+// runCLI runs one winnow command in-process and returns its standard
+// output. Flags keep their values between Execute calls, so the option
+// structs of the audit commands are reset first.
+func runCLI(t *testing.T, args ...string) (string, error) {
+	t.Helper()
+	auditOpts.asJSON, auditOpts.rule, auditOpts.samples, auditOpts.html, auditOpts.specDir = false, "", 0, "", ""
+	explainOpts.asJSON, explainOpts.specDir = false, ""
+	whatifOpts.sets, whatifOpts.sweeps, whatifOpts.samples, whatifOpts.asJSON, whatifOpts.specDir = nil, nil, 5, false, ""
+	var out bytes.Buffer
+	rootCmd.SetOut(&out)
+	rootCmd.SetErr(io.Discard)
+	defer func() { rootCmd.SetOut(nil); rootCmd.SetErr(nil); rootCmd.SetArgs(nil) }()
+	rootCmd.SetArgs(args)
+	err := rootCmd.Execute()
+	return out.String(), err
+}
+
+var (
+	demoOnce sync.Once
+	demoDir  string
+	demoErr  error
+)
+
+// demoRunDir runs `winnow demo` once per test binary (a small corpus) and
+// returns the run directory; the demo writes RUN/report.html.
+func demoRunDir(t *testing.T) string {
+	t.Helper()
+	demoOnce.Do(func() {
+		demoDir, demoErr = os.MkdirTemp("", "winnow-demo-test-")
+		if demoErr != nil {
+			return
+		}
+		docs := "400"
+		if os.Getenv("WINNOW_SCREENSHOT") != "" {
+			docs = "2000" // the README screenshot shows the demo's default size
+		}
+		// The demo prints its tables to os.Stdout; keep the test log quiet.
+		stdout := os.Stdout
+		null, _ := os.OpenFile(os.DevNull, os.O_WRONLY, 0)
+		os.Stdout = null
+		_, demoErr = runCLI(t, "demo", "--out", demoDir, "--docs", docs, "-q", "--force")
+		os.Stdout = stdout
+		null.Close()
+	})
+	if demoErr != nil {
+		t.Fatal(demoErr)
+	}
+	return filepath.Join(demoDir, "run")
+}
+
+func TestMain(m *testing.M) {
+	code := m.Run()
+	if demoDir != "" {
+		os.RemoveAll(demoDir)
+	}
+	os.Exit(code)
+}
+
+// TestAuditExplainWhatifCommands runs the three commands on the demo run.
+func TestAuditExplainWhatifCommands(t *testing.T) {
+	run := demoRunDir(t)
+	out, err := runCLI(t, "audit", run)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"flow", "removed or edited, by stage and rule", "by source", "contamination", "input errors: 0"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("audit output lacks %q:\n%s", want, out)
+		}
+	}
+	out, err = runCLI(t, "audit", run, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sum struct {
+		Rules []struct {
+			Stage, Rule, Action string
+			Docs                int64
+			Samples             []string
+		}
+		Flow []struct {
+			Stage  string
+			DocsIn int64 `json:"docs_in"`
+		}
+	}
+	if err := json.Unmarshal([]byte(out), &sum); err != nil {
+		t.Fatalf("%v: %s", err, out)
+	}
+	var drop *struct {
+		Stage, Rule, Action string
+		Docs                int64
+		Samples             []string
+	}
+	for i := range sum.Rules {
+		if sum.Rules[i].Action == "drop" {
+			drop = &sum.Rules[i]
+			break
+		}
+	}
+	if drop == nil {
+		t.Fatalf("the demo removed nothing: %s", out)
+	}
+	// The removed documents of a rule, with their text re-read.
+	out, err = runCLI(t, "audit", run, "--rule", drop.Stage+"/"+drop.Rule, "--samples", "2")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(out, "[1] "+drop.Samples[0]) || !strings.Contains(out, "re-read from") {
+		t.Errorf("samples output:\n%s", out)
+	}
+	// Explain the first removed document.
+	out, err = runCLI(t, "explain", run, drop.Samples[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(out, "result: "+drop.Stage+" removed by "+drop.Rule) {
+		t.Errorf("explain output:\n%s", out)
+	}
+	out, err = runCLI(t, "explain", run, drop.Samples[0], "--json")
+	if err != nil || !strings.Contains(out, `"status": "removed"`) {
+		t.Errorf("explain --json: %v\n%s", err, out)
+	}
+	if _, err := runCLI(t, "explain", run, "no-such-doc"); err == nil {
+		t.Error("explain of an unknown id succeeded")
+	}
+	// What-if with no change reproduces the run; a sweep prints a curve.
+	out, err = runCLI(t, "whatif", run)
+	if err != nil || !strings.Contains(out, "all reproduced") || strings.Contains(out, "DIFFER") {
+		t.Errorf("whatif check: %v\n%s", err, out)
+	}
+	out, err = runCLI(t, "whatif", run, "--set", "quality.min_words=400", "--sweep", "quality.min_words=50:250:100", "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var w struct {
+		Combined struct {
+			DocsKept    int64 `json:"docs_kept"`
+			DocsKeptRun int64 `json:"docs_kept_run"`
+		}
+		Sweeps []struct {
+			Points []struct {
+				DocsKept int64 `json:"docs_kept"`
+			}
+		}
+	}
+	if err := json.Unmarshal([]byte(out), &w); err != nil {
+		t.Fatalf("%v: %s", err, out)
+	}
+	if w.Combined.DocsKept > w.Combined.DocsKeptRun || len(w.Sweeps) != 1 || len(w.Sweeps[0].Points) != 3 {
+		t.Errorf("whatif --json: %s", out)
+	}
+	if _, err := runCLI(t, "whatif", run, "--set", "nosuch.key=1"); err == nil || !strings.Contains(err.Error(), "no stage") {
+		t.Errorf("unknown stage: %v", err)
+	}
+}
+
+// chromium is the Debian browser the report test drives; scripts/test.sh
+// installs it.
+const chromium = "/usr/bin/chromium"
+
+// browser starts headless Chromium with a fresh profile and no network
+// services, and returns a tab context and the events it saw.
+func browser(t *testing.T) (context.Context, *eventLog) {
+	t.Helper()
+	if _, err := os.Stat(chromium); err != nil {
+		if p, lerr := exec.LookPath("chromium"); lerr != nil || p != chromium {
+			t.Fatalf("the HTML report test needs Debian's chromium at %s (apt-get install chromium; scripts/test.sh installs it): %v", chromium, err)
+		}
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
+	t.Cleanup(cancel)
+	alloc, cancelAlloc := chromedp.NewExecAllocator(ctx,
+		chromedp.ExecPath(chromium),
+		chromedp.Flag("headless", true),
+		chromedp.Flag("no-sandbox", true),
+		chromedp.Flag("disable-gpu", true),
+		chromedp.Flag("disable-quic", true),
+		chromedp.Flag("no-first-run", true),
+		chromedp.Flag("disable-background-networking", true),
+		chromedp.Flag("disable-component-update", true),
+		chromedp.Flag("disable-sync", true),
+		chromedp.Flag("disable-dev-shm-usage", true),
+		chromedp.Flag("hide-scrollbars", true),
+		chromedp.UserDataDir(t.TempDir()),
+	)
+	t.Cleanup(cancelAlloc)
+	ev := &eventLog{}
+	tab, cancelTab := chromedp.NewContext(alloc, chromedp.WithListener(ev.add))
+	t.Cleanup(cancelTab)
+	// Open the tab and turn on the network and log domains before the
+	// page loads, so every request and message is seen.
+	if err := chromedp.Do(tab, chromedp.Func(func(ctx context.Context, tg *chromedp.Target) error {
+		if _, err := cdp.Call(ctx, tg, network.Enable, network.EnableParams{}); err != nil {
+			return err
+		}
+		_, err := cdp.Call(ctx, tg, log.Enable, cdp.Empty{})
+		return err
+	})); err != nil {
+		t.Fatalf("starting %s: %v", chromium, err)
+	}
+	return tab, ev
+}
+
+// eventLog keeps the events that matter: requests, console messages,
+// exceptions and browser log entries.
+type eventLog struct {
+	mu       sync.Mutex
+	requests []string
+	problems []string
+}
+
+func (e *eventLog) add(ev any) {
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	switch x := ev.(type) {
+	case *network.EventRequestWillBeSent:
+		e.requests = append(e.requests, x.Request.URL)
+	case *runtime.EventExceptionThrown:
+		e.problems = append(e.problems, "exception: "+x.ExceptionDetails.Text)
+	case *runtime.EventConsoleAPICalled:
+		e.problems = append(e.problems, "console."+string(x.Type))
+	case *log.EventEntryAdded:
+		if x.Entry.Level == log.EntryLevelError || x.Entry.Level == log.EntryLevelWarning {
+			e.problems = append(e.problems, fmt.Sprintf("log %s: %s %s", x.Entry.Level, x.Entry.Text, x.Entry.URL))
+		}
+	}
+}
+
+// pageData is what the test reads from the rendered page.
+type pageData struct {
+	Numbers [][2]string `json:"numbers"`
+	Charts  []struct {
+		Chart      string `json:"chart"`
+		Parts      int    `json:"parts"`
+		Thresholds int    `json:"thresholds"`
+		Children   int    `json:"children"`
+	} `json:"charts"`
+	Width  int `json:"width"`
+	Scroll int `json:"scroll"`
+}
+
+const pageScript = `JSON.stringify({
+  numbers: [...document.querySelectorAll('[data-k]')].map(e => [e.dataset.k, e.textContent]),
+  charts: [...document.querySelectorAll('svg[data-chart]')].map(s => ({
+    chart: s.dataset.chart,
+    parts: s.querySelectorAll('rect.kept, rect.removed, rect.other, rect.edited, rect[class^="s"]').length,
+    thresholds: s.querySelectorAll('line.threshold').length,
+    children: s.children.length})),
+  width: document.documentElement.clientWidth,
+  scroll: document.documentElement.scrollWidth})`
+
+// TestAuditReportInBrowser opens the demo's report.html in headless
+// Chromium: no console errors, no request but the file itself, an SVG
+// with drawn parts for every chart, and every number shown equal to the
+// JSON the audit prints (`audit RUN --html F --json`).
+func TestAuditReportInBrowser(t *testing.T) {
+	run := demoRunDir(t)
+	report := filepath.Join(run, "report.html")
+	if _, err := os.Stat(report); err != nil {
+		t.Fatalf("winnow demo wrote no report: %v", err)
+	}
+	out, err := runCLI(t, "audit", run, "--html", filepath.Join(t.TempDir(), "again.html"), "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var js map[string]any
+	if err := json.Unmarshal([]byte(out), &js); err != nil {
+		t.Fatalf("%v: %s", err, out)
+	}
+	tab, ev := browser(t)
+	url := "file://" + report
+	if err := chromedp.Do(tab, chromedp.Navigate(url)); err != nil {
+		t.Fatal(err)
+	}
+	raw, err := chromedp.Run(tab, chromedp.Evaluate[string](pageScript))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var pd pageData
+	if err := json.Unmarshal([]byte(raw), &pd); err != nil {
+		t.Fatal(err)
+	}
+	ev.mu.Lock()
+	reqs, problems := append([]string(nil), ev.requests...), append([]string(nil), ev.problems...)
+	ev.mu.Unlock()
+	if len(reqs) != 1 || reqs[0] != url {
+		t.Errorf("requests %q: want only the report itself", reqs)
+	}
+	if len(problems) > 0 {
+		t.Errorf("console/log problems: %q", problems)
+	}
+	if pd.Scroll > pd.Width {
+		t.Errorf("the page scrolls sideways at 1280 px (%d > %d)", pd.Scroll, pd.Width)
+	}
+
+	t.Logf("%d numbers, %d charts, requests %q", len(pd.Numbers), len(pd.Charts), reqs)
+	// Every number shown equals the JSON.
+	if len(pd.Numbers) < 20 {
+		t.Fatalf("only %d numbers marked in the page", len(pd.Numbers))
+	}
+	for _, n := range pd.Numbers {
+		want, ok := lookupJSON(js, n[0])
+		if !ok {
+			t.Errorf("number %q: no such value in the JSON", n[0])
+			continue
+		}
+		got, err := strconv.ParseInt(strings.ReplaceAll(n[1], ",", ""), 10, 64)
+		if err != nil || got != want {
+			t.Errorf("%s: page shows %q, JSON %d", n[0], n[1], want)
+		}
+	}
+
+	// Every chart of the JSON is drawn, with its parts.
+	charts := map[string]int{}
+	for i, c := range pd.Charts {
+		charts[c.Chart] = i
+		if c.Children == 0 {
+			t.Errorf("chart %s has no SVG elements", c.Chart)
+		}
+	}
+	need := func(name string, parts, thresholds int) {
+		i, ok := charts[name]
+		if !ok {
+			t.Errorf("chart %s missing", name)
+			return
+		}
+		c := pd.Charts[i]
+		if c.Parts != parts || c.Thresholds != thresholds {
+			t.Errorf("chart %s: %d parts %d thresholds, want %d and %d", name, c.Parts, c.Thresholds, parts, thresholds)
+		}
+	}
+	for _, f := range js["flow"].([]any) {
+		fm := f.(map[string]any)
+		parts := 0
+		kept := jnum(fm["docs_out"]) - jnum(fm["edited"])
+		if fm["stage"] == "write" {
+			kept = jnum(fm["docs_in"])
+		}
+		for _, v := range []int64{kept, jnum(fm["edited"]), jnum(fm["dropped"])} {
+			if v > 0 {
+				parts++
+			}
+		}
+		need("flow:"+fm["stage"].(string), parts, 0)
+	}
+	for _, r := range js["rules"].([]any) {
+		rm := r.(map[string]any)
+		need("rule:"+rm["stage"].(string)+"/"+rm["rule"].(string), 1, 0)
+	}
+	for _, s := range js["sources"].([]any) {
+		sm := s.(map[string]any)
+		parts := 0
+		if jnum(sm["to_output"]) > 0 {
+			parts++
+		}
+		parts += len(sm["removed"].([]any))
+		need("source:"+sm["source"].(string), parts, 0)
+	}
+	hists, _ := js["histograms"].([]any)
+	if len(hists) == 0 {
+		t.Fatal("no histograms in the JSON")
+	}
+	for _, h := range hists {
+		hm := h.(map[string]any)
+		parts := 0
+		for _, k := range []string{"kept", "removed", "other"} {
+			for _, c := range hm[k].([]any) {
+				if jnum(c) > 0 {
+					parts++
+				}
+			}
+		}
+		if hm["constant"] == true {
+			continue // listed, not drawn
+		}
+		need("hist:"+hm["stage"].(string)+"."+hm["metric"].(string), parts, len(hm["thresholds"].([]any)))
+	}
+
+	// At phone width the page stays one column wide.
+	if err := chromedp.Do(tab, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
+		t.Fatal(err)
+	}
+	raw, err = chromedp.Run(tab, chromedp.Evaluate[string](pageScript))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal([]byte(raw), &pd); err != nil {
+		t.Fatal(err)
+	}
+	if pd.Scroll > pd.Width+1 {
+		t.Errorf("at 390 px the page is %d px wide", pd.Scroll)
+	}
+}
+
+func jnum(v any) int64 {
+	f, _ := v.(float64)
+	return int64(f)
+}
+
+// lookupJSON resolves a data-k key of the report in the audit JSON.
+func lookupJSON(js map[string]any, key string) (int64, bool) {
+	parts := strings.SplitN(key, ".", 2)
+	list := func(name, field, val string) map[string]any {
+		l, _ := js[name].([]any)
+		for _, e := range l {
+			if m, ok := e.(map[string]any); ok && m[field] == val {
+				return m
+			}
+		}
+		return nil
+	}
+	field := func(m map[string]any, f string) (int64, bool) {
+		if m == nil {
+			return 0, false
+		}
+		v, ok := m[f].(float64)
+		return int64(v), ok
+	}
+	switch parts[0] {
+	case "totals":
+		t, _ := js["totals"].(map[string]any)
+		return field(t, parts[1])
+	case "error_count":
+		return field(js, "error_count")
+	case "removed":
+		var n int64
+		for _, f := range js["flow"].([]any) {
+			n += jnum(f.(map[string]any)["dropped"])
+		}
+		return n, true
+	case "flow":
+		i := strings.LastIndex(parts[1], ".")
+		return field(list("flow", "stage", parts[1][:i]), parts[1][i+1:])
+	case "rule":
+		i := strings.LastIndex(parts[1], ".")
+		label, f := parts[1][:i], parts[1][i+1:]
+		for _, r := range js["rules"].([]any) {
+			rm := r.(map[string]any)
+			if rm["stage"].(string)+"/"+rm["rule"].(string)+"/"+rm["action"].(string) == label {
+				return field(rm, f)
+			}
+		}
+		return 0, false
+	case "source":
+		for _, s := range js["sources"].([]any) {
+			sm := s.(map[string]any)
+			name := sm["source"].(string)
+			if !strings.HasPrefix(parts[1], name+".") {
+				continue
+			}
+			rest := strings.TrimPrefix(parts[1], name+".")
+			if st, ok := strings.CutPrefix(rest, "removed."); ok {
+				for _, rc := range sm["removed"].([]any) {
+					if rm := rc.(map[string]any); rm["stage"] == st {
+						return jnum(rm["docs"]), true
+					}
+				}
+				return 0, true
+			}
+			return field(sm, rest)
+		}
+		return 0, false
+	case "hist":
+		for _, h := range js["histograms"].([]any) {
+			hm := h.(map[string]any)
+			if p := hm["stage"].(string) + "." + hm["metric"].(string) + "."; strings.HasPrefix(parts[1], p) {
+				return field(hm, strings.TrimPrefix(parts[1], p))
+			}
+		}
+		return 0, false
+	case "contam":
+		c, _ := js["contamination"].(map[string]any)
+		if c == nil {
+			return 0, false
+		}
+		if parts[1] == "docs_affected" {
+			return field(c, "docs_affected")
+		}
+		if parts[1] == "items_contaminated" {
+			var n int64
+			for _, e := range c["evals"].([]any) {
+				n += jnum(e.(map[string]any)["items_contaminated"])
+			}
+			return n, true
+		}
+		i := strings.LastIndex(parts[1], ".")
+		for _, e := range c["evals"].([]any) {
+			if em := e.(map[string]any); em["name"] == parts[1][:i] {
+				return field(em, parts[1][i+1:])
+			}
+		}
+	}
+	return 0, false
+}
+
+// TestDemoReportScreenshot writes docs/audit-report.png (and, with
+// WINNOW_SCREENSHOT_PHONE=FILE, a 390 px wide phone view) from the demo's
+// report. It runs only with WINNOW_SCREENSHOT=1:
+//
+//	WINNOW_SCREENSHOT=1 go test ./cmd/winnow -run TestDemoReportScreenshot
+func TestDemoReportScreenshot(t *testing.T) {
+	if os.Getenv("WINNOW_SCREENSHOT") == "" {
+		t.Skip("set WINNOW_SCREENSHOT=1 to regenerate docs/audit-report.png")
+	}
+	run := demoRunDir(t)
+	tab, _ := browser(t)
+	shot := func(w, h int64, mobile bool, path string, full bool) {
+		opts := []chromedp.EmulateViewportOption{}
+		if mobile {
+			opts = append(opts, chromedp.EmulateMobile, chromedp.EmulateScale(2))
+		}
+		if err := chromedp.Do(tab, chromedp.EmulateViewport(w, h, opts...), chromedp.Navigate("file://"+filepath.Join(run, "report.html"))); err != nil {
+			t.Fatal(err)
+		}
+		var png []byte
+		var err error
+		if full {
+			png, err = chromedp.Run(tab, chromedp.FullScreenshot(100))
+		} else {
+			png, err = chromedp.Run(tab, chromedp.CaptureScreenshot())
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(path, png, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		t.Logf("wrote %s", path)
+	}
+	shot(1280, 2000, false, filepath.Join("..", "..", "docs", "audit-report.png"), false)
+	if p := os.Getenv("WINNOW_SCREENSHOT_PHONE"); p != "" {
+		shot(390, 844, true, p, true)
+	}
+}

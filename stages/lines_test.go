@@ -1,0 +1,129 @@
+package stages
+
+import (
+	"strings"
+	"testing"
+)
+
+// Line rules of Raffel et al. 2020, "Exploring the Limits of Transfer
+// Learning with a Unified Text-to-Text Transformer", section 2.2 (from
+// memory): lines need terminal punctuation and at least 5 words; a page
+// with fewer than 3 sentences, "lorem ipsum" or "{" is dropped; lines
+// with "javascript" or a policy notice are removed; citation markers are
+// deleted.
+
+// threeSentences is a clean page of exactly three sentences.
+var threeSentences = strings.Join([]string{
+	"Sand the hull down to bare gelcoat before the first coat.",
+	"The yard crew checks every seacock when a boat is hauled out.",
+	"Replace the raw-water impeller each season and keep a spare aboard.",
+}, "\n")
+
+func linesStageT(t *testing.T, p map[string]any) Stage { return buildStage(t, "lines", p) }
+
+func TestLinesMinWordsPerLine(t *testing.T) {
+	st := linesStageT(t, nil)
+	dec := expect(t, st, threeSentences+"\nFive words make a line.", "")
+	if dec.Action != Keep {
+		t.Fatalf("a five-word line was removed: %v %v", dec.Action, dec.Changes)
+	}
+	dec = expect(t, st, threeSentences+"\nFour words: too short.", "")
+	if dec.Action != Edit || dec.Changes["lines_short"] != 1 || dec.Text != threeSentences {
+		t.Fatalf("four-word line: %v %v %q", dec.Action, dec.Changes, dec.Text)
+	}
+}
+
+func TestLinesMinSentences(t *testing.T) {
+	st := linesStageT(t, nil)
+	dec := expect(t, st, threeSentences, "") // 3 sentences: kept
+	if v := metric(t, st, dec, "sentences"); v != 3 {
+		t.Fatalf("sentences %v", v)
+	}
+	two := strings.Join(strings.Split(threeSentences, "\n")[:2], "\n")
+	dec = expect(t, st, two, "too_few_sentences") // 2: dropped
+	if dec.Value != 2.0 || dec.Limit != 3.0 {
+		t.Fatalf("value %v limit %v", dec.Value, dec.Limit)
+	}
+	// sentences are counted after cleaning: removed lines do not count
+	expect(t, st, two+"\nClick here", "too_few_sentences")
+	// the limit is a spec key
+	expect(t, linesStageT(t, map[string]any{"min_sentences": 2}), two, "")
+}
+
+func TestLinesPageRules(t *testing.T) {
+	st := linesStageT(t, nil)
+	expect(t, st, threeSentences+"\nLorem ipsum dolor sit amet, consectetur.", "lorem_ipsum")
+	expect(t, st, threeSentences+"\nThe config was {\"a\": 1} in the end.", "curly_brace")
+	// even inside a line the other rules would remove
+	expect(t, st, "{\n"+threeSentences, "curly_brace")
+	expect(t, linesStageT(t, map[string]any{"drop_curly_brace": false}), "{\n"+threeSentences, "")
+}
+
+func TestLinesRemovals(t *testing.T) {
+	st := linesStageT(t, nil)
+	page := threeSentences + "\n" + strings.Join([]string{
+		"Please enable JavaScript in your browser to see all boats.",
+		"Read our Privacy Policy before you order spare parts online.",
+		"Larkspur Marine Works home page",
+		"The keel bolts were replaced in 2019 [1] after a survey [citation needed].",
+	}, "\n")
+	dec := expect(t, st, page, "")
+	want := map[string]int{"lines_javascript": 1, "lines_policy": 1, "lines_no_punct": 1, "citations": 2}
+	if dec.Action != Edit || len(dec.Changes) != len(want) {
+		t.Fatalf("changes %v, want %v", dec.Changes, want)
+	}
+	for k, v := range want {
+		if dec.Changes[k] != v {
+			t.Fatalf("changes %v, want %v", dec.Changes, want)
+		}
+	}
+	if !strings.HasSuffix(dec.Text, "\nThe keel bolts were replaced in 2019 after a survey.") {
+		t.Fatalf("text %q", dec.Text)
+	}
+	for _, name := range []string{"lines_javascript", "lines_policy", "lines_no_punct", "citations"} {
+		if metric(t, st, dec, name) != float64(want[name]) {
+			t.Fatalf("metric %s", name)
+		}
+	}
+	if metric(t, st, dec, "lines") != 7 || metric(t, st, dec, "lines_kept") != 4 {
+		t.Fatalf("line metrics %v", dec.Metrics)
+	}
+}
+
+func TestLinesParams(t *testing.T) {
+	k, _ := LookupKind("lines")
+	for _, p := range []map[string]any{{"min_words": 3}, {"min_sentences": -1}, {"drop_policy": "maybe"}} {
+		if _, err := k.New(ParamsFromMap(p), Env{}); err == nil {
+			t.Errorf("%v: no error", p)
+		}
+	}
+	st := linesStageT(t, map[string]any{"min_words_per_line": 3, "require_terminal_punct": false})
+	dec := expect(t, st, threeSentences+"\nCall us today\nHi", "")
+	if dec.Changes["lines_short"] != 1 || !strings.Contains(dec.Text, "Call us today") {
+		t.Fatalf("%v %q", dec.Changes, dec.Text)
+	}
+}
+
+func TestRedactStage(t *testing.T) {
+	st := buildStage(t, "redact", nil)
+	dec := st.Process(&Doc{Text: "Mail yard@larkspur.example or ring +44 20 7946 0958 from 192.0.2.4."})
+	if dec.Action != Edit || dec.Text != "Mail <EMAIL> or ring <PHONE> from <IP>." {
+		t.Fatalf("%v %q", dec.Action, dec.Text)
+	}
+	if dec.Changes["email"] != 1 || dec.Changes["ip"] != 1 || dec.Changes["phone"] != 1 || len(dec.Metrics) != 3 {
+		t.Fatalf("changes %v metrics %v", dec.Changes, dec.Metrics)
+	}
+	if dec := st.Process(&Doc{Text: "nothing to hide, version 1.2.3"}); dec.Action != Keep || dec.Metrics[0] != 0 {
+		t.Fatalf("%v", dec)
+	}
+	st = buildStage(t, "redact", map[string]any{"email_placeholder": "[e-mail]", "phone": false})
+	if dec := st.Process(&Doc{Text: "a@b.io +44 20 7946 0958"}); dec.Text != "[e-mail] +44 20 7946 0958" || len(dec.Changes) != 1 {
+		t.Fatalf("%q %v", dec.Text, dec.Changes)
+	}
+	if _, err := func() (Stage, error) {
+		k, _ := LookupKind("redact")
+		return k.New(ParamsFromMap(map[string]any{"emails": true}), Env{})
+	}(); err == nil {
+		t.Fatal("unknown key accepted")
+	}
+}
