@@ -8,7 +8,7 @@
 #   WORKERS=2 BENCH_DIR=/tmp/winnow-bench scripts/bench.sh
 set -euo pipefail
 cd "$(dirname "$0")/.."
-SIZES=("${@:-100MB 500MB}")
+
 [ $# -eq 0 ] && SIZES=(100MB 500MB)
 WORKERS=${WORKERS:-1}
 DIR=${BENCH_DIR:-$(mktemp -d /tmp/winnow-bench.XXXX)}

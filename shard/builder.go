@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 	"sort"
 	"strconv"
+	"winnow/stages/jsonl"
 
 	"github.com/zeebo/xxh3"
 )
@@ -186,7 +187,7 @@ func (b *Builder) Add(d *Doc) error {
 	if b.closed {
 		return errors.New("output: Add after Close")
 	}
-	meta := appendMeta(nil, d.Meta, b.keep)
+	meta := jsonl.AppendMeta(nil, d.Meta, b.keep)
 	if b.tok == nil {
 		b.line = appendLineMeta(b.line[:0], d.ID, d.Text, d.Source, d.Tokens, meta)
 		if err := b.w.write(b.line, d.ID, d.Source, d.Text, d.Tokens); err != nil {
@@ -248,9 +249,9 @@ func (b *Builder) put(r *record, h uint64, si uint16, piece int) error {
 	return b.spill.put(r, false)
 }
 
-// appendLineMeta is appendLine with the meta tail already encoded.
+// appendLineMeta is jsonl.AppendDocLine with the meta tail already encoded.
 func appendLineMeta(b []byte, id, text, source string, tokens int, meta []byte) []byte {
-	b = appendLine(b, id, text, source, tokens, nil, nil)
+	b = jsonl.AppendDocLine(b, id, text, source, tokens, nil, nil)
 	b = b[:len(b)-2] // drop "}\n"
 	b = append(b, meta...)
 	return append(b, '}', '\n')

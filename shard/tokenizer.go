@@ -12,6 +12,7 @@ import (
 	"sort"
 	"strings"
 	"sync"
+	"winnow/stages/suggest"
 
 	"github.com/tiktoken-go/tokenizer"
 )
@@ -209,7 +210,7 @@ func Load(spec, baseDir string) (*Tokenizer, error) {
 	if build == nil {
 		msg := fmt.Sprintf("tokenizer %q: not an encoding (%s), a model name or a tokenizer.json path", spec, strings.Join(Encodings(), ", "))
 		for _, e := range Encodings() {
-			if editDistance(spec, e) <= 2 {
+			if suggest.EditDistance(spec, e) <= 2 {
 				msg += fmt.Sprintf(" (did you mean %q?)", e)
 				break
 			}
@@ -327,25 +328,4 @@ func bpeFromRanks(tokens []string) (*bpe, error) {
 		}
 	}
 	return e, nil
-}
-
-// editDistance is the Levenshtein distance of a and b (for suggestions).
-func editDistance(a, b string) int {
-	prev := make([]int, len(b)+1)
-	cur := make([]int, len(b)+1)
-	for j := range prev {
-		prev[j] = j
-	}
-	for i := 1; i <= len(a); i++ {
-		cur[0] = i
-		for j := 1; j <= len(b); j++ {
-			cost := 1
-			if a[i-1] == b[j-1] {
-				cost = 0
-			}
-			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
-		}
-		prev, cur = cur, prev
-	}
-	return prev[len(b)]
 }

@@ -134,7 +134,7 @@ func (w *shardWriter) open() error {
 	return nil
 }
 
-// write adds one finished line (as appendLine builds it) with its id,
+// write adds one finished line (as jsonl.AppendDocLine builds it) with its id,
 // source, token count and text (the text is needed for token files only).
 func (w *shardWriter) write(line []byte, id, source, text string, tokens int) error {
 	if err := w.open(); err != nil {

@@ -7,14 +7,12 @@ import (
 	"fmt"
 	"unicode/utf16"
 	"unicode/utf8"
+	"winnow/stages/jsonl"
 )
 
 // RawJSON is a JSON value kept verbatim from an input record (an extra
 // field carried into meta). It is written back byte for byte.
-type RawJSON []byte
-
-// MarshalJSON returns the raw bytes.
-func (r RawJSON) MarshalJSON() ([]byte, error) { return r, nil }
+type RawJSON = jsonl.Raw
 
 // jsonObjectScanner walks one JSON object line without building a generic
 // tree: it decodes only the fields the reader asks for and returns the
@@ -366,7 +364,7 @@ func decodeJSONString(lit []byte) (s string, invalid bool) {
 	}
 	if !valid {
 		invalid = true
-		out = appendValidUTF8(nil, out)
+		out = jsonl.AppendValidUTF8(nil, out)
 	}
 	return string(out), invalid
 }
@@ -385,26 +383,4 @@ func hex4(b []byte) uint16 {
 		}
 	}
 	return v
-}
-
-// appendValidUTF8 appends b with every byte that is not part of a valid
-// UTF-8 sequence replaced by U+FFFD (one per byte, as the JSON writer does,
-// so a repaired text looks the same wherever it was repaired).
-func appendValidUTF8(dst, b []byte) []byte {
-	for i := 0; i < len(b); {
-		c := b[i]
-		if c < utf8.RuneSelf {
-			dst = append(dst, c)
-			i++
-			continue
-		}
-		r, size := utf8.DecodeRune(b[i:])
-		if r == utf8.RuneError && size == 1 {
-			dst = append(dst, "\uFFFD"...)
-		} else {
-			dst = append(dst, b[i:i+size]...)
-		}
-		i += size
-	}
-	return dst
 }

@@ -3,6 +3,7 @@ package stages
 import (
 	"path/filepath"
 	"sort"
+	"winnow/stages/jsonl"
 
 	"winnow/stages/fsio"
 )
@@ -31,25 +32,23 @@ type LedgerRecord struct {
 
 // AppendJSON appends the record as one JSON line.
 func (r *LedgerRecord) AppendJSON(b []byte) []byte {
-	var j jsonBuf
-	j.b = b
-	j.b = append(j.b, '{')
-	j.first = true
-	j.str("doc", r.Doc)
-	j.str("source", r.Source)
-	j.str("file", r.File)
-	j.int("line", r.Line)
-	j.str("stage", r.Stage)
-	j.str("rule", r.Rule)
-	j.str("action", r.Action)
+	j := jsonl.Object{B: b}
+	j.Begin()
+	j.Str("doc", r.Doc)
+	j.Str("source", r.Source)
+	j.Str("file", r.File)
+	j.Int("line", r.Line)
+	j.Str("stage", r.Stage)
+	j.Str("rule", r.Rule)
+	j.Str("action", r.Action)
 	if r.Value != nil {
-		j.val("value", r.Value)
+		j.Val("value", r.Value)
 	}
 	if r.Limit != nil {
-		j.val("limit", r.Limit)
+		j.Val("limit", r.Limit)
 	}
 	if len(r.Changes) > 0 {
-		j.val("changes", r.Changes)
+		j.Val("changes", r.Changes)
 	}
 	if len(r.Extra) > 0 {
 		keys := make([]string, 0, len(r.Extra))
@@ -58,10 +57,10 @@ func (r *LedgerRecord) AppendJSON(b []byte) []byte {
 		}
 		sort.Strings(keys)
 		for _, k := range keys {
-			j.val(k, r.Extra[k])
+			j.Val(k, r.Extra[k])
 		}
 	}
-	return j.end()
+	return j.End()
 }
 
 // Ledger writes one zstd JSONL file per stage under OUT/ledger/. Records
@@ -143,7 +142,7 @@ type Metrics struct {
 	dir   string
 	files map[string]*fsio.ZstdWriter
 	order []string
-	buf   jsonBuf
+	buf   jsonl.Object
 }
 
 // NewMetrics prepares a metrics store in dir.
@@ -177,24 +176,24 @@ func (m *Metrics) Add(stage string, r *MetricRow) error {
 		m.order = append(m.order, stage)
 	}
 	j := &m.buf
-	j.begin()
-	j.str("doc", r.Doc)
-	j.str("source", r.Source)
-	j.int("order", int64(r.Order))
-	j.int("bytes", int64(r.Bytes))
-	j.str("action", r.Action.String())
+	j.Begin()
+	j.Str("doc", r.Doc)
+	j.Str("source", r.Source)
+	j.Int("order", int64(r.Order))
+	j.Int("bytes", int64(r.Bytes))
+	j.Str("action", r.Action.String())
 	if r.Rule != "" {
-		j.str("rule", r.Rule)
+		j.Str("rule", r.Rule)
 	}
 	if r.DroppedBy != "" {
-		j.str("dropped_by", r.DroppedBy)
+		j.Str("dropped_by", r.DroppedBy)
 	}
 	for i, n := range r.Names {
 		if i < len(r.Values) {
-			j.float(n, r.Values[i])
+			j.Float(n, r.Values[i])
 		}
 	}
-	_, err := w.Write(j.end())
+	_, err := w.Write(j.End())
 	return err
 }
 

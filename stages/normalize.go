@@ -192,6 +192,24 @@ func cleanLines(text string, collapse bool, maxBlank int, changes *map[string]in
 		b.Write(line)
 	}
 	for i := 0; i < len(text); {
+		// A whole clean line is copied at once; only dirty lines are
+		// rebuilt byte by byte.
+		if len(line) == 0 {
+			end := strings.IndexByte(text[i:], '\n')
+			if end < 0 {
+				end = len(text) - i
+			}
+			if seg := text[i : i+end]; lineIsClean(seg, collapse) {
+				line = append(line, seg...)
+				i += end
+				if i < len(text) {
+					flush()
+					line = line[:0]
+					i++
+				}
+				continue
+			}
+		}
 		c := text[i]
 		switch {
 		case c == '\r':
@@ -256,10 +274,82 @@ func cleanLines(text string, collapse bool, maxBlank int, changes *map[string]in
 	return b.String()
 }
 
+// lineIsClean reports whether one line (without its newline) needs no
+// character or whitespace cleanup. Printable ASCII is checked 8 bytes at a
+// time (SWAR); any other byte takes the exact per-byte path.
+func lineIsClean(seg string, collapse bool) bool {
+	if len(seg) == 0 {
+		return false // blank lines take the counting path
+	}
+	if seg[0] == ' ' || seg[len(seg)-1] == ' ' || seg[len(seg)-1] == '\t' {
+		return false
+	}
+	prev := byte('x')
+	for i := 0; i < len(seg); {
+		if i+8 <= len(seg) {
+			v := load64(seg[i:])
+			if (v-lo8*0x20)&^v&hi8|v&hi8 == 0 { // all bytes in 0x20..0x7f
+				sp := v ^ (lo8 * ' ')
+				m := (sp - lo8) & ^sp & hi8 // high bit of each space byte (a '!' after a space may also show: harmless, it only sends the line to the slow path)
+				if collapse && (m&(m>>8) != 0 || (prev == ' ' && m&0x80 != 0)) {
+					return false
+				}
+				if bytes8Has(v, 0x7f) {
+					return false
+				}
+				prev = seg[i+7]
+				i += 8
+				continue
+			}
+		}
+		c := seg[i]
+		switch {
+		case c == ' ':
+			if collapse && prev == ' ' {
+				return false
+			}
+		case c == '\t':
+			if collapse {
+				return false
+			}
+		case c < 0x20 || c == 0x7f:
+			return false
+		case c >= utf8.RuneSelf:
+			r, size := utf8.DecodeRuneInString(seg[i:])
+			if badRune(r, size) || r == '\u2028' || r == '\u2029' || r == '\u0085' {
+				return false
+			}
+			i += size
+			prev = 'x'
+			continue
+		}
+		prev = c
+		i++
+	}
+	return true
+}
+
+func load64(s string) uint64 {
+	return uint64(s[0]) | uint64(s[1])<<8 | uint64(s[2])<<16 | uint64(s[3])<<24 |
+		uint64(s[4])<<32 | uint64(s[5])<<40 | uint64(s[6])<<48 | uint64(s[7])<<56
+}
+
+// bytes8Has reports whether any byte of v equals c.
+func bytes8Has(v uint64, c byte) bool {
+	x := v ^ (lo8 * uint64(c))
+	return (x-lo8)&^x&hi8 != 0
+}
+
 // isASCII reports whether text is pure ASCII, which every normal form
 // leaves unchanged (IsNormalString itself allocates).
 func isASCII(text string) bool {
-	for i := 0; i < len(text); i++ {
+	i := 0
+	for ; i+8 <= len(text); i += 8 {
+		if load64(text[i:])&hi8 != 0 {
+			return false
+		}
+	}
+	for ; i < len(text); i++ {
 		if text[i] >= utf8.RuneSelf {
 			return false
 		}

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"path/filepath"
 	"sort"
+	"winnow/stages/jsonl"
 
 	"winnow/shard"
 )
@@ -229,33 +230,5 @@ func (s *shardSink) Abort() { s.b.Abort() }
 // AppendDocJSON appends d as one shard line:
 // {"id","text","source","tokens",<meta keys sorted>}.
 func AppendDocJSON(b []byte, d *Doc) []byte {
-	var j jsonBuf
-	j.b = b
-	j.begin()
-	j.str("id", d.ID)
-	j.str("text", d.Text)
-	j.str("source", d.Source)
-	j.int("tokens", int64(d.Tokens))
-	appendMetaFlat(&j, d.Meta)
-	return j.end()
-}
-
-// appendMetaFlat writes meta keys as top-level keys in sorted order,
-// skipping any that would shadow a fixed key.
-func appendMetaFlat(j *jsonBuf, meta map[string]any) {
-	if len(meta) == 0 {
-		return
-	}
-	keys := make([]string, 0, len(meta))
-	for k := range meta {
-		switch k {
-		case "id", "text", "source", "tokens":
-			continue
-		}
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	for _, k := range keys {
-		j.val(k, meta[k])
-	}
+	return jsonl.AppendDocLine(b, d.ID, d.Text, d.Source, d.Tokens, d.Meta, nil)
 }

@@ -7,6 +7,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"winnow/stages/suggest"
 
 	"gopkg.in/yaml.v3"
 )
@@ -368,37 +369,4 @@ func (p *Params) Done() error {
 	return errors.Join(errs...)
 }
 
-// nearest returns the candidate closest to s in edit distance, when it is
-// close enough to be a likely typo.
-func nearest(s string, candidates []string) string {
-	best, bestD := "", 1<<30
-	for _, c := range candidates {
-		if d := editDistance(s, c); d < bestD {
-			best, bestD = c, d
-		}
-	}
-	if bestD <= 2 || (bestD <= len(s)/2 && bestD <= 4) {
-		return best
-	}
-	return ""
-}
-
-func editDistance(a, b string) int {
-	prev := make([]int, len(b)+1)
-	cur := make([]int, len(b)+1)
-	for j := range prev {
-		prev[j] = j
-	}
-	for i := 1; i <= len(a); i++ {
-		cur[0] = i
-		for j := 1; j <= len(b); j++ {
-			cost := 1
-			if a[i-1] == b[j-1] {
-				cost = 0
-			}
-			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
-		}
-		prev, cur = cur, prev
-	}
-	return prev[len(b)]
-}
+func nearest(s string, candidates []string) string { return suggest.Nearest(s, candidates) }

@@ -10,6 +10,7 @@ import (
 	"strconv"
 	"strings"
 	"unicode/utf8"
+	"winnow/stages/jsonl"
 )
 
 // Format names an input record format.
@@ -204,7 +205,7 @@ func repairUTF8(s string) (string, bool) {
 	if utf8.ValidString(s) {
 		return s, false
 	}
-	return string(appendValidUTF8(make([]byte, 0, len(s)+8), []byte(s))), true
+	return string(jsonl.AppendValidUTF8(make([]byte, 0, len(s)+8), []byte(s))), true
 }
 
 func utf8Issue(b *baseReader, d *Doc) *ReadIssue {

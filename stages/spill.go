@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"winnow/stages/jsonl"
 
 	"github.com/klauspost/compress/zstd"
 )
@@ -21,7 +22,7 @@ type docSpill struct {
 	f    *os.File
 	enc  *zstd.Encoder
 	buf  []byte
-	jb   jsonBuf
+	jb   jsonl.Object
 	n    int64
 }
 
@@ -48,8 +49,8 @@ func (s *docSpill) add(d *Doc) error {
 	b = binary.AppendVarint(b, d.Line)
 	b = binary.AppendUvarint(b, uint64(d.Tokens))
 	if len(d.Meta) > 0 {
-		s.jb.b = appendJSONValue(s.jb.b[:0], d.Meta)
-		b = appendField(b, string(s.jb.b))
+		s.jb.B = jsonl.AppendValue(s.jb.B[:0], d.Meta)
+		b = appendField(b, string(s.jb.B))
 	} else {
 		b = appendField(b, "")
 	}

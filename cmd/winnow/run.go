@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"os"
 	"os/signal"
+	"runtime/pprof"
 	"syscall"
 
 	"github.com/spf13/cobra"
@@ -23,6 +24,7 @@ type runFlags struct {
 	quiet        bool
 	asJSON       bool
 	sets         []string
+	cpuProfile   string
 }
 
 func (f *runFlags) register(cmd *cobra.Command) {
@@ -35,6 +37,8 @@ func (f *runFlags) register(cmd *cobra.Command) {
 	cmd.Flags().BoolVarP(&f.quiet, "quiet", "q", false, "no progress line")
 	cmd.Flags().BoolVar(&f.asJSON, "json", false, "print the stage table as JSON")
 	cmd.Flags().StringArrayVar(&f.sets, "set", nil, "override a stage parameter, STAGE.KEY=VALUE (repeatable)")
+	cmd.Flags().StringVar(&f.cpuProfile, "cpuprofile", "", "write a Go CPU profile of the run to this file (for developers)")
+	cmd.Flags().MarkHidden("cpuprofile")
 }
 
 var runOpts runFlags
@@ -80,6 +84,17 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	mem, err := parseBytes(f.memory)
 	if err != nil {
 		return nil, fmt.Errorf("--memory: %w", err)
+	}
+	if f.cpuProfile != "" {
+		pf, err := os.Create(f.cpuProfile)
+		if err != nil {
+			return nil, err
+		}
+		defer pf.Close()
+		if err := pprof.StartCPUProfile(pf); err != nil {
+			return nil, err
+		}
+		defer pprof.StopCPUProfile()
 	}
 	prog := newProgress(f.quiet)
 	res, err := stages.RunSpec(ctx, spec, stages.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,

@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
+	"winnow/stages/jsonl"
 
 	"github.com/klauspost/compress/gzip"
 	"github.com/zeebo/xxh3"
@@ -125,13 +126,13 @@ func (j *jsonlWriter) write(rec *record) (string, error) {
 	b := j.p.buf()
 	n0 := len(b)
 	b = append(b, `{"id":`...)
-	b = appendJSONString(b, rec.id)
+	b = jsonl.AppendString(b, rec.id)
 	b = append(b, `,"text":`...)
-	b = appendJSONString(b, rec.text)
+	b = jsonl.AppendString(b, rec.text)
 	b = append(b, `,"url":`...)
-	b = appendJSONString(b, rec.url)
+	b = jsonl.AppendString(b, rec.url)
 	b = append(b, `,"date":`...)
-	b = appendJSONString(b, rec.date)
+	b = jsonl.AppendString(b, rec.date)
 	b = append(b, '}', '\n')
 	j.n += int64(len(b) - n0)
 	j.p.commit(b)
@@ -150,39 +151,6 @@ func (j *jsonlWriter) commit() error {
 	return nil
 }
 func (j *jsonlWriter) abort() { j.p.close(); j.abortFn() }
-
-const hexDigits = "0123456789abcdef"
-
-// appendJSONString appends s as a JSON string. The generator only emits
-// valid UTF-8, which JSON carries unescaped.
-func appendJSONString[T string | []byte](b []byte, s T) []byte {
-	b = append(b, '"')
-	start := 0
-	for i := 0; i < len(s); i++ {
-		c := s[i]
-		if c >= 0x20 && c != '"' && c != '\\' {
-			continue
-		}
-		b = append(b, s[start:i]...)
-		switch c {
-		case '"':
-			b = append(b, '\\', '"')
-		case '\\':
-			b = append(b, '\\', '\\')
-		case '\n':
-			b = append(b, '\\', 'n')
-		case '\t':
-			b = append(b, '\\', 't')
-		case '\r':
-			b = append(b, '\\', 'r')
-		default:
-			b = append(b, '\\', 'u', '0', '0', hexDigits[c>>4], hexDigits[c&15])
-		}
-		start = i + 1
-	}
-	b = append(b, s[start:]...)
-	return append(b, '"')
-}
 
 // warcWriter writes one gzip member per WARC record.
 type warcWriter struct {
