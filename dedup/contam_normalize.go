@@ -53,19 +53,6 @@ type contamWord struct {
 	nstart, nend int32 // byte span in the normalized buffer
 }
 
-// contamASCII maps an ASCII byte to its lower-case word character, or 0
-// when the byte separates words or is not ASCII.
-var contamASCII = func() (t [256]byte) {
-	for c := '0'; c <= '9'; c++ {
-		t[c] = byte(c)
-	}
-	for c := 'a'; c <= 'z'; c++ {
-		t[c] = byte(c)
-		t[c-'a'+'A'] = byte(c)
-	}
-	return t
-}()
-
 // contamTokenizer splits texts into normalized words, reusing its buffers.
 // It is not safe for concurrent use; each scanner owns one.
 type contamTokenizer struct {
@@ -97,7 +84,7 @@ func contamWordRune(r rune, s string) bool {
 // character.
 func contamNormWordRune(r rune) bool {
 	if r < utf8.RuneSelf {
-		return contamASCII[r] != 0
+		return wordByte[r] != 0
 	}
 	return unicode.IsLetter(r) || unicode.IsMark(r) || unicode.IsNumber(r)
 }
@@ -108,7 +95,7 @@ func contamWordAt(s string, i int) bool {
 		return false
 	}
 	if c := s[i]; c < utf8.RuneSelf {
-		return contamASCII[c] != 0
+		return wordByte[c] != 0
 	}
 	r, _ := utf8.DecodeRuneInString(s[i:])
 	return contamWordRune(r, s[i:])
@@ -135,7 +122,7 @@ func (t *contamTokenizer) tokenize(text string) {
 	for i < len(text) {
 		c := text[i]
 		if c < utf8.RuneSelf {
-			if contamASCII[c] == 0 {
+			if wordByte[c] == 0 {
 				i++
 				continue
 			}
@@ -146,13 +133,13 @@ func (t *contamTokenizer) tokenize(text string) {
 		word:
 			for {
 				j := i
-				for j < len(text) && contamASCII[text[j]] != 0 {
+				for j < len(text) && wordByte[text[j]] != 0 {
 					j++
 				}
 				n := len(t.norm)
 				t.norm = append(t.norm, text[i:j]...)
 				for k := n; k < len(t.norm); k++ {
-					t.norm[k] = contamASCII[t.norm[k]]
+					t.norm[k] = wordByte[t.norm[k]]
 				}
 				i = j
 				if i >= len(text) {
@@ -216,7 +203,7 @@ func (t *contamTokenizer) segment(text string, start int) int {
 	for i < len(text) {
 		c := text[i]
 		if c < utf8.RuneSelf {
-			if contamASCII[c] != 0 {
+			if wordByte[c] != 0 {
 				i++
 				continue
 			}

@@ -344,7 +344,7 @@ func (x *ExactIndex) Reduce() (err error) {
 
 	// Pass over the id log in input order: ids of kept documents that
 	// copies point to, and this run's kept ids.
-	var ids *zstdOut
+	var ids *idsOut
 	if x.opt.KeysOut != "" {
 		if ids, err = createIDs(x.opt.KeysOut + ".ids.zst"); err != nil {
 			return err
@@ -665,34 +665,31 @@ func (r *removals) lookup(order uint64) (Match, bool) {
 	return Match{Of: p.id, Similarity: float64(e.sim) / 10000, Against: p.against}, true
 }
 
-// zstdOut is an ids key file being written.
+// zstdOut is a zstd key file being written: a buffered stream that is
+// committed atomically or aborted. The ids and near key writers embed it.
 type zstdOut struct {
 	z *fsio.ZstdWriter
 	w *bufio.Writer
-	b []byte
+	b []byte // scratch for one record
 }
 
-func createIDs(path string) (*zstdOut, error) {
+// create creates the file at path and writes its header (magic and any
+// fixed fields); on a header write error the file is aborted.
+func (o *zstdOut) create(path string, header []byte) error {
 	z, err := fsio.CreateZstd(path)
 	if err != nil {
-		return nil, fmt.Errorf("dedup: keys: %w", err)
+		return fmt.Errorf("dedup: keys: %w", err)
 	}
-	o := &zstdOut{z: z, w: bufio.NewWriterSize(z, runWriteBuffer)}
-	if _, err := o.w.WriteString(idsMagic); err != nil {
+	o.z, o.w = z, bufio.NewWriterSize(z, runWriteBuffer)
+	if _, err := o.w.Write(header); err != nil {
 		z.Abort()
-		return nil, err
+		return err
 	}
-	return o, nil
+	return nil
 }
 
-func (o *zstdOut) add(order uint64, id []byte) error {
-	o.b = binary.AppendUvarint(o.b[:0], order)
-	o.b = binary.AppendUvarint(o.b, uint64(len(id)))
-	o.b = append(o.b, id...)
-	_, err := o.w.Write(o.b)
-	return err
-}
-
+// commit flushes the buffer, finishes the stream and renames the file
+// into place.
 func (o *zstdOut) commit() error {
 	if err := o.w.Flush(); err != nil {
 		o.z.Abort()
@@ -701,7 +698,27 @@ func (o *zstdOut) commit() error {
 	return o.z.Commit()
 }
 
+// abort discards the file.
 func (o *zstdOut) abort() { o.z.Abort() }
+
+// idsOut is an ids key file being written.
+type idsOut struct{ zstdOut }
+
+func createIDs(path string) (*idsOut, error) {
+	o := &idsOut{}
+	if err := o.create(path, []byte(idsMagic)); err != nil {
+		return nil, err
+	}
+	return o, nil
+}
+
+func (o *idsOut) add(order uint64, id []byte) error {
+	o.b = binary.AppendUvarint(o.b[:0], order)
+	o.b = binary.AppendUvarint(o.b, uint64(len(id)))
+	o.b = append(o.b, id...)
+	_, err := o.w.Write(o.b)
+	return err
+}
 
 // zstdIn reads a zstd key file.
 type zstdIn struct {

@@ -74,8 +74,6 @@ import (
 	"math"
 	"os"
 	"slices"
-
-	"winnow/stages/fsio"
 )
 
 // Tuning constants of near-duplicate clustering.
@@ -424,15 +422,11 @@ func (x *NearIndex) resolve(seqs []uint32) (err error) {
 	}
 	x.ids.close()
 	if prev := x.rm.repsNeeded(true); len(prev) > 0 {
-		in, err := openZstd(x.opt.Against+".sigs.zst", nearKeysMagic)
+		in, h, err := openNearKeys(x.opt.Against + ".sigs.zst")
 		if err != nil {
 			return err
 		}
 		defer in.close()
-		h, err := in.nearHeader()
-		if err != nil {
-			return err
-		}
 		pi := 0
 		for j := uint64(0); j < h.count && pi < len(prev); j++ {
 			_, _, _, id, err := in.nearRecord(h, nil, nil)
@@ -459,15 +453,11 @@ func (x *NearIndex) resolve(seqs []uint32) (err error) {
 // loadPrev copies the previous run's signatures into a temp record file
 // and adds their band keys with indices 0..P-1.
 func (x *NearIndex) loadPrev() error {
-	in, err := openZstd(x.opt.Against+".sigs.zst", nearKeysMagic)
+	in, h, err := openNearKeys(x.opt.Against + ".sigs.zst")
 	if err != nil {
 		return err
 	}
 	defer in.close()
-	h, err := in.nearHeader()
-	if err != nil {
-		return err
-	}
 	if h.count != uint64(x.prevN) {
 		return fmt.Errorf("previous run keys %s.sigs.zst: changed since the run started", x.opt.Against)
 	}
@@ -650,12 +640,27 @@ type nearHeader struct {
 }
 
 func readNearHeader(path string) (nearHeader, error) {
-	in, err := openZstd(path, nearKeysMagic)
+	in, h, err := openNearKeys(path)
 	if err != nil {
 		return nearHeader{}, err
 	}
-	defer in.close()
-	return in.nearHeader()
+	in.close()
+	return h, nil
+}
+
+// openNearKeys opens a near key file and reads its header; the caller
+// closes in, which is positioned at the first record.
+func openNearKeys(path string) (*zstdIn, nearHeader, error) {
+	in, err := openZstd(path, nearKeysMagic)
+	if err != nil {
+		return nil, nearHeader{}, err
+	}
+	h, err := in.nearHeader()
+	if err != nil {
+		in.close()
+		return nil, nearHeader{}, err
+	}
+	return in, h, nil
 }
 
 func (in *zstdIn) nearHeader() (nearHeader, error) {
@@ -715,18 +720,9 @@ func (in *zstdIn) nearRecord(h nearHeader, sig []uint32, sh []uint64) ([]uint32,
 }
 
 // nearKeysOut writes a near key file.
-type nearKeysOut struct {
-	z *fsio.ZstdWriter
-	w *bufio.Writer
-	b []byte
-}
+type nearKeysOut struct{ zstdOut }
 
 func createNearKeys(path string, k, ngram int, seed uint64, shingles bool, count uint64) (*nearKeysOut, error) {
-	z, err := fsio.CreateZstd(path)
-	if err != nil {
-		return nil, fmt.Errorf("dedup: keys: %w", err)
-	}
-	o := &nearKeysOut{z: z, w: bufio.NewWriterSize(z, runWriteBuffer)}
 	b := []byte(nearKeysMagic)
 	b = binary.AppendUvarint(b, uint64(k))
 	b = binary.AppendUvarint(b, uint64(ngram))
@@ -737,8 +733,8 @@ func createNearKeys(path string, k, ngram int, seed uint64, shingles bool, count
 	}
 	b = append(b, flags)
 	b = binary.AppendUvarint(b, count)
-	if _, err := o.w.Write(b); err != nil {
-		z.Abort()
+	o := &nearKeysOut{}
+	if err := o.create(path, b); err != nil {
 		return nil, err
 	}
 	return o, nil
@@ -763,16 +759,6 @@ func (o *nearKeysOut) add(sig []uint32, sh []uint64, hasSh bool, id []byte) erro
 	_, err := o.w.Write(b)
 	return err
 }
-
-func (o *nearKeysOut) commit() error {
-	if err := o.w.Flush(); err != nil {
-		o.z.Abort()
-		return err
-	}
-	return o.z.Commit()
-}
-
-func (o *nearKeysOut) abort() { o.z.Abort() }
 
 // grouper walks one band's sorted keys and unions verified candidates.
 // Heads are the earliest distinct members of the current group of equal

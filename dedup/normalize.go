@@ -53,7 +53,9 @@ const (
 )
 
 // wordByte maps ASCII letters and digits to their lower-case form and
-// every other byte (separators, and all bytes >= 0x80) to 0.
+// every other byte (separators, and all bytes >= 0x80) to 0. It is the
+// ASCII fast path of both AppendWords and the contamination tokenizer
+// (contam_normalize.go).
 var wordByte = func() (t [256]byte) {
 	for c := '0'; c <= '9'; c++ {
 		t[c] = byte(c)

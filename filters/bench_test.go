@@ -122,15 +122,20 @@ func totalBytes(docs []string) int64 {
 }
 
 func benchEach(b *testing.B, f func(s *Scratch, text string)) {
-	docs := benchDocs()
 	var s Scratch
+	benchLoop(b, benchDocs(), func(_ int, d string) { f(&s, d) })
+}
+
+// benchLoop runs f on every document of docs (with its index) per
+// iteration and reports MB/s, allocations and CPU MB/s.
+func benchLoop(b *testing.B, docs []string, f func(i int, d string)) {
 	b.SetBytes(totalBytes(docs))
 	b.ReportAllocs()
 	cpu0 := processCPU()
 	n := 0
 	for b.Loop() {
-		for _, d := range docs {
-			f(&s, d)
+		for i, d := range docs {
+			f(i, d)
 		}
 		n++
 	}
@@ -205,17 +210,7 @@ func benchPart(b *testing.B, f func(s *Scratch, d string)) {
 	for i, d := range docs {
 		Measure(&ss[i], d, en)
 	}
-	b.SetBytes(totalBytes(docs))
-	b.ReportAllocs()
-	cpu0 := processCPU()
-	n := 0
-	for b.Loop() {
-		for i, d := range docs {
-			f(&ss[i], d)
-		}
-		n++
-	}
-	reportCPUThroughput(b, cpu0, n, totalBytes(docs))
+	benchLoop(b, docs, func(i int, d string) { f(&ss[i], d) })
 }
 
 func BenchmarkPartWordHashes(b *testing.B) {

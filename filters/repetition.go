@@ -353,13 +353,19 @@ type hashSet struct {
 
 func (t *hashSet) reset(n int) {
 	size, lg := tableSize(n)
-	if cap(t.keys) >= size {
-		t.keys = t.keys[:size]
-		clear(t.keys)
-	} else {
-		t.keys = make([]uint64, size)
-	}
+	t.keys = zeroSlots(t.keys, size)
 	t.shift = 64 - lg
+}
+
+// zeroSlots returns size zeroed slots, reusing b's array when it is large
+// enough.
+func zeroSlots(b []uint64, size int) []uint64 {
+	if cap(b) >= size {
+		b = b[:size]
+		clear(b)
+		return b
+	}
+	return make([]uint64, size)
 }
 
 func (t *hashSet) release() {
@@ -402,29 +408,28 @@ func fingerprint(k uint64) uint64 {
 	return fp
 }
 
-// countTable counts occurrences of 64-bit hashes in packed slots.
-type countTable struct {
+// packedTable is the open-addressing slot array shared by countTable and
+// lastTable, indexed by a hash's high bits (k >> shift & mask).
+type packedTable struct {
 	slots []uint64
 	shift uint
 	mask  uint64
 }
 
-func (t *countTable) reset(n int) {
+func (t *packedTable) reset(n int) {
 	size, lg := tableSize(n)
-	if cap(t.slots) >= size {
-		t.slots = t.slots[:size]
-		clear(t.slots)
-	} else {
-		t.slots = make([]uint64, size)
-	}
+	t.slots = zeroSlots(t.slots, size)
 	t.shift, t.mask = 64-lg, uint64(size-1)
 }
 
-func (t *countTable) release() {
+func (t *packedTable) release() {
 	if cap(t.slots) > keepSlots {
 		t.slots = nil
 	}
 }
+
+// countTable counts occurrences of 64-bit hashes in packed slots.
+type countTable struct{ packedTable }
 
 // incProbe counts an occurrence of the key with fingerprint fp, searching
 // from slot j+1 on (RepetitionOfSplit's loop has already looked at the
@@ -457,28 +462,7 @@ func b2u(b bool) uint64 {
 
 // lastTable maps 64-bit hashes to the last word index they were seen at,
 // in packed slots.
-type lastTable struct {
-	slots []uint64
-	shift uint
-	mask  uint64
-}
-
-func (t *lastTable) reset(n int) {
-	size, lg := tableSize(n)
-	if cap(t.slots) >= size {
-		t.slots = t.slots[:size]
-		clear(t.slots)
-	} else {
-		t.slots = make([]uint64, size)
-	}
-	t.shift, t.mask = 64-lg, uint64(size-1)
-}
-
-func (t *lastTable) release() {
-	if cap(t.slots) > keepSlots {
-		t.slots = nil
-	}
-}
+type lastTable struct{ packedTable }
 
 // swapProbe records word index i for the key with fingerprint fp whose
 // home slot j holds another key, and returns the index it had before, or

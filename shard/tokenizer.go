@@ -9,7 +9,6 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
-	"sort"
 	"strings"
 	"sync"
 	"winnow/stages/suggest"
@@ -181,12 +180,7 @@ var encodingAliases = map[string]string{"gpt2": "r50k_base"}
 
 // Encodings lists the names of the embedded encodings.
 func Encodings() []string {
-	out := make([]string, 0, len(encodingPatterns))
-	for k := range encodingPatterns {
-		out = append(out, k)
-	}
-	sort.Strings(out)
-	return out
+	return sortedKeys(encodingPatterns)
 }
 
 var (

@@ -48,8 +48,14 @@ func (s *lengthStage) Rules() []Rule         { return s.rules }
 func (s *lengthStage) Process(d *Doc) Decision {
 	chars := utf8.RuneCountInString(d.Text)
 	lines := 0
-	for _, l := range strings.Split(d.Text, "\n") {
-		if strings.TrimSpace(l) != "" {
+	for rest := d.Text; len(rest) > 0; {
+		line := rest
+		if i := strings.IndexByte(rest, '\n'); i >= 0 {
+			line, rest = rest[:i], rest[i+1:]
+		} else {
+			rest = ""
+		}
+		if strings.TrimSpace(line) != "" {
 			lines++
 		}
 	}

@@ -108,7 +108,13 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 	if ts, err := OutputStage(s.Output, env); err != nil {
 		return nil, err
 	} else if ts != nil {
-		steps = append(steps, Step{Name: ts.Name(), Stage: ts})
+		name := ts.Name()
+		for _, st := range steps {
+			if st.Name == name {
+				name = "output_" + name // the spec also has a stage of that name
+			}
+		}
+		steps = append(steps, Step{Name: name, Stage: ts})
 	}
 	sink, err := OpenSink(s.Output, env, s.Name)
 	if err != nil {

@@ -15,6 +15,7 @@ import (
 
 	"winnow/shard"
 	"winnow/stages"
+	"winnow/stages/audit"
 )
 
 var countOpts struct {
@@ -144,7 +145,7 @@ func printCountTable(w io.Writer, res *countResult) {
 		if r.Tokens > 0 {
 			perTok = float64(r.Bytes) / float64(r.Tokens)
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%.2f\t%s\t%.1f\t%.2f\t\n", r.Name, group(r.Docs), float64(r.Bytes)/1e6, group(r.Tokens), perDoc, perTok)
+		fmt.Fprintf(tw, "%s\t%s\t%.2f\t%s\t%.1f\t%.2f\t\n", r.Name, audit.Group(r.Docs), float64(r.Bytes)/1e6, audit.Group(r.Tokens), perDoc, perTok)
 	}
 	for _, r := range res.Files {
 		line(r)
@@ -158,11 +159,11 @@ func printCountTable(w io.Writer, res *countResult) {
 		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 		fmt.Fprintf(tw, "source\tdocs\ttokens\tshare\t\n")
 		for _, r := range res.Sources {
-			fmt.Fprintf(tw, "%s\t%s\t%s\t%.2f%%\t\n", r.Name, group(r.Docs), group(r.Tokens), 100*r.Share)
+			fmt.Fprintf(tw, "%s\t%s\t%s\t%.2f%%\t\n", r.Name, audit.Group(r.Docs), audit.Group(r.Tokens), 100*r.Share)
 		}
 		tw.Flush()
 	}
-	fmt.Fprintf(w, "tokenizer %s: %s tokens in %s documents\n", res.Tokenizer, group(res.Total.Tokens), group(res.Total.Docs))
+	fmt.Fprintf(w, "tokenizer %s: %s tokens in %s documents\n", res.Tokenizer, audit.Group(res.Total.Tokens), audit.Group(res.Total.Docs))
 }
 
 // maxIssueLines is how many record problems per file are printed.

@@ -9,6 +9,7 @@ import (
 	"text/tabwriter"
 
 	"winnow/stages"
+	"winnow/stages/audit"
 )
 
 // printStageTable prints the per-stage document and byte flow of a run.
@@ -23,30 +24,12 @@ func printStageTable(w io.Writer, m *stages.Manifest, asJSON bool) error {
 	for _, c := range m.Stages {
 		toks := ""
 		if c.TokensOut > 0 {
-			toks = group(c.TokensOut)
+			toks = audit.Group(c.TokensOut)
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%.2f\t%.2f\t%s\t%.2f\t\n", c.Name, c.Kind, group(c.DocsIn), group(c.DocsOut),
-			group(c.Dropped), group(c.Edited), float64(c.BytesIn)/1e6, float64(c.BytesOut)/1e6, toks, c.Seconds)
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%.2f\t%.2f\t%s\t%.2f\t\n", c.Name, c.Kind, audit.Group(c.DocsIn), audit.Group(c.DocsOut),
+			audit.Group(c.Dropped), audit.Group(c.Edited), float64(c.BytesIn)/1e6, float64(c.BytesOut)/1e6, toks, c.Seconds)
 	}
 	return tw.Flush()
-}
-
-// group formats n with thousands separators.
-func group(n int64) string {
-	s := strconv.FormatInt(n, 10)
-	neg := strings.HasPrefix(s, "-")
-	s = strings.TrimPrefix(s, "-")
-	var b strings.Builder
-	for i, c := range s {
-		if i > 0 && (len(s)-i)%3 == 0 {
-			b.WriteByte(',')
-		}
-		b.WriteRune(c)
-	}
-	if neg {
-		return "-" + b.String()
-	}
-	return b.String()
 }
 
 // parseBytes parses sizes like 512MiB, 2GB, 1e9 or 4096 ("" is 0).
@@ -96,7 +79,7 @@ func printShardTable(w io.Writer, m *stages.Manifest) {
 	}
 	fmt.Fprintln(tw)
 	for _, o := range m.Outputs {
-		fmt.Fprintf(tw, "%s\t%s\t%s\t", o.Path, group(o.Docs), group(o.Tokens))
+		fmt.Fprintf(tw, "%s\t%s\t%s\t", o.Path, audit.Group(o.Docs), audit.Group(o.Tokens))
 		for _, s := range sources {
 			if o.Tokens > 0 {
 				fmt.Fprintf(tw, "%.1f%%\t", 100*float64(o.Source[s])/float64(o.Tokens))
