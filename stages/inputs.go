@@ -52,7 +52,11 @@ func ResolveInputs(s *Spec) ([]InputFile, error) {
 			}
 			files, err := expandPath(full)
 			if err != nil {
-				errs = append(errs, fmt.Errorf("input %q: path %q: %w", in.Source, pat, err))
+				where := ""
+				if !filepath.IsAbs(pat) {
+					where = fmt.Sprintf(" (relative to the spec's directory %s)", s.Dir)
+				}
+				errs = append(errs, fmt.Errorf("input %q: path %q%s: %w", in.Source, pat, where, err))
 				continue
 			}
 			for _, f := range files {

@@ -246,6 +246,11 @@ func TestRunTruncatedInputRecorded(t *testing.T) {
 	if in := res.Manifest.Inputs[1]; in.Complete || in.Docs == 0 || in.Docs >= 8000 {
 		t.Errorf("input summary %+v", in)
 	}
+	// The broken file is also a read record in the ledger.
+	led := readZstd(t, filepath.Join(dir, "out", "ledger", "read.jsonl.zst"))
+	if !strings.Contains(led, `"file":"raw/part-1.jsonl.zst"`) || !strings.Contains(led, `"rule":"broken_input"`) || !strings.Contains(led, `"offset":`) {
+		t.Errorf("read ledger: %s", led)
+	}
 }
 
 // Cancelling mid-run flushes the ledger of what was decided and marks the

@@ -49,6 +49,12 @@ const (
 	RuleOversize    = "oversize"
 	RuleMissingText = "missing_text"
 	RuleInvalidUTF8 = "invalid_utf8"
+	// RuleBrokenInput records an input that could not be read to its end
+	// (a corrupt or truncated stream, an unreadable file); the documents
+	// before the damage are kept.
+	RuleBrokenInput = "broken_input"
+	// RuleEmptyInput notes an input with no documents (not an error).
+	RuleEmptyInput = "empty_input"
 )
 
 // ReadIssue is a problem with one record that costs only that record (or,
@@ -64,6 +70,8 @@ type ReadIssue struct {
 	DocID string
 	// Bytes is the size of the record.
 	Bytes int64
+	// Fatal is set when the rest of the file could not be read.
+	Fatal bool
 }
 
 func (i *ReadIssue) Error() string {

@@ -593,9 +593,18 @@ func (r *Runner) recordResult(d *Doc, res stepResult) error {
 
 func (r *Runner) recordIssue(iss *ReadIssue) error {
 	action := "drop"
-	if iss.Rule == RuleInvalidUTF8 {
+	switch {
+	case iss.Rule == RuleEmptyInput:
+		r.Errors = append(r.Errors, RunError{File: iss.File, Rule: iss.Rule, Message: iss.Msg})
+		return nil
+	case iss.Fatal:
+		// Fatal errors are always listed, whatever the cap.
+		r.FatalInputs++
+		r.ErrCount++
+		r.Errors = append(r.Errors, RunError{File: iss.File, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg, Fatal: true})
+	case iss.Rule == RuleInvalidUTF8:
 		action = "edit"
-	} else {
+	default:
 		r.Read.Dropped++
 		r.ErrCount++
 		if len(r.Errors) < maxManifestErrors {
@@ -605,6 +614,12 @@ func (r *Runner) recordIssue(iss *ReadIssue) error {
 	var extra map[string]any
 	if iss.Msg != "" {
 		extra = map[string]any{"message": iss.Msg}
+	}
+	if iss.Fatal && iss.Offset > 0 {
+		if extra == nil {
+			extra = map[string]any{}
+		}
+		extra["offset"] = iss.Offset
 	}
 	rec := LedgerRecord{Doc: iss.DocID, Source: iss.Source, File: iss.File, Line: iss.Line, Stage: "read", Rule: iss.Rule,
 		Action: action, Value: iss.Bytes, Extra: extra}
@@ -666,29 +681,31 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 			}
 			return true
 		})
-		if !flush() {
-			return ctx.Err()
-		}
-		if err != nil {
-			if errors.Is(err, context.Canceled) {
-				r.InputSums = append(r.InputSums, sum)
-				return err
-			}
-			r.FatalInputs++
-			re := RunError{File: in.Display, Message: err.Error(), Fatal: true}
+		// Whole-file problems go through the collector like any other
+		// issue, so the manifest and ledger are written by one goroutine.
+		if err != nil && !errors.Is(err, context.Canceled) {
+			iss := &ReadIssue{Source: in.Spec.Source, File: in.Display, Rule: RuleBrokenInput, Msg: err.Error(),
+				DocID: in.Spec.Source + "/" + in.Display, Fatal: true}
 			var de *DecodeError
 			if errors.As(err, &de) {
-				re.Offset = de.Offset
+				iss.Offset = de.Offset
 			}
-			r.Errors = append(r.Errors, re)
-			r.ErrCount++
+			cur.items = append(cur.items, item{rec: Record{Issue: iss}, input: in.Index})
 			r.logf("%s: %v (documents before this point are kept)", in.Display, err)
-		} else {
+		} else if err == nil {
 			sum.Complete = true
 			if sum.Docs == 0 && sum.Issues == 0 {
 				r.logf("%s: empty input: no documents", in.Display)
-				r.Errors = append(r.Errors, RunError{File: in.Display, Message: "empty input: no documents", Rule: "empty"})
+				cur.items = append(cur.items, item{rec: Record{Issue: &ReadIssue{Source: in.Spec.Source, File: in.Display,
+					Rule: RuleEmptyInput, Msg: "empty input: no documents"}}, input: in.Index})
 			}
+		}
+		if !flush() {
+			return ctx.Err()
+		}
+		if errors.Is(err, context.Canceled) {
+			r.InputSums = append(r.InputSums, sum)
+			return err
 		}
 		r.InputSums = append(r.InputSums, sum)
 	}
