@@ -1,6 +1,7 @@
 package stages
 
 import (
+	"os"
 	"path/filepath"
 	"sort"
 	"winnow/stages/jsonl"
@@ -63,45 +64,120 @@ func (r *LedgerRecord) AppendJSON(b []byte) []byte {
 	return j.End()
 }
 
+// streamSet is a directory of zstd JSONL files, one per stage, created on
+// first use; the ledger and the metrics store are each one.
+type streamSet struct {
+	dir   string
+	files map[string]*fsio.ZstdWriter
+	order []string
+}
+
+func newStreamSet(dir string) streamSet {
+	return streamSet{dir: dir, files: map[string]*fsio.ZstdWriter{}}
+}
+
+func (s *streamSet) get(name string) (*fsio.ZstdWriter, error) {
+	if w, ok := s.files[name]; ok {
+		return w, nil
+	}
+	w, err := fsio.CreateZstd(filepath.Join(s.dir, name+".jsonl.zst"))
+	if err != nil {
+		return nil, err
+	}
+	s.files[name] = w
+	s.order = append(s.order, name)
+	return w, nil
+}
+
+func (s *streamSet) commit() error {
+	var first error
+	for _, n := range s.order {
+		if err := s.files[n].Commit(); err != nil && first == nil {
+			first = err
+		}
+	}
+	return first
+}
+
+func (s *streamSet) abort() {
+	for _, n := range s.order {
+		s.files[n].Abort()
+	}
+}
+
+// streamState is where one file of a set stood at a checkpoint.
+type streamState struct {
+	Name  string `json:"name"`
+	Temp  string `json:"temp"`
+	Final string `json:"final"`
+	Size  int64  `json:"size"`
+}
+
+// checkpoint ends a frame in every file and reports where each stands.
+func (s *streamSet) checkpoint() ([]streamState, error) {
+	var out []streamState
+	for _, n := range s.order {
+		w := s.files[n]
+		tmp, size, err := w.Checkpoint()
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, streamState{Name: n, Temp: tmp, Final: w.Path(), Size: size})
+	}
+	return out, nil
+}
+
+// resume reopens every file at its checkpointed size, from its temp file
+// (after a crash) or its committed file (after an interruption).
+func (s *streamSet) resume(states []streamState) error {
+	for _, st := range states {
+		src := st.Temp
+		if _, err := os.Stat(src); err != nil {
+			src = st.Final
+		}
+		w, err := fsio.ResumeZstd(filepath.Join(s.dir, st.Name+".jsonl.zst"), src, st.Size)
+		if err != nil {
+			return err
+		}
+		if src == st.Temp {
+			os.Remove(st.Temp) // copied into the new temp file
+		}
+		s.files[st.Name] = w
+		s.order = append(s.order, st.Name)
+	}
+	return nil
+}
+
 // Ledger writes one zstd JSONL file per stage under OUT/ledger/. Records
 // are written by one goroutine in input order, so the files are identical
 // whatever the number of workers.
 type Ledger struct {
-	dir   string
-	files map[string]*fsio.ZstdWriter
-	order []string
+	streamSet
 	buf   []byte
 	count map[string]int64
 }
 
 // NewLedger prepares a ledger in dir (files are created on first use).
 func NewLedger(dir string) *Ledger {
-	return &Ledger{dir: dir, files: map[string]*fsio.ZstdWriter{}, count: map[string]int64{}}
+	return &Ledger{streamSet: newStreamSet(dir), count: map[string]int64{}}
 }
 
 // Open creates the file for stage even when it will hold no record, so
 // every stage of a run has a ledger file.
 func (l *Ledger) Open(stage string) error {
-	if _, ok := l.files[stage]; ok {
-		return nil
-	}
-	w, err := fsio.CreateZstd(filepath.Join(l.dir, stage+".jsonl.zst"))
-	if err != nil {
-		return err
-	}
-	l.files[stage] = w
-	l.order = append(l.order, stage)
-	return nil
+	_, err := l.get(stage)
+	return err
 }
 
 // Add writes one record.
 func (l *Ledger) Add(r *LedgerRecord) error {
-	if err := l.Open(r.Stage); err != nil {
+	w, err := l.get(r.Stage)
+	if err != nil {
 		return err
 	}
 	l.buf = r.AppendJSON(l.buf[:0])
 	l.count[r.Stage]++
-	_, err := l.files[r.Stage].Write(l.buf)
+	_, err = w.Write(l.buf)
 	return err
 }
 
@@ -109,22 +185,10 @@ func (l *Ledger) Add(r *LedgerRecord) error {
 func (l *Ledger) Count(stage string) int64 { return l.count[stage] }
 
 // Commit finishes every file.
-func (l *Ledger) Commit() error {
-	var first error
-	for _, s := range l.order {
-		if err := l.files[s].Commit(); err != nil && first == nil {
-			first = err
-		}
-	}
-	return first
-}
+func (l *Ledger) Commit() error { return l.commit() }
 
 // Abort removes unfinished files.
-func (l *Ledger) Abort() {
-	for _, s := range l.order {
-		l.files[s].Abort()
-	}
-}
+func (l *Ledger) Abort() { l.abort() }
 
 // Metrics writes OUT/metrics/<stage>.jsonl.zst: one flat JSON object per
 // document the stage measured, kept or not, so that audit and what-if can
@@ -139,15 +203,13 @@ func (l *Ledger) Abort() {
 // can tell what a looser earlier threshold would let through. Metric
 // values that do not apply are null.
 type Metrics struct {
-	dir   string
-	files map[string]*fsio.ZstdWriter
-	order []string
-	buf   jsonl.Object
+	streamSet
+	buf jsonl.Object
 }
 
 // NewMetrics prepares a metrics store in dir.
 func NewMetrics(dir string) *Metrics {
-	return &Metrics{dir: dir, files: map[string]*fsio.ZstdWriter{}}
+	return &Metrics{streamSet: newStreamSet(dir)}
 }
 
 // MetricRow is one document's measured values at one stage.
@@ -165,15 +227,9 @@ type MetricRow struct {
 
 // Add writes one row for stage.
 func (m *Metrics) Add(stage string, r *MetricRow) error {
-	w, ok := m.files[stage]
-	if !ok {
-		var err error
-		w, err = fsio.CreateZstd(filepath.Join(m.dir, stage+".jsonl.zst"))
-		if err != nil {
-			return err
-		}
-		m.files[stage] = w
-		m.order = append(m.order, stage)
+	w, err := m.get(stage)
+	if err != nil {
+		return err
 	}
 	j := &m.buf
 	j.Begin()
@@ -193,24 +249,12 @@ func (m *Metrics) Add(stage string, r *MetricRow) error {
 			j.Float(n, r.Values[i])
 		}
 	}
-	_, err := w.Write(j.End())
+	_, err = w.Write(j.End())
 	return err
 }
 
 // Commit finishes every file.
-func (m *Metrics) Commit() error {
-	var first error
-	for _, s := range m.order {
-		if err := m.files[s].Commit(); err != nil && first == nil {
-			first = err
-		}
-	}
-	return first
-}
+func (m *Metrics) Commit() error { return m.commit() }
 
 // Abort removes unfinished files.
-func (m *Metrics) Abort() {
-	for _, s := range m.order {
-		m.files[s].Abort()
-	}
-}
+func (m *Metrics) Abort() { m.abort() }

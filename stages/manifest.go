@@ -114,6 +114,12 @@ const runMarker = ".winnow-run"
 // winnow run) is refused unless force; a directory that contains one of
 // the inputs is always refused. It returns the temp directory for spills.
 func PrepareRunDir(dir string, s *Spec, inputs []InputFile, force bool) (string, error) {
+	return prepareRunDir(dir, s, inputs, force, false)
+}
+
+// prepareRunDir is PrepareRunDir; with resume it keeps the interrupted
+// run's ledger, metrics and work files (and refuses a different run).
+func prepareRunDir(dir string, s *Spec, inputs []InputFile, force, resume bool) (string, error) {
 	abs, err := filepath.Abs(dir)
 	if err != nil {
 		return "", err
@@ -139,6 +145,25 @@ func PrepareRunDir(dir string, s *Spec, inputs []InputFile, force bool) (string,
 		case strings.TrimSpace(string(marker)) != s.ConfigHash:
 			return "", fmt.Errorf("output directory %s holds a different run (config hash %s, this spec %s): use --force to replace it", dir, strings.TrimSpace(string(marker)), s.ConfigHash)
 		}
+	}
+	if resume {
+		marker, err := os.ReadFile(filepath.Join(abs, runMarker))
+		if err != nil || strings.TrimSpace(string(marker)) != s.ConfigHash {
+			return "", fmt.Errorf("--resume: %s holds no interrupted run of this spec (config hash %s)", dir, s.ConfigHash)
+		}
+		if _, err := os.Stat(filepath.Join(abs, ".work", checkpointFile)); err != nil {
+			return "", ErrNoCheckpoint
+		}
+		// Shards and reports are written again by the last segment.
+		for _, sub := range []string{"shards"} {
+			if err := os.RemoveAll(filepath.Join(abs, sub)); err != nil {
+				return "", err
+			}
+		}
+		for _, f := range []string{"manifest.json", "contamination.json"} {
+			os.Remove(filepath.Join(abs, f))
+		}
+		return filepath.Join(abs, ".work"), nil
 	}
 	if force || len(entries) > 0 {
 		// Replace the previous run's files; leave anything else alone.

@@ -27,6 +27,10 @@ type RunOptions struct {
 	Log        func(format string, args ...any)
 	// Sets are "stage.key=value" overrides applied before stages are built.
 	Sets []string
+	// Resume continues an interrupted run in Out from its last checkpoint.
+	Resume bool
+	// stopAfter cancels after that many segments (tests).
+	stopAfter int
 }
 
 // RunResult is a finished run.
@@ -91,11 +95,10 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 	if out == "" {
 		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
 	}
-	tmp, err := PrepareRunDir(out, s, inputs, opt.Force)
+	tmp, err := prepareRunDir(out, s, inputs, opt.Force, opt.Resume)
 	if err != nil {
 		return nil, err
 	}
-	defer os.RemoveAll(tmp)
 	abs, _ := filepath.Abs(out)
 	env := Env{SpecDir: s.Dir, RunDir: abs, TempDir: tmp, MemoryBudget: s.Memory, Seed: s.Seed, Against: opt.Against}
 	if opt.Memory > 0 {
@@ -125,13 +128,17 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 		workers = runtime.NumCPU()
 	}
 	r := &Runner{Spec: s, Steps: steps, Inputs: inputs, Sink: sink, Env: env, Workers: workers,
-		OnProgress: opt.OnProgress, Log: opt.Log}
+		OnProgress: opt.OnProgress, Log: opt.Log, Resume: opt.Resume, stopAfter: opt.stopAfter}
 	t0 := time.Now()
 	runErr := r.Run(ctx)
 	if errors.Is(runErr, context.Canceled) {
+		// The work directory (spills, checkpoint) stays for --resume.
 		r.Interrupted = true
 	} else if runErr != nil {
 		return nil, runErr
+	} else {
+		os.RemoveAll(tmp)
+		removeStaleTemps(abs)
 	}
 	m := BuildManifest(opt.Version, s, r, time.Since(t0).Seconds())
 	if err := WriteManifest(abs, m); err != nil {
@@ -144,3 +151,14 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 // (token counting when output.tokenizer is set), or nil. It is replaced by
 // the shard package's tokenizer wiring.
 var OutputStage = func(p *Params, env Env) (Stage, error) { return nil, nil }
+
+// removeStaleTemps deletes temp files a crashed earlier attempt left in the
+// run's directories (a finished run's own files are all renamed by now).
+func removeStaleTemps(runDir string) {
+	for _, sub := range []string{"ledger", "metrics", "shards", "keys"} {
+		matches, _ := filepath.Glob(filepath.Join(runDir, sub, ".tmp-*"))
+		for _, m := range matches {
+			os.Remove(m)
+		}
+	}
+}

@@ -98,6 +98,11 @@ type Runner struct {
 	OnProgress func(Progress)
 	// Log receives warnings (one line each).
 	Log func(format string, args ...any)
+	// Resume continues an interrupted run from its last checkpoint.
+	Resume bool
+	// stopAfter, when > 0, cancels the run after that many segments
+	// (tests of resuming).
+	stopAfter int
 
 	ledger  *Ledger
 	metrics *Metrics
@@ -208,7 +213,20 @@ func (r *Runner) Run(ctx context.Context) error {
 	stopProg := r.startProgress(start)
 	defer stopProg()
 
-	err := r.runSegments(ctx)
+	var cp *checkpoint
+	if r.Resume {
+		var err error
+		if cp, err = loadCheckpoint(r.Env.TempDir, r.Spec.ConfigHash); err != nil {
+			r.ledger.Abort()
+			return err
+		}
+		if err := r.restore(cp, r.segments()); err != nil {
+			r.ledger.Abort()
+			r.metrics.Abort()
+			return err
+		}
+	}
+	err := r.runSegments(ctx, cp)
 	if err == nil || errors.Is(err, context.Canceled) {
 		if r.Output == nil && r.Sink != nil {
 			out, cerr := r.Sink.Close()
@@ -291,10 +309,15 @@ func (r *Runner) startProgress(start time.Time) func() {
 	return func() { close(done); wg.Wait() }
 }
 
-func (r *Runner) runSegments(ctx context.Context) error {
+func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 	segs := r.segments()
 	var spillPath string
-	for si, seg := range segs {
+	first := 0
+	if cp != nil {
+		first, spillPath = cp.Segment+1, cp.Spill
+	}
+	for si := first; si < len(segs); si++ {
+		seg := segs[si]
 		r.prog.seg.Store(int64(si))
 		r.prog.docs.Store(0)
 		var next *docSpill
@@ -318,9 +341,9 @@ func (r *Runner) runSegments(ctx context.Context) error {
 				err = cerr
 			}
 		}
-		if spillPath != "" {
-			os.Remove(spillPath)
-		}
+		// The spill this segment read stays until the next checkpoint no
+		// longer needs it (or the run ends).
+		done := spillPath
 		if err != nil {
 			if next != nil {
 				os.Remove(next.path)
@@ -335,6 +358,19 @@ func (r *Runner) runSegments(ctx context.Context) error {
 			}
 			r.Counters[seg.scan].nanos.Add(int64(time.Since(t0)))
 			spillPath = next.path
+			// Every run checkpoints here, so frame boundaries (and so the
+			// bytes of every file) are the same whether or not it resumes.
+			if err := r.writeCheckpoint(si, spillPath); err != nil {
+				return fmt.Errorf("checkpoint: %w", err)
+			}
+		}
+		if done != "" {
+			os.Remove(done)
+		}
+		if seg.scan >= 0 {
+			if r.stopAfter > 0 && si+1 >= r.stopAfter {
+				return context.Canceled
+			}
 		}
 	}
 	return nil

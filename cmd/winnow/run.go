@@ -25,6 +25,7 @@ type runFlags struct {
 	asJSON       bool
 	sets         []string
 	cpuProfile   string
+	resume       bool
 }
 
 func (f *runFlags) register(cmd *cobra.Command) {
@@ -37,6 +38,7 @@ func (f *runFlags) register(cmd *cobra.Command) {
 	cmd.Flags().BoolVarP(&f.quiet, "quiet", "q", false, "no progress line")
 	cmd.Flags().BoolVar(&f.asJSON, "json", false, "print the stage table as JSON")
 	cmd.Flags().StringArrayVar(&f.sets, "set", nil, "override a stage parameter, STAGE.KEY=VALUE (repeatable)")
+	cmd.Flags().BoolVar(&f.resume, "resume", false, "continue an interrupted run in --out from its last checkpoint")
 	cmd.Flags().StringVar(&f.cpuProfile, "cpuprofile", "", "write a Go CPU profile of the run to this file (for developers)")
 	cmd.Flags().MarkHidden("cpuprofile")
 }
@@ -49,12 +51,17 @@ var runCmd = &cobra.Command{
 	Long: `Run reads the spec's inputs, applies its stages in order and writes the run
 directory: shards/, ledger/, metrics/, manifest.json (and contamination.json
 when a decontaminate stage runs). Ctrl-C stops cleanly: every decision made
-so far is flushed and the manifest says the run was interrupted.
+so far is flushed and the manifest says the run was interrupted. A run
+checkpoints after each global stage (dedup) has seen all documents;
+--resume continues an interrupted or crashed run from the last checkpoint,
+without reading or filtering those documents again, and gives the same
+bytes as a run never stopped.
 
 Exit status: 0 on success; 3 when some input could not be read to its end
 (unless --allow-partial); 130 when interrupted; 1 on any other error.`,
 	Example: `  winnow run configs/default.yaml --out out/ --workers 2
-  winnow run spec.yaml --set quality.min_words=80 --force`,
+  winnow run spec.yaml --set quality.min_words=80 --force
+  winnow run spec.yaml --out out/ --resume        # after Ctrl-C or a crash`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
 		return runSpecFile(cmd.Context(), args[0], runOpts)
@@ -98,7 +105,7 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	}
 	prog := newProgress(f.quiet)
 	res, err := stages.RunSpec(ctx, spec, stages.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
-		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets})
+		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets, Resume: f.resume})
 	prog.done()
 	if res == nil {
 		return nil, err
@@ -107,7 +114,8 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 		return res, perr
 	}
 	if errors.Is(err, context.Canceled) {
-		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted)", res.Dir)}
+		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from the last checkpoint",
+			res.Dir, spec.File, res.Dir)}
 	}
 	m := res.Manifest
 	fatal := res.Runner.FatalInputs

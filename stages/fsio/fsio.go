@@ -81,6 +81,17 @@ func (a *AtomicFile) Commit() error {
 	return os.Rename(a.f.Name(), a.final)
 }
 
+// Flush makes every byte written so far durable in the temp file.
+func (a *AtomicFile) Flush() error {
+	if err := a.buf.Flush(); err != nil {
+		return err
+	}
+	return a.f.Sync()
+}
+
+// TempPath returns the temporary name the file is written under.
+func (a *AtomicFile) TempPath() string { return a.f.Name() }
+
 // Abort removes the temp file.
 func (a *AtomicFile) Abort() {
 	if a.done {
@@ -142,15 +153,69 @@ func CreateZstd(path string) (*ZstdWriter, error) {
 	if err != nil {
 		return nil, err
 	}
+	return newZstd(a)
+}
+
+// ResumeZstd opens an atomic zstd stream at path whose first size bytes are
+// copied from prefix, the file (temporary or committed) of a stream that
+// Checkpoint reported at that size; writing then continues with a new
+// frame. The result is byte for byte the stream an uninterrupted writer
+// would have produced.
+func ResumeZstd(path, prefix string, size int64) (*ZstdWriter, error) {
+	a, err := CreateAtomic(path)
+	if err != nil {
+		return nil, err
+	}
+	f, err := os.Open(prefix)
+	if err != nil {
+		a.Abort()
+		return nil, err
+	}
+	defer f.Close()
+	if n, err := io.CopyN(a, f, size); err != nil {
+		a.Abort()
+		return nil, fmt.Errorf("resume %s from %s: %d of %d bytes: %w", path, prefix, n, size, err)
+	}
+	return newZstd(a)
+}
+
+func newZstd(a *AtomicFile) (*ZstdWriter, error) {
 	enc, err := zstd.NewWriter(a, zstd.WithEncoderConcurrency(1), zstd.WithEncoderLevel(zstd.SpeedDefault),
 		zstd.WithWindowSize(zstdWindow), zstd.WithLowerEncoderMem(true))
 	if err != nil {
 		a.Abort()
 		return nil, err
 	}
-	z := &ZstdWriter{file: a, enc: enc, work: make(chan []byte, zstdInFlight), free: make(chan []byte, zstdInFlight+1), done: make(chan error, 1)}
-	go z.compress(z.work)
+	z := &ZstdWriter{file: a, enc: enc}
+	z.start()
 	return z, nil
+}
+
+func (z *ZstdWriter) start() {
+	z.work = make(chan []byte, zstdInFlight)
+	if z.free == nil {
+		z.free = make(chan []byte, zstdInFlight+1)
+	}
+	z.done = make(chan error, 1)
+	go z.compress(z.work)
+}
+
+// Checkpoint ends the current zstd frame and makes everything written so
+// far durable in the temp file. It returns the temp file's path and size;
+// ResumeZstd continues from there. Writing may go on (in a new frame).
+func (z *ZstdWriter) Checkpoint() (string, int64, error) {
+	if err := z.finish(); err != nil {
+		return "", 0, err
+	}
+	if err := z.enc.Close(); err != nil {
+		return "", 0, err
+	}
+	if err := z.file.Flush(); err != nil {
+		return "", 0, err
+	}
+	z.enc.Reset(z.file)
+	z.start()
+	return z.file.TempPath(), z.file.Size(), nil
 }
 
 func (z *ZstdWriter) compress(work <-chan []byte) {
