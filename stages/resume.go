@@ -4,7 +4,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"os"
 	"path/filepath"
 
@@ -145,22 +144,8 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 	r.InputSums, r.Errors, r.ErrCount, r.FatalInputs = cp.Inputs, cp.Errors, cp.ErrCount, cp.FatalInputs
 	// Rebuild the global stage's keys from the spill, in input order.
 	g := r.Steps[segs[cp.Segment].scan].Global
-	sr, err := openDocSpill(cp.Spill)
-	if err != nil {
+	if err := forEachSpilled(cp.Spill, func(d *Doc) error { return g.Collect(d.Order, d.ID, g.Scan(d)) }); err != nil {
 		return err
-	}
-	defer sr.close()
-	for {
-		d, err := sr.next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return err
-		}
-		if err := g.Collect(d.Order, d.ID, g.Scan(d)); err != nil {
-			return err
-		}
 	}
 	if err := g.Reduce(); err != nil {
 		return fmt.Errorf("stage %s: %w", r.Steps[segs[cp.Segment].scan].Name, err)

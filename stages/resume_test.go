@@ -4,13 +4,9 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"os"
 	"path/filepath"
 	"strings"
 	"testing"
-
-	"winnow/configs"
-	"winnow/stages/synth"
 )
 
 // A run stopped after a checkpoint and resumed writes a run directory
@@ -18,16 +14,8 @@ import (
 // after each of the default pipeline's global scans; a run stopped before
 // any checkpoint cannot be resumed and says so.
 func TestResumeMatchesUninterruptedRun(t *testing.T) {
-	dir := t.TempDir()
-	if _, err := synth.Generate(synth.Options{Dir: filepath.Join(dir, "raw"), Docs: 1200, Seed: 5}); err != nil {
-		t.Fatal(err)
-	}
-	os.MkdirAll(filepath.Join(dir, "evals"), 0o755)
-	ev, _ := os.ReadFile(filepath.Join(dir, "raw", "evals", "hull-qa.jsonl"))
-	os.WriteFile(filepath.Join(dir, "evals", "hull-qa.jsonl"), ev, 0o644)
-	spec, _ := configs.FS.ReadFile("default.yaml")
-	p := filepath.Join(dir, "default.yaml")
-	os.WriteFile(p, spec, 0o644)
+	p := defaultSpecFixture(t, 1200, 5)
+	dir := filepath.Dir(p)
 	load := func() *Spec {
 		s, err := LoadSpec(p)
 		if err != nil {

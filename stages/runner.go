@@ -839,43 +839,31 @@ func hashPath(p string) (int64, string, error) {
 
 // produceSpill re-reads the previous segment's spill in order.
 func (r *Runner) produceSpill(ctx context.Context, path string, out chan<- *batch) error {
-	sr, err := openDocSpill(path)
-	if err != nil {
-		return err
-	}
-	defer sr.close()
 	var seq int64
 	cur := &batch{}
 	curBytes := 0
-	for {
-		d, err := sr.next()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return err
-		}
-		cur.items = append(cur.items, item{rec: Record{Doc: d}})
-		curBytes += len(d.Text)
-		r.prog.docs.Add(1)
-		if len(cur.items) >= batchDocs || curBytes >= batchBytes {
-			cur.seq = seq
-			seq++
-			select {
-			case out <- cur:
-			case <-ctx.Done():
-				return ctx.Err()
-			}
-			cur, curBytes = &batch{}, 0
-		}
-	}
-	if len(cur.items) > 0 {
+	send := func() error {
 		cur.seq = seq
+		seq++
 		select {
 		case out <- cur:
 		case <-ctx.Done():
 			return ctx.Err()
 		}
+		cur, curBytes = &batch{}, 0
+		return nil
 	}
-	return nil
+	err := forEachSpilled(path, func(d *Doc) error {
+		cur.items = append(cur.items, item{rec: Record{Doc: d}})
+		curBytes += len(d.Text)
+		r.prog.docs.Add(1)
+		if len(cur.items) >= batchDocs || curBytes >= batchBytes {
+			return send()
+		}
+		return nil
+	})
+	if err == nil && len(cur.items) > 0 {
+		err = send()
+	}
+	return err
 }

@@ -169,3 +169,25 @@ func (r *spillReader) close() {
 	r.dec.Close()
 	r.f.Close()
 }
+
+// forEachSpilled calls fn with every document of a spill, in order,
+// stopping at the first error.
+func forEachSpilled(path string, fn func(*Doc) error) error {
+	sr, err := openDocSpill(path)
+	if err != nil {
+		return err
+	}
+	defer sr.close()
+	for {
+		d, err := sr.next()
+		if err == io.EOF {
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		if err := fn(d); err != nil {
+			return err
+		}
+	}
+}
