@@ -1,7 +1,9 @@
 package main
 
 import (
+	"encoding/json"
 	"fmt"
+	"io"
 	"os"
 	"text/tabwriter"
 
@@ -39,6 +41,9 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 			return err
 		}
 		w := os.Stdout
+		if checkJSON {
+			return printPlanJSON(w, spec, inputs, steps)
+		}
 		var total int64
 		bySource := map[string]int{}
 		for _, in := range inputs {
@@ -97,4 +102,70 @@ func indent(s, pre string) string {
 	return out
 }
 
-func init() { rootCmd.AddCommand(checkCmd) }
+var checkJSON bool
+
+// planStage is one stage of `check --json`.
+type planStage struct {
+	Name     string     `json:"name"`
+	Kind     string     `json:"kind"`
+	Global   bool       `json:"global"`
+	Rules    []planRule `json:"rules,omitempty"`
+	Describe string     `json:"describe,omitempty"`
+}
+
+// planRule is one enabled threshold: keep when metric <op> limit.
+type planRule struct {
+	Rule   string  `json:"rule"`
+	Key    string  `json:"key"`
+	Metric string  `json:"metric"`
+	Keep   string  `json:"keep_when"`
+	Limit  float64 `json:"limit"`
+}
+
+// printPlanJSON prints what `check` found as JSON.
+func printPlanJSON(w io.Writer, spec *stages.Spec, inputs []stages.InputFile, steps []stages.Step) error {
+	type planInput struct {
+		Path   string `json:"path"`
+		Source string `json:"source"`
+		Bytes  int64  `json:"bytes"`
+	}
+	plan := struct {
+		Spec       string      `json:"spec"`
+		Name       string      `json:"name"`
+		Seed       uint64      `json:"seed"`
+		ConfigHash string      `json:"config_hash"`
+		Inputs     []planInput `json:"inputs"`
+		Stages     []planStage `json:"stages"`
+	}{Spec: spec.File, Name: spec.Name, Seed: spec.Seed, ConfigHash: spec.ConfigHash}
+	for _, in := range inputs {
+		plan.Inputs = append(plan.Inputs, planInput{Path: in.Display, Source: in.Spec.Source, Bytes: in.Size})
+	}
+	for _, st := range steps {
+		var obj any = st.Stage
+		ps := planStage{Name: st.Name}
+		if st.Stage != nil {
+			ps.Kind = st.Stage.Kind()
+		} else {
+			obj, ps.Kind, ps.Global = st.Global, st.Global.Kind(), true
+		}
+		if ts, ok := obj.(stages.ThresholdStage); ok {
+			for _, r := range ts.Rules() {
+				if r.Enabled {
+					ps.Rules = append(ps.Rules, planRule{Rule: r.Name, Key: r.Key, Metric: r.Metric, Keep: r.Cmp.String(), Limit: r.Limit})
+				}
+			}
+		}
+		if d, ok := obj.(stages.Describer); ok {
+			ps.Describe = d.Describe()
+		}
+		plan.Stages = append(plan.Stages, ps)
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(plan)
+}
+
+func init() {
+	checkCmd.Flags().BoolVar(&checkJSON, "json", false, "print the plan as JSON")
+	rootCmd.AddCommand(checkCmd)
+}

@@ -2,7 +2,9 @@ package main
 
 import (
 	"bytes"
+	"encoding/json"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 	"strings"
@@ -40,5 +42,42 @@ func TestRunExitStatusOnTruncatedInput(t *testing.T) {
 	m, err := os.ReadFile(filepath.Join(dir, "out", "manifest.json"))
 	if err != nil || !bytes.Contains(m, []byte(`"file": "raw/cut.jsonl.zst"`)) || !bytes.Contains(m, []byte(`"fatal": true`)) {
 		t.Errorf("manifest errors missing: %v", err)
+	}
+}
+
+// check --json lists every stage with its enabled rules.
+func TestCheckJSON(t *testing.T) {
+	dir := t.TempDir()
+	os.WriteFile(filepath.Join(dir, "a.jsonl"), []byte(`{"text":"x"}`+"\n"), 0o644)
+	spec := filepath.Join(dir, "spec.yaml")
+	os.WriteFile(spec, []byte("name: c\ninputs:\n  - source: s\n    paths: [a.jsonl]\nstages:\n  - kind: length\n    min_chars: 9\noutput:\n  dir: out\n"), 0o644)
+	checkJSON = false
+	defer func() { checkJSON = false }()
+	var out bytes.Buffer
+	old := os.Stdout
+	r, w, _ := os.Pipe()
+	os.Stdout = w
+	_, err := runCLI(t, "check", spec, "--json")
+	w.Close()
+	os.Stdout = old
+	io.Copy(&out, r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var plan struct {
+		Stages []struct {
+			Name  string
+			Rules []struct {
+				Rule  string
+				Keep  string `json:"keep_when"`
+				Limit float64
+			}
+		}
+	}
+	if err := json.Unmarshal(out.Bytes(), &plan); err != nil {
+		t.Fatalf("%v: %s", err, out.String())
+	}
+	if len(plan.Stages) != 1 || plan.Stages[0].Name != "length" || len(plan.Stages[0].Rules) != 1 || plan.Stages[0].Rules[0].Limit != 9 || plan.Stages[0].Rules[0].Keep != ">=" {
+		t.Errorf("plan %s", out.String())
 	}
 }
