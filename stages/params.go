@@ -7,6 +7,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"winnow/stages/fsio"
 	"winnow/stages/suggest"
 
 	"gopkg.in/yaml.v3"
@@ -171,6 +172,26 @@ func (p *Params) Int(key string, def, min, max int64) int64 {
 		return def
 	}
 	return i
+}
+
+// Size returns the byte size at key: an integer or a string with a unit
+// ("512MiB", "2GB"), def when absent, with a range check.
+func (p *Params) Size(key string, def, min, max int64) int64 {
+	p.known[key] = true
+	_, v := p.lookup(key)
+	if v == nil {
+		return def
+	}
+	n, err := fsio.ParseSize(v.Value)
+	if v.Kind != yaml.ScalarNode || err != nil {
+		p.errs = append(p.errs, p.errAt(v, key, fmt.Sprintf("want a size such as 4096 or 512MiB, got %q", v.Value)))
+		return def
+	}
+	if n < min || n > max {
+		p.errs = append(p.errs, p.errAt(v, key, fmt.Sprintf("%d bytes is out of range [%d, %d]", n, min, max)))
+		return def
+	}
+	return n
 }
 
 // Bool returns the boolean at key, def when absent.

@@ -82,7 +82,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		p.Errorf("name", "want a non-empty name without slashes or spaces")
 	}
 	s.Seed = uint64(p.Int("seed", 0, 0, 1<<62))
-	s.Memory = p.Int("memory", 1<<30, 1<<10, 1<<44)
+	s.Memory = p.Size("memory", 1<<30, 1<<10, 1<<44)
 	var errs []error
 	inputs := p.List("inputs")
 	if !p.Has("inputs") || len(inputs) == 0 {
@@ -108,7 +108,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 			}
 		}
 		in.TextMode = ip.String("text_mode", "file", "file", "blocks")
-		in.MaxDocBytes = int(ip.Int("max_doc_bytes", DefaultMaxDocBytes, 1<<10, 1<<31))
+		in.MaxDocBytes = int(ip.Size("max_doc_bytes", DefaultMaxDocBytes, 1<<10, 1<<31))
 		if err := ip.Done(); err != nil {
 			errs = append(errs, err)
 		}

@@ -12,6 +12,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"winnow/stages/fsio"
 	"winnow/stages/synth"
 )
 
@@ -78,7 +79,7 @@ func runGen(cmd *cobra.Command, args []string) error {
 		NearJaccard: genOpts.nearJaccard, Files: genOpts.files, OmitTruthDocs: true,
 	}
 	if genOpts.bytes != "" {
-		n, err := synth.ParseSize(genOpts.bytes)
+		n, err := fsio.ParseSize(genOpts.bytes)
 		if err != nil {
 			return fmt.Errorf("--bytes: %w", err)
 		}

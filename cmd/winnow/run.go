@@ -12,6 +12,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"winnow/stages"
+	"winnow/stages/fsio"
 )
 
 type runFlags struct {
@@ -88,9 +89,12 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	}
 	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	mem, err := parseBytes(f.memory)
-	if err != nil {
-		return nil, fmt.Errorf("--memory: %w", err)
+	var mem int64
+	if f.memory != "" {
+		var err error
+		if mem, err = fsio.ParseSize(f.memory); err != nil {
+			return nil, fmt.Errorf("--memory: %w", err)
+		}
 	}
 	if f.cpuProfile != "" {
 		pf, err := os.Create(f.cpuProfile)

@@ -4,8 +4,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"strconv"
-	"strings"
 	"text/tabwriter"
 
 	"winnow/stages"
@@ -30,31 +28,6 @@ func printStageTable(w io.Writer, m *stages.Manifest, asJSON bool) error {
 			audit.Group(c.Dropped), audit.Group(c.Edited), float64(c.BytesIn)/1e6, float64(c.BytesOut)/1e6, toks, c.Seconds)
 	}
 	return tw.Flush()
-}
-
-// parseBytes parses sizes like 512MiB, 2GB, 1e9 or 4096 ("" is 0).
-func parseBytes(s string) (int64, error) {
-	s = strings.TrimSpace(s)
-	if s == "" {
-		return 0, nil
-	}
-	units := []struct {
-		suf string
-		mul float64
-	}{{"KiB", 1 << 10}, {"MiB", 1 << 20}, {"GiB", 1 << 30}, {"TiB", 1 << 40}, {"KB", 1e3}, {"MB", 1e6}, {"GB", 1e9}, {"TB", 1e12}, {"K", 1 << 10}, {"M", 1 << 20}, {"G", 1 << 30}, {"B", 1}}
-	mul := 1.0
-	for _, u := range units {
-		if strings.HasSuffix(strings.ToUpper(s), strings.ToUpper(u.suf)) {
-			s = strings.TrimSpace(s[:len(s)-len(u.suf)])
-			mul = u.mul
-			break
-		}
-	}
-	f, err := strconv.ParseFloat(s, 64)
-	if err != nil || f < 0 {
-		return 0, fmt.Errorf("want a size like 512MiB, got %q", s)
-	}
-	return int64(f * mul), nil
 }
 
 // printShardTable prints each output shard's documents, tokens and

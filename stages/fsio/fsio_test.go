@@ -125,3 +125,21 @@ func TestZstdCheckpointResume(t *testing.T) {
 		t.Error("resumed stream does not decode to both parts")
 	}
 }
+
+// Sizes in decimal and binary units, as disk and memory sizes are written
+// (IEC 80000-13 prefixes: KiB = 1024 bytes, kB = 1000 bytes).
+func TestParseSize(t *testing.T) {
+	for in, want := range map[string]int64{
+		"500MB": 500e6, "2GiB": 2 << 30, "1.5G": 1.5e9, "4096": 4096, "64 KiB": 64 << 10, "10kb": 10e3, "3b": 3,
+	} {
+		got, err := ParseSize(in)
+		if err != nil || got != want {
+			t.Errorf("ParseSize(%q) = %d, %v; want %d", in, got, err, want)
+		}
+	}
+	for _, in := range []string{"", "MB", "-5MB", "five", "1e400"} {
+		if _, err := ParseSize(in); err == nil {
+			t.Errorf("ParseSize(%q): no error", in)
+		}
+	}
+}

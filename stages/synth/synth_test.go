@@ -789,22 +789,6 @@ func TestOptionErrors(t *testing.T) {
 	}
 }
 
-func TestParseSize(t *testing.T) {
-	for in, want := range map[string]int64{
-		"500MB": 500e6, "2GiB": 2 << 30, "1.5G": 1.5e9, "4096": 4096, "64 KiB": 64 << 10, "10kb": 10e3, "3b": 3,
-	} {
-		got, err := ParseSize(in)
-		if err != nil || got != want {
-			t.Errorf("ParseSize(%q) = %d, %v; want %d", in, got, err, want)
-		}
-	}
-	for _, in := range []string{"", "MB", "-5MB", "five", "1e400"} {
-		if _, err := ParseSize(in); err == nil {
-			t.Errorf("ParseSize(%q): no error", in)
-		}
-	}
-}
-
 func TestShingleJaccard(t *testing.T) {
 	a := "The quick brown fox jumps over the lazy dog."
 	if j := ShingleJaccard(a, a, 5); j != 1 {
