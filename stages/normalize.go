@@ -59,8 +59,29 @@ func (s *normalizeStage) Process(d *Doc) Decision {
 // changes by kind (nil when nothing changed).
 func NormalizeText(text string, form norm.Form, collapseSpaces bool, maxBlank int) (string, map[string]int) {
 	var changes map[string]int
-	if !isCleanFast(text, collapseSpaces, maxBlank) {
-		text = cleanLines(text, collapseSpaces, maxBlank, &changes)
+	// One final newline is how most text files and many JSONL writers end
+	// a document: it is kept, and only extra ones count as a change.
+	body, final := strings.CutSuffix(text, "\n")
+	crlf := false
+	if final {
+		body, crlf = strings.CutSuffix(body, "\r")
+	}
+	if final && body == "" {
+		return "", map[string]int{"trailing_newlines": 1}
+	}
+	if crlf {
+		changes = map[string]int{"line_endings": 1}
+	}
+	if crlf || !isCleanFast(body, collapseSpaces, maxBlank) {
+		body = cleanLines(body, collapseSpaces, maxBlank, &changes)
+		if final && body == "" {
+			final = false
+		}
+		if final {
+			text = body + "\n"
+		} else {
+			text = body
+		}
 	}
 	if !isASCII(text) && !form.IsNormalString(text) {
 		n := form.String(text)

@@ -20,7 +20,11 @@ func TestNormalizeText(t *testing.T) {
 		{"a\n\n\n\n\nb", "a\n\nb", map[string]int{"blank_lines": 3}},
 		{"\n\nlead", "lead", map[string]int{"blank_lines": 2}},
 		{"bell\x07 nul\x00 zw\u200bsp", "bell nul zwsp", map[string]int{"control_chars": 3}},
-		{"end\n", "end", map[string]int{"trailing_newlines": 1}},
+		{"end\n", "end\n", nil},
+		{"end\n\n\n", "end\n", map[string]int{"trailing_newlines": 2}},
+		{"\n", "", map[string]int{"trailing_newlines": 1}},
+		{"a\r\n", "a\n", map[string]int{"line_endings": 1}},
+		{"one  two\n", "one two\n", map[string]int{"spaces_collapsed": 1}},
 		{"", "", nil},
 	}
 	for _, c := range cases {
@@ -44,7 +48,7 @@ func TestNormalizeText(t *testing.T) {
 		t.Errorf("NFKC: %q", got)
 	}
 	// Already-clean text takes the fast path and allocates nothing.
-	clean := "The keel bolts were torqued.\n\nThe rudder was checked."
+	clean := "The keel bolts were torqued.\n\nThe rudder was checked.\n"
 	if n := testing.AllocsPerRun(100, func() { NormalizeText(clean, norm.NFC, true, 1) }); n != 0 {
 		t.Errorf("clean text: %v allocations", n)
 	}
