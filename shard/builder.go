@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 	"sort"
 	"strconv"
+
 	"winnow/stages/jsonl"
 
 	"github.com/zeebo/xxh3"

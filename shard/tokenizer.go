@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"strings"
 	"sync"
+
 	"winnow/stages/suggest"
 
 	"github.com/tiktoken-go/tokenizer"

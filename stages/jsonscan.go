@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"unicode/utf16"
 	"unicode/utf8"
+
 	"winnow/stages/jsonl"
 )
 

@@ -4,6 +4,7 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
+
 	"winnow/stages/jsonl"
 
 	"winnow/stages/fsio"

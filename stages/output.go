@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"path/filepath"
 	"sort"
+
 	"winnow/stages/jsonl"
 
 	"winnow/shard"

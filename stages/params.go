@@ -7,6 +7,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+
 	"winnow/stages/fsio"
 	"winnow/stages/suggest"
 

@@ -8,6 +8,8 @@ import (
 	"path/filepath"
 	"runtime"
 	"time"
+
+	"gopkg.in/yaml.v3"
 )
 
 // RunOptions are the command-line choices of one run.
@@ -54,9 +56,10 @@ func ApplySets(s *Spec, sets []string) error {
 			return fmt.Errorf("--set %q: want STAGE.KEY=VALUE", set)
 		}
 		found := false
-		for _, sp := range s.Stages {
+		for i, sp := range s.Stages {
 			if sp.Name == st || sp.Kind == st {
 				sp.Params.SetOverride(key, v)
+				s.setConfig(i, key, v)
 				found = true
 			}
 		}
@@ -64,7 +67,33 @@ func ApplySets(s *Spec, sets []string) error {
 			return fmt.Errorf("--set %q: the spec has no stage %q", set, st)
 		}
 	}
+	if len(sets) > 0 {
+		s.hashConfig()
+	}
 	return nil
+}
+
+// setConfig records an override in the plain-data config written to the
+// manifest, so the manifest and config hash describe what really ran.
+func (s *Spec) setConfig(stage int, key, value string) {
+	m, ok := s.Config.(map[string]any)
+	if !ok {
+		return
+	}
+	list, ok := m["stages"].([]any)
+	if !ok || stage >= len(list) {
+		return
+	}
+	entry, ok := list[stage].(map[string]any)
+	if !ok {
+		return
+	}
+	var v any = value
+	var parsed any
+	if err := yaml.Unmarshal([]byte(value), &parsed); err == nil && parsed != nil {
+		v = jsonable(parsed)
+	}
+	entry[key] = v
 }
 
 func cutString(s, sep string) (string, string, bool) {

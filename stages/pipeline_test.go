@@ -304,3 +304,26 @@ func TestRunFromStdin(t *testing.T) {
 		t.Errorf("stdin ids: %.200s", shard)
 	}
 }
+
+// A --set override is part of the manifest's config and config hash, so
+// the manifest says what really ran.
+func TestSetOverrideRecordedInConfig(t *testing.T) {
+	dir := writeCorpus(t, 50)
+	s := writeSpec(t, dir, basicSpec)
+	base := s.ConfigHash
+	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out"), Sets: []string{"length.min_chars=40"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Manifest.ConfigHash == base {
+		t.Error("config hash unchanged by --set")
+	}
+	st := res.Manifest.Config.(map[string]any)["stages"].([]any)[1].(map[string]any)
+	if st["min_chars"] != 40 {
+		t.Errorf("config stage %v", st)
+	}
+	led := readZstd(t, filepath.Join(dir, "out", "ledger", "length.jsonl.zst"))
+	if !strings.Contains(led, `"limit":40`) {
+		t.Errorf("override not applied: %.200s", led)
+	}
+}

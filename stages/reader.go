@@ -10,6 +10,7 @@ import (
 	"strconv"
 	"strings"
 	"unicode/utf8"
+
 	"winnow/stages/jsonl"
 )
 

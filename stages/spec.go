@@ -188,12 +188,21 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	s.Config = jsonable(plain)
-	canon, err := json.Marshal(s.Config)
-	if err != nil {
+	if err := s.hashConfig(); err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
-	s.ConfigHash = fmt.Sprintf("%016x", xxh3.Hash(canon))
 	return s, nil
+}
+
+// hashConfig sets ConfigHash to the xxh3 of the config's canonical JSON
+// (encoding/json sorts map keys).
+func (s *Spec) hashConfig() error {
+	canon, err := json.Marshal(s.Config)
+	if err != nil {
+		return err
+	}
+	s.ConfigHash = fmt.Sprintf("%016x", xxh3.Hash(canon))
+	return nil
 }
 
 // jsonable converts YAML-decoded maps (map[string]any with nested

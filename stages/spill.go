@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+
 	"winnow/stages/jsonl"
 
 	"github.com/klauspost/compress/zstd"

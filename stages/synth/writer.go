@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
+
 	"winnow/stages/jsonl"
 
 	"github.com/klauspost/compress/gzip"
