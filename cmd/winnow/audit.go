@@ -45,8 +45,10 @@ values are shown.
 
 --html FILE writes one self-contained HTML report (no network access,
 no scripts): the flow, a histogram per metric with its thresholds, the
-removals per rule and source, the contamination table and a sample of
-removed documents with their reasons.`,
+removals per rule and source, a what-if sweep of every threshold (the
+documents reaching the output at a few limits around the run's, computed
+from stored metrics as winnow whatif --sweep does, estimates marked), the
+contamination table and a sample of removed documents with their reasons.`,
 	Example: `  winnow audit out/
   winnow audit out/ --json | jq '.rules[] | select(.stage=="quality")'
   winnow audit out/ --rule dup_line_frac --samples 3

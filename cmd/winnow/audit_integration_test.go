@@ -258,6 +258,10 @@ type pageData struct {
 		Parts      int    `json:"parts"`
 		Thresholds int    `json:"thresholds"`
 		Children   int    `json:"children"`
+		// Points/Estimates/Docs are a what-if chart's circles.
+		Points    int      `json:"points"`
+		Estimates int      `json:"estimates"`
+		Docs      []string `json:"docs"`
 	} `json:"charts"`
 	Width  int `json:"width"`
 	Scroll int `json:"scroll"`
@@ -269,7 +273,10 @@ const pageScript = `JSON.stringify({
     chart: s.dataset.chart,
     parts: s.querySelectorAll('rect.kept, rect.removed, rect.other, rect.edited, rect[class^="s"]').length,
     thresholds: s.querySelectorAll('line.threshold').length,
-    children: s.children.length})),
+    children: s.children.length,
+    points: s.querySelectorAll('circle.pt').length,
+    estimates: s.querySelectorAll('circle.pt.est').length,
+    docs: [...s.querySelectorAll('circle.pt')].map(c => c.dataset.docs)})),
   width: document.documentElement.clientWidth,
   scroll: document.documentElement.scrollWidth})`
 
@@ -400,6 +407,58 @@ func TestAuditReportInBrowser(t *testing.T) {
 		need("hist:"+hm["stage"].(string)+"."+hm["metric"].(string), parts, len(hm["thresholds"].([]any)))
 	}
 
+	// Every what-if sweep is drawn: one point per sweep value at the
+	// documents the JSON says reach the output, hollow where the JSON
+	// says the point is not exact, and the run's limit marked.
+	wi, _ := js["whatif"].(map[string]any)
+	sweeps, _ := wi["sweeps"].([]any)
+	if len(sweeps) == 0 {
+		t.Fatal("no what-if sweeps in the JSON")
+	}
+	for _, sw := range sweeps {
+		sm := sw.(map[string]any)
+		name := "whatif:" + sm["stage"].(string) + "/" + sm["key"].(string)
+		need(name, 0, 1)
+		i, ok := charts[name]
+		if !ok {
+			continue
+		}
+		c := pd.Charts[i]
+		var docs []string
+		est, run := 0, false
+		for _, p := range sm["points"].([]any) {
+			pm := p.(map[string]any)
+			docs = append(docs, strconv.FormatInt(jnum(pm["docs_kept"]), 10))
+			if pm["exact"] != true {
+				est++
+			}
+			if pm["value"] == sm["run_limit"] {
+				run = jnum(pm["docs_kept"]) == jnum(sm["docs_kept_run"])
+			}
+		}
+		if c.Points != len(docs) || c.Estimates != est || strings.Join(c.Docs, " ") != strings.Join(docs, " ") {
+			t.Errorf("chart %s: %d points (%d hollow) at %q, JSON %d (%d estimates) at %q", name, c.Points, c.Estimates, c.Docs, len(docs), est, docs)
+		}
+		if !run {
+			t.Errorf("%s: the run's own limit is not a point of its sweep, or gives other than the run's documents", name)
+		}
+	}
+	// At the run's own limits nothing changes: the engine reproduces the
+	// run, so each sweep's run point equals the documents that reached
+	// the writer (the flow's "write" row; a mix may sample fewer).
+	var toWriter int64 = -1
+	for _, f := range js["flow"].([]any) {
+		if fm := f.(map[string]any); fm["stage"] == "write" {
+			toWriter = jnum(fm["docs_in"])
+		}
+	}
+	for _, sw := range sweeps {
+		sm := sw.(map[string]any)
+		if got := jnum(sm["docs_kept_run"]); got != toWriter {
+			t.Errorf("sweep %s.%s: %d documents at the run's limit, %d reached the writer in the run", sm["stage"], sm["key"], got, toWriter)
+		}
+	}
+
 	// At phone width the page stays one column wide.
 	if err := chromedp.Do(tab, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
 		t.Fatal(err)
@@ -490,6 +549,26 @@ func lookupJSON(js map[string]any, key string) (int64, bool) {
 			if p := hm["stage"].(string) + "." + hm["metric"].(string) + "."; strings.HasPrefix(parts[1], p) {
 				return field(hm, strings.TrimPrefix(parts[1], p))
 			}
+		}
+		return 0, false
+	case "whatif":
+		// whatif.STAGE/KEY/POINT.FIELD
+		i := strings.LastIndex(parts[1], ".")
+		id, f := parts[1][:i], parts[1][i+1:]
+		j := strings.LastIndex(id, "/")
+		k, err := strconv.Atoi(id[j+1:])
+		wi, _ := js["whatif"].(map[string]any)
+		sweeps, _ := wi["sweeps"].([]any)
+		for _, sw := range sweeps {
+			sm := sw.(map[string]any)
+			if sm["stage"].(string)+"/"+sm["key"].(string) != id[:j] {
+				continue
+			}
+			pts := sm["points"].([]any)
+			if err != nil || k < 0 || k >= len(pts) {
+				return 0, false
+			}
+			return field(pts[k].(map[string]any), f)
 		}
 		return 0, false
 	case "contam":

@@ -39,6 +39,9 @@ func BuildReport(r *Run, opt ReportOptions) (*Report, error) {
 	if err != nil {
 		return nil, err
 	}
+	if s.WhatIf, err = buildWhatIf(r, s); err != nil {
+		return nil, err
+	}
 	rep := &Report{Summary: s, Samples: map[string][]*Sample{}}
 	var picks []pick
 	var labels []string
@@ -126,6 +129,15 @@ svg.hist .removed-side{fill:var(--side)}
 svg.hist .threshold{stroke:#1d2430;stroke-width:1.5;stroke-dasharray:4 3}
 svg.hist .threshold.off{stroke:#98a0ad;stroke-dasharray:1 3}
 svg.hist .tlbl{fill:#1d2430;font-weight:600}
+svg.sweep .curve{fill:none;stroke:var(--kept);stroke-width:1.8}
+svg.sweep .pt{fill:var(--kept);stroke:var(--kept);stroke-width:1.5}
+svg.sweep .pt.est{fill:#fff}
+.wt{overflow-x:auto;margin-top:6px}
+.wt table{font-size:.78rem;background:#fff}
+.wt th,.wt td{padding:2px 5px}
+.wt .tag{margin:0 2px 0 0;font-size:.7rem}
+.wt tr.run td{font-weight:600}
+.tag.est{background:#fdeee3;color:#9a3b12}
 details{border:1px solid var(--line);border-radius:8px;margin:8px 0;background:#fff}
 details>summary{cursor:pointer;padding:8px 12px;font-weight:600;list-style-position:inside}
 details .body{padding:0 12px 10px}
@@ -187,12 +199,13 @@ func (rep *Report) WriteHTML(out io.Writer) error {
 		h.w(`<div class="kpi"><b>%s</b><span>eval items found in the corpus</span></div>`, num("contam.items_contaminated", int64(items)))
 	}
 	h.s(`</div></header>`)
-	h.s(`<nav><a href="#flow">Flow</a><a href="#rules">Removals by rule</a><a href="#sources">By source</a><a href="#metrics">Metrics</a><a href="#contamination">Contamination</a><a href="#samples">Removed documents</a><a href="#inputs">Inputs &amp; errors</a></nav>`)
+	h.s(`<nav><a href="#flow">Flow</a><a href="#rules">Removals by rule</a><a href="#sources">By source</a><a href="#metrics">Metrics</a><a href="#whatif">What-if</a><a href="#contamination">Contamination</a><a href="#samples">Removed documents</a><a href="#inputs">Inputs &amp; errors</a></nav>`)
 
 	rep.flowSection(h)
 	rep.rulesSection(h)
 	rep.sourcesSection(h)
 	rep.metricsSection(h)
+	rep.whatifSection(h)
 	rep.contamSection(h)
 	rep.samplesSection(h)
 	rep.inputsSection(h)

@@ -36,6 +36,8 @@ type Summary struct {
 	// UnplacedRecords counts ledger records whose file is not a run
 	// input (they are not in any other number).
 	UnplacedRecords int64 `json:"unplaced_records,omitempty"`
+	// WhatIf is the report's limit sweeps (filled by BuildReport only).
+	WhatIf *ReportWhatIf `json:"whatif,omitempty"`
 }
 
 // FlowRow is one stage of the document and token flow. Token figures

@@ -189,6 +189,9 @@ type SweepPoint struct {
 	NewlyRemoved   int64 `json:"newly_removed"`
 	NewlyKept      int64 `json:"newly_kept"`
 	Estimated      int64 `json:"estimated_docs"`
+	// Exact is false when the point rests on an assumption (estimated
+	// documents, or a global stage whose input changed).
+	Exact bool `json:"exact"`
 }
 
 // Check is the recomputation of one stage at the run's own limits.
@@ -752,6 +755,7 @@ func (e *engine) run(w *WhatIf, scs []*scenario) error {
 		if pt := sc.point; pt != nil {
 			pt.DocsKept, pt.TokensKept = res.DocsKept, res.TokensKept
 			pt.NewlyRemoved, pt.NewlyKept, pt.Estimated = res.NewlyRemoved, res.NewlyKept, res.Estimated
+			pt.Exact = res.Exact
 			pt.RemovedByStage = sc.stepRemoved[sc.sweepStep]
 		}
 	}
