@@ -111,16 +111,28 @@ func TestShinglesShortAndEmpty(t *testing.T) {
 }
 
 func TestSignatureZeroAllocs(t *testing.T) {
-	if raceEnabled {
-		t.Skip("the race detector makes sync.Pool drop scratch buffers")
-	}
 	m, _ := NewMinHasher(128, 5, 7)
-	text := randomText(rand.New(rand.NewPCG(1, 1)), 500)
+	rng := rand.New(rand.NewPCG(1, 1))
+	short, long := randomText(rng, 500), randomText(rng, 20000)
 	sig := make([]uint32, 0, 128)
-	m.Signature(text, sig) // warm the scratch pool
-	allocs := testing.AllocsPerRun(50, func() { sig, _ = m.Signature(text, sig[:0]) })
-	if allocs > 0 {
-		t.Fatalf("Signature allocates %.1f times per call, want 0", allocs)
+	m.Signature(long, sig) // warm the scratch pool
+	allocs := func(text string) float64 {
+		return testing.AllocsPerRun(50, func() { sig, _ = m.Signature(text, sig[:0]) })
+	}
+	a, b := allocs(short), allocs(long)
+	if raceEnabled {
+		// The race detector makes sync.Pool drop scratch buffers at
+		// random, so a call may allocate its scratch slices again, which
+		// regrow by doubling (about log2 of the words each). What must
+		// still hold is that nothing is allocated per word: 20,000 words
+		// stay far below one allocation per word.
+		if a > 40 || b > 40 {
+			t.Fatalf("Signature allocates %.1f times for 500 words, %.1f for 20,000", a, b)
+		}
+		return
+	}
+	if a > 0 || b > 0 {
+		t.Fatalf("Signature allocates %.1f / %.1f times per call, want 0", a, b)
 	}
 }
 

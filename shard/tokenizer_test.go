@@ -262,7 +262,13 @@ func FuzzCl100kMatchesReference(f *testing.F) {
 		}{{tok, reference(t, "cl100k_base")}, {o2, reference(t, "o200k_base")}} {
 			n, err := c.ref.Count(s)
 			if err != nil {
-				t.Skip()
+				// The reference gives no answer here (its regex engine
+				// failed): check what can be checked without it, that
+				// counting and encoding agree.
+				if got, ids := c.tok.Count(s), c.tok.Encode(s, nil); got != len(ids) {
+					t.Fatalf("%s %q: Count %d, Encode %d ids (reference: %v)", c.tok.Name(), s, got, len(ids), err)
+				}
+				continue
 			}
 			if got := c.tok.Count(s); got != n {
 				t.Fatalf("%s %q: %d, reference %d", c.tok.Name(), s, got, n)

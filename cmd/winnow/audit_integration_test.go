@@ -5,6 +5,7 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
+	"image/png"
 	"io"
 	"os"
 	"os/exec"
@@ -596,15 +597,14 @@ func lookupJSON(js map[string]any, key string) (int64, bool) {
 	return 0, false
 }
 
-// TestDemoReportScreenshot writes docs/audit-report.png (and, with
-// WINNOW_SCREENSHOT_PHONE=FILE, a 390 px wide phone view) from the demo's
-// report. It runs only with WINNOW_SCREENSHOT=1:
+// TestDemoReportScreenshot renders the demo's report in the browser at
+// 1280 px and checks the picture is a real page (the right size, not one
+// blank colour). With WINNOW_SCREENSHOT=1 it also writes the picture to
+// docs/audit-report.png (and, with WINNOW_SCREENSHOT_PHONE=FILE, a 390 px
+// wide phone view):
 //
 //	WINNOW_SCREENSHOT=1 go test ./cmd/winnow -run TestDemoReportScreenshot
 func TestDemoReportScreenshot(t *testing.T) {
-	if os.Getenv("WINNOW_SCREENSHOT") == "" {
-		t.Skip("set WINNOW_SCREENSHOT=1 to regenerate docs/audit-report.png")
-	}
 	run := demoRunDir(t)
 	tab, _ := browser(t)
 	shot := func(w, h int64, mobile bool, path string, full bool) {
@@ -615,22 +615,48 @@ func TestDemoReportScreenshot(t *testing.T) {
 		if err := chromedp.Do(tab, chromedp.EmulateViewport(w, h, opts...), chromedp.Navigate("file://"+filepath.Join(run, "report.html"))); err != nil {
 			t.Fatal(err)
 		}
-		var png []byte
+		var pic []byte
 		var err error
 		if full {
-			png, err = chromedp.Run(tab, chromedp.FullScreenshot(100))
+			pic, err = chromedp.Run(tab, chromedp.FullScreenshot(100))
 		} else {
-			png, err = chromedp.Run(tab, chromedp.CaptureScreenshot())
+			pic, err = chromedp.Run(tab, chromedp.CaptureScreenshot())
 		}
 		if err != nil {
 			t.Fatal(err)
 		}
-		if err := os.WriteFile(path, png, 0o644); err != nil {
+		if err := os.WriteFile(path, pic, 0o644); err != nil {
 			t.Fatal(err)
 		}
 		t.Logf("wrote %s", path)
 	}
-	shot(1280, 2000, false, filepath.Join("..", "..", "docs", "audit-report.png"), false)
+	out := filepath.Join(t.TempDir(), "report.png")
+	if os.Getenv("WINNOW_SCREENSHOT") != "" {
+		out = filepath.Join("..", "..", "docs", "audit-report.png")
+	}
+	shot(1280, 2000, false, out, false)
+	f, err := os.Open(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	img, err := png.Decode(f)
+	if err != nil {
+		t.Fatalf("screenshot is not a PNG: %v", err)
+	}
+	if b := img.Bounds(); b.Dx() != 1280 || b.Dy() != 2000 {
+		t.Errorf("screenshot is %dx%d, want 1280x2000", b.Dx(), b.Dy())
+	}
+	colours := map[[3]uint32]bool{}
+	for y := img.Bounds().Min.Y; y < img.Bounds().Max.Y; y += 7 {
+		for x := img.Bounds().Min.X; x < img.Bounds().Max.X; x += 7 {
+			r, g, b, _ := img.At(x, y).RGBA()
+			colours[[3]uint32{r >> 8, g >> 8, b >> 8}] = true
+		}
+	}
+	if len(colours) < 20 {
+		t.Errorf("screenshot has %d colours: the page did not render", len(colours))
+	}
 	if p := os.Getenv("WINNOW_SCREENSHOT_PHONE"); p != "" {
 		shot(390, 844, true, p, true)
 	}
