@@ -39,6 +39,18 @@ func newGlobal(t *testing.T, kind string, params map[string]any, env Env) Global
 // Reduce, Apply. It returns each decision rendered as a ledger-like line.
 func runGlobal(t *testing.T, g GlobalStage, docs []*Doc, workers int) []string {
 	t.Helper()
+	reduceGlobal(t, g, docs, workers)
+	out := make([]string, len(docs))
+	for i, d := range docs {
+		out[i] = renderDecision(g.Apply(d))
+	}
+	return out
+}
+
+// reduceGlobal runs Scan on `workers` goroutines in a shuffled order,
+// Collect in input order, and Reduce.
+func reduceGlobal(t *testing.T, g GlobalStage, docs []*Doc, workers int) {
+	t.Helper()
 	keys := make([]any, len(docs))
 	perm := rand.New(rand.NewPCG(uint64(workers), 17)).Perm(len(docs))
 	var wg sync.WaitGroup
@@ -60,11 +72,6 @@ func runGlobal(t *testing.T, g GlobalStage, docs []*Doc, workers int) []string {
 	if err := g.Reduce(); err != nil {
 		t.Fatal(err)
 	}
-	out := make([]string, len(docs))
-	for i, d := range docs {
-		out[i] = renderDecision(g.Apply(d))
-	}
-	return out
 }
 
 func renderDecision(dec Decision) string {
@@ -332,26 +339,7 @@ func TestDedupAgainstSynthTruth(t *testing.T) {
 	canonical := func(kind string, params map[string]any) map[string]string {
 		g := newGlobal(t, kind, params, Env{Seed: 21, MemoryBudget: 1 << 16})
 		defer g.Close()
-		keys := make([]any, len(docs))
-		var wg sync.WaitGroup
-		for w := 0; w < 2; w++ {
-			wg.Add(1)
-			go func(w int) {
-				defer wg.Done()
-				for i := w; i < len(docs); i += 2 {
-					keys[i] = g.Scan(docs[i])
-				}
-			}(w)
-		}
-		wg.Wait()
-		for i, d := range docs {
-			if err := g.Collect(d.Order, d.ID, keys[i]); err != nil {
-				t.Fatal(err)
-			}
-		}
-		if err := g.Reduce(); err != nil {
-			t.Fatal(err)
-		}
+		reduceGlobal(t, g, docs, 2)
 		c := map[string]string{}
 		for _, d := range docs {
 			c[d.ID] = d.ID

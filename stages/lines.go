@@ -7,7 +7,7 @@ import (
 // linesStage applies the line-level cleaning of Raffel et al. 2020
 // (section 2.2; values from memory, see package filters): it removes
 // lines without terminal punctuation (or ending in an ellipsis), lines of
-// fewer than min_words_per_line (5) words, lines with a word longer than
+// fewer than min_line_words (5) words, lines with a word longer than
 // max_word_len (1000) characters, lines mentioning javascript and
 // policy-notice lines, and deletes citation markers. Removing lines is an
 // edit whose changes count each reason:
@@ -44,12 +44,12 @@ func init() {
 
 func newLines(p *Params, env Env) (Stage, error) {
 	s := &linesStage{opt: filters.LineOptions{
-		MinWords:        int(p.Int("min_words_per_line", filters.C4MinWordsPerLine, 0, 1<<20)),
+		MinWords:        int(p.Int("min_line_words", filters.C4MinWordsPerLine, 0, 1<<20)),
 		MaxWordLen:      int(p.Int("max_word_len", filters.C4MaxWordLen, 0, 1<<30)),
 		RequireTerminal: p.Bool("require_terminal_punct", true),
 		DropJavascript:  p.Bool("drop_javascript", true),
 		DropPolicy:      p.Bool("drop_policy", true),
-		RemoveCitations: p.Bool("remove_citations", true),
+		RemoveCitations: p.Bool("strip_citations", true),
 	}}
 	lorem := p.Bool("drop_lorem_ipsum", true)
 	curly := p.Bool("drop_curly_brace", true)

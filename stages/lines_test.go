@@ -97,7 +97,7 @@ func TestLinesParams(t *testing.T) {
 			t.Errorf("%v: no error", p)
 		}
 	}
-	st := linesStageT(t, map[string]any{"min_words_per_line": 3, "require_terminal_punct": false})
+	st := linesStageT(t, map[string]any{"min_line_words": 3, "require_terminal_punct": false})
 	dec := expect(t, st, threeSentences+"\nCall us today\nHi", "")
 	if dec.Changes["lines_short"] != 1 || !strings.Contains(dec.Text, "Call us today") {
 		t.Fatalf("%v %q", dec.Changes, dec.Text)

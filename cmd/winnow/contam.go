@@ -79,24 +79,21 @@ func init() {
 	fl.BoolVarP(&f.quiet, "quiet", "q", false, "no progress line")
 	contamCmd.MarkFlagRequired("eval")
 	rootCmd.AddCommand(contamCmd)
+}
 
-	// The demo shows the leaked items its decontaminate stage found.
-	prev := demoReport
-	demoReport = func(res *stages.RunResult) error {
-		if err := prev(res); err != nil {
-			return err
-		}
-		path := filepath.Join(res.Dir, "contamination.json")
-		if _, err := os.Stat(path); err != nil {
-			return nil
-		}
-		r, err := stages.ReadContamReport(path)
-		if err != nil {
-			return err
-		}
-		fmt.Printf("\ncontamination (%s):\n", path)
-		return r.WriteTableN(os.Stdout, demoContamItems)
+// printDemoContamination shows the leaked items the demo's decontaminate
+// stage found (nothing when the run has no contamination report).
+func printDemoContamination(res *stages.RunResult) error {
+	path := filepath.Join(res.Dir, "contamination.json")
+	if _, err := os.Stat(path); err != nil {
+		return nil
 	}
+	r, err := stages.ReadContamReport(path)
+	if err != nil {
+		return err
+	}
+	fmt.Printf("\ncontamination (%s):\n", path)
+	return r.WriteTableN(os.Stdout, demoContamItems)
 }
 
 // demoContamItems is the number of contaminated items the demo lists per
