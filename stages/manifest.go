@@ -113,13 +113,9 @@ const runMarker = ".winnow-run"
 // ready: a directory holding a different run (or anything that is not a
 // winnow run) is refused unless force; a directory that contains one of
 // the inputs is always refused. It returns the temp directory for spills.
-func PrepareRunDir(dir string, s *Spec, inputs []InputFile, force bool) (string, error) {
-	return prepareRunDir(dir, s, inputs, force, false)
-}
-
-// prepareRunDir is PrepareRunDir; with resume it keeps the interrupted
-// run's ledger, metrics and work files (and refuses a different run).
-func prepareRunDir(dir string, s *Spec, inputs []InputFile, force, resume bool) (string, error) {
+// With resume it keeps the interrupted run's ledger, metrics and work
+// files instead (and refuses a directory holding another run).
+func PrepareRunDir(dir string, s *Spec, inputs []InputFile, force, resume bool) (string, error) {
 	abs, err := filepath.Abs(dir)
 	if err != nil {
 		return "", err

@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"strings"
 	"time"
 
 	"gopkg.in/yaml.v3"
@@ -47,11 +48,11 @@ type RunResult struct {
 // an unknown key is reported when the stage is built.
 func ApplySets(s *Spec, sets []string) error {
 	for _, set := range sets {
-		k, v, ok := cutString(set, "=")
+		k, v, ok := strings.Cut(set, "=")
 		if !ok {
 			return fmt.Errorf("--set %q: want STAGE.KEY=VALUE", set)
 		}
-		st, key, ok := cutString(k, ".")
+		st, key, ok := strings.Cut(k, ".")
 		if !ok {
 			return fmt.Errorf("--set %q: want STAGE.KEY=VALUE", set)
 		}
@@ -96,15 +97,6 @@ func (s *Spec) setConfig(stage int, key, value string) {
 	entry[key] = v
 }
 
-func cutString(s, sep string) (string, string, bool) {
-	for i := 0; i+len(sep) <= len(s); i++ {
-		if s[i:i+len(sep)] == sep {
-			return s[:i], s[i+len(sep):], true
-		}
-	}
-	return s, "", false
-}
-
 // RunSpec runs a loaded spec end to end: resolve inputs, prepare the run
 // directory, build stages and sink, run, and write the manifest. On
 // interruption the manifest is written with interrupted=true and the error
@@ -124,7 +116,7 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 	if out == "" {
 		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
 	}
-	tmp, err := prepareRunDir(out, s, inputs, opt.Force, opt.Resume)
+	tmp, err := PrepareRunDir(out, s, inputs, opt.Force, opt.Resume)
 	if err != nil {
 		return nil, err
 	}

@@ -11,6 +11,8 @@ import (
 	"sync"
 	"sync/atomic"
 	"time"
+
+	"winnow/stages/fsio"
 )
 
 // The runner splits a pipeline into segments at its global stages. A
@@ -288,6 +290,7 @@ func (r *Runner) startProgress(start time.Time) func() {
 			total += in.Size
 		}
 	}
+	segments := len(r.segments())
 	done := make(chan struct{})
 	var wg sync.WaitGroup
 	wg.Add(1)
@@ -300,7 +303,7 @@ func (r *Runner) startProgress(start time.Time) func() {
 			case <-done:
 				return
 			case <-t.C:
-				r.OnProgress(Progress{Segment: int(r.prog.seg.Load()) + 1, Segments: len(r.segments()),
+				r.OnProgress(Progress{Segment: int(r.prog.seg.Load()) + 1, Segments: segments,
 					Docs: r.prog.docs.Load(), RawBytes: r.prog.raw.Load(), TotalRaw: total,
 					TextBytes: r.prog.text.Load(), Elapsed: time.Since(start)})
 			}
@@ -771,7 +774,7 @@ func (r *Runner) readInput(ctx context.Context, in InputFile, sum *InputSummary,
 		rr = pr
 		sum.Format, sum.Codec = FormatParquet, CodecNone
 		defer func() {
-			n, h, _ := hashPath(in.Path)
+			n, h, _ := fsio.HashFile(in.Path)
 			sum.Bytes, sum.XXH3 = n, h
 		}()
 	} else {
@@ -824,17 +827,6 @@ func (r *Runner) readInput(ctx context.Context, in InputFile, sum *InputSummary,
 		sum.Bytes, sum.XXH3 = raw.Drain()
 	}
 	return nil
-}
-
-func hashPath(p string) (int64, string, error) {
-	f, err := os.Open(p)
-	if err != nil {
-		return 0, "", err
-	}
-	defer f.Close()
-	c := NewRawCounter(f)
-	n, h := c.Drain()
-	return n, h, nil
 }
 
 // produceSpill re-reads the previous segment's spill in order.
