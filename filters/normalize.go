@@ -24,9 +24,9 @@ import (
 // It returns the changes counted by kind (nil when nothing changed).
 // Already-clean text costs one scan and no allocation.
 func NormalizeText(text string, form norm.Form, collapseSpaces bool, maxBlank int) (string, map[string]int) {
-	text, changes, formChanged := normalizePass(text, form, collapseSpaces, maxBlank, nil)
+	text, changes, formChanged := normalizePass(text, form, collapseSpaces, maxBlank, nil, false)
 	for pass := 1; formChanged && pass < maxNormalizePasses; pass++ {
-		text, changes, formChanged = normalizePass(text, form, collapseSpaces, maxBlank, changes)
+		text, changes, formChanged = normalizePass(text, form, collapseSpaces, maxBlank, changes, true)
 	}
 	return text, changes
 }
@@ -40,8 +40,11 @@ const maxNormalizePasses = 8
 // normalizePass runs the line cleanup and then the normal form once,
 // adding to changes; formChanged reports whether the normal form changed
 // the text (only then can another pass change anything, as the line
-// cleanup is idempotent).
-func normalizePass(text string, form norm.Form, collapseSpaces bool, maxBlank int, changes map[string]int) (string, map[string]int, bool) {
+// cleanup is idempotent). When isNormal is set the text is in the normal
+// form already, and the form is checked again only if the cleanup
+// changed the text.
+func normalizePass(text string, form norm.Form, collapseSpaces bool, maxBlank int, changes map[string]int, isNormal bool) (string, map[string]int, bool) {
+	in := text
 	// One final newline is how most text files and many JSONL writers end
 	// a document: it is kept, and only extra ones count as a change.
 	body, final := strings.CutSuffix(text, "\n")
@@ -74,6 +77,9 @@ func normalizePass(text string, form norm.Form, collapseSpaces bool, maxBlank in
 		}
 	}
 	formChanged := false
+	if isNormal && text == in {
+		return text, changes, false
+	}
 	if !isASCII(text) && !form.IsNormalString(text) {
 		n := form.String(text)
 		if n != text {

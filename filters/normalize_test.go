@@ -142,3 +142,17 @@ func FuzzNormalizeText(f *testing.F) {
 		checkNormalized(t, text, out, ch, nf, collapse, maxBlank)
 	})
 }
+
+// BenchmarkNormalizeText measures the normalize stage's text function on
+// the benchmark pages, as written (clean: the one-scan path) and with
+// CRLF line endings and a no-break space per line (rebuilt, NFKC twice).
+func BenchmarkNormalizeText(b *testing.B) {
+	b.Run("clean", func(b *testing.B) {
+		benchEach(b, func(_ *Scratch, text string) { NormalizeText(text, norm.NFKC, true, 1) })
+	})
+	b.Run("dirty", func(b *testing.B) {
+		benchEach(b, func(_ *Scratch, text string) {
+			NormalizeText(strings.ReplaceAll(text, "\n", "\u00a0\r\n"), norm.NFKC, true, 1)
+		})
+	})
+}
