@@ -350,6 +350,12 @@ func lineIsClean(seg string, collapse bool) bool {
 	return true
 }
 
+// Bytes 0x01 and 0x80 repeated in each byte of a word, for SWAR byte tests.
+const (
+	lo8 = 0x0101010101010101
+	hi8 = 0x8080808080808080
+)
+
 func load64(s string) uint64 {
 	return uint64(s[0]) | uint64(s[1])<<8 | uint64(s[2])<<16 | uint64(s[3])<<24 |
 		uint64(s[4])<<32 | uint64(s[5])<<40 | uint64(s[6])<<48 | uint64(s[7])<<56
