@@ -27,6 +27,9 @@ const (
 	FormatParquet Format = "parquet"
 )
 
+// Formats lists the formats an input may name (a spec's "format" choices).
+var Formats = []Format{FormatAuto, FormatJSONL, FormatText, FormatWARC, FormatParquet}
+
 // ReadOptions says how to turn an input file's records into documents.
 type ReadOptions struct {
 	Source string

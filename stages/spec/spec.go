@@ -54,6 +54,15 @@ type StageSpec struct {
 	Params *stages.Params
 }
 
+// formatNames are the choices of an input's "format" key.
+var formatNames = func() []string {
+	var out []string
+	for _, f := range read.Formats {
+		out = append(out, string(f))
+	}
+	return out
+}()
+
 // LoadSpec reads and validates a spec file: every unknown key, wrong type
 // and out-of-range value is an error naming file:line:column. Stage
 // parameters are validated by building each stage (with env.Checking set
@@ -104,7 +113,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		if len(in.Paths) == 0 {
 			ip.Errorf("paths", "at least one path, glob, directory or \"-\" is required")
 		}
-		in.Format = read.Format(ip.String("format", "auto", "auto", "jsonl", "text", "warc", "parquet"))
+		in.Format = read.Format(ip.String("format", string(read.FormatAuto), formatNames...))
 		in.TextField = ip.String("text_field", "text")
 		in.IDField = ip.String("id_field", "id")
 		if ip.Has("meta_fields") {
