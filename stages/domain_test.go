@@ -1,0 +1,162 @@
+package stages
+
+import (
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"winnow/filters/domain"
+)
+
+// Invented texts of the Larkspur Marine Works scenario (in-domain) and of
+// unrelated town life (background), for the stage's plumbing tests; the
+// methods' accuracy is checked on real documents in filters/domain.
+var (
+	domainRepair = []string{
+		"Sand the hull down to bare gelcoat before you apply the first coat of epoxy barrier.",
+		"Replace the raw-water impeller each season and keep a spare in the engine locker.",
+		"Check the zinc anodes on the propeller shaft and replace any that have lost half their mass.",
+		"Grease the winches twice a season and strip them down fully once every two years.",
+		"Inspect the fuel filter bowl for water after a week of heavy rain in the marina.",
+		"Winterize the freshwater system by draining the tanks and running antifreeze through the lines.",
+	}
+	domainOther = []string{
+		"The council approved the new budget for the library after a long debate on Tuesday.",
+		"Our bakery sells sourdough loaves, rye rolls and cinnamon buns every morning from seven.",
+		"The orchestra rehearsed the symphony twice before the concert in the town hall.",
+		"Train tickets are cheaper when booked a month ahead on the regional line.",
+		"The museum exhibition shows paintings of the valley from the last two centuries.",
+		"Students must hand in the history essay before the end of the spring term.",
+	}
+)
+
+// writeDomainSets writes the two sets as JSON Lines under dir and returns
+// the paths relative to dir.
+func writeDomainSets(t *testing.T, dir string) (ex, bg string) {
+	t.Helper()
+	write := func(name string, texts []string) string {
+		var b strings.Builder
+		for i, s := range texts {
+			fmt.Fprintf(&b, `{"id":"%s-%d","text":%q}`+"\n", name, i, s)
+		}
+		rel := "seed/" + name + ".jsonl"
+		if err := os.MkdirAll(filepath.Join(dir, "seed"), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(filepath.Join(dir, rel), []byte(b.String()), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return rel
+	}
+	return write("repair", domainRepair), write("other", domainOther)
+}
+
+func newDomainForTest(t *testing.T, params map[string]any, env Env) (*domainStage, error) {
+	t.Helper()
+	k, ok := LookupKind("domain")
+	if !ok {
+		t.Fatal("domain kind not registered")
+	}
+	st, err := k.New(ParamsFromMap(params), env)
+	if err != nil {
+		return nil, err
+	}
+	return st.(*domainStage), nil
+}
+
+// TestDomainStageTrainsScoresAndStores: the stage trains from the spec's
+// files, scores every document into domain_score, drops under min_score,
+// writes RUN/keys/domain.model whose bytes hash to the stage's hash, and a
+// stage built with model: PATH scores exactly the same.
+func TestDomainStageTrainsScoresAndStores(t *testing.T) {
+	dir := t.TempDir()
+	ex, bg := writeDomainSets(t, dir)
+	run := filepath.Join(dir, "run")
+	s, err := newDomainForTest(t, map[string]any{"examples": []string{ex}, "background": []string{bg}, "min_score": 0.5},
+		Env{SpecDir: dir, RunDir: run, Seed: 7})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, text := range domainRepair {
+		dec := s.Process(&Doc{Text: text})
+		if dec.Action != Keep || len(dec.Metrics) != 1 || dec.Metrics[0] < 0.5 {
+			t.Errorf("repair text: %+v", dec)
+		}
+	}
+	for _, text := range domainOther {
+		dec := s.Process(&Doc{Text: text})
+		if dec.Action != Drop || dec.Rule != "domain_score" || dec.Metrics[0] >= 0.5 {
+			t.Errorf("other text: %+v", dec)
+		}
+	}
+	file, hash := s.ModelInfo()
+	b, err := os.ReadFile(filepath.Join(run, file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var m domain.Model
+	if err := m.UnmarshalBinary(b); err != nil {
+		t.Fatal(err)
+	}
+	if h, _ := m.Hash(); h != hash || len(b) != 16+m.SizeBytes() {
+		t.Fatalf("stored model hash %s, stage says %s", h, hash)
+	}
+	reuse, err := newDomainForTest(t, map[string]any{"model": filepath.Join("run", file)}, Env{SpecDir: dir, Seed: 99})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, text := range append(append([]string{}, domainRepair...), domainOther...) {
+		if a, b := s.Process(&Doc{Text: text}).Metrics[0], reuse.Process(&Doc{Text: text}).Metrics[0]; a != b {
+			t.Fatalf("reused model scores %v, trained %v", b, a)
+		}
+	}
+	// min_score is a threshold rule what-if can move.
+	if r := s.Rules(); len(r) != 1 || r[0].Key != "min_score" || r[0].Metric != "domain_score" || r[0].Limit != 0.5 {
+		t.Fatalf("rules %+v", r)
+	}
+}
+
+// TestDomainStageCheck: under `winnow check` the stage reports k-fold
+// cross-validated accuracy and AUC; bad specs fail with the key named.
+func TestDomainStageCheck(t *testing.T) {
+	dir := t.TempDir()
+	ex, bg := writeDomainSets(t, dir)
+	s, err := newDomainForTest(t, map[string]any{"examples": ex, "background": bg, "method": "importance", "folds": 3},
+		Env{SpecDir: dir, Checking: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	desc := s.Describe()
+	if !strings.Contains(desc, "importance on 6 examples and 6 background documents, 10000 buckets (model 40000 bytes)") ||
+		!strings.Contains(desc, "3-fold cross-validation: accuracy ") || !strings.Contains(desc, "AUC ") {
+		t.Fatalf("describe: %s", desc)
+	}
+	for _, c := range []struct {
+		p    map[string]any
+		want string
+	}{
+		{map[string]any{"examples": ex}, "background"},
+		{map[string]any{"background": bg}, "examples"},
+		{map[string]any{"examples": "seed/missing.jsonl", "background": bg}, "missing.jsonl"},
+		{map[string]any{"examples": ex, "background": bg, "method": "fasttext"}, "method"},
+		{map[string]any{"examples": ex, "background": bg, "min_score": 1.5}, "min_score"},
+		{map[string]any{"examples": ex, "background": bg, "keep_fraction": 0.2}, "keep_fraction"},
+		{map[string]any{"model": "nope.model"}, "nope.model"},
+	} {
+		_, err := newDomainForTest(t, c.p, Env{SpecDir: dir, Checking: true})
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%v: error %v, want one naming %q", c.p, err, c.want)
+		}
+	}
+	// A stored model of the other method is refused.
+	run := filepath.Join(dir, "run")
+	if _, err := newDomainForTest(t, map[string]any{"examples": ex, "background": bg}, Env{SpecDir: dir, RunDir: run}); err != nil {
+		t.Fatal(err)
+	}
+	_, err = newDomainForTest(t, map[string]any{"model": "run/keys/domain.model", "method": "importance"}, Env{SpecDir: dir})
+	if err == nil || !strings.Contains(err.Error(), "classifier") {
+		t.Fatalf("method mismatch: %v", err)
+	}
+}
