@@ -45,6 +45,7 @@ type domainStage struct {
 	examples, background []string
 	modelPath            string
 	trainedOn            [2]int
+	stored               []StageFile // the model written into the run directory
 }
 
 // Metrics measured by the domain stage.
@@ -138,6 +139,7 @@ func newDomain(p *Params, env Env) (Stage, error) {
 		if err := fsio.WriteFileAtomic(p, b); err != nil {
 			return nil, fmt.Errorf("%s: writing the model: %w", s.name, err)
 		}
+		s.stored = []StageFile{{Path: "keys/" + s.name + ".model", Bytes: int64(len(b)), XXH3: s.hash}}
 	}
 	return s, nil
 }
@@ -262,11 +264,9 @@ func (s *domainStage) Process(d *Doc) Decision {
 	return ApplyRules(s.rules, domainMetrics, []float64{score})
 }
 
-// ModelInfo returns the stored model's path under the run directory and
-// its hash, for the manifest.
-func (s *domainStage) ModelInfo() (file, hash string) {
-	return filepath.Join("keys", s.name+".model"), s.hash
-}
+// StageFiles lists the model written into the run directory, for the
+// manifest (nil when the stage was built without a run directory).
+func (s *domainStage) StageFiles() []StageFile { return s.stored }
 
 // Describe trains the model (under `winnow check` it is not trained when
 // the stage is built) and reports its k-fold cross-validated accuracy and

@@ -213,6 +213,21 @@ type Finisher interface {
 	Finish(runDir string) error
 }
 
+// StageFile is a file a stage wrote into the run directory (a trained
+// model, stored keys), recorded in the stage's manifest entry.
+type StageFile struct {
+	// Path is relative to the run directory, slash-separated.
+	Path  string `json:"path"`
+	Bytes int64  `json:"bytes"`
+	XXH3  string `json:"xxh3"`
+}
+
+// FileWriter is implemented by stages that write files into the run
+// directory when they are built; the manifest lists them with their hashes.
+type FileWriter interface {
+	StageFiles() []StageFile
+}
+
 // Describer is implemented by stages that have something to show in
 // `winnow check` beyond their parameters (e.g. an LSH S-curve).
 type Describer interface {

@@ -48,12 +48,15 @@ type Counters struct {
 	Dropped   int64   `json:"dropped"`
 	Edited    int64   `json:"edited"`
 	Seconds   float64 `json:"seconds"`
-	nanos     atomic.Int64
+	// Files are the files the stage wrote into the run directory (a
+	// domain stage's model), with their hashes.
+	Files []stages.StageFile `json:"files,omitempty"`
+	nanos atomic.Int64
 }
 
 func (c *Counters) snapshot() *Counters {
 	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
-		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds}
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds, Files: c.Files}
 }
 
 // RunError is an input problem recorded in the manifest.
@@ -215,7 +218,11 @@ func (r *Runner) Run(ctx context.Context) error {
 		} else {
 			kind = s.Global.Kind()
 		}
-		r.Counters = append(r.Counters, &Counters{Name: s.Name, Kind: kind})
+		c := &Counters{Name: s.Name, Kind: kind}
+		if fw, ok := s.Stage.(stages.FileWriter); ok {
+			c.Files = fw.StageFiles()
+		}
+		r.Counters = append(r.Counters, c)
 		if err := r.ledger.Open(s.Name); err != nil {
 			return err
 		}
