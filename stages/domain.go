@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -19,6 +20,9 @@ import (
 // Xie et al. 2023). It measures domain_score on every document and drops
 // those under min_score, so audit, explain and what-if treat the score
 // like any other metric.
+//
+// `sources: [web]` scores only the documents of those input sources; the
+// others pass with a null domain_score.
 //
 // The model is trained when the stage is built, before the first document
 // is read, from `examples` (in-domain documents) and `background` (the
@@ -45,6 +49,9 @@ type domainStage struct {
 	examples, background []string
 	modelPath            string
 	trainedOn            [2]int
+	// sources limits scoring to documents of these input sources (nil:
+	// all); the others get a null domain_score, which never removes.
+	sources map[string]bool
 	stored               []StageFile // the model written into the run directory
 }
 
@@ -99,6 +106,12 @@ func newDomain(p *Params, env Env) (Stage, error) {
 	s.opt = domain.Options{Method: s.method, Seed: env.Seed,
 		Buckets: int(p.Int("buckets", 0, 0, domain.MaxBuckets))}
 	s.folds = int(p.Int("folds", defaultDomainFolds, 2, 100))
+	for _, src := range p.Strings("sources", nil) {
+		if s.sources == nil {
+			s.sources = map[string]bool{}
+		}
+		s.sources[src] = true
+	}
 	if p.Has("keep_fraction") {
 		p.Errorf("keep_fraction", "keep_fraction is not supported yet: use min_score (keep documents with domain_score >= min_score)")
 	}
@@ -258,8 +271,13 @@ func (s *domainStage) Kind() string          { return "domain" }
 func (s *domainStage) MetricNames() []string { return domainMetrics }
 func (s *domainStage) Rules() []Rule         { return s.rules }
 
-// Process scores the document and applies min_score.
+// Process scores the document and applies min_score. A document of a
+// source the stage is not limited to gets a null score (NaN), which keeps
+// it, in what-if too.
 func (s *domainStage) Process(d *Doc) Decision {
+	if s.sources != nil && !s.sources[d.Source] {
+		return Decision{Metrics: []float64{math.NaN()}}
+	}
 	score := s.model.Score(d.Text)
 	return ApplyRules(s.rules, domainMetrics, []float64{score})
 }

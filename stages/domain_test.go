@@ -2,6 +2,7 @@ package stages
 
 import (
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -122,6 +123,22 @@ func TestDomainStageTrainsScoresAndStores(t *testing.T) {
 		if a, b := s.Process(&Doc{Text: text}).Metrics[0], reuse.Process(&Doc{Text: text}).Metrics[0]; a != b {
 			t.Fatalf("reused model scores %v, trained %v", b, a)
 		}
+	}
+	// sources: only documents of the listed sources are scored; the
+	// others pass with a null score, which ApplyRules (and so what-if)
+	// keeps.
+	only, err := newDomainForTest(t, map[string]any{"model": filepath.Join("run", file), "sources": []string{"web"}}, Env{SpecDir: dir})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if dec := only.Process(&Doc{Text: domainOther[0], Source: "manuals"}); dec.Action != Keep || len(dec.Metrics) != 1 || !math.IsNaN(dec.Metrics[0]) {
+		t.Errorf("other source: %+v", dec)
+	}
+	if dec := only.Process(&Doc{Text: domainOther[0], Source: "web"}); dec.Action != Drop {
+		t.Errorf("listed source: %+v", dec)
+	}
+	if dec := ApplyRules(only.Rules(), domainMetrics, []float64{math.NaN()}); dec.Action != Keep {
+		t.Errorf("null score removed: %+v", dec)
 	}
 	// min_score is a threshold rule what-if can move.
 	if r := s.Rules(); len(r) != 1 || r[0].Key != "min_score" || r[0].Metric != "domain_score" || r[0].Limit != 0.5 {

@@ -176,3 +176,92 @@ output:
 	}
 	t.Logf("domain stage dropped %d of %d (training documents scored in-sample)", dropped, 563+716)
 }
+
+// TestDemoDomainSelectsRepairText: in `winnow demo` the domain stage,
+// trained on the manuals and forum threads against the dealer pages,
+// scores only the web crawl: every page it drops is a mirror of a dealer
+// page (the generator's truth file says what each page is) and it keeps
+// the mirrors of manuals and forum threads that reach it. Other sources
+// get a null score.
+func TestDemoDomainSelectsRepairText(t *testing.T) {
+	run := demoRunDir(t)
+	kind := map[string]string{}
+	tf, err := os.ReadFile(filepath.Join(filepath.Dir(run), "corpus", "truth.jsonl"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, line := range strings.Split(strings.TrimSpace(string(tf)), "\n") {
+		var td struct {
+			ID     string `json:"id"`
+			CopyOf string `json:"copy_of"`
+			Kind   string `json:"kind"`
+		}
+		if err := json.Unmarshal([]byte(line), &td); err != nil {
+			t.Fatal(err)
+		}
+		kind[td.ID] = td.Kind
+		if td.CopyOf != "" {
+			kind[td.ID] = td.Kind + " of " + strings.SplitN(td.CopyOf, "-", 2)[0]
+		}
+	}
+	rows := readZstdJSON(t, filepath.Join(run, "metrics", "domain.jsonl.zst"))
+	kept, dropped := map[string]int{}, map[string]int{}
+	for _, row := range rows {
+		src, _ := row["source"].(string)
+		score, scored := row["domain_score"].(float64)
+		if src != "web" {
+			if scored {
+				t.Fatalf("%v scored outside sources: [web]", row)
+			}
+			continue
+		}
+		if _, shadow := row["dropped_by"]; shadow {
+			continue
+		}
+		k := kind[row["doc"].(string)]
+		if score >= 0.1 {
+			kept[k]++
+		} else {
+			dropped[k]++
+		}
+	}
+	t.Logf("web pages reaching the domain stage: kept %v, dropped %v", kept, dropped)
+	for k := range dropped {
+		if !strings.HasSuffix(k, "of dealer") {
+			t.Errorf("dropped a %s page", k)
+		}
+	}
+	for k := range kept {
+		if strings.HasSuffix(k, "of dealer") {
+			t.Errorf("kept a %s page", k)
+		}
+	}
+	if kept["exact_copy of manuals"]+kept["near_copy of manuals"]+kept["exact_copy of forum"]+kept["near_copy of forum"] == 0 {
+		t.Error("no mirror of a manual or forum thread kept")
+	}
+}
+
+func readZstdJSON(t *testing.T, path string) []map[string]any {
+	t.Helper()
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	zr, err := zstd.NewReader(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer zr.Close()
+	var out []map[string]any
+	dec := json.NewDecoder(zr)
+	for {
+		var row map[string]any
+		if err := dec.Decode(&row); err == io.EOF {
+			return out
+		} else if err != nil {
+			t.Fatal(err)
+		}
+		out = append(out, row)
+	}
+}
