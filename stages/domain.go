@@ -52,7 +52,7 @@ type domainStage struct {
 	// sources limits scoring to documents of these input sources (nil:
 	// all); the others get a null domain_score, which never removes.
 	sources map[string]bool
-	stored               []StageFile // the model written into the run directory
+	stored  []StageFile // the model written into the run directory
 }
 
 // Metrics measured by the domain stage.
