@@ -29,14 +29,25 @@ import (
 // rest; for importance, the raw pool), both lists of paths or globs in any
 // input format winnow reads (JSON Lines with a "text" field, plain text,
 // WARC, Parquet; compressed or not). `model: PATH` loads a stored model
-// instead. The trained model is written to RUN/keys/<stage>.model (its
-// bytes are those of domain.Model.MarshalBinary) and its xxh3 hash is
-// shown by `winnow check` and recorded in the manifest's stage entry.
+// instead. The model is written to RUN/keys/<stage>.model (the bytes of
+// domain.Model.MarshalBinary) and listed with its xxh3 under the stage's
+// "files" in the manifest (StageFiles). `winnow check` trains and prints
+// the k-fold cross-validated accuracy and AUC (Describe).
+//
+// `keep_fraction: f` (instead of min_score) makes the stage global: it
+// keeps the round(f·n) documents of the n reaching it with the largest
+// rank keys. The classifier's key is domain_score (ties: earlier document
+// first). The importance method samples without replacement in proportion
+// to the importance weights, as Xie et al. 2023 resample: the key is the
+// log importance weight plus a standard Gumbel variable drawn from the
+// seed and the document id (the Gumbel top-k trick, filters/domain), so
+// the sample is the same for any number of workers. The rank keys take 16
+// bytes per document in memory. domain_score is written to metrics as in
+// min_score mode; what-if does not recompute a global stage.
 //
 // Not done: a default background sampled from the documents reaching the
 // stage (the model is trained before the run, so background, or model, is
-// required), and keep_fraction (a fixed share of the documents, which
-// needs a global stage).
+// required).
 type domainStage struct {
 	name   string
 	rules  []Rule
@@ -53,6 +64,22 @@ type domainStage struct {
 	// all); the others get a null domain_score, which never removes.
 	sources map[string]bool
 	stored  []StageFile // the model written into the run directory
+
+	// keep_fraction (a global stage): the share of the documents reaching
+	// the stage to keep, their rank keys and the cut Reduce decides.
+	keepFraction float64
+	seed         uint64
+	ranked       []rankedDoc
+	cutKey       float64
+	cutOrder     OrderKey
+	keepNone     bool
+}
+
+// rankedDoc is one document's rank key in keep_fraction mode: 16 bytes
+// resident per document reaching the stage (no spilling).
+type rankedDoc struct {
+	key   float64
+	order OrderKey
 }
 
 // Metrics measured by the domain stage.
@@ -76,13 +103,23 @@ const (
 
 func init() {
 	Register(Kind{
-		Name: "domain",
-		Doc:  "keep documents like the examples: hashed n-gram classifier (Joulin et al. 2017) or importance weights (Xie et al. 2023); domain_score in metrics",
-		New:  newDomain,
+		Name:      "domain",
+		Doc:       "keep documents like the examples: hashed n-gram classifier (Joulin et al. 2017) or importance weights (Xie et al. 2023); domain_score in metrics",
+		NewGlobal: newDomainKind,
 	})
 }
 
-func newDomain(p *Params, env Env) (Stage, error) {
+// newDomainKind builds the stage; it runs per document (PerDocument)
+// unless keep_fraction is set.
+func newDomainKind(p *Params, env Env) (GlobalStage, error) {
+	s, err := newDomain(p, env)
+	if err != nil {
+		return nil, err
+	}
+	return s, nil
+}
+
+func newDomain(p *Params, env Env) (*domainStage, error) {
 	s := &domainStage{name: stageName(p, "domain")}
 	method := p.String("method", "classifier", "classifier", "importance")
 	s.method, _ = domain.ParseMethod(method)
@@ -113,7 +150,14 @@ func newDomain(p *Params, env Env) (Stage, error) {
 		s.sources[src] = true
 	}
 	if p.Has("keep_fraction") {
-		p.Errorf("keep_fraction", "keep_fraction is not supported yet: use min_score (keep documents with domain_score >= min_score)")
+		s.keepFraction = p.Float("keep_fraction", 0, 0, 1)
+		if s.keepFraction <= 0 {
+			p.Errorf("keep_fraction", "keep_fraction must be above 0")
+		}
+		if p.Has("min_score") {
+			p.Errorf("keep_fraction", "give min_score or keep_fraction, not both")
+		}
+		s.seed = env.Seed
 	}
 	if s.modelPath == "" && (len(s.examples) == 0 || len(s.background) == 0) {
 		key := "examples"
@@ -269,7 +313,15 @@ func readFileTexts(file string, emit func(string) bool) error {
 func (s *domainStage) Name() string          { return s.name }
 func (s *domainStage) Kind() string          { return "domain" }
 func (s *domainStage) MetricNames() []string { return domainMetrics }
-func (s *domainStage) Rules() []Rule         { return s.rules }
+
+// Rules returns the min_score rule (none in keep_fraction mode, where the
+// stage is global).
+func (s *domainStage) Rules() []Rule {
+	if s.keepFraction > 0 {
+		return nil
+	}
+	return s.rules
+}
 
 // Process scores the document and applies min_score. A document of a
 // source the stage is not limited to gets a null score (NaN), which keeps
@@ -321,5 +373,91 @@ func (s *domainStage) Describe() string {
 	}
 	fmt.Fprintf(&b, "%s on %d examples and %d background documents, %d buckets (model %d bytes)\n", s.method, len(ex), len(bg), buckets, 4*buckets)
 	fmt.Fprintf(&b, "%d-fold cross-validation: accuracy %.3f, AUC %.3f", cv.Folds, cv.Accuracy, cv.AUC)
+	if s.keepFraction > 0 {
+		how := "the highest domain_score"
+		if s.method == domain.Importance {
+			how = "a sample in proportion to the importance weights (Gumbel top-k)"
+		}
+		fmt.Fprintf(&b, "\nkeep_fraction %g: keeps %s of the documents reaching the stage", s.keepFraction, how)
+	}
 	return b.String()
+}
+
+// PerDocument returns the stage as a per-document Stage unless
+// keep_fraction makes it global.
+func (s *domainStage) PerDocument() Stage {
+	if s.keepFraction > 0 {
+		return nil
+	}
+	return s
+}
+
+// rankKey returns the document's score and rank key, and false for a
+// document outside `sources`.
+func (s *domainStage) rankKey(d *Doc) (score, key float64, ok bool) {
+	if s.sources != nil && !s.sources[d.Source] {
+		return math.NaN(), 0, false
+	}
+	score, logit, n := s.model.Eval(d.Text)
+	if s.method != domain.Importance {
+		return score, score, true
+	}
+	logW := (logit - float64(s.model.Bias)) * float64(n)
+	return score, domain.GumbelKey(logW, s.seed, d.ID), true
+}
+
+// Scan computes the document's rank key (nil outside `sources`).
+func (s *domainStage) Scan(d *Doc) any {
+	if _, key, ok := s.rankKey(d); ok {
+		return key
+	}
+	return nil
+}
+
+// Collect keeps the rank keys in input order.
+func (s *domainStage) Collect(order OrderKey, id string, keys any) error {
+	if key, ok := keys.(float64); ok {
+		s.ranked = append(s.ranked, rankedDoc{key, order})
+	}
+	return nil
+}
+
+// Reduce finds the cut: the smallest kept key (and, among equal keys, the
+// latest kept order key).
+func (s *domainStage) Reduce() error {
+	k := domain.KeepCount(s.keepFraction, len(s.ranked))
+	if k == 0 {
+		s.keepNone = true
+		return nil
+	}
+	keys := make([]float64, len(s.ranked))
+	for i, r := range s.ranked {
+		keys[i] = r.key
+	}
+	// TopK breaks ties by index, and Collect ran in input order.
+	top := domain.TopK(keys, k)
+	last := s.ranked[top[len(top)-1]]
+	s.cutKey, s.cutOrder = last.key, last.order
+	s.ranked = nil
+	return nil
+}
+
+// Apply keeps the documents at or above the cut.
+func (s *domainStage) Apply(d *Doc) Decision {
+	score, key, ok := s.rankKey(d)
+	if !ok {
+		return Decision{Metrics: []float64{score}}
+	}
+	if !s.keepNone && (key > s.cutKey || key == s.cutKey && d.Order <= s.cutOrder) {
+		return Decision{Metrics: []float64{score}}
+	}
+	dec := DropDoc("keep_fraction", roundMetric(key), roundMetric(s.cutKey))
+	dec.Metrics = []float64{score}
+	return dec
+}
+
+// Close releases the rank keys.
+func (s *domainStage) Close() error {
+	s.ranked = nil
+	return nil
 }

@@ -61,11 +61,11 @@ func newDomainForTest(t *testing.T, params map[string]any, env Env) (*domainStag
 	if !ok {
 		t.Fatal("domain kind not registered")
 	}
-	st, err := k.New(ParamsFromMap(params), env)
+	g, err := k.NewGlobal(ParamsFromMap(params), env)
 	if err != nil {
 		return nil, err
 	}
-	return st.(*domainStage), nil
+	return g.(*domainStage), nil
 }
 
 // TestDomainStageTrainsScoresAndStores: the stage trains from the spec's
@@ -170,7 +170,8 @@ func TestDomainStageCheck(t *testing.T) {
 		{map[string]any{"examples": "seed/missing.jsonl", "background": bg}, "missing.jsonl"},
 		{map[string]any{"examples": ex, "background": bg, "method": "fasttext"}, "method"},
 		{map[string]any{"examples": ex, "background": bg, "min_score": 1.5}, "min_score"},
-		{map[string]any{"examples": ex, "background": bg, "keep_fraction": 0.2}, "keep_fraction"},
+		{map[string]any{"examples": ex, "background": bg, "keep_fraction": 0.2, "min_score": 0.5}, "keep_fraction"},
+		{map[string]any{"examples": ex, "background": bg, "keep_fraction": 0}, "keep_fraction"},
 		{map[string]any{"model": "nope.model"}, "nope.model"},
 	} {
 		_, err := newDomainForTest(t, c.p, Env{SpecDir: dir, Checking: true})
@@ -186,5 +187,72 @@ func TestDomainStageCheck(t *testing.T) {
 	_, err = newDomainForTest(t, map[string]any{"model": "run/keys/domain.model", "method": "importance"}, Env{SpecDir: dir})
 	if err == nil || !strings.Contains(err.Error(), "classifier") {
 		t.Fatalf("method mismatch: %v", err)
+	}
+}
+
+// TestDomainKeepFraction: with keep_fraction the stage is global and keeps
+// exactly round(f·n) of the documents reaching it: the classifier the
+// highest scores, the importance method a Gumbel top-k sample that depends
+// on the seed and the document ids only. Documents outside `sources` are
+// neither ranked nor removed.
+func TestDomainKeepFraction(t *testing.T) {
+	dir := t.TempDir()
+	ex, bg := writeDomainSets(t, dir)
+	var docs []*Doc
+	for i, text := range append(append([]string{}, domainRepair...), domainOther...) {
+		docs = append(docs, &Doc{ID: fmt.Sprintf("d%d", i), Text: text, Source: "web", Order: OrderKey(i + 1)})
+	}
+	docs = append(docs, &Doc{ID: "m", Text: domainOther[0], Source: "manuals", Order: 100})
+	run := func(params map[string]any, seed uint64) map[string]bool {
+		s, err := newDomainForTest(t, params, Env{SpecDir: dir, Seed: seed})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if s.PerDocument() != nil || s.Rules() != nil {
+			t.Fatal("keep_fraction stage runs per document")
+		}
+		for _, d := range docs {
+			if err := s.Collect(d.Order, d.ID, s.Scan(d)); err != nil {
+				t.Fatal(err)
+			}
+		}
+		if err := s.Reduce(); err != nil {
+			t.Fatal(err)
+		}
+		kept := map[string]bool{}
+		for _, d := range docs {
+			dec := s.Apply(d)
+			if len(dec.Metrics) != 1 {
+				t.Fatalf("no domain_score: %+v", dec)
+			}
+			if dec.Action == Keep {
+				kept[d.ID] = true
+			} else if dec.Rule != "keep_fraction" {
+				t.Fatalf("rule %q", dec.Rule)
+			}
+		}
+		return kept
+	}
+	base := map[string]any{"examples": ex, "background": bg, "keep_fraction": 0.5, "sources": []string{"web"}}
+	kept := run(base, 1)
+	if len(kept) != 7 || !kept["m"] {
+		t.Fatalf("kept %v, want the 6 best of 12 web documents and the manuals one", kept)
+	}
+	for i := range domainRepair {
+		if !kept[fmt.Sprintf("d%d", i)] {
+			t.Errorf("classifier dropped repair text %d", i)
+		}
+	}
+	imp := map[string]any{"examples": ex, "background": bg, "keep_fraction": 0.25, "sources": []string{"web"}, "method": "importance"}
+	a, b := run(imp, 1), run(imp, 1)
+	if len(a) != 4 || fmt.Sprint(a) != fmt.Sprint(b) {
+		t.Fatalf("importance sample %v then %v, want 3 web documents + manuals, twice the same", a, b)
+	}
+	differ := false
+	for seed := uint64(2); seed < 12 && !differ; seed++ {
+		differ = fmt.Sprint(run(imp, seed)) != fmt.Sprint(a)
+	}
+	if !differ {
+		t.Error("the importance sample does not depend on the seed")
 	}
 }

@@ -265,3 +265,75 @@ func readZstdJSON(t *testing.T, path string) []map[string]any {
 		out = append(out, row)
 	}
 }
+
+// TestDomainKeepFractionRun: keep_fraction with the importance method on
+// the real documentation keeps exactly round(0.3·n) documents, writes
+// domain_score for every document, and gives byte-identical shards with 1
+// and 2 workers (the Gumbel noise comes from the seed and the document id).
+func TestDomainKeepFractionRun(t *testing.T) {
+	data, err := filepath.Abs("../../testdata/domaindocs")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	spec := filepath.Join(dir, "spec.yaml")
+	body := `name: docs
+seed: 5
+inputs:
+  - source: docs
+    paths: ["` + data + `/*.jsonl.zst"]
+stages:
+  - kind: domain
+    examples: ["` + data + `/python.jsonl.zst"]
+    background: ["` + data + `/manpages.jsonl.zst", "` + data + `/prose.jsonl.zst"]
+    method: importance
+    keep_fraction: 0.3
+output:
+  dir: out
+`
+	if err := os.WriteFile(spec, []byte(body), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	runOpts = runFlags{}
+	defer func() { runOpts = runFlags{} }()
+	var shards [2][]byte
+	for i, workers := range []string{"1", "2"} {
+		out := filepath.Join(dir, "out"+workers)
+		if _, err := captureStdout(t, func() error {
+			_, err := runCLI(t, "run", spec, "-q", "--out", out, "--workers", workers)
+			return err
+		}); err != nil {
+			t.Fatal(err)
+		}
+		files, _ := filepath.Glob(filepath.Join(out, "shards", "*"))
+		for _, f := range files {
+			b, _ := os.ReadFile(f)
+			shards[i] = append(shards[i], b...)
+		}
+		if rows := readZstdJSON(t, filepath.Join(out, "metrics", "domain.jsonl.zst")); len(rows) != 1279 {
+			t.Fatalf("%d metric rows, want 1279", len(rows))
+		}
+		drops := readZstdJSON(t, filepath.Join(out, "ledger", "domain.jsonl.zst"))
+		if len(drops) != 1279-384 {
+			t.Fatalf("%d dropped, want %d (keep round(0.3 × 1279) = 384)", len(drops), 1279-384)
+		}
+		python := 0
+		for _, d := range drops {
+			if d["rule"] != "keep_fraction" {
+				t.Fatalf("ledger %v", d)
+			}
+			if strings.HasPrefix(d["doc"].(string), "python3.11-doc:") {
+				python++
+			}
+		}
+		// 563 of the 1279 documents are Python documentation; a sample
+		// of 384 weighted towards them drops few.
+		t.Logf("workers %s: %d Python documents among the %d dropped", workers, python, len(drops))
+		if python > 563-300 {
+			t.Errorf("the sample kept only %d Python documents of 384", 563-python)
+		}
+	}
+	if len(shards[0]) == 0 || !bytes.Equal(shards[0], shards[1]) {
+		t.Fatal("shards differ between 1 and 2 workers")
+	}
+}

@@ -51,12 +51,15 @@ type Counters struct {
 	// Files are the files the stage wrote into the run directory (a
 	// domain stage's model), with their hashes.
 	Files []stages.StageFile `json:"files,omitempty"`
-	nanos atomic.Int64
+	// Global is true for a stage that ran as a global stage (it saw every
+	// document before deciding); audit and what-if rely on it.
+	Global bool `json:"global,omitempty"`
+	nanos  atomic.Int64
 }
 
 func (c *Counters) snapshot() *Counters {
 	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
-		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds, Files: c.Files}
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds, Files: c.Files, Global: c.Global}
 }
 
 // RunError is an input problem recorded in the manifest.
@@ -218,7 +221,7 @@ func (r *Runner) Run(ctx context.Context) error {
 		} else {
 			kind = s.Global.Kind()
 		}
-		c := &Counters{Name: s.Name, Kind: kind}
+		c := &Counters{Name: s.Name, Kind: kind, Global: s.Stage == nil}
 		if fw, ok := s.Stage.(stages.FileWriter); ok {
 			c.Files = fw.StageFiles()
 		}
@@ -599,6 +602,8 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	var names []string
 	if st.Stage != nil {
 		names = st.Stage.MetricNames()
+	} else if m, ok := st.Global.(interface{ MetricNames() []string }); ok {
+		names = m.MetricNames() // a global stage that measures (domain with keep_fraction)
 	}
 	if len(names) > 0 && len(dec.Metrics) > 0 {
 		row := record.MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
