@@ -179,6 +179,14 @@ func TestDomainStageCheck(t *testing.T) {
 			t.Errorf("%v: error %v, want one naming %q", c.p, err, c.want)
 		}
 	}
+	// A malformed training record is an error naming its file and line.
+	if err := os.WriteFile(filepath.Join(dir, "seed", "bad.jsonl"), []byte(`{"text":"fine"}`+"\n"+`{"text": nope}`+"\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err = newDomainForTest(t, map[string]any{"examples": "seed/bad.jsonl", "background": bg}, Env{SpecDir: dir})
+	if err == nil || !strings.Contains(err.Error(), "bad.jsonl:2") || !strings.Contains(err.Error(), "examples") {
+		t.Fatalf("malformed example: %v", err)
+	}
 	// A stored model of the other method is refused.
 	run := filepath.Join(dir, "run")
 	if _, err := newDomainForTest(t, map[string]any{"examples": ex, "background": bg}, Env{SpecDir: dir, RunDir: run}); err != nil {
