@@ -129,13 +129,7 @@ func (r *parquetReader) Next() (Record, error) {
 	if !hasText {
 		return Record{Issue: &ReadIssue{File: r.file, Line: ln, Rule: RuleMissingText, Msg: fmt.Sprintf("row has no string %q", r.opt.TextField), DocID: r.defaultID(ln)}}, nil
 	}
-	s, bad := repairUTF8(text)
-	d := r.newDoc(s, id, ln)
-	d.Meta = meta
-	if bad {
-		return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}, nil
-	}
-	return Record{Doc: d}, nil
+	return r.textRecord(text, false, id, ln, meta), nil
 }
 
 func parquetValue(v parquet.Value) any {

@@ -641,7 +641,7 @@ func (r *Runner) recordIssue(iss *ReadIssue) error {
 		r.FatalInputs++
 		r.ErrCount++
 		r.Errors = append(r.Errors, RunError{File: iss.File, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg, Fatal: true})
-	case iss.Rule == RuleInvalidUTF8:
+	case iss.Repair():
 		action = "edit"
 	default:
 		r.Read.Dropped++

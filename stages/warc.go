@@ -108,18 +108,14 @@ func (r *warcReader) Next() (Record, error) {
 			return Record{}, fmt.Errorf("record %d: truncated block: %w", r.rec, unexpected(err))
 		}
 		r.off += n
-		s, bad := repairUTF8(string(block))
-		d := r.newDoc(s, id, r.rec)
+		rec := r.textRecord(string(block), false, id, r.rec, nil)
 		if u := hdr["warc-target-uri"]; u != "" {
-			d.SetMeta("url", strings.Trim(u, "<>"))
+			rec.Doc.SetMeta("url", strings.Trim(u, "<>"))
 		}
 		if t := hdr["warc-date"]; t != "" {
-			d.SetMeta("date", t)
+			rec.Doc.SetMeta("date", t)
 		}
-		if bad {
-			return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}, nil
-		}
-		return Record{Doc: d}, nil
+		return rec, nil
 	}
 }
 
