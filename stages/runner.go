@@ -76,6 +76,9 @@ type InputSummary struct {
 	InvalidUTF8 int64  `json:"invalid_utf8"`
 	Skipped     int64  `json:"skipped_records,omitempty"`
 	Complete    bool   `json:"complete"`
+	// Warnings are what the reader tolerated in this file (zero padding
+	// after the last compressed stream).
+	Warnings []string `json:"warnings,omitempty"`
 }
 
 // Progress is a snapshot of a running pipeline, for progress lines.
@@ -783,6 +786,12 @@ func (r *Runner) readInput(ctx context.Context, in InputFile, sum *InputSummary,
 			return err
 		}
 		defer dec.Close()
+		defer func() {
+			for _, w := range dec.Warnings() {
+				sum.Warnings = append(sum.Warnings, w)
+				r.logf("%s: %s", in.Display, w)
+			}
+		}()
 		raw = dec.Raw
 		sum.Codec = dec.Codec
 		rr, sum.Format, err = NewRecordReader(dec, in.Display, in.Index, opt)
