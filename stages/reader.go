@@ -143,7 +143,7 @@ func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (Reco
 		if len(head) > 0 && !bytes.HasPrefix(head, []byte("WARC/")) {
 			return nil, format, fmt.Errorf("not a WARC file: does not start with \"WARC/\"")
 		}
-		return &warcReader{baseReader: base, br: br}, format, nil
+		return &warcReader{baseReader: base, src: r, br: br}, format, nil
 	case FormatParquet:
 		return nil, format, fmt.Errorf("parquet must be read from a seekable, uncompressed file")
 	}
