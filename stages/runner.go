@@ -762,12 +762,16 @@ func (r *Runner) readInput(ctx context.Context, in InputFile, sum *InputSummary,
 		return err
 	}
 	defer f.Close()
+	var stamp InputStamp
+	osf, _ := f.(*os.File)
+	if osf != nil && in.Path != "-" {
+		stamp = StampFile(osf)
+	}
 	opt := in.Spec.ReadOptions
 	var rr RecordReader
 	var raw *RawCounter
 	if opt.Format == FormatParquet || (opt.Format == FormatAuto && guessFormat(in.Path, nil) == FormatParquet) {
-		osf, ok := f.(*os.File)
-		if !ok || in.Path == "-" {
+		if osf == nil || in.Path == "-" {
 			return fmt.Errorf("parquet cannot be read from standard input")
 		}
 		pr, err := newParquetReader(osf, in.Display, in.Index, opt)
@@ -832,10 +836,12 @@ func (r *Runner) readInput(ctx context.Context, in InputFile, sum *InputSummary,
 	if wr, ok := rr.(*warcReader); ok {
 		sum.Skipped = wr.Skipped
 	}
+	read := int64(-1)
 	if raw != nil {
 		sum.Bytes, sum.XXH3 = raw.Drain()
+		read = sum.Bytes
 	}
-	return nil
+	return stamp.Check(in.Path, osf, read)
 }
 
 // produceSpill re-reads the previous segment's spill in order.
