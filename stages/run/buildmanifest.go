@@ -6,9 +6,9 @@ import (
 	"winnow/stages/spec"
 )
 
-// BuildManifest assembles the manifest from a finished (or interrupted)
+// buildManifest assembles the manifest from a finished (or interrupted)
 // runner.
-func BuildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *record.Manifest {
+func buildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *record.Manifest {
 	m := &record.Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
 		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, Interrupted: r.Interrupted, Seconds: seconds}
 	if m.Inputs == nil {

@@ -111,7 +111,7 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 		os.RemoveAll(tmp)
 		removeStaleTemps(abs)
 	}
-	m := BuildManifest(opt.Version, s, r, time.Since(t0).Seconds())
+	m := buildManifest(opt.Version, s, r, time.Since(t0).Seconds())
 	if err := record.WriteManifest(abs, m); err != nil {
 		return nil, err
 	}
