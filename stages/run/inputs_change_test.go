@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"winnow/stages/read"
+	"winnow/stages/record"
 )
 
 // An input that grows, shrinks, is touched or is replaced while it is read
@@ -36,7 +37,7 @@ func TestInputChangedWhileRead(t *testing.T) {
 		}
 		r := &Runner{}
 		in := read.InputFile{Path: p, Display: "notes.jsonl", Options: &read.ReadOptions{Source: "s", TextField: "text"}}
-		var sum InputSummary
+		var sum record.InputSummary
 		n := 0
 		err := r.readInput(context.Background(), in, &sum, func(rec read.Record) bool {
 			if n == 0 {
