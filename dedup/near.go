@@ -802,4 +802,3 @@ func (o *nearKeysOut) add(sig []uint32, sh []uint64, hasSh bool, id []byte) erro
 	_, err := o.w.Write(b)
 	return err
 }
-
