@@ -141,7 +141,7 @@ func TestNearPartitionInvariance(t *testing.T) {
 }
 
 // 100,000 documents sharing one band key cost BucketCap comparisons each,
-// not 5·10^9; and 20,000 identical documents are all removed of the first.
+// not 5·10^9; and 10,000 identical documents are all removed of the first.
 func TestNearBucketCapBoundsWork(t *testing.T) {
 	const n, k, bands = 100000, 16, 4
 	x, err := NewNearIndex(NearOptions{Permutations: k, Bands: bands, Threshold: 0.8, TempDir: t.TempDir()})
@@ -171,7 +171,7 @@ func TestNearBucketCapBoundsWork(t *testing.T) {
 		t.Fatalf("comparisons %d, want %d (+ a few chance collisions); removed %d", st.Candidates, want, st.Removed)
 	}
 
-	const m = 20000
+	const m = 10000
 	sig := make([]uint32, k)
 	for j := range sig {
 		sig[j] = rng.Uint32()
