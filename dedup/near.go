@@ -45,8 +45,9 @@ package dedup
 // with positioned reads). During Reduce: 16 bytes per band key of the one
 // partition being sorted (bands/64 keys per document: 4 bytes per document
 // at the defaults) when that fits the memory budget, else the external
-// sort's budget; 1 bit per document (removed); 8 bytes per document of
-// rank tables only when priorities differ; the verified pairs (12 bytes
+// sort's budget; 1 bit per document (removed); 8-16 bytes per document
+// of verified-pair table (at most 1/16 of the budget); 8 bytes per
+// document of rank tables only when priorities differ; the verified pairs (12 bytes
 // each) in an external sort under the budget; BucketCap signatures; 12
 // bytes per removed document and the ids of kept documents with copies.
 // Disk: 8·bands + 4·permutations + 8 bytes per document (264 + 512 at the

@@ -20,6 +20,14 @@ package dedup
 // span partitions, and the pairs found are a set, so the decisions are the
 // same for any partition count and any order of partitions.
 //
+// A pair of near copies shares most of its bands, so it meets in up to
+// `bands` buckets. A direct-mapped table of verified pairs (8-16 bytes per
+// document: a power of two entries; at most 1/16 of the memory budget) lets later meetings skip
+// the two signature reads and the comparison; a pair lost from the table
+// by a collision is only compared again. Partitions are walked in hash
+// order, so the buckets come in the same global order for any partition
+// count and even the comparison count does not depend on it.
+//
 // Greedy pass. The pair records sorted by (later, earlier) are walked
 // once: when the walk reaches the pairs of document d, every document
 // ranked before d is already decided, and d is removed "of" the first
@@ -219,6 +227,8 @@ func (x *NearIndex) walkPartition(p int, w *bucketWalker) error {
 type bucketWalker struct {
 	x         *NearIndex
 	pairs     *Sorter[pairRec]
+	seen      []uint64 // verified pairs (later<<32 | earlier), direct-mapped; 0 = empty
+	seenMask  uint64
 	heads     []loaded
 	nh        int
 	member    loaded
@@ -229,7 +239,19 @@ type bucketWalker struct {
 }
 
 func newBucketWalker(x *NearIndex, pairs *Sorter[pairRec]) *bucketWalker {
-	return &bucketWalker{x: x, pairs: pairs, heads: make([]loaded, 1, min(x.opt.BucketCap, 64))}
+	w := &bucketWalker{x: x, pairs: pairs, heads: make([]loaded, 1, min(x.opt.BucketCap, 64))}
+	size := uint64(1 << 10)
+	for size < uint64(x.prevN+x.n) && 8*2*size <= uint64(x.budget())/16 {
+		size *= 2
+	}
+	w.seen, w.seenMask = make([]uint64, size), size-1
+	x.stats.ResidentBytes = max(x.stats.ResidentBytes, 8*int64(size))
+	return w
+}
+
+// slot returns the table position of a pair key (a multiply-shift hash).
+func (w *bucketWalker) slot(key uint64) uint64 {
+	return (key * 0x9e3779b97f4a7c15 >> 20) & w.seenMask
 }
 
 func (w *bucketWalker) reset() { w.nh, w.started = 0, false }
@@ -255,6 +277,11 @@ func (w *bucketWalker) add(key uint64) error {
 		if r < x.prevN && hd.rank < x.prevN {
 			continue // both from the previous run: never compared
 		}
+		key := uint64(r)<<32 | uint64(hd.rank)
+		sl := w.slot(key)
+		if w.seen[sl] == key {
+			continue // verified in an earlier bucket
+		}
 		if !hd.ok {
 			if err := x.load(hd, x.indexOf(hd.rank)); err != nil {
 				return err
@@ -268,7 +295,8 @@ func (w *bucketWalker) add(key uint64) error {
 		x.stats.Candidates++
 		if sim := x.similarity(hd, m); sim >= x.opt.Threshold {
 			x.stats.Verified++
-			if err := w.pairs.Add(pairRec{key: uint64(r)<<32 | uint64(hd.rank), sim: quantizeSim(sim)}); err != nil {
+			w.seen[sl] = key
+			if err := w.pairs.Add(pairRec{key: key, sim: quantizeSim(sim)}); err != nil {
 				return err
 			}
 		}
