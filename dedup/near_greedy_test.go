@@ -200,3 +200,30 @@ func TestNearBucketCapBoundsWork(t *testing.T) {
 		}
 	}
 }
+
+// A previous run's kept documents win whatever this run's keep rule says:
+// a longer near copy in this run is removed "of" the previous run's one.
+func TestNearAgainstPreviousRunKeepsPrevious(t *testing.T) {
+	dir := t.TempDir()
+	texts := chainCorpus(20, 2, 3, 11) // pairs of near copies
+	prefix := dir + "/run1/keys/near_dedup"
+	first, _ := runNearKeep(t, texts[:20], NearOptions{KeysOut: prefix}, 1, func(i int) string { return fmt.Sprintf("old-%d", i) }, nil)
+	longest := KeepRule{By: KeepLongest}
+	prio := func(i int) uint64 { return longest.Priority(KeepFacts{Text: texts[i]}) }
+	res, st := runNearKeep(t, texts, NearOptions{Against: prefix}, 2, docID, prio)
+	for i := 0; i < 20; i++ {
+		// Its own text was kept by run 1 (similarity 1); "of" may name an
+		// earlier kept document of run 1 that is also similar.
+		if !first[i].removed && (!res[i].removed || !res[i].m.Against || !strings.HasPrefix(res[i].m.Of, "old-")) {
+			t.Errorf("doc %d (kept by run 1): %+v, want removed against run 1", i, res[i])
+		}
+	}
+	for i, r := range res {
+		if r.removed && !r.m.Against && strings.HasPrefix(r.m.Of, "old-") {
+			t.Errorf("doc %d: of %s without against", i, r.m.Of)
+		}
+	}
+	if st.RemovedPrev < 10 {
+		t.Errorf("removed against the previous run: %d", st.RemovedPrev)
+	}
+}
