@@ -1,4 +1,4 @@
-package stages
+package read
 
 import (
 	"bytes"
@@ -97,6 +97,13 @@ func (s *jsonObjectScanner) eachField(fn func(key []byte, val []byte)) error {
 		s.fail("want ',' or '}'")
 	}
 	return s.err
+}
+
+// EachField calls fn with every top-level key and the raw bytes of its
+// value in the JSON object b (the run's spill files keep meta this way).
+func EachField(b []byte, fn func(key []byte, val []byte)) error {
+	sc := jsonObjectScanner{b: b}
+	return sc.eachField(fn)
 }
 
 func (s *jsonObjectScanner) trailing() error {

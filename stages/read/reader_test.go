@@ -1,4 +1,4 @@
-package stages
+package read
 
 import (
 	"bufio"
@@ -128,8 +128,8 @@ func TestReadJSONLCompressedByExternalTools(t *testing.T) {
 		if string(d.Meta["n"].(RawJSON)) != "3" || string(d.Meta["tags"].(RawJSON)) != `["a","b"]` {
 			t.Errorf("%s: meta = %v", tool, d.Meta)
 		}
-		if recs[2].Doc.ID != "7" || recs[0].Doc.Order != MakeOrderKey(0, 1) || recs[2].Doc.Line != 3 {
-			t.Errorf("%s: id/order of doc 3 = %q %v", tool, recs[2].Doc.ID, recs[2].Doc.Order)
+		if recs[2].Doc.ID != "7" || recs[0].Doc.Input != 0 || recs[0].Doc.Line != 1 || recs[2].Doc.Line != 3 {
+			t.Errorf("%s: id/position of doc 3 = %q %d", tool, recs[2].Doc.ID, recs[2].Doc.Line)
 		}
 	}
 }

@@ -1,4 +1,4 @@
-package stages
+package run
 
 import (
 	"bytes"
@@ -13,6 +13,10 @@ import (
 	"testing"
 
 	"github.com/klauspost/compress/zstd"
+
+	"winnow/stages"
+	"winnow/stages/read"
+	"winnow/stages/spec"
 )
 
 // writeCorpus writes n small JSONL documents over two zstd files and
@@ -38,10 +42,10 @@ func writeCorpus(t *testing.T, n int) string {
 	return dir
 }
 
-func writeSpec(t *testing.T, dir, body string) *Spec {
+func writeSpec(t *testing.T, dir, body string) *spec.Spec {
 	t.Helper()
 	p := writeFile(t, dir, "spec.yaml", body)
-	s, err := LoadSpec(p)
+	s, err := spec.LoadSpec(p)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -193,9 +197,9 @@ func TestSpecErrorsNameLineColumnAndSuggest(t *testing.T) {
 	}
 	for _, c := range cases {
 		p := writeFile(t, dir, "spec.yaml", c.spec)
-		s, err := LoadSpec(p)
+		s, err := spec.LoadSpec(p)
 		if err == nil {
-			_, err = s.BuildStages(Env{Checking: true})
+			_, err = s.BuildStages(stages.Env{Checking: true})
 		}
 		if err == nil || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("got %v\nwant %s", err, c.want)
@@ -296,7 +300,7 @@ func TestRunFromStdin(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if res.Manifest.Totals.DocsOut != 500 || res.Manifest.Inputs[0].Path != "-" || res.Manifest.Inputs[0].Codec != CodecZstd {
+	if res.Manifest.Totals.DocsOut != 500 || res.Manifest.Inputs[0].Path != "-" || res.Manifest.Inputs[0].Codec != read.CodecZstd {
 		t.Errorf("manifest %+v %+v", res.Manifest.Totals, res.Manifest.Inputs)
 	}
 	shard := readZstd(t, filepath.Join(dir, "out", "shards", "basic-00000.jsonl.zst"))

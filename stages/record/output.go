@@ -1,4 +1,4 @@
-package stages
+package record
 
 import (
 	"fmt"
@@ -8,6 +8,7 @@ import (
 	"winnow/stages/jsonl"
 
 	"winnow/shard"
+	"winnow/stages"
 )
 
 // OutputFile describes one written output shard in the manifest.
@@ -38,7 +39,7 @@ type OutputReport struct {
 // Sink receives the documents that survived every stage, in input order,
 // on one goroutine.
 type Sink interface {
-	Add(d *Doc) error
+	Add(d *stages.Doc) error
 	// Close finishes all shards and reports them.
 	Close() (*OutputReport, error)
 	// Abort removes unfinished files.
@@ -63,6 +64,25 @@ type outputConfig struct {
 	metaKeys    []string // nil: all
 }
 
+// OutputStage returns the tokenize stage that output.tokenizer
+// implies, or nil when the output section names no tokenizer. p is the
+// spec's output mapping; every output key is read (so that a later
+// OpenSink on the same mapping reports the same errors) and Done is
+// called.
+func OutputStage(p *stages.Params, env stages.Env) (stages.Stage, error) {
+	if p == nil {
+		return nil, nil
+	}
+	c, err := parseOutput(p, env)
+	if err != nil {
+		return nil, err
+	}
+	if c.tok == nil {
+		return nil, nil
+	}
+	return stages.NewTokenizeStage(c.tok), nil
+}
+
 // parseOutput reads every key of the output mapping, so that Done reports
 // only true unknowns, and loads the tokenizer. Keys:
 //
@@ -80,7 +100,7 @@ type outputConfig struct {
 //	max_epochs     up-sampling limit by whole-document repetition (default 1)
 //	token_files    also write flat token-id files per shard (default false)
 //	meta_keys      meta keys written into shard lines (default: all)
-func parseOutput(p *Params, env Env) (*outputConfig, error) {
+func parseOutput(p *stages.Params, env stages.Env) (*outputConfig, error) {
 	c := &outputConfig{}
 	c.tokenizer = p.String("tokenizer", "")
 	c.shardTokens = p.Int("shard_tokens", shard.DefaultShardTokens, 100, 1<<40)
@@ -147,7 +167,7 @@ func sortedStrings[V any](m map[string]V) []string {
 // spec's name, used as the shard file prefix; shards go to
 // env.RunDir/shards/. Under env.Checking it validates and returns a sink
 // that writes nothing.
-func OpenSink(p *Params, env Env, name string) (Sink, error) {
+func OpenSink(p *stages.Params, env stages.Env, name string) (Sink, error) {
 	c, err := parseOutput(p, env)
 	if err != nil {
 		return nil, err
@@ -184,7 +204,7 @@ func OpenSink(p *Params, env Env, name string) (Sink, error) {
 // discardSink is the sink of `winnow check`.
 type discardSink struct{}
 
-func (discardSink) Add(*Doc) error                { return nil }
+func (discardSink) Add(*stages.Doc) error         { return nil }
 func (discardSink) Close() (*OutputReport, error) { return &OutputReport{Files: []OutputFile{}}, nil }
 func (discardSink) Abort()                        {}
 
@@ -195,7 +215,7 @@ type shardSink struct {
 }
 
 // Add hands one surviving document to the builder.
-func (s *shardSink) Add(d *Doc) error {
+func (s *shardSink) Add(d *stages.Doc) error {
 	s.d = shard.Doc{ID: d.ID, Text: d.Text, Source: d.Source, File: d.File, Line: d.Line, Tokens: d.Tokens, Meta: d.Meta}
 	return s.b.Add(&s.d)
 }
@@ -230,6 +250,6 @@ func (s *shardSink) Abort() { s.b.Abort() }
 
 // AppendDocJSON appends d as one shard line:
 // {"id","text","source","tokens",<meta keys sorted>}.
-func AppendDocJSON(b []byte, d *Doc) []byte {
+func AppendDocJSON(b []byte, d *stages.Doc) []byte {
 	return jsonl.AppendDocLine(b, d.ID, d.Text, d.Source, d.Tokens, d.Meta, nil)
 }

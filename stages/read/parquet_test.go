@@ -1,4 +1,4 @@
-package stages
+package read
 
 import (
 	"io"
@@ -39,7 +39,7 @@ func TestReadParquet(t *testing.T) {
 	f.Close()
 	in, _ := os.Open(p)
 	defer in.Close()
-	r, err := newParquetReader(in, "forum.parquet", 2, ReadOptions{Source: "forum", TextField: "text", IDField: "id"})
+	r, err := NewParquetReader(in, "forum.parquet", 2, ReadOptions{Source: "forum", TextField: "text", IDField: "id"})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -63,10 +63,10 @@ func TestReadParquet(t *testing.T) {
 		t.Fatalf("got %d rows", len(got))
 	}
 	d := got[57]
-	if d.ID != "f57" || d.Text != rows[57].Text || d.Meta["url"] != rows[57].URL || d.Meta["score"] != 14.25 || d.Order != MakeOrderKey(2, 58) {
+	if d.ID != "f57" || d.Text != rows[57].Text || d.Meta["url"] != rows[57].URL || d.Meta["score"] != 14.25 || d.Input != 2 || d.Line != 58 {
 		t.Errorf("row 57 = %+v", d)
 	}
-	if _, err := newParquetReader(in, "forum.parquet", 0, ReadOptions{TextField: "body"}); err == nil {
+	if _, err := NewParquetReader(in, "forum.parquet", 0, ReadOptions{TextField: "body"}); err == nil {
 		t.Error("missing text column: no error")
 	}
 }

@@ -1,4 +1,4 @@
-package stages
+package record
 
 import (
 	"fmt"
@@ -8,32 +8,33 @@ import (
 	"testing"
 
 	"winnow/shard"
+	"winnow/stages"
 )
 
 // Outside check: cl100k_base counts "hello world" as 2 tokens
 // ([15339, 1917] in the reference library github.com/tiktoken-go/tokenizer).
 func TestTokenizeStage(t *testing.T) {
-	st, err := TokenizeStageFor(ParamsFromMap(map[string]any{"tokenizer": "cl100k_base", "shard_tokens": 5000}), Env{})
+	st, err := OutputStage(stages.ParamsFromMap(map[string]any{"tokenizer": "cl100k_base", "shard_tokens": 5000}), stages.Env{})
 	if err != nil || st == nil {
 		t.Fatalf("stage %v, err %v", st, err)
 	}
-	dec := st.Process(&Doc{Text: "hello world"})
-	if dec.Action != Keep || dec.Tokens != 2 || len(dec.Metrics) != 1 || dec.Metrics[0] != 2 {
+	dec := st.Process(&stages.Doc{Text: "hello world"})
+	if dec.Action != stages.Keep || dec.Tokens != 2 || len(dec.Metrics) != 1 || dec.Metrics[0] != 2 {
 		t.Fatalf("decision %+v", dec)
 	}
 	if st.Name() != "tokenize" || st.MetricNames()[0] != "tokens" {
 		t.Errorf("name %s metrics %v", st.Name(), st.MetricNames())
 	}
-	none, err := TokenizeStageFor(ParamsFromMap(map[string]any{"shard_bytes": 4096}), Env{})
+	none, err := OutputStage(stages.ParamsFromMap(map[string]any{"shard_bytes": 4096}), stages.Env{})
 	if none != nil || err != nil {
 		t.Errorf("no tokenizer: %v %v", none, err)
 	}
-	k, ok := LookupKind("tokenize")
+	k, ok := stages.LookupKind("tokenize")
 	if !ok {
 		t.Fatal("tokenize kind not registered")
 	}
-	s2, err := k.New(ParamsFromMap(map[string]any{"tokenizer": "o200k_base"}), Env{})
-	if err != nil || s2.Process(&Doc{Text: "hello world"}).Tokens != 2 {
+	s2, err := k.New(stages.ParamsFromMap(map[string]any{"tokenizer": "o200k_base"}), stages.Env{})
+	if err != nil || s2.Process(&stages.Doc{Text: "hello world"}).Tokens != 2 {
 		t.Fatalf("registered kind: %v", err)
 	}
 }
@@ -50,13 +51,13 @@ func TestOutputParamErrors(t *testing.T) {
 		{map[string]any{"tokenizer": "cl100k_base", "shard_tokens": 1000, "split_tokens": 2000}, "larger than shard_tokens"},
 	}
 	for _, c := range cases {
-		_, err := OpenSink(ParamsFromMap(c.m), Env{Checking: true}, "x")
+		_, err := OpenSink(stages.ParamsFromMap(c.m), stages.Env{Checking: true}, "x")
 		if err == nil || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("%v: error %v, want %q", c.m, err, c.want)
 		}
 	}
 	dir := t.TempDir()
-	if _, err := OpenSink(ParamsFromMap(map[string]any{"tokenizer": "cl100k_base"}), Env{Checking: true, RunDir: dir}, "x"); err != nil {
+	if _, err := OpenSink(stages.ParamsFromMap(map[string]any{"tokenizer": "cl100k_base"}), stages.Env{Checking: true, RunDir: dir}, "x"); err != nil {
 		t.Fatal(err)
 	}
 	if ents, _ := os.ReadDir(dir); len(ents) != 0 {
@@ -68,14 +69,14 @@ func TestOutputParamErrors(t *testing.T) {
 // section and ledger edits for split documents.
 func TestShardSinkReport(t *testing.T) {
 	run := t.TempDir()
-	p := ParamsFromMap(map[string]any{"tokenizer": "cl100k_base", "shard_tokens": 400,
+	p := stages.ParamsFromMap(map[string]any{"tokenizer": "cl100k_base", "shard_tokens": 400,
 		"mix": map[string]any{"manuals": 0.5, "forum": 0.5}, "token_files": true})
-	env := Env{RunDir: run, TempDir: filepath.Join(run, "tmp"), Seed: 7}
+	env := stages.Env{RunDir: run, TempDir: filepath.Join(run, "tmp"), Seed: 7}
 	sink, err := OpenSink(p, env, "demo")
 	if err != nil {
 		t.Fatal(err)
 	}
-	st, _ := TokenizeStageFor(ParamsFromMap(map[string]any{"tokenizer": "cl100k_base"}), env)
+	st, _ := OutputStage(stages.ParamsFromMap(map[string]any{"tokenizer": "cl100k_base"}), env)
 	para := "The Larkspur Marine Works crew hauled the ketch and checked the rudder bearings before the tide turned."
 	for i := 0; i < 60; i++ {
 		src := "forum"
@@ -84,7 +85,7 @@ func TestShardSinkReport(t *testing.T) {
 			src = "manuals"
 			text = strings.Repeat(para+"\n\n", 1+i%3)
 		}
-		d := &Doc{ID: fmt.Sprint(src, i), Text: text, Source: src, File: src + ".jsonl", Line: int64(i + 1), Meta: map[string]any{"lang": "en"}}
+		d := &stages.Doc{ID: fmt.Sprint(src, i), Text: text, Source: src, File: src + ".jsonl", Line: int64(i + 1), Meta: map[string]any{"lang": "en"}}
 		d.Tokens = st.Process(d).Tokens
 		if err := sink.Add(d); err != nil {
 			t.Fatal(err)

@@ -1,4 +1,6 @@
-package stages
+// Package spec loads a pipeline spec (YAML) with file:line:column errors
+// and suggestions, applies --set overrides and builds the spec's stages.
+package spec
 
 import (
 	"encoding/json"
@@ -11,6 +13,10 @@ import (
 
 	"github.com/zeebo/xxh3"
 	"gopkg.in/yaml.v3"
+
+	"winnow/stages"
+	"winnow/stages/read"
+	"winnow/stages/suggest"
 )
 
 // Spec is a loaded pipeline spec (YAML). See README "Pipeline spec".
@@ -25,7 +31,7 @@ type Spec struct {
 	Inputs []InputSpec
 	Stages []StageSpec
 	// Output is the "output" mapping; OutputDir its "dir" key resolved.
-	Output    *Params
+	Output    *stages.Params
 	OutputDir string
 	// Config is the spec as plain data (written to the manifest) and
 	// ConfigHash its xxh3 over canonical JSON.
@@ -35,18 +41,27 @@ type Spec struct {
 
 // InputSpec is one entry of "inputs".
 type InputSpec struct {
-	ReadOptions
+	read.ReadOptions
 	Paths []string
 	// at is the position of the entry, for error messages.
-	at *Params
+	at *stages.Params
 }
 
 // StageSpec is one entry of "stages".
 type StageSpec struct {
 	Kind   string
 	Name   string
-	Params *Params
+	Params *stages.Params
 }
+
+// formatNames are the choices of an input's "format" key.
+var formatNames = func() []string {
+	var out []string
+	for _, f := range read.Formats {
+		out = append(out, string(f))
+	}
+	return out
+}()
 
 // LoadSpec reads and validates a spec file: every unknown key, wrong type
 // and out-of-range value is an error naming file:line:column. Stage
@@ -76,7 +91,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	}
 	abs, _ := filepath.Abs(path)
 	s := &Spec{File: path, Dir: filepath.Dir(abs)}
-	p := NewParams(path, "spec", root)
+	p := stages.NewParams(path, "spec", root)
 	s.Name = p.String("name", "winnow")
 	if s.Name == "" || strings.ContainsAny(s.Name, "/\\ \t") {
 		p.Errorf("name", "want a non-empty name without slashes or spaces")
@@ -98,7 +113,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		if len(in.Paths) == 0 {
 			ip.Errorf("paths", "at least one path, glob, directory or \"-\" is required")
 		}
-		in.Format = Format(ip.String("format", "auto", "auto", "jsonl", "text", "warc", "parquet"))
+		in.Format = read.Format(ip.String("format", string(read.FormatAuto), formatNames...))
 		in.TextField = ip.String("text_field", "text")
 		in.IDField = ip.String("id_field", "id")
 		if ip.Has("meta_fields") {
@@ -108,7 +123,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 			}
 		}
 		in.TextMode = ip.String("text_mode", "file", "file", "blocks")
-		in.MaxDocBytes = int(ip.Size("max_doc_bytes", DefaultMaxDocBytes, 1<<10, 1<<31))
+		in.MaxDocBytes = int(ip.Size("max_doc_bytes", read.DefaultMaxDocBytes, 1<<10, 1<<31))
 		if err := ip.Done(); err != nil {
 			errs = append(errs, err)
 		}
@@ -119,13 +134,13 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		st := StageSpec{Params: sp}
 		st.Kind = sp.String("kind", "")
 		sp.Ignore("kind", "name")
-		if _, ok := LookupKind(st.Kind); !ok {
+		if _, ok := stages.LookupKind(st.Kind); !ok {
 			var known []string
-			for _, k := range Kinds() {
+			for _, k := range stages.Kinds() {
 				known = append(known, k.Name)
 			}
 			msg := fmt.Sprintf("unknown stage kind %q (known: %s)", st.Kind, strings.Join(known, ", "))
-			if n := nearest(st.Kind, known); n != "" {
+			if n := suggest.Nearest(st.Kind, known); n != "" {
 				msg = fmt.Sprintf("unknown stage kind %q (did you mean %q?)", st.Kind, n)
 			}
 			sp.Errorf("kind", "%s", msg)
@@ -141,12 +156,12 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 				st.Name = fmt.Sprintf("%s_%d", st.Kind, names[st.Name])
 			}
 		}
-		sp.stageName = st.Name
+		sp.SetStageName(st.Name)
 		s.Stages = append(s.Stages, st)
 	}
 	s.Output = p.Sub("output")
 	if s.Output == nil {
-		s.Output = NewParams(path, "spec.output", &yaml.Node{Kind: yaml.MappingNode})
+		s.Output = stages.NewParams(path, "spec.output", &yaml.Node{Kind: yaml.MappingNode})
 	}
 	s.OutputDir = s.Output.String("dir", "")
 	if s.OutputDir != "" && !filepath.IsAbs(s.OutputDir) {
@@ -169,13 +184,13 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		for _, name := range names {
 			if !known[name] {
 				msg := fmt.Sprintf("mix names source %q, which no input has (sources: %s)", name, strings.Join(srcs, ", "))
-				if n := nearest(name, srcs); n != "" {
+				if n := suggest.Nearest(name, srcs); n != "" {
 					msg += fmt.Sprintf(" (did you mean %q?)", n)
 				}
 				s.Output.Errorf("mix", "%s", msg)
 			}
 		}
-		errs = append(errs, s.Output.takeErrs()...)
+		errs = append(errs, s.Output.TakeErrs()...)
 	}
 	if err := p.Done(); err != nil {
 		errs = append([]error{err}, errs...)
@@ -230,7 +245,7 @@ func jsonable(v any) any {
 
 // BuildStages constructs every stage of the spec. Each stage's parameter
 // errors are collected, so `check` reports all of them at once.
-func (s *Spec) BuildStages(env Env) ([]Step, error) {
+func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 	if env.SpecDir == "" {
 		env.SpecDir = s.Dir
 	}
@@ -243,7 +258,7 @@ func (s *Spec) BuildStages(env Env) ([]Step, error) {
 	// The memory budget is the whole run's: split it between global stages.
 	globals := int64(0)
 	for _, st := range s.Stages {
-		if k, ok := LookupKind(st.Kind); ok && k.NewGlobal != nil {
+		if k, ok := stages.LookupKind(st.Kind); ok && k.NewGlobal != nil {
 			globals++
 		}
 	}
@@ -253,7 +268,7 @@ func (s *Spec) BuildStages(env Env) ([]Step, error) {
 	var steps []Step
 	var errs []error
 	for _, st := range s.Stages {
-		k, _ := LookupKind(st.Kind)
+		k, _ := stages.LookupKind(st.Kind)
 		var step Step
 		var err error
 		if k.New != nil {
@@ -262,7 +277,7 @@ func (s *Spec) BuildStages(env Env) ([]Step, error) {
 			step.Global, err = k.NewGlobal(st.Params, env)
 			// A global kind may run per document in some
 			// configurations (no counting pass needed).
-			if pd, ok := step.Global.(PerDocumenter); ok && err == nil {
+			if pd, ok := step.Global.(stages.PerDocumenter); ok && err == nil {
 				if s := pd.PerDocument(); s != nil {
 					step.Stage, step.Global = s, nil
 				}
@@ -281,6 +296,6 @@ func (s *Spec) BuildStages(env Env) ([]Step, error) {
 // Step is one built stage of a pipeline: exactly one of Stage and Global.
 type Step struct {
 	Name   string
-	Stage  Stage
-	Global GlobalStage
+	Stage  stages.Stage
+	Global stages.GlobalStage
 }

@@ -1,4 +1,4 @@
-package stages
+package read
 
 import (
 	"bufio"
@@ -26,6 +26,9 @@ const (
 	FormatWARC    Format = "warc"
 	FormatParquet Format = "parquet"
 )
+
+// Formats lists the formats an input may name (a spec's "format" choices).
+var Formats = []Format{FormatAuto, FormatJSONL, FormatText, FormatWARC, FormatParquet}
 
 // ReadOptions says how to turn an input file's records into documents.
 type ReadOptions struct {
@@ -93,6 +96,12 @@ type RecordReader interface {
 	Next() (Record, error)
 }
 
+// Skipper is a RecordReader that passes over records it does not turn into
+// documents (WARC request, response and metadata records) and counts them.
+type Skipper interface {
+	SkippedRecords() int64
+}
+
 // ErrBinary is returned for input that is neither text, gzip nor zstd.
 var ErrBinary = errors.New("binary data: not text, gzip or zstd (wrong format or a corrupt file)")
 
@@ -104,7 +113,7 @@ func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (Reco
 	head, _ := br.Peek(4096)
 	format := opt.Format
 	if format == "" || format == FormatAuto {
-		format = guessFormat(file, head)
+		format = GuessFormat(file, head)
 	}
 	if opt.MaxDocBytes <= 0 {
 		opt.MaxDocBytes = DefaultMaxDocBytes
@@ -133,7 +142,9 @@ func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (Reco
 // DefaultMaxDocBytes is the default largest document held in memory.
 const DefaultMaxDocBytes = 8 << 20
 
-func guessFormat(file string, head []byte) Format {
+// GuessFormat picks a format from the file name (after any .gz or .zst
+// suffix) and, failing that, from the first decompressed bytes head.
+func GuessFormat(file string, head []byte) Format {
 	name := strings.ToLower(file)
 	for _, suf := range []string{".gz", ".zst", ".zstd", ".gzip"} {
 		name = strings.TrimSuffix(name, suf)
@@ -194,7 +205,7 @@ func (b *baseReader) newDoc(text, id string, line int64) *Doc {
 	if id == "" {
 		id = b.defaultID(line)
 	}
-	return &Doc{ID: id, Text: text, Source: b.opt.Source, File: b.file, Line: line, Order: MakeOrderKey(b.input, line)}
+	return &Doc{ID: id, Text: text, Source: b.opt.Source, File: b.file, Line: line, Input: b.input}
 }
 
 func (b *baseReader) wantMeta(key string) bool {

@@ -1,4 +1,4 @@
-package stages
+package read
 
 import (
 	"fmt"
@@ -32,9 +32,9 @@ type parquetMetaCol struct {
 
 const parquetBatchRows = 64 // rows decoded per ReadRows call
 
-// newParquetReader opens a Parquet file. Parquet needs random access to its
+// NewParquetReader opens a Parquet file. Parquet needs random access to its
 // footer, so it is read from the file itself, not through a decompressor.
-func newParquetReader(f *os.File, file string, input int, opt ReadOptions) (*parquetReader, error) {
+func NewParquetReader(f *os.File, file string, input int, opt ReadOptions) (*parquetReader, error) {
 	st, err := f.Stat()
 	if err != nil {
 		return nil, err

@@ -1,4 +1,4 @@
-package stages
+package read
 
 import (
 	"bufio"
@@ -26,6 +26,9 @@ type warcReader struct {
 	off     int64
 	Skipped int64
 }
+
+// SkippedRecords is how many records of other types were passed over.
+func (r *warcReader) SkippedRecords() int64 { return r.Skipped }
 
 const maxWARCHeaderBytes = 1 << 20 // a header block larger than this is corrupt
 

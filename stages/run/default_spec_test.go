@@ -1,4 +1,4 @@
-package stages
+package run
 
 import (
 	"context"
@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"winnow/configs"
+	"winnow/stages/spec"
 	"winnow/stages/synth"
 )
 
@@ -40,7 +41,7 @@ func TestDefaultSpecDeterministic(t *testing.T) {
 		workers int
 		memory  int64
 	}{{1, 0}, {4, 0}, {2, 4 << 10}} {
-		s, err := LoadSpec(p)
+		s, err := spec.LoadSpec(p)
 		if err != nil {
 			t.Fatal(err)
 		}

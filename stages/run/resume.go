@@ -1,4 +1,4 @@
-package stages
+package run
 
 import (
 	"encoding/json"
@@ -7,7 +7,9 @@ import (
 	"os"
 	"path/filepath"
 
+	"winnow/stages"
 	"winnow/stages/fsio"
+	"winnow/stages/record"
 )
 
 // Resuming a run. After every segment but the last (that is, once a
@@ -30,18 +32,18 @@ import (
 const checkpointFile = "checkpoint.json"
 
 type checkpoint struct {
-	ConfigHash  string           `json:"config_hash"`
-	Segment     int              `json:"segment"`
-	Spill       string           `json:"spill"`
-	Ledger      []streamState    `json:"ledger"`
-	LedgerCount map[string]int64 `json:"ledger_count"`
-	Metrics     []streamState    `json:"metrics"`
-	Read        *Counters        `json:"read"`
-	Counters    []*Counters      `json:"counters"`
-	Inputs      []InputSummary   `json:"inputs"`
-	Errors      []RunError       `json:"errors"`
-	ErrCount    int64            `json:"error_count"`
-	FatalInputs int              `json:"fatal_inputs"`
+	ConfigHash  string               `json:"config_hash"`
+	Segment     int                  `json:"segment"`
+	Spill       string               `json:"spill"`
+	Ledger      []record.StreamState `json:"ledger"`
+	LedgerCount map[string]int64     `json:"ledger_count"`
+	Metrics     []record.StreamState `json:"metrics"`
+	Read        *Counters            `json:"read"`
+	Counters    []*Counters          `json:"counters"`
+	Inputs      []InputSummary       `json:"inputs"`
+	Errors      []RunError           `json:"errors"`
+	ErrCount    int64                `json:"error_count"`
+	FatalInputs int                  `json:"fatal_inputs"`
 }
 
 // setFrom copies the flow counts and time of a checkpointed counter.
@@ -54,15 +56,15 @@ func (c *Counters) setFrom(o *Counters) {
 // writeCheckpoint records the state after segment si, whose survivors are
 // in spill.
 func (r *Runner) writeCheckpoint(si int, spill string) error {
-	led, err := r.ledger.checkpoint()
+	led, err := r.ledger.Checkpoint()
 	if err != nil {
 		return err
 	}
-	met, err := r.metrics.checkpoint()
+	met, err := r.metrics.Checkpoint()
 	if err != nil {
 		return err
 	}
-	cp := checkpoint{ConfigHash: r.Spec.ConfigHash, Segment: si, Spill: spill, Ledger: led, LedgerCount: r.ledger.count,
+	cp := checkpoint{ConfigHash: r.Spec.ConfigHash, Segment: si, Spill: spill, Ledger: led, LedgerCount: r.ledger.Counts(),
 		Metrics: met, Read: r.Read.snapshot(), Inputs: r.InputSums, Errors: r.Errors, ErrCount: r.ErrCount, FatalInputs: r.FatalInputs}
 	for _, c := range r.Counters {
 		s := c.snapshot()
@@ -114,22 +116,22 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 		}
 		for _, i := range steps {
 			obj := stageOf(r.Steps[i])
-			_, obs := obj.(Observer)
-			_, fin := obj.(Finisher)
+			_, obs := obj.(stages.Observer)
+			_, fin := obj.(stages.Finisher)
 			if obs || fin {
 				return fmt.Errorf("cannot resume: stage %s, before the checkpoint, keeps a run-wide report that is not saved; run again without --resume", r.Steps[i].Name)
 			}
 		}
 	}
-	r.ledger = NewLedger(r.ledger.dir)
-	if err := r.ledger.resume(cp.Ledger); err != nil {
+	r.ledger = record.NewLedger(r.ledger.Dir())
+	if err := r.ledger.Resume(cp.Ledger); err != nil {
 		return err
 	}
 	for k, v := range cp.LedgerCount {
-		r.ledger.count[k] = v
+		r.ledger.SetCount(k, v)
 	}
-	r.metrics = NewMetrics(r.metrics.dir)
-	if err := r.metrics.resume(cp.Metrics); err != nil {
+	r.metrics = record.NewMetrics(r.metrics.Dir())
+	if err := r.metrics.Resume(cp.Metrics); err != nil {
 		return err
 	}
 	for _, c := range r.Counters {
@@ -144,7 +146,7 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 	r.InputSums, r.Errors, r.ErrCount, r.FatalInputs = cp.Inputs, cp.Errors, cp.ErrCount, cp.FatalInputs
 	// Rebuild the global stage's keys from the spill, in input order.
 	g := r.Steps[segs[cp.Segment].scan].Global
-	if err := forEachSpilled(cp.Spill, func(d *Doc) error { return g.Collect(d.Order, d.ID, g.Scan(d)) }); err != nil {
+	if err := forEachSpilled(cp.Spill, func(d *stages.Doc) error { return g.Collect(d.Order, d.ID, g.Scan(d)) }); err != nil {
 		return err
 	}
 	if err := g.Reduce(); err != nil {

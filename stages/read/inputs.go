@@ -1,4 +1,4 @@
-package stages
+package read
 
 import (
 	"errors"
@@ -21,40 +21,47 @@ type InputFile struct {
 	Index int
 	// Size is the file size in bytes (-1 for stdin).
 	Size int64
-	// Spec is the input group the file belongs to.
-	Spec *InputSpec
+	// Options are the read options of the input group the file belongs to.
+	Options *ReadOptions
+}
+
+// Group is one entry of a spec's "inputs": how to read, and which paths.
+type Group struct {
+	Options *ReadOptions
+	Paths   []string
 }
 
 // ResolveInputs expands every input's paths (files, globs with "**",
 // directories walked recursively, "-") into an ordered, de-duplicated file
 // list. A missing file, a glob that matches nothing or a directory with no
 // files is an error before any work starts.
-func ResolveInputs(s *Spec) ([]InputFile, error) {
+// specFile names the spec in messages; relative paths resolve against dir.
+func ResolveInputs(specFile, dir string, groups []Group) ([]InputFile, error) {
 	var out []InputFile
 	seen := map[string]bool{}
 	var errs []error
 	stdin := false
-	for i := range s.Inputs {
-		in := &s.Inputs[i]
-		for _, pat := range in.Paths {
+	for _, g := range groups {
+		in := g.Options
+		for _, pat := range g.Paths {
 			if pat == "-" {
 				if stdin {
-					errs = append(errs, fmt.Errorf("%s: input %q: standard input named twice", s.File, in.Source))
+					errs = append(errs, fmt.Errorf("%s: input %q: standard input named twice", specFile, in.Source))
 					continue
 				}
 				stdin = true
-				out = append(out, InputFile{Path: "-", Display: "-", Size: -1, Spec: in})
+				out = append(out, InputFile{Path: "-", Display: "-", Size: -1, Options: in})
 				continue
 			}
 			full := pat
 			if !filepath.IsAbs(full) {
-				full = filepath.Join(s.Dir, pat)
+				full = filepath.Join(dir, pat)
 			}
-			files, err := expandPath(full)
+			files, err := ExpandPath(full)
 			if err != nil {
 				where := ""
 				if !filepath.IsAbs(pat) {
-					where = fmt.Sprintf(" (relative to the spec's directory %s)", s.Dir)
+					where = fmt.Sprintf(" (relative to the spec's directory %s)", dir)
 				}
 				errs = append(errs, fmt.Errorf("input %q: path %q%s: %w", in.Source, pat, where, err))
 				continue
@@ -70,26 +77,26 @@ func ResolveInputs(s *Spec) ([]InputFile, error) {
 					continue
 				}
 				disp := f
-				if rel, err := filepath.Rel(s.Dir, f); err == nil && !strings.HasPrefix(rel, "..") {
+				if rel, err := filepath.Rel(dir, f); err == nil && !strings.HasPrefix(rel, "..") {
 					disp = filepath.ToSlash(rel)
 				}
-				out = append(out, InputFile{Path: f, Display: disp, Size: st.Size(), Spec: in})
+				out = append(out, InputFile{Path: f, Display: disp, Size: st.Size(), Options: in})
 			}
 		}
 	}
 	for i := range out {
 		out[i].Index = i
 	}
-	if len(out) >= 1<<(64-orderRecordBits) {
-		errs = append(errs, fmt.Errorf("%d input files: at most %d are supported in one run", len(out), 1<<(64-orderRecordBits)))
+	if len(out) >= MaxInputFiles {
+		errs = append(errs, fmt.Errorf("%d input files: at most %d are supported in one run", len(out), MaxInputFiles))
 	}
 	return out, errors.Join(errs...)
 }
 
 func hasMeta(p string) bool { return strings.ContainsAny(p, "*?[") }
 
-// expandPath returns the regular files a path names, sorted.
-func expandPath(p string) ([]string, error) {
+// ExpandPath returns the regular files a path names, sorted.
+func ExpandPath(p string) ([]string, error) {
 	if !hasMeta(p) {
 		st, err := os.Stat(p)
 		if err != nil {

@@ -1,4 +1,4 @@
-package stages
+package run
 
 import (
 	"context"
@@ -12,7 +12,11 @@ import (
 	"sync/atomic"
 	"time"
 
+	"winnow/stages"
 	"winnow/stages/fsio"
+	"winnow/stages/read"
+	"winnow/stages/record"
+	"winnow/stages/spec"
 )
 
 // The runner splits a pipeline into segments at its global stages. A
@@ -65,17 +69,17 @@ type RunError struct {
 
 // InputSummary is one input file in the manifest.
 type InputSummary struct {
-	Path        string `json:"path"`
-	Source      string `json:"source"`
-	Bytes       int64  `json:"bytes"`
-	XXH3        string `json:"xxh3"`
-	Codec       Codec  `json:"codec"`
-	Format      Format `json:"format"`
-	Docs        int64  `json:"docs"`
-	Issues      int64  `json:"issues"`
-	InvalidUTF8 int64  `json:"invalid_utf8"`
-	Skipped     int64  `json:"skipped_records,omitempty"`
-	Complete    bool   `json:"complete"`
+	Path        string      `json:"path"`
+	Source      string      `json:"source"`
+	Bytes       int64       `json:"bytes"`
+	XXH3        string      `json:"xxh3"`
+	Codec       read.Codec  `json:"codec"`
+	Format      read.Format `json:"format"`
+	Docs        int64       `json:"docs"`
+	Issues      int64       `json:"issues"`
+	InvalidUTF8 int64       `json:"invalid_utf8"`
+	Skipped     int64       `json:"skipped_records,omitempty"`
+	Complete    bool        `json:"complete"`
 }
 
 // Progress is a snapshot of a running pipeline, for progress lines.
@@ -90,11 +94,11 @@ type Progress struct {
 
 // Runner executes a pipeline.
 type Runner struct {
-	Spec    *Spec
-	Steps   []Step
-	Inputs  []InputFile
-	Sink    Sink
-	Env     Env
+	Spec    *spec.Spec
+	Steps   []spec.Step
+	Inputs  []read.InputFile
+	Sink    record.Sink
+	Env     stages.Env
 	Workers int
 	// OnProgress, when set, is called about once a second.
 	OnProgress func(Progress)
@@ -106,8 +110,8 @@ type Runner struct {
 	// (tests of resuming).
 	stopAfter int
 
-	ledger  *Ledger
-	metrics *Metrics
+	ledger  *record.Ledger
+	metrics *record.Metrics
 
 	// Results, filled by Run.
 	Read      Counters
@@ -116,7 +120,7 @@ type Runner struct {
 	InputSums []InputSummary
 	Errors    []RunError
 	ErrCount  int64
-	Output    *OutputReport
+	Output    *record.OutputReport
 	// Interrupted is set when the context was cancelled mid-run.
 	Interrupted bool
 	// FatalInputs counts inputs that could not be read to their end.
@@ -129,9 +133,15 @@ type Runner struct {
 }
 
 type item struct {
-	rec       Record
+	rec       docRecord
 	input     int
 	readBytes int // text bytes as read, before any stage edited them
+}
+
+// docRecord is a read.Record whose document is a stages.Doc.
+type docRecord struct {
+	Doc   *stages.Doc
+	Issue *read.ReadIssue
 }
 
 type batch struct {
@@ -142,7 +152,7 @@ type batch struct {
 
 type stepResult struct {
 	step     int
-	dec      Decision
+	dec      stages.Decision
 	shadow   bool
 	bytesIn  int
 	bytesOut int
@@ -191,8 +201,8 @@ func (r *Runner) Run(ctx context.Context) error {
 	if r.Workers <= 0 {
 		r.Workers = runtime.NumCPU()
 	}
-	r.ledger = NewLedger(filepath.Join(r.Env.RunDir, "ledger"))
-	r.metrics = NewMetrics(filepath.Join(r.Env.RunDir, "metrics"))
+	r.ledger = record.NewLedger(filepath.Join(r.Env.RunDir, "ledger"))
+	r.metrics = record.NewMetrics(filepath.Join(r.Env.RunDir, "metrics"))
 	r.Read = Counters{Name: "read", Kind: "read"}
 	if err := r.ledger.Open("read"); err != nil {
 		return err
@@ -243,7 +253,7 @@ func (r *Runner) Run(ctx context.Context) error {
 			}
 		}
 		for _, s := range r.Steps {
-			if f, ok := stageOf(s).(Finisher); ok {
+			if f, ok := stageOf(s).(stages.Finisher); ok {
 				if ferr := f.Finish(r.Env.RunDir); ferr != nil && err == nil {
 					err = ferr
 				}
@@ -273,7 +283,7 @@ func (r *Runner) Run(ctx context.Context) error {
 	return err
 }
 
-func stageOf(s Step) any {
+func stageOf(s spec.Step) any {
 	if s.Stage != nil {
 		return s.Stage
 	}
@@ -465,7 +475,7 @@ func (r *Runner) work(seg segment, b *batch) {
 			dec := r.Steps[seg.apply].Global.Apply(d)
 			r.Counters[seg.apply].nanos.Add(nanotime() - t0)
 			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text)}
-			if dec.Action == Drop {
+			if dec.Action == stages.Drop {
 				out.results = append(out.results, res)
 				out.dropped = true
 				continue
@@ -480,15 +490,15 @@ func (r *Runner) work(seg segment, b *batch) {
 			dec := st.Process(d)
 			r.Counters[si].nanos.Add(nanotime() - t0)
 			res := stepResult{step: si, dec: dec, shadow: dropBy != "", bytesIn: len(d.Text), dropBy: dropBy}
-			if dropBy == "" && dec.Action == Drop {
+			if dropBy == "" && dec.Action == stages.Drop {
 				dropBy = r.Steps[si].Name
 			}
-			if dec.Action == Edit {
+			if dec.Action == stages.Edit {
 				// Shadow documents are edited too, so later stages
 				// measure what they would have seen.
 				d.Text = dec.Text
 			}
-			if !res.shadow && dec.Action != Drop {
+			if !res.shadow && dec.Action != stages.Drop {
 				mergeMeta(d, &dec)
 			}
 			res.bytesOut = len(d.Text)
@@ -504,15 +514,15 @@ func (r *Runner) work(seg segment, b *batch) {
 	}
 }
 
-func applyEdit(d *Doc, dec *Decision) {
-	if dec.Action == Edit {
+func applyEdit(d *stages.Doc, dec *stages.Decision) {
+	if dec.Action == stages.Edit {
 		d.Text = dec.Text
 		dec.Text = ""
 	}
 	mergeMeta(d, dec)
 }
 
-func mergeMeta(d *Doc, dec *Decision) {
+func mergeMeta(d *stages.Doc, dec *stages.Decision) {
 	for k, v := range dec.Meta {
 		d.SetMeta(k, v)
 	}
@@ -575,7 +585,7 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 	return nil
 }
 
-func (r *Runner) recordResult(d *Doc, res stepResult) error {
+func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	st := r.Steps[res.step]
 	c := r.Counters[res.step]
 	dec := &res.dec
@@ -584,7 +594,7 @@ func (r *Runner) recordResult(d *Doc, res stepResult) error {
 		names = st.Stage.MetricNames()
 	}
 	if len(names) > 0 && len(dec.Metrics) > 0 {
-		row := MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
+		row := record.MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
 			Rule: dec.Rule, DroppedBy: res.dropBy, Names: names, Values: dec.Metrics}
 		if err := r.metrics.Add(st.Name, &row); err != nil {
 			return err
@@ -600,9 +610,9 @@ func (r *Runner) recordResult(d *Doc, res stepResult) error {
 		c.BytesIn += int64(res.bytesIn)
 	}
 	switch dec.Action {
-	case Drop:
+	case stages.Drop:
 		c.Dropped++
-	case Edit:
+	case stages.Edit:
 		c.Edited++
 		c.DocsOut++
 		c.BytesOut += int64(res.bytesOut)
@@ -611,29 +621,29 @@ func (r *Runner) recordResult(d *Doc, res stepResult) error {
 		c.BytesOut += int64(res.bytesIn)
 	}
 	if st.Stage != nil {
-		if o, ok := st.Stage.(Observer); ok {
+		if o, ok := st.Stage.(stages.Observer); ok {
 			o.Observe(d, dec)
 		}
-	} else if o, ok := st.Global.(Observer); ok {
+	} else if o, ok := st.Global.(stages.Observer); ok {
 		o.Observe(d, dec)
 	}
-	if dec.Action == Keep && dec.Rule == "" {
+	if dec.Action == stages.Keep && dec.Rule == "" {
 		return nil // a flag (keep with a rule) is still recorded
 	}
 	action := dec.Action.String()
-	if dec.Action == Keep {
+	if dec.Action == stages.Keep {
 		action = "flag"
 	}
-	rec := LedgerRecord{Doc: d.ID, Source: d.Source, File: d.File, Line: d.Line, Stage: st.Name,
+	rec := record.LedgerRecord{Doc: d.ID, Source: d.Source, File: d.File, Line: d.Line, Stage: st.Name,
 		Rule: dec.Rule, Action: action, Value: dec.Value, Limit: dec.Limit,
 		Changes: dec.Changes, Extra: dec.Extra}
 	return r.ledger.Add(&rec)
 }
 
-func (r *Runner) recordIssue(iss *ReadIssue) error {
+func (r *Runner) recordIssue(iss *read.ReadIssue) error {
 	action := "drop"
 	switch {
-	case iss.Rule == RuleEmptyInput:
+	case iss.Rule == read.RuleEmptyInput:
 		r.Errors = append(r.Errors, RunError{File: iss.File, Rule: iss.Rule, Message: iss.Msg})
 		return nil
 	case iss.Fatal:
@@ -641,7 +651,7 @@ func (r *Runner) recordIssue(iss *ReadIssue) error {
 		r.FatalInputs++
 		r.ErrCount++
 		r.Errors = append(r.Errors, RunError{File: iss.File, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg, Fatal: true})
-	case iss.Rule == RuleInvalidUTF8:
+	case iss.Rule == read.RuleInvalidUTF8:
 		action = "edit"
 	default:
 		r.Read.Dropped++
@@ -660,7 +670,7 @@ func (r *Runner) recordIssue(iss *ReadIssue) error {
 		}
 		extra["offset"] = iss.Offset
 	}
-	rec := LedgerRecord{Doc: iss.DocID, Source: iss.Source, File: iss.File, Line: iss.Line, Stage: "read", Rule: iss.Rule,
+	rec := record.LedgerRecord{Doc: iss.DocID, Source: iss.Source, File: iss.File, Line: iss.Line, Stage: "read", Rule: iss.Rule,
 		Action: action, Value: iss.Bytes, Extra: extra}
 	return r.ledger.Add(&rec)
 }
@@ -689,14 +699,14 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 		if ctx.Err() != nil {
 			return ctx.Err()
 		}
-		sum := InputSummary{Path: in.Display, Source: in.Spec.Source}
-		err := r.readInput(ctx, in, &sum, func(rec Record) bool {
+		sum := InputSummary{Path: in.Display, Source: in.Options.Source}
+		err := r.readInput(ctx, in, &sum, func(rec read.Record) bool {
 			if rec.Issue != nil {
-				rec.Issue.Source = in.Spec.Source
+				rec.Issue.Source = in.Options.Source
 				r.Read.DocsIn++
 				r.Read.BytesIn += rec.Issue.Bytes
 				sum.Issues++
-				if rec.Issue.Rule == RuleInvalidUTF8 {
+				if rec.Issue.Rule == read.RuleInvalidUTF8 {
 					sum.InvalidUTF8++
 				}
 			}
@@ -710,7 +720,10 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 				r.prog.text.Add(int64(len(rec.Doc.Text)))
 				curBytes += len(rec.Doc.Text)
 			}
-			it := item{rec: rec, input: in.Index}
+			it := item{rec: docRecord{Issue: rec.Issue}, input: in.Index}
+			if rec.Doc != nil {
+				it.rec.Doc = stages.DocFromRead(rec.Doc)
+			}
 			if rec.Doc != nil {
 				it.readBytes = len(rec.Doc.Text)
 			}
@@ -723,20 +736,20 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 		// Whole-file problems go through the collector like any other
 		// issue, so the manifest and ledger are written by one goroutine.
 		if err != nil && !errors.Is(err, context.Canceled) {
-			iss := &ReadIssue{Source: in.Spec.Source, File: in.Display, Rule: RuleBrokenInput, Msg: err.Error(),
-				DocID: in.Spec.Source + "/" + in.Display, Fatal: true}
-			var de *DecodeError
+			iss := &read.ReadIssue{Source: in.Options.Source, File: in.Display, Rule: read.RuleBrokenInput, Msg: err.Error(),
+				DocID: in.Options.Source + "/" + in.Display, Fatal: true}
+			var de *read.DecodeError
 			if errors.As(err, &de) {
 				iss.Offset = de.Offset
 			}
-			cur.items = append(cur.items, item{rec: Record{Issue: iss}, input: in.Index})
+			cur.items = append(cur.items, item{rec: docRecord{Issue: iss}, input: in.Index})
 			r.logf("%s: %v (documents before this point are kept)", in.Display, err)
 		} else if err == nil {
 			sum.Complete = true
 			if sum.Docs == 0 && sum.Issues == 0 {
 				r.logf("%s: empty input: no documents", in.Display)
-				cur.items = append(cur.items, item{rec: Record{Issue: &ReadIssue{Source: in.Spec.Source, File: in.Display,
-					Rule: RuleEmptyInput, Msg: "empty input: no documents"}}, input: in.Index})
+				cur.items = append(cur.items, item{rec: docRecord{Issue: &read.ReadIssue{Source: in.Options.Source, File: in.Display,
+					Rule: read.RuleEmptyInput, Msg: "empty input: no documents"}}, input: in.Index})
 			}
 		}
 		if !flush() {
@@ -753,39 +766,39 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 
 // readInput opens, decodes and parses one input, calling emit per record.
 // emit returns false to stop (cancellation).
-func (r *Runner) readInput(ctx context.Context, in InputFile, sum *InputSummary, emit func(Record) bool) error {
-	f, err := OpenFile(in.Path)
+func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *InputSummary, emit func(read.Record) bool) error {
+	f, err := read.OpenFile(in.Path)
 	if err != nil {
 		return err
 	}
 	defer f.Close()
-	opt := in.Spec.ReadOptions
-	var rr RecordReader
-	var raw *RawCounter
-	if opt.Format == FormatParquet || (opt.Format == FormatAuto && guessFormat(in.Path, nil) == FormatParquet) {
+	opt := *in.Options
+	var rr read.RecordReader
+	var raw *read.RawCounter
+	if opt.Format == read.FormatParquet || (opt.Format == read.FormatAuto && read.GuessFormat(in.Path, nil) == read.FormatParquet) {
 		osf, ok := f.(*os.File)
 		if !ok || in.Path == "-" {
 			return fmt.Errorf("parquet cannot be read from standard input")
 		}
-		pr, err := newParquetReader(osf, in.Display, in.Index, opt)
+		pr, err := read.NewParquetReader(osf, in.Display, in.Index, opt)
 		if err != nil {
 			return err
 		}
 		rr = pr
-		sum.Format, sum.Codec = FormatParquet, CodecNone
+		sum.Format, sum.Codec = read.FormatParquet, read.CodecNone
 		defer func() {
 			n, h, _ := fsio.HashFile(in.Path)
 			sum.Bytes, sum.XXH3 = n, h
 		}()
 	} else {
-		dec, err := Decode(f)
+		dec, err := read.Decode(f)
 		if err != nil {
 			return err
 		}
 		defer dec.Close()
 		raw = dec.Raw
 		sum.Codec = dec.Codec
-		rr, sum.Format, err = NewRecordReader(dec, in.Display, in.Index, opt)
+		rr, sum.Format, err = read.NewRecordReader(dec, in.Display, in.Index, opt)
 		if err != nil {
 			sum.Bytes, sum.XXH3 = raw.Drain()
 			return err
@@ -814,14 +827,14 @@ func (r *Runner) readInput(ctx context.Context, in InputFile, sum *InputSummary,
 			if raw != nil {
 				sum.Bytes, sum.XXH3 = raw.Drain()
 			}
-			if wr, ok := rr.(*warcReader); ok {
-				sum.Skipped = wr.Skipped
+			if wr, ok := rr.(read.Skipper); ok {
+				sum.Skipped = wr.SkippedRecords()
 			}
 			return err
 		}
 	}
-	if wr, ok := rr.(*warcReader); ok {
-		sum.Skipped = wr.Skipped
+	if wr, ok := rr.(read.Skipper); ok {
+		sum.Skipped = wr.SkippedRecords()
 	}
 	if raw != nil {
 		sum.Bytes, sum.XXH3 = raw.Drain()
@@ -845,8 +858,8 @@ func (r *Runner) produceSpill(ctx context.Context, path string, out chan<- *batc
 		cur, curBytes = &batch{}, 0
 		return nil
 	}
-	err := forEachSpilled(path, func(d *Doc) error {
-		cur.items = append(cur.items, item{rec: Record{Doc: d}})
+	err := forEachSpilled(path, func(d *stages.Doc) error {
+		cur.items = append(cur.items, item{rec: docRecord{Doc: d}})
 		curBytes += len(d.Text)
 		r.prog.docs.Add(1)
 		if len(cur.items) >= batchDocs || curBytes >= batchBytes {

@@ -1,4 +1,4 @@
-package stages
+package run
 
 import (
 	"encoding/json"
@@ -9,24 +9,27 @@ import (
 	"strings"
 
 	"winnow/stages/fsio"
+	"winnow/stages/read"
+	"winnow/stages/record"
+	"winnow/stages/spec"
 )
 
 // Manifest is OUT/manifest.json: the run's provenance. Field names are a
 // contract (see README "Run directory"). Nothing in it depends on the
 // number of workers; only the "seconds" fields vary between runs.
 type Manifest struct {
-	ToolVersion string         `json:"tool_version"`
-	Name        string         `json:"name"`
-	Config      any            `json:"config"`
-	ConfigHash  string         `json:"config_hash"`
-	Seed        uint64         `json:"seed"`
-	Inputs      []InputSummary `json:"inputs"`
-	Stages      []*Counters    `json:"stages"`
-	Outputs     []OutputFile   `json:"outputs"`
-	Mix         any            `json:"mix,omitempty"`
-	Totals      Totals         `json:"totals"`
-	Errors      []RunError     `json:"errors"`
-	ErrorCount  int64          `json:"error_count"`
+	ToolVersion string              `json:"tool_version"`
+	Name        string              `json:"name"`
+	Config      any                 `json:"config"`
+	ConfigHash  string              `json:"config_hash"`
+	Seed        uint64              `json:"seed"`
+	Inputs      []InputSummary      `json:"inputs"`
+	Stages      []*Counters         `json:"stages"`
+	Outputs     []record.OutputFile `json:"outputs"`
+	Mix         any                 `json:"mix,omitempty"`
+	Totals      Totals              `json:"totals"`
+	Errors      []RunError          `json:"errors"`
+	ErrorCount  int64               `json:"error_count"`
 	// Interrupted is true when the run was stopped before the end; the
 	// ledger holds every decision made until then.
 	Interrupted bool    `json:"interrupted"`
@@ -45,7 +48,7 @@ type Totals struct {
 
 // BuildManifest assembles the manifest from a finished (or interrupted)
 // runner.
-func BuildManifest(version string, s *Spec, r *Runner, seconds float64) *Manifest {
+func BuildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *Manifest {
 	m := &Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
 		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, Interrupted: r.Interrupted, Seconds: seconds}
 	if m.Inputs == nil {
@@ -70,7 +73,7 @@ func BuildManifest(version string, s *Spec, r *Runner, seconds float64) *Manifes
 	}
 	m.Stages = append(m.Stages, w)
 	if m.Outputs == nil {
-		m.Outputs = []OutputFile{}
+		m.Outputs = []record.OutputFile{}
 	}
 	for _, in := range r.InputSums {
 		m.Totals.InputFiles++
@@ -115,7 +118,7 @@ const runMarker = ".winnow-run"
 // the inputs is always refused. It returns the temp directory for spills.
 // With resume it keeps the interrupted run's ledger, metrics and work
 // files instead (and refuses a directory holding another run).
-func PrepareRunDir(dir string, s *Spec, inputs []InputFile, force, resume bool) (string, error) {
+func PrepareRunDir(dir string, s *spec.Spec, inputs []read.InputFile, force, resume bool) (string, error) {
 	abs, err := filepath.Abs(dir)
 	if err != nil {
 		return "", err

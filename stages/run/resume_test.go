@@ -1,4 +1,4 @@
-package stages
+package run
 
 import (
 	"context"
@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"winnow/stages/spec"
 )
 
 // A run stopped after a checkpoint and resumed writes a run directory
@@ -16,8 +18,8 @@ import (
 func TestResumeMatchesUninterruptedRun(t *testing.T) {
 	p := defaultSpecFixture(t, 1200, 5)
 	dir := filepath.Dir(p)
-	load := func() *Spec {
-		s, err := LoadSpec(p)
+	load := func() *spec.Spec {
+		s, err := spec.LoadSpec(p)
 		if err != nil {
 			t.Fatal(err)
 		}

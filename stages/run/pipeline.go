@@ -1,16 +1,20 @@
-package stages
+// Package run ties a run together: it resolves a spec's inputs, prepares
+// the run directory, builds the stages and the sink, runs the stages over
+// the documents in segments (spilling between global stages, checkpointing
+// for --resume, reporting progress) and writes the manifest.
+package run
 
 import (
 	"context"
 	"errors"
-	"fmt"
 	"os"
 	"path/filepath"
 	"runtime"
-	"strings"
 	"time"
 
-	"gopkg.in/yaml.v3"
+	"winnow/stages"
+	"winnow/stages/record"
+	"winnow/stages/spec"
 )
 
 // RunOptions are the command-line choices of one run.
@@ -43,69 +47,15 @@ type RunResult struct {
 	Runner   *Runner
 }
 
-// ApplySets applies "stage.key=value" overrides to a spec's stage params
-// (the stage is named by its name or kind). An unknown stage is an error;
-// an unknown key is reported when the stage is built.
-func ApplySets(s *Spec, sets []string) error {
-	for _, set := range sets {
-		k, v, ok := strings.Cut(set, "=")
-		if !ok {
-			return fmt.Errorf("--set %q: want STAGE.KEY=VALUE", set)
-		}
-		st, key, ok := strings.Cut(k, ".")
-		if !ok {
-			return fmt.Errorf("--set %q: want STAGE.KEY=VALUE", set)
-		}
-		found := false
-		for i, sp := range s.Stages {
-			if sp.Name == st || sp.Kind == st {
-				sp.Params.SetOverride(key, v)
-				s.setConfig(i, key, v)
-				found = true
-			}
-		}
-		if !found {
-			return fmt.Errorf("--set %q: the spec has no stage %q", set, st)
-		}
-	}
-	if len(sets) > 0 {
-		s.hashConfig()
-	}
-	return nil
-}
-
-// setConfig records an override in the plain-data config written to the
-// manifest, so the manifest and config hash describe what really ran.
-func (s *Spec) setConfig(stage int, key, value string) {
-	m, ok := s.Config.(map[string]any)
-	if !ok {
-		return
-	}
-	list, ok := m["stages"].([]any)
-	if !ok || stage >= len(list) {
-		return
-	}
-	entry, ok := list[stage].(map[string]any)
-	if !ok {
-		return
-	}
-	var v any = value
-	var parsed any
-	if err := yaml.Unmarshal([]byte(value), &parsed); err == nil && parsed != nil {
-		v = jsonable(parsed)
-	}
-	entry[key] = v
-}
-
 // RunSpec runs a loaded spec end to end: resolve inputs, prepare the run
 // directory, build stages and sink, run, and write the manifest. On
 // interruption the manifest is written with interrupted=true and the error
 // is context.Canceled.
-func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
-	if err := ApplySets(s, opt.Sets); err != nil {
+func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, error) {
+	if err := spec.ApplySets(s, opt.Sets); err != nil {
 		return nil, err
 	}
-	inputs, err := ResolveInputs(s)
+	inputs, err := spec.ResolveInputs(s)
 	if err != nil {
 		return nil, err
 	}
@@ -121,7 +71,7 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 		return nil, err
 	}
 	abs, _ := filepath.Abs(out)
-	env := Env{SpecDir: s.Dir, RunDir: abs, TempDir: tmp, MemoryBudget: s.Memory, Seed: s.Seed, Against: opt.Against}
+	env := stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: tmp, MemoryBudget: s.Memory, Seed: s.Seed, Against: opt.Against}
 	if opt.Memory > 0 {
 		env.MemoryBudget = opt.Memory
 	}
@@ -129,7 +79,7 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 	if err != nil {
 		return nil, err
 	}
-	if ts, err := OutputStage(s.Output, env); err != nil {
+	if ts, err := record.OutputStage(s.Output, env); err != nil {
 		return nil, err
 	} else if ts != nil {
 		name := ts.Name()
@@ -138,9 +88,9 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 				name = "output_" + name // the spec also has a stage of that name
 			}
 		}
-		steps = append(steps, Step{Name: name, Stage: ts})
+		steps = append(steps, spec.Step{Name: name, Stage: ts})
 	}
-	sink, err := OpenSink(s.Output, env, s.Name)
+	sink, err := record.OpenSink(s.Output, env, s.Name)
 	if err != nil {
 		return nil, err
 	}
@@ -167,11 +117,6 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 	}
 	return &RunResult{Dir: abs, Manifest: m, Runner: r}, runErr
 }
-
-// OutputStage returns the per-document stage the output section implies
-// (token counting when output.tokenizer is set), or nil. It is replaced by
-// the shard package's tokenizer wiring.
-var OutputStage = func(p *Params, env Env) (Stage, error) { return nil, nil }
 
 // removeStaleTemps deletes temp files a crashed earlier attempt left in the
 // run's directories (a finished run's own files are all renamed by now).

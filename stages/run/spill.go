@@ -1,4 +1,4 @@
-package stages
+package run
 
 import (
 	"bufio"
@@ -11,6 +11,8 @@ import (
 	"winnow/stages/jsonl"
 
 	"github.com/klauspost/compress/zstd"
+	"winnow/stages"
+	"winnow/stages/read"
 )
 
 // docSpill stores the documents that reached a global stage, so the next
@@ -40,7 +42,7 @@ func createDocSpill(path string) (*docSpill, error) {
 	return &docSpill{path: path, f: f, enc: enc}, nil
 }
 
-func (s *docSpill) add(d *Doc) error {
+func (s *docSpill) add(d *stages.Doc) error {
 	b := s.buf[:0]
 	b = binary.AppendUvarint(b, uint64(d.Order))
 	b = appendField(b, d.ID)
@@ -102,7 +104,7 @@ func openDocSpill(path string) (*spillReader, error) {
 
 var errSpill = errors.New("corrupt spill record")
 
-func (r *spillReader) next() (*Doc, error) {
+func (r *spillReader) next() (*stages.Doc, error) {
 	n, err := binary.ReadUvarint(r.br)
 	if err != nil {
 		return nil, err
@@ -114,13 +116,13 @@ func (r *spillReader) next() (*Doc, error) {
 	if _, err := io.ReadFull(r.br, b); err != nil {
 		return nil, fmt.Errorf("spill %s: %w", r.f.Name(), err)
 	}
-	d := &Doc{}
+	d := &stages.Doc{}
 	var ok bool
 	var u uint64
 	if u, b, ok = takeUvarint(b); !ok {
 		return nil, errSpill
 	}
-	d.Order = OrderKey(u)
+	d.Order = stages.OrderKey(u)
 	fields := [4]*string{&d.ID, &d.Text, &d.Source, &d.File}
 	for _, f := range fields {
 		if *f, b, ok = takeField(b); !ok {
@@ -141,9 +143,8 @@ func (r *spillReader) next() (*Doc, error) {
 		return nil, errSpill
 	}
 	if meta != "" {
-		sc := jsonObjectScanner{b: []byte(meta)}
 		d.Meta = map[string]any{}
-		if err := sc.eachField(func(k, v []byte) { d.Meta[string(k)] = RawJSON(append([]byte(nil), v...)) }); err != nil {
+		if err := read.EachField([]byte(meta), func(k, v []byte) { d.Meta[string(k)] = read.RawJSON(append([]byte(nil), v...)) }); err != nil {
 			return nil, fmt.Errorf("spill meta: %w", err)
 		}
 	}
@@ -173,7 +174,7 @@ func (r *spillReader) close() {
 
 // forEachSpilled calls fn with every document of a spill, in order,
 // stopping at the first error.
-func forEachSpilled(path string, fn func(*Doc) error) error {
+func forEachSpilled(path string, fn func(*stages.Doc) error) error {
 	sr, err := openDocSpill(path)
 	if err != nil {
 		return err

@@ -1,4 +1,6 @@
-package stages
+// Package record writes what a run decided and produced: the per-stage
+// ledger and metrics files and the output sink (shards).
+package record
 
 import (
 	"os"
@@ -7,6 +9,7 @@ import (
 
 	"winnow/stages/jsonl"
 
+	"winnow/stages"
 	"winnow/stages/fsio"
 )
 
@@ -90,6 +93,9 @@ func (s *streamSet) get(name string) (*fsio.ZstdWriter, error) {
 	return w, nil
 }
 
+// Dir is the directory of the set's files.
+func (s *streamSet) Dir() string { return s.dir }
+
 func (s *streamSet) commit() error {
 	var first error
 	for _, n := range s.order {
@@ -106,31 +112,31 @@ func (s *streamSet) abort() {
 	}
 }
 
-// streamState is where one file of a set stood at a checkpoint.
-type streamState struct {
+// StreamState is where one file of a set stood at a checkpoint.
+type StreamState struct {
 	Name  string `json:"name"`
 	Temp  string `json:"temp"`
 	Final string `json:"final"`
 	Size  int64  `json:"size"`
 }
 
-// checkpoint ends a frame in every file and reports where each stands.
-func (s *streamSet) checkpoint() ([]streamState, error) {
-	var out []streamState
+// Checkpoint ends a frame in every file and reports where each stands.
+func (s *streamSet) Checkpoint() ([]StreamState, error) {
+	var out []StreamState
 	for _, n := range s.order {
 		w := s.files[n]
 		tmp, size, err := w.Checkpoint()
 		if err != nil {
 			return nil, err
 		}
-		out = append(out, streamState{Name: n, Temp: tmp, Final: w.Path(), Size: size})
+		out = append(out, StreamState{Name: n, Temp: tmp, Final: w.Path(), Size: size})
 	}
 	return out, nil
 }
 
-// resume reopens every file at its checkpointed size, from its temp file
+// Resume reopens every file at its checkpointed size, from its temp file
 // (after a crash) or its committed file (after an interruption).
-func (s *streamSet) resume(states []streamState) error {
+func (s *streamSet) Resume(states []StreamState) error {
 	for _, st := range states {
 		src := st.Temp
 		if _, err := os.Stat(src); err != nil {
@@ -185,6 +191,13 @@ func (l *Ledger) Add(r *LedgerRecord) error {
 // Count returns the number of records written for stage.
 func (l *Ledger) Count(stage string) int64 { return l.count[stage] }
 
+// Counts returns the number of records written per stage (a checkpoint
+// saves it).
+func (l *Ledger) Counts() map[string]int64 { return l.count }
+
+// SetCount restores the number of records written for stage on resume.
+func (l *Ledger) SetCount(stage string, n int64) { l.count[stage] = n }
+
 // Commit finishes every file.
 func (l *Ledger) Commit() error { return l.commit() }
 
@@ -217,9 +230,9 @@ func NewMetrics(dir string) *Metrics {
 type MetricRow struct {
 	Doc       string
 	Source    string
-	Order     OrderKey
+	Order     stages.OrderKey
 	Bytes     int
-	Action    Action
+	Action    stages.Action
 	Rule      string
 	DroppedBy string
 	Names     []string
