@@ -8,8 +8,8 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
-	"sync"
 	"strings"
+	"sync"
 	"sync/atomic"
 	"time"
 
