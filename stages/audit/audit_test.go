@@ -3,6 +3,7 @@ package audit_test
 import (
 	"context"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -313,6 +314,41 @@ func TestExplainFollowsOneDocument(t *testing.T) {
 	ex = explain(t, r, nd[0]["doc"].(string))
 	if got := ex.Docs[0].Result; got.Status != "removed" || got.Stage != "near_dedup" || !strings.Contains(got.Reason, nd[0]["of"].(string)) {
 		t.Errorf("near duplicate result %+v, ledger %v", got, nd[0])
+	}
+
+	if !strings.Contains(ex.Docs[0].Result.Reason, fmt.Sprintf("(similarity %v)", nd[0]["similarity"])) {
+		t.Errorf("near duplicate reason %q lacks the similarity %v", ex.Docs[0].Result.Reason, nd[0]["similarity"])
+	}
+
+	// The kept twin lists the documents removed in its favour, as the
+	// ledgers of both dedup stages name them.
+	twin := nd[0]["of"].(string)
+	want := map[string]float64{}
+	for _, stage := range []string{"exact_dedup", "near_dedup"} {
+		for _, rec := range ledger[stage] {
+			if rec["of"] == twin {
+				sim, ok := rec["similarity"].(float64)
+				if !ok {
+					sim = 1
+				}
+				want[rec["doc"].(string)] = sim
+			}
+		}
+	}
+	ex = explain(t, r, twin)
+	tp := ex.Docs[0]
+	if tp.Result.Status != "kept" || tp.CopiesTotal != len(want) || len(tp.Copies) != len(want) {
+		t.Errorf("kept twin %s: %s, %d copies listed (%d total), ledgers name %d", twin, tp.Result.Status, len(tp.Copies), tp.CopiesTotal, len(want))
+	}
+	for _, c := range tp.Copies {
+		if sim, ok := want[c.ID]; !ok || sim != c.Similarity {
+			t.Errorf("kept twin %s: copy %+v, ledger similarity %v (listed %v)", twin, c, sim, ok)
+		}
+	}
+	var text strings.Builder
+	ex.WriteText(&text)
+	if !strings.Contains(text.String(), fmt.Sprintf("copies removed in its favour: %d", len(want))) || !strings.Contains(text.String(), nd[0]["doc"].(string)) {
+		t.Errorf("explain text of the kept twin:\n%s", text.String())
 	}
 
 	// A kept document: the shard line holding it.
