@@ -44,14 +44,15 @@ package dedup
 // verify exact, and ids all go to temp files, read back sequentially or
 // with positioned reads). During Reduce: 16 bytes per band key of the one
 // partition being sorted (bands/64 keys per document: 4 bytes per document
-// at the defaults) when that fits the memory budget, else the external
-// sort's budget; 1 bit per document (removed); 8-16 bytes per document
-// of verified-pair table (at most 1/16 of the budget); 8 bytes per
-// document of rank tables only when priorities differ; the verified pairs (12 bytes
-// each) in an external sort under the budget; BucketCap signatures; 12
-// bytes per removed document and the ids of kept documents with copies.
-// Disk: 8·bands + 4·permutations + 8 bytes per document (264 + 512 at the
-// defaults) plus ids and 12 bytes per verified pair.
+// at the defaults) when that fits 3/4 of the memory budget, else an
+// external sort within it; the verified pairs (16 bytes each in memory) in
+// an external sort within the other quarter; 1 bit per document
+// (removed); 8-16 bytes per document of verified-pair table (at most 1/16
+// of the budget); 8 bytes per document of rank tables only when
+// priorities differ; BucketCap signatures; 12 bytes per removed document
+// and the ids of kept documents with copies. Disk: 8·bands +
+// 4·permutations + 8 bytes per document (128 + 512 + 8 at the defaults)
+// plus ids and 10 bytes per verified pair.
 //
 // verify: exact keeps the hashed shingle sets spilled in a temp file (there
 // is no second pass over the text in the scan/reduce/apply contract), so it
@@ -351,7 +352,9 @@ func (x *NearIndex) Reduce() (err error) {
 	if err := x.rankDocs(); err != nil {
 		return err
 	}
-	pairs := NewSorter(pairCodec, x.dir, x.budget())
+	// The pair sort holds a quarter of the budget while the partitions
+	// are walked with the rest, so together they stay within it.
+	pairs := NewSorter(pairCodec, x.dir, max(x.budget()/4, 1))
 	defer pairs.Close()
 	w := newBucketWalker(x, pairs)
 	for p := 0; p < x.opt.Partitions; p++ {

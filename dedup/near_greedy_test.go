@@ -136,6 +136,13 @@ func TestNearPartitionInvariance(t *testing.T) {
 			if c.budget < 1<<20 && st.Runs == 0 {
 				t.Errorf("budget %d did not spill", c.budget)
 			}
+			// Past the budget: the partition sort and the pair sort (3/4
+			// and 1/4 of it; a run holds at least 4 records), the smallest
+			// pair table (1024 entries) and, for a keep rule, the rank
+			// tables (8 bytes/doc) and 1 bit/doc.
+			if limit := c.budget + 8*16 + 8*1024 + 9*int64(len(texts)); c.budget < 1<<20 && st.ResidentBytes > limit {
+				t.Errorf("budget %d: %d bytes resident, want at most %d", c.budget, st.ResidentBytes, limit)
+			}
 		}
 	}
 }

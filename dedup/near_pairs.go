@@ -162,8 +162,11 @@ func (x *NearIndex) walkPartition(p int, w *bucketWalker) error {
 	}
 	x.stats.Records += n
 	w.reset()
-	tables := 8 * int64(len(x.rank))
-	if 16*n <= x.budget() {
+	// Resident besides this partition's keys: rank tables, the pair
+	// table and the pair sort's buffer.
+	tables := 8*int64(len(x.rank)) + 8*int64(len(w.seen)) + w.pairs.ResidentBytes()
+	budget := max(x.budget()-x.budget()/4, 1)
+	if 16*n <= budget {
 		keys := w.keys[:0]
 		add := func(k uint64) error { keys = append(keys, x.rankKey(k)); return nil }
 		if x.prevBd != nil {
@@ -190,7 +193,7 @@ func (x *NearIndex) walkPartition(p int, w *bucketWalker) error {
 	// Larger than the budget: release the in-memory buffers and sort
 	// externally.
 	w.keys, w.tmp = nil, nil
-	s := NewSorter(Uint64Codec, x.dir, x.budget())
+	s := NewSorter(Uint64Codec, x.dir, budget)
 	defer s.Close()
 	add := func(k uint64) error { return s.Add(x.rankKey(k)) }
 	if x.prevBd != nil {
@@ -245,7 +248,6 @@ func newBucketWalker(x *NearIndex, pairs *Sorter[pairRec]) *bucketWalker {
 		size *= 2
 	}
 	w.seen, w.seenMask = make([]uint64, size), size-1
-	x.stats.ResidentBytes = max(x.stats.ResidentBytes, 8*int64(size))
 	return w
 }
 
@@ -328,8 +330,8 @@ func (x *NearIndex) greedy(pairs *Sorter[pairRec]) ([]rmRank, error) {
 	}
 	defer it.Close()
 	x.stats.SpilledBytes += pairs.SpilledBytes()
-	x.stats.ResidentBytes = max(x.stats.ResidentBytes, pairs.ResidentBytes())
 	total := x.prevN + x.n
+	x.stats.ResidentBytes = max(x.stats.ResidentBytes, pairs.ResidentBytes()+8*int64(len(x.rank))+int64(total)/8)
 	removed := make([]uint64, (uint64(total)+63)/64)
 	var out []rmRank
 	var cur uint32
