@@ -47,8 +47,8 @@ type RawCounter struct {
 	hash *xxh3.Hasher
 }
 
-// NewRawCounter wraps r.
-func NewRawCounter(r io.Reader) *RawCounter { return &RawCounter{r: r, hash: xxh3.New()} }
+// newRawCounter wraps r.
+func newRawCounter(r io.Reader) *RawCounter { return &RawCounter{r: r, hash: xxh3.New()} }
 
 func (c *RawCounter) Read(p []byte) (int, error) {
 	n, err := c.r.Read(p)
@@ -88,7 +88,7 @@ func (d *Decoded) Close() {
 // file name. A corrupt or truncated stream surfaces as a read error
 // (wrapped in *DecodeError) after every byte before the damage.
 func Decode(r io.Reader) (*Decoded, error) {
-	raw := NewRawCounter(r)
+	raw := newRawCounter(r)
 	br := bufio.NewReaderSize(raw, 256<<10)
 	head, err := br.Peek(4)
 	if err != nil && err != io.EOF && !errors.Is(err, bufio.ErrBufferFull) {

@@ -87,8 +87,8 @@ func ResolveInputs(specFile, dir string, groups []Group) ([]InputFile, error) {
 	for i := range out {
 		out[i].Index = i
 	}
-	if len(out) >= MaxInputFiles {
-		errs = append(errs, fmt.Errorf("%d input files: at most %d are supported in one run", len(out), MaxInputFiles))
+	if len(out) >= maxInputFiles {
+		errs = append(errs, fmt.Errorf("%d input files: at most %d are supported in one run", len(out), maxInputFiles))
 	}
 	return out, errors.Join(errs...)
 }
