@@ -541,3 +541,30 @@ func TestAuditReadErrors(t *testing.T) {
 		t.Errorf("explain of the repaired record: %+v", ex.Docs[0])
 	}
 }
+
+// On the generated corpus, every near copy points at a document near_dedup
+// kept, at a similarity at or above the threshold (no chains of
+// similar-to-similar), and exact copies point at a document exact_dedup
+// kept.
+func TestDedupLedgersPointAtKeptDocuments(t *testing.T) {
+	run := cachedRun(t, "full", fullStages)
+	ledger := ledgerFiles(t, run)
+	for _, stage := range []string{"exact_dedup", "near_dedup"} {
+		removed := map[string]bool{}
+		for _, rec := range ledger[stage] {
+			removed[rec["doc"].(string)] = true
+		}
+		if len(removed) == 0 {
+			t.Fatalf("%s removed nothing", stage)
+		}
+		for _, rec := range ledger[stage] {
+			of, _ := rec["of"].(string)
+			if of == "" || removed[of] {
+				t.Errorf("%s: %s removed of %q, which the stage also removed", stage, rec["doc"], of)
+			}
+			if sim, ok := rec["similarity"].(float64); stage == "near_dedup" && (!ok || sim < 0.8) {
+				t.Errorf("%s: %s removed of %s at similarity %v, threshold 0.8", stage, rec["doc"], of, rec["similarity"])
+			}
+		}
+	}
+}
