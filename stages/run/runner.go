@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -83,6 +84,39 @@ type Runner struct {
 	prog struct {
 		docs, raw, text atomic.Int64
 		seg             atomic.Int64
+	}
+	// wanted lists, per step, the metrics a later stage reads at scan
+	// time (stages.MetricUser): index into the step's metrics and name.
+	wanted [][]wantedMetric
+}
+
+type wantedMetric struct {
+	j    int
+	name string
+}
+
+// wantMetrics fills r.wanted from the MetricUser stages. The spec checked
+// that every name is measured by an earlier stage.
+func (r *Runner) wantMetrics() {
+	r.wanted = make([][]wantedMetric, len(r.Steps))
+	for _, s := range r.Steps {
+		mu, ok := stageOf(s).(stages.MetricUser)
+		if !ok {
+			continue
+		}
+		for _, name := range mu.UsesMetrics() {
+			stage, metric, _ := strings.Cut(name, ".")
+			for i, e := range r.Steps {
+				if e.Name != stage || e.Stage == nil {
+					continue
+				}
+				for j, m := range e.Stage.MetricNames() {
+					if m == metric {
+						r.wanted[i] = append(r.wanted[i], wantedMetric{j, name})
+					}
+				}
+			}
+		}
 	}
 }
 
@@ -161,6 +195,7 @@ func (r *Runner) Run(ctx context.Context) error {
 	if err := r.ledger.Open("read"); err != nil {
 		return err
 	}
+	r.wantMetrics()
 	r.Counters = nil
 	for _, s := range r.Steps {
 		kind := ""
@@ -443,6 +478,11 @@ func (r *Runner) work(seg segment, b *batch) {
 			t0 := nanotime()
 			dec := st.Process(d)
 			r.Counters[si].AddNanos(nanotime() - t0)
+			for _, w := range r.wanted[si] {
+				if w.j < len(dec.Metrics) {
+					d.SetMeasured(w.name, dec.Metrics[w.j])
+				}
+			}
 			res := stepResult{step: si, dec: dec, shadow: dropBy != "", bytesIn: len(d.Text), dropBy: dropBy}
 			if dropBy == "" && dec.Action == stages.Drop {
 				dropBy = r.Steps[si].Name
