@@ -38,30 +38,30 @@ func checkMetrics(t *testing.T, text string, q Quality, r Repetition) {
 		t.Fatalf("words %d, strings.Fields %d", q.Words, len(strings.Fields(text)))
 	}
 	noWords := q.Words == 0
-	if noWords != math.IsNaN(q.MeanWordLen) || noWords != math.IsNaN(q.AlphaWords) || noWords != math.IsNaN(q.SymbolRatio) {
+	if noWords != math.IsNaN(q.AverageWordLength) || noWords != math.IsNaN(q.WordsWithLettersShare) || noWords != math.IsNaN(q.SymbolsPerWord) {
 		t.Fatalf("NaN metrics do not match the word count: %+v", q)
 	}
-	if !noWords && (q.MeanWordLen < 1 || q.HashRatio < 0 || q.EllipsisRatio < 0) {
+	if !noWords && (q.AverageWordLength < 1 || q.HashesPerWord < 0 || q.EllipsesPerWord < 0) {
 		t.Fatalf("bad ratios: %+v", q)
 	}
-	checkFraction(t, "alpha_words", q.AlphaWords, true)
-	checkFraction(t, "bullet_lines", q.BulletLines, false)
-	checkFraction(t, "ellipsis_lines", q.EllipsisLines, false)
+	checkFraction(t, "words_with_letters_share", q.WordsWithLettersShare, true)
+	checkFraction(t, "bulleted_lines_share", q.BulletedLinesShare, false)
+	checkFraction(t, "ellipsis_ending_lines_share", q.EllipsisEndingLinesShare, false)
 	if c := q.Stop; c.Matches < 0 || c.Covered < c.Matches || c.Covered > c.Tokens || c.Gopher > c.Tokens {
 		t.Fatalf("stop-word counts %+v", c)
 	}
-	checkFraction(t, "stopword_density", q.Stop.Density(), true)
-	checkFraction(t, "dup_line_frac", r.DupLineFrac, false)
-	checkFraction(t, "dup_para_frac", r.DupParaFrac, false)
-	checkFraction(t, "dup_line_char_frac", r.DupLineCharFrac, false)
-	checkFraction(t, "dup_para_char_frac", r.DupParaCharFrac, false)
-	for i, v := range r.TopNgram {
+	checkFraction(t, "stop_word_share", q.Stop.Density(), true)
+	checkFraction(t, "repeated_lines_share", r.RepeatedLinesShare, false)
+	checkFraction(t, "repeated_paragraphs_share", r.RepeatedParagraphsShare, false)
+	checkFraction(t, "repeated_line_chars_share", r.RepeatedLineCharsShare, false)
+	checkFraction(t, "repeated_paragraph_chars_share", r.RepeatedParagraphCharsShare, false)
+	for i, v := range r.TopPhraseCharsShare {
 		checkFraction(t, "top n-gram", v, false)
 		if noWords && v != 0 {
 			t.Fatalf("top %d-gram %v without words", i+2, v)
 		}
 	}
-	for _, v := range r.DupNgram {
+	for _, v := range r.RepeatedPhraseCharsShare {
 		checkFraction(t, "dup n-gram", v, false)
 	}
 }
@@ -77,7 +77,7 @@ func FuzzMeasure(f *testing.F) {
 		checkMetrics(t, text, q, r)
 		// the separate entry points agree with the combined one
 		var s2 Scratch
-		if q2 := MeasureQuality(&s2, text, sw); q2 != q && !(math.IsNaN(q.MeanWordLen) && q2.Words == q.Words) {
+		if q2 := MeasureQuality(&s2, text, sw); q2 != q && !(math.IsNaN(q.AverageWordLength) && q2.Words == q.Words) {
 			t.Fatalf("MeasureQuality %+v, Measure %+v", q2, q)
 		}
 		if r2 := MeasureRepetition(&s2, text); r2 != r {
@@ -90,7 +90,7 @@ func FuzzCleanLines(f *testing.F) {
 	opt := C4LineOptions()
 	f.Fuzz(func(t *testing.T, text string) {
 		r := CleanLines(text, opt)
-		removed := r.LongWord + r.NoPunct + r.Short + r.Javascript + r.Policy
+		removed := r.OverlongWord + r.Unpunctuated + r.Short + r.Javascript + r.Policy
 		if r.Kept+removed != r.Lines {
 			t.Fatalf("kept %d + removed %d != lines %d", r.Kept, removed, r.Lines)
 		}
@@ -105,7 +105,7 @@ func FuzzCleanLines(f *testing.F) {
 				if l == "" {
 					continue
 				}
-				if !EndsWithTerminal(l) || CountWords(l) < opt.MinWords || ContainsFold(l, "javascript") {
+				if !EndsWithTerminal(l) || CountWords(l) < opt.FewestWords || ContainsFold(l, "javascript") {
 					t.Fatalf("kept line %q breaks a rule", l)
 				}
 			}

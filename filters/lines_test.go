@@ -27,7 +27,7 @@ func TestCleanLinesPage(t *testing.T) {
 	if r.Lines != 11 || r.Kept != 5 {
 		t.Fatalf("lines %d kept %d, want 11 and 5\n%s", r.Lines, r.Kept, r.Text)
 	}
-	if r.NoPunct != 2 || r.Short != 1 || r.Javascript != 1 || r.Policy != 2 || r.Citations != 3 || r.LongWord != 0 {
+	if r.Unpunctuated != 2 || r.Short != 1 || r.Javascript != 1 || r.Policy != 2 || r.Citations != 3 || r.OverlongWord != 0 {
 		t.Fatalf("counts %+v", r)
 	}
 	want := "Check the stern gland before every launch, said the foreman.\n\n" +
@@ -38,7 +38,7 @@ func TestCleanLinesPage(t *testing.T) {
 	if r.Text != want {
 		t.Fatalf("cleaned text:\n%s\nwant:\n%s", r.Text, want)
 	}
-	if !r.Changed || r.LoremIpsum || r.CurlyBrace || r.Sentences != 5 {
+	if !r.Changed || r.Placeholder || r.Braces || r.Sentences != 5 {
 		t.Fatalf("page flags %+v", r)
 	}
 }
@@ -52,10 +52,10 @@ func TestCleanLinesUnchanged(t *testing.T) {
 }
 
 func TestCleanLinesPageRules(t *testing.T) {
-	if r := CleanLines("Some Lorem Ipsum dolor sit amet text here.", C4LineOptions()); !r.LoremIpsum {
+	if r := CleanLines("Some Lorem Ipsum dolor sit amet text here.", C4LineOptions()); !r.Placeholder {
 		t.Fatal("lorem ipsum not seen")
 	}
-	if r := CleanLines("function f() { return 1; } is code, not prose.", C4LineOptions()); !r.CurlyBrace {
+	if r := CleanLines("function f() { return 1; } is code, not prose.", C4LineOptions()); !r.Braces {
 		t.Fatal("curly brace not seen")
 	}
 }

@@ -8,19 +8,19 @@ import (
 // 2021, appendix A, table A1 (from memory). A document is removed when a
 // fraction exceeds its limit, so a value equal to the limit keeps it.
 const (
-	GopherDupLineFrac     = 0.30 // duplicate line fraction
-	GopherDupParaFrac     = 0.30 // duplicate paragraph fraction
-	GopherDupLineCharFrac = 0.20 // duplicate line character fraction
-	GopherDupParaCharFrac = 0.20 // duplicate paragraph character fraction
+	GopherMostRepeatedLines          = 0.30 // duplicate line fraction
+	GopherMostRepeatedParagraphs     = 0.30 // duplicate paragraph fraction
+	GopherMostRepeatedLineChars      = 0.20 // duplicate line character fraction
+	GopherMostRepeatedParagraphChars = 0.20 // duplicate paragraph character fraction
 )
 
-// GopherTopNgramFrac are the limits of the top 2-, 3- and 4-gram character
+// GopherMostTopPhraseChars are the limits of the top 2-, 3- and 4-gram character
 // fractions (Rae et al. 2021, table A1, from memory).
-var GopherTopNgramFrac = [3]float64{0.20, 0.18, 0.16}
+var GopherMostTopPhraseChars = [3]float64{0.20, 0.18, 0.16}
 
-// GopherDupNgramFrac are the limits of the duplicate 5- to 10-gram
+// GopherMostRepeatedPhraseChars are the limits of the duplicate 5- to 10-gram
 // character fractions (Rae et al. 2021, table A1, from memory).
-var GopherDupNgramFrac = [6]float64{0.15, 0.14, 0.13, 0.12, 0.11, 0.10}
+var GopherMostRepeatedPhraseChars = [6]float64{0.15, 0.14, 0.13, 0.12, 0.11, 0.10}
 
 // Tuning constants of the repetition metrics.
 const (
@@ -44,21 +44,21 @@ const (
 // Repetition holds the repetition metrics of Rae et al. 2021 for one text.
 // Character counts are in characters (runes).
 type Repetition struct {
-	// DupLineFrac is the fraction of non-blank lines that repeat an
-	// earlier line; DupLineCharFrac the characters of those repeats over
-	// the characters of the text. DupParaFrac and DupParaCharFrac are the
+	// RepeatedLinesShare is the fraction of non-blank lines that repeat an
+	// earlier line; RepeatedLineCharsShare the characters of those repeats over
+	// the characters of the text. RepeatedParagraphsShare and RepeatedParagraphCharsShare are the
 	// same for paragraphs (separated by blank lines).
-	DupLineFrac, DupLineCharFrac float64
-	DupParaFrac, DupParaCharFrac float64
-	// TopNgram[n-2] (n = 2, 3, 4) is the characters of the most frequent
+	RepeatedLinesShare, RepeatedLineCharsShare           float64
+	RepeatedParagraphsShare, RepeatedParagraphCharsShare float64
+	// TopPhraseCharsShare[n-2] (n = 2, 3, 4) is the characters of the most frequent
 	// word n-gram times its count over the characters of all words,
 	// capped at 1; 0 when no n-gram repeats.
-	TopNgram [3]float64
-	// DupNgram[n-5] (n = 5..10) is the characters of the words covered by
+	TopPhraseCharsShare [3]float64
+	// RepeatedPhraseCharsShare[n-5] (n = 5..10) is the characters of the words covered by
 	// a repeated occurrence of a word n-gram (each character counted once
 	// however many occurrences overlap it) over the characters of all
 	// words.
-	DupNgram [6]float64
+	RepeatedPhraseCharsShare [6]float64
 }
 
 // MeasureRepetition splits text into s and measures its repetition
@@ -111,8 +111,8 @@ func RepetitionOfSplit(s *Scratch, text string) Repetition {
 				dupChars += l.Runes
 			}
 		}
-		r.DupLineFrac = float64(dup) / float64(len(lines))
-		r.DupLineCharFrac = frac(dupChars, s.Runes)
+		r.RepeatedLinesShare = float64(dup) / float64(len(lines))
+		r.RepeatedLineCharsShare = frac(dupChars, s.Runes)
 	}
 	paras := s.Paras[:min(len(s.Paras), MaxRepetitionLines)]
 	if len(paras) > 0 {
@@ -124,8 +124,8 @@ func RepetitionOfSplit(s *Scratch, text string) Repetition {
 				dupChars += p.Runes
 			}
 		}
-		r.DupParaFrac = float64(dup) / float64(len(paras))
-		r.DupParaCharFrac = frac(dupChars, s.Runes)
+		r.RepeatedParagraphsShare = float64(dup) / float64(len(paras))
+		r.RepeatedParagraphCharsShare = frac(dupChars, s.Runes)
 	}
 
 	words := s.Words[:min(len(s.Words), MaxRepetitionWords)]
@@ -270,13 +270,13 @@ func RepetitionOfSplit(s *Scratch, text string) Repetition {
 			covEnd[n-5] = j + 1
 		}
 	}
-	for i := range r.TopNgram {
+	for i := range r.TopPhraseCharsShare {
 		if bestCnt[i] >= 2 {
-			r.TopNgram[i] = min(1, float64(bestCnt[i])*float64(bestLen[i])/float64(max(total, 1)))
+			r.TopPhraseCharsShare[i] = min(1, float64(bestCnt[i])*float64(bestLen[i])/float64(max(total, 1)))
 		}
 	}
-	for i := range r.DupNgram {
-		r.DupNgram[i] = frac(dupChars[i], total)
+	for i := range r.RepeatedPhraseCharsShare {
+		r.RepeatedPhraseCharsShare[i] = frac(dupChars[i], total)
 	}
 	return r
 }

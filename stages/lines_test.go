@@ -28,7 +28,7 @@ func TestLinesMinWordsPerLine(t *testing.T) {
 		t.Fatalf("a five-word line was removed: %v %v", dec.Action, dec.Changes)
 	}
 	dec = expect(t, st, threeSentences+"\nFour words: too short.", "")
-	if dec.Action != Edit || dec.Changes["lines_short"] != 1 || dec.Text != threeSentences {
+	if dec.Action != Edit || dec.Changes["short_lines"] != 1 || dec.Text != threeSentences {
 		t.Fatalf("four-word line: %v %v %q", dec.Action, dec.Changes, dec.Text)
 	}
 }
@@ -36,27 +36,27 @@ func TestLinesMinWordsPerLine(t *testing.T) {
 func TestLinesMinSentences(t *testing.T) {
 	st := linesStageT(t, nil)
 	dec := expect(t, st, threeSentences, "") // 3 sentences: kept
-	if v := metric(t, st, dec, "sentences"); v != 3 {
+	if v := metric(t, st, dec, "sentence_count"); v != 3 {
 		t.Fatalf("sentences %v", v)
 	}
 	two := strings.Join(strings.Split(threeSentences, "\n")[:2], "\n")
-	dec = expect(t, st, two, "too_few_sentences") // 2: dropped
+	dec = expect(t, st, two, "sentences_too_few") // 2: dropped
 	if dec.Value != 2.0 || dec.Limit != 3.0 {
 		t.Fatalf("value %v limit %v", dec.Value, dec.Limit)
 	}
 	// sentences are counted after cleaning: removed lines do not count
-	expect(t, st, two+"\nClick here", "too_few_sentences")
+	expect(t, st, two+"\nClick here", "sentences_too_few")
 	// the limit is a spec key
-	expect(t, linesStageT(t, map[string]any{"min_sentences": 2}), two, "")
+	expect(t, linesStageT(t, map[string]any{"fewest_sentences": 2}), two, "")
 }
 
 func TestLinesPageRules(t *testing.T) {
 	st := linesStageT(t, nil)
-	expect(t, st, threeSentences+"\nLorem ipsum dolor sit amet, consectetur.", "lorem_ipsum")
-	expect(t, st, threeSentences+"\nThe config was {\"a\": 1} in the end.", "curly_brace")
+	expect(t, st, threeSentences+"\nLorem ipsum dolor sit amet, consectetur.", "has_placeholder_text")
+	expect(t, st, threeSentences+"\nThe config was {\"a\": 1} in the end.", "has_braces")
 	// even inside a line the other rules would remove
-	expect(t, st, "{\n"+threeSentences, "curly_brace")
-	expect(t, linesStageT(t, map[string]any{"drop_curly_brace": false}), "{\n"+threeSentences, "")
+	expect(t, st, "{\n"+threeSentences, "has_braces")
+	expect(t, linesStageT(t, map[string]any{"reject_pages_with_braces": false}), "{\n"+threeSentences, "")
 }
 
 func TestLinesRemovals(t *testing.T) {
@@ -68,7 +68,7 @@ func TestLinesRemovals(t *testing.T) {
 		"The keel bolts were replaced in 2019 [1] after a survey [citation needed].",
 	}, "\n")
 	dec := expect(t, st, page, "")
-	want := map[string]int{"lines_javascript": 1, "lines_policy": 1, "lines_no_punct": 1, "citations": 2}
+	want := map[string]int{"javascript_lines": 1, "policy_notice_lines": 1, "unpunctuated_lines": 1, "citation_marks": 2}
 	if dec.Action != Edit || len(dec.Changes) != len(want) {
 		t.Fatalf("changes %v, want %v", dec.Changes, want)
 	}
@@ -80,26 +80,26 @@ func TestLinesRemovals(t *testing.T) {
 	if !strings.HasSuffix(dec.Text, "\nThe keel bolts were replaced in 2019 after a survey.") {
 		t.Fatalf("text %q", dec.Text)
 	}
-	for _, name := range []string{"lines_javascript", "lines_policy", "lines_no_punct", "citations"} {
+	for _, name := range []string{"javascript_lines", "policy_notice_lines", "unpunctuated_lines", "citation_marks"} {
 		if metric(t, st, dec, name) != float64(want[name]) {
 			t.Fatalf("metric %s", name)
 		}
 	}
-	if metric(t, st, dec, "lines") != 7 || metric(t, st, dec, "lines_kept") != 4 {
+	if metric(t, st, dec, "input_lines") != 7 || metric(t, st, dec, "kept_lines") != 4 {
 		t.Fatalf("line metrics %v", dec.Metrics)
 	}
 }
 
 func TestLinesParams(t *testing.T) {
 	k, _ := LookupKind("lines")
-	for _, p := range []map[string]any{{"min_words": 3}, {"min_sentences": -1}, {"drop_policy": "maybe"}} {
+	for _, p := range []map[string]any{{"fewest_words": 3}, {"fewest_sentences": -1}, {"remove_policy_notice_lines": "maybe"}} {
 		if _, err := k.New(ParamsFromMap(p), Env{}); err == nil {
 			t.Errorf("%v: no error", p)
 		}
 	}
-	st := linesStageT(t, map[string]any{"min_line_words": 3, "require_terminal_punct": false})
+	st := linesStageT(t, map[string]any{"fewest_words_per_line": 3, "remove_unpunctuated_lines": false})
 	dec := expect(t, st, threeSentences+"\nCall us today\nHi", "")
-	if dec.Changes["lines_short"] != 1 || !strings.Contains(dec.Text, "Call us today") {
+	if dec.Changes["short_lines"] != 1 || !strings.Contains(dec.Text, "Call us today") {
 		t.Fatalf("%v %q", dec.Changes, dec.Text)
 	}
 }

@@ -121,7 +121,7 @@ func (c Cmp) String() string {
 
 // Rule is one threshold of a threshold stage: the document is dropped with
 // rule Name when Metric does not satisfy Cmp against Limit. Key is the spec
-// key that sets Limit (what-if uses it: "quality.min_words=80"). Rules are
+// key that sets Limit (what-if uses it: "quality.fewest_words=80"). Rules are
 // evaluated in table order; the first failing rule is the one recorded.
 type Rule struct {
 	Name    string
