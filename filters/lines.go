@@ -9,13 +9,14 @@ import (
 
 // Published values of the line-level cleaning of Raffel et al. 2020,
 // "Exploring the Limits of Transfer Learning with a Unified Text-to-Text
-// Transformer", section 2.2 (from memory). The paper's own words are "We
-// discarded any page with fewer than 3 sentences and only retained lines
-// that contained at least 5 words" (the project's design notes had the two
-// numbers the other way round; our reading is 5 words and 3 sentences).
+// Transformer", section 2.2, from memory: pages with fewer than 5
+// sentences are discarded and only lines of at least 3 words are kept. A
+// secondary description of the same corpus (a glossary entry on C4)
+// agrees: "Discard pages with fewer than five sentences and any line
+// shorter than three words".
 const (
-	C4FewestWordsPerLine = 5 // lines with fewer words are removed
-	C4FewestSentences    = 3 // pages with fewer sentences are dropped
+	C4FewestWordsPerLine = 3 // lines with fewer words are removed
+	C4FewestSentences    = 5 // pages with fewer sentences are dropped
 	// C4LongestWord is the word length (characters) beyond which the
 	// reference implementation removes a line; it is not in the paper
 	// (from memory of the released cleaning code: 1000).
