@@ -95,9 +95,25 @@ func init() {
 }
 
 // StopwordLanguages returns the ISO 639-1 codes of the supported stop-word
-// languages, sorted.
+// languages, sorted: one per list.
 func StopwordLanguages() []string {
 	return append([]string(nil), stopwordLang...)
+}
+
+// stopwordAliases are codes that use another code's list: Norwegian
+// Bokmål (nb) and Nynorsk (nn), which language identification tells
+// apart, share the dataset's one Norwegian list (no).
+var stopwordAliases = map[string]string{"nb": "no", "nn": "no"}
+
+// StopwordCodes returns every code StopwordsFor accepts, sorted: the
+// StopwordLanguages and the codes that share one of their lists (nb, nn).
+func StopwordCodes() []string {
+	codes := StopwordLanguages()
+	for a := range stopwordAliases {
+		codes = append(codes, a)
+	}
+	sort.Strings(codes)
+	return codes
 }
 
 // RawStopwords returns the embedded list of lang exactly as the dataset
@@ -115,9 +131,12 @@ func RawStopwords(lang string) ([]string, error) {
 }
 
 // StopwordsFor returns the stop-word list of lang (loaded once, shared,
-// safe for concurrent use), or an error naming the language when it is not
-// supported.
+// safe for concurrent use; nb and nn get the Norwegian list), or an error
+// naming the language when it is not supported.
 func StopwordsFor(lang string) (*Stopwords, error) {
+	if to, ok := stopwordAliases[lang]; ok {
+		lang = to
+	}
 	once, ok := stopwordOnce[lang]
 	if !ok {
 		return nil, fmt.Errorf("stop words: language %q is not supported (supported: %s)", lang, strings.Join(stopwordLang, " "))

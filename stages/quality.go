@@ -38,7 +38,9 @@ import (
 //
 // The stop-word metrics depend on the document's language: the spec's
 // `language` when set, else d.Meta["lang"] (from the langid stage), else
-// "en". In English stop_word_count counts the paper's eight words (the,
+// "en" (nb and nn use the Norwegian list). Shadow measurement sees the
+// language too: a document the langid stage removed still carries its
+// detected language here. In English stop_word_count counts the paper's eight words (the,
 // be, to, of, and, that, have, with); in another supported language it
 // counts occurrences of that language's stopwords-iso list.
 // stop_word_share is the share of words that are entries of the
@@ -112,7 +114,7 @@ func newQuality(p *Params, env Env) (Stage, error) {
 		{"stop_word_count", "fewest_stop_words", "stop_word_count", AtLeast, filters.GopherFewestStopWords, 0, big, false},
 		{"stop_word_share", "lowest_stop_word_share", "stop_word_share", AtLeast, 0, 0, 1, true},
 	})}
-	s.lang = p.String("language", "", filters.StopwordLanguages()...)
+	s.lang = p.String("language", "", filters.StopwordCodes()...)
 	return s, p.Done()
 }
 

