@@ -4,6 +4,7 @@ import (
 	"math"
 	"strings"
 	"testing"
+	"unicode"
 	"unicode/utf8"
 )
 
@@ -30,16 +31,27 @@ func checkFraction(t *testing.T, name string, v float64, nanOK bool) {
 }
 
 // checkMetrics asserts the invariants of Measure on any text: the word
-// count is strings.Fields', ratios are defined (NaN only without words),
+// count is refWords', ratios are defined (NaN only without words),
 // fractions lie in [0, 1], stop-word counts are bounded by the tokens.
 func checkMetrics(t *testing.T, text string, q Quality, r Repetition) {
 	t.Helper()
-	if q.Words != len(strings.Fields(text)) {
-		t.Fatalf("words %d, strings.Fields %d", q.Words, len(strings.Fields(text)))
+	if q.Words != len(refWords(text)) {
+		t.Fatalf("words %d, refWords %d", q.Words, len(refWords(text)))
 	}
 	noWords := q.Words == 0
-	if noWords != math.IsNaN(q.AverageWordLength) || noWords != math.IsNaN(q.WordsWithLettersShare) || noWords != math.IsNaN(q.SymbolsPerWord) {
+	if noWords != math.IsNaN(q.WordsWithLettersShare) || noWords != math.IsNaN(q.SymbolsPerWord) {
 		t.Fatalf("NaN metrics do not match the word count: %+v", q)
+	}
+	// the average word length is over spaced-script words, NaN unless
+	// they are the majority
+	unspaced := 0
+	for _, w := range refWords(text) {
+		if r, _ := utf8.DecodeRuneInString(w); unicode.In(r, unicode.Han, unicode.Hiragana, unicode.Katakana, unicode.Thai) || r == 0x30FC {
+			unspaced++
+		}
+	}
+	if (q.Words-unspaced > unspaced) == math.IsNaN(q.AverageWordLength) {
+		t.Fatalf("average word length %v with %d of %d words in scripts without spaces", q.AverageWordLength, unspaced, q.Words)
 	}
 	if !noWords && (q.AverageWordLength < 1 || q.HashesPerWord < 0 || q.EllipsesPerWord < 0) {
 		t.Fatalf("bad ratios: %+v", q)

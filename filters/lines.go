@@ -157,8 +157,8 @@ func CleanLines(text string, opt LineOptions) LineResult {
 	return res
 }
 
-// wordStats returns the number of words of line and the length in
-// characters of its longest word.
+// wordStats returns the number of words of line (as Split cuts them) and
+// the length in characters of its longest word.
 func wordStats(line string) (words, longest int) {
 	cur := 0
 	for i := 0; i < len(line); {
@@ -177,6 +177,20 @@ func wordStats(line string) (words, longest int) {
 			continue
 		}
 		r, size := utf8.DecodeRuneInString(line[i:])
+		if c >= 0xE0 && isUnspaced(r) {
+			// a word of a script without spaces ends the word before it
+			// and is one word of its own (see Split)
+			if cur > 0 {
+				words++
+				longest = max(longest, cur)
+			}
+			cur = 0
+			end := unspacedEnd(line, i, r, size)
+			words++
+			longest = max(longest, utf8.RuneCountInString(line[i:end]))
+			i = end
+			continue
+		}
 		i += size
 		if unicode.IsSpace(r) {
 			if cur > 0 {

@@ -28,9 +28,13 @@ const (
 // Quality holds the document-level quality metrics of Rae et al. 2021 for
 // one text.
 type Quality struct {
-	// Words is the number of whitespace-separated words.
+	// Words is the number of words (as Split cuts them).
 	Words int
-	// AverageWordLength is the mean word length in characters (NaN without words).
+	// AverageWordLength is the mean length in characters of the words of
+	// spaced scripts. The paper's rule is about alphabetic words: a text
+	// whose words are mostly one-character words of scripts without spaces
+	// (Chinese, Japanese, Thai; see Split) has no comparable word length,
+	// and the value is NaN, as it is without words.
 	AverageWordLength float64
 	// HashesPerWord is the number of '#' characters per word; EllipsesPerWord the
 	// number of ellipses ("..." or U+2026) per word; SymbolsPerWord the larger
@@ -59,16 +63,23 @@ func MeasureQuality(s *Scratch, text string, sw *Stopwords) Quality {
 // QualityOfSplit measures text, which s.Split(text) has already split.
 func QualityOfSplit(s *Scratch, text string, sw *Stopwords) Quality {
 	q := Quality{Words: len(s.Words)}
-	chars, alpha := 0, 0
+	chars, alpha, unspaced := 0, 0, 0
 	for _, w := range s.Words {
-		chars += int(w.Runes)
+		if w.Unspaced {
+			unspaced++
+		} else {
+			chars += int(w.Runes)
+		}
 		if w.Alpha {
 			alpha++
 		}
 	}
 	if q.Words > 0 {
 		n := float64(q.Words)
-		q.AverageWordLength = float64(chars) / n
+		q.AverageWordLength = nan
+		if spaced := q.Words - unspaced; spaced > unspaced {
+			q.AverageWordLength = float64(chars) / float64(spaced)
+		}
 		q.HashesPerWord = float64(strings.Count(text, "#")) / n
 		q.EllipsesPerWord = float64(strings.Count(text, "...")+strings.Count(text, "\u2026")) / n
 		q.SymbolsPerWord = max(q.HashesPerWord, q.EllipsesPerWord)

@@ -51,6 +51,7 @@ func refRepetition(text string) Repetition {
 		r.RepeatedParagraphCharsShare = float64(dupChars) / float64(total)
 	}
 
+	// phrases are of whitespace-separated tokens (see spacedTokens)
 	words := strings.Fields(text)
 	wordChars := 0
 	for _, w := range words {

@@ -266,11 +266,18 @@ func CountStopwords(s *Scratch, text string, sw *Stopwords) StopCount {
 		h := hashes[i] // a plain word is its own normalized form
 		var n string
 		if !w.Plain {
-			raw := text[w.Start:w.End]
-			if segmented && hasContinuaRune(raw) {
-				sw.countSegmented(s, raw, &c)
+			if segmented && w.Unspaced {
+				// the run of adjacent one-character words, matched
+				// greedily against the list's (multi-character) entries
+				j := i + 1
+				for j < len(words) && words[j].Unspaced && words[j].Start == words[j-1].End {
+					j++
+				}
+				sw.countSegmented(s, text[w.Start:words[j-1].End], &c)
+				i = j - 1
 				continue
 			}
+			raw := text[w.Start:w.End]
 			b := NormalizeWord(buf[:0], raw)
 			if len(b) == 0 {
 				c.Tokens++ // a token of punctuation or symbols only is no stop word
@@ -335,38 +342,18 @@ func (sw *Stopwords) matchMulti(text string, words []Word, first string, join []
 	return best
 }
 
-// isContinua reports whether r belongs to a script written without spaces
-// between words (Han, Hiragana, Katakana with its prolonged-sound mark,
-// Thai).
-func isContinua(r rune) bool {
-	if r < 0x0E00 {
-		return false
-	}
-	return unicode.Is(unicode.Han, r) || unicode.Is(unicode.Hiragana, r) || unicode.Is(unicode.Katakana, r) ||
-		unicode.Is(unicode.Thai, r) || r == 0x30FC
-}
-
-func hasContinuaRune(w string) bool {
-	for _, r := range w {
-		if isContinua(r) {
-			return true
-		}
-	}
-	return false
-}
-
-// countSegmented scans one token of a segmented language: runs of
-// continuous-script characters by greedy longest match, other runs as
-// ordinary tokens.
+// countSegmented scans a run of words of a segmented language: runs of
+// characters of scripts without spaces by greedy longest match, other
+// runs (the punctuation that belongs to those words) as ordinary tokens.
 func (sw *Stopwords) countSegmented(s *Scratch, w string, c *StopCount) {
 	var buf [maxNormBytes]byte
 	for len(w) > 0 {
 		// split off the next run of same-kind characters
 		r0, _ := utf8.DecodeRuneInString(w)
-		cont := isContinua(r0)
+		cont := isUnspaced(r0)
 		end := len(w)
 		for j, r := range w {
-			if isContinua(r) != cont {
+			if isUnspaced(r) != cont {
 				end = j
 				break
 			}

