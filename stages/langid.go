@@ -9,9 +9,11 @@ import (
 )
 
 // langidStage keeps documents written in one of the spec's languages. The
-// language is detected among a wider candidate set (a detector offered a
-// single language always answers that one, so an English-only spec still
-// has to tell German apart) by package filters/langid, which decides with
+// language is detected among a wider candidate set, by default every
+// language the models cover (a detector offered a single language always
+// answers that one, so an English-only spec still has to tell German
+// apart, and a language left out of the candidates is confidently named
+// as its nearest candidate) by package filters/langid, which decides with
 // lingua-go's models. The detected code and its confidence go into the
 // document's meta as "lang" and "lang_conf" (contract: later stages and
 // output readers use these names).
@@ -84,7 +86,7 @@ func newLangid(p *Params, env Env) (Stage, error) {
 			s.languages = append(s.languages, code)
 		}
 	}
-	cands := p.Strings("candidates", langid.DefaultCandidates())
+	cands := p.Strings("candidates", langid.SupportedCodes())
 	inCands := map[string]bool{}
 	candsOK := true
 	for _, c := range cands {
