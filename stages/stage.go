@@ -3,7 +3,9 @@ package stages
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sort"
+	"strings"
 )
 
 // Action is what a stage decided about one document.
@@ -218,6 +220,44 @@ type Finisher interface {
 // `winnow check` beyond their parameters (e.g. an LSH S-curve).
 type Describer interface {
 	Describe() string
+}
+
+// Scope is a per-document stage's `only:` (its sources and the detected
+// languages it applies to): a document outside passes the stage
+// untouched and is not measured by it. An empty list does not restrict.
+type Scope struct {
+	Sources   []string `json:"sources,omitempty"`
+	Languages []string `json:"languages,omitempty"`
+}
+
+// Match reports whether d is inside the scope: its source is one of
+// Sources and its meta "lang" (from the langid stage) one of Languages.
+func (s *Scope) Match(d *Doc) bool {
+	if s == nil {
+		return true
+	}
+	if len(s.Sources) > 0 && !slices.Contains(s.Sources, d.Source) {
+		return false
+	}
+	if len(s.Languages) > 0 {
+		lang, _ := d.Meta["lang"].(string)
+		if !slices.Contains(s.Languages, lang) {
+			return false
+		}
+	}
+	return true
+}
+
+// String describes the scope, e.g. "sources web, forum; languages en".
+func (s *Scope) String() string {
+	var parts []string
+	if len(s.Sources) > 0 {
+		parts = append(parts, "sources "+strings.Join(s.Sources, ", "))
+	}
+	if len(s.Languages) > 0 {
+		parts = append(parts, "languages "+strings.Join(s.Languages, ", "))
+	}
+	return strings.Join(parts, "; ")
 }
 
 // Env is what a stage constructor may use besides its own parameters.

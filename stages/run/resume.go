@@ -49,7 +49,7 @@ type checkpoint struct {
 // setFrom copies the flow counts and time of a checkpointed counter.
 func (c *Counters) setFrom(o *Counters) {
 	c.DocsIn, c.DocsOut, c.BytesIn, c.BytesOut = o.DocsIn, o.DocsOut, o.BytesIn, o.BytesOut
-	c.TokensOut, c.Dropped, c.Edited, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Seconds
+	c.TokensOut, c.Dropped, c.Edited, c.Skipped, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Skipped, o.Seconds
 	c.nanos.Store(int64(o.Seconds * 1e9))
 }
 

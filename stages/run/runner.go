@@ -38,22 +38,26 @@ const (
 
 // Counters are a stage's document flow, written to the manifest.
 type Counters struct {
-	Name      string  `json:"name"`
-	Kind      string  `json:"kind"`
-	DocsIn    int64   `json:"docs_in"`
-	DocsOut   int64   `json:"docs_out"`
-	BytesIn   int64   `json:"bytes_in"`
-	BytesOut  int64   `json:"bytes_out"`
-	TokensOut int64   `json:"tokens_out,omitempty"`
-	Dropped   int64   `json:"dropped"`
-	Edited    int64   `json:"edited"`
-	Seconds   float64 `json:"seconds"`
-	nanos     atomic.Int64
+	Name      string `json:"name"`
+	Kind      string `json:"kind"`
+	DocsIn    int64  `json:"docs_in"`
+	DocsOut   int64  `json:"docs_out"`
+	BytesIn   int64  `json:"bytes_in"`
+	BytesOut  int64  `json:"bytes_out"`
+	TokensOut int64  `json:"tokens_out,omitempty"`
+	Dropped   int64  `json:"dropped"`
+	Edited    int64  `json:"edited"`
+	// Skipped counts the documents outside the stage's `only:` scope:
+	// they passed it untouched (they are in DocsIn and DocsOut) and it
+	// did not measure them.
+	Skipped int64   `json:"skipped,omitempty"`
+	Seconds float64 `json:"seconds"`
+	nanos   atomic.Int64
 }
 
 func (c *Counters) snapshot() *Counters {
 	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
-		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds}
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Skipped: c.Skipped, Seconds: c.Seconds}
 }
 
 // RunError is an input problem recorded in the manifest.
@@ -154,6 +158,7 @@ type stepResult struct {
 	step     int
 	dec      stages.Decision
 	shadow   bool
+	skipped  bool // outside the step's `only:` scope: not measured
 	bytesIn  int
 	bytesOut int
 	dropBy   string
@@ -486,6 +491,11 @@ func (r *Runner) work(seg segment, b *batch) {
 		}
 		for _, si := range seg.steps {
 			st := r.Steps[si].Stage
+			if !r.Steps[si].Only.Match(d) {
+				out.results = append(out.results, stepResult{step: si, skipped: true, shadow: dropBy != "",
+					bytesIn: len(d.Text), bytesOut: len(d.Text), dropBy: dropBy})
+				continue
+			}
 			t0 := nanotime()
 			dec := st.Process(d)
 			r.Counters[si].nanos.Add(nanotime() - t0)
@@ -595,6 +605,16 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	st := r.Steps[res.step]
 	c := r.Counters[res.step]
+	if res.skipped {
+		if !res.shadow {
+			c.DocsIn++
+			c.DocsOut++
+			c.BytesIn += int64(res.bytesIn)
+			c.BytesOut += int64(res.bytesIn)
+			c.Skipped++
+		}
+		return nil
+	}
 	dec := &res.dec
 	var names []string
 	if st.Stage != nil {
