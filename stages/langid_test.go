@@ -60,7 +60,7 @@ func TestLangidEnglishOnlyRejectsGerman(t *testing.T) {
 	s := newLangidStage(t, map[string]any{"languages": []string{"en"}})
 	for _, p := range langidParagraphs(t, "en", 100) {
 		dec := s.Process(&Doc{Text: p})
-		if dec.Action != Keep || dec.Meta["lang"] != "en" {
+		if dec.Action != Keep || dec.Meta["lang"] != "en" || dec.Labels["lang"] != "en" {
 			t.Errorf("English paragraph: %v %s %v meta %v\n%s", dec.Action, dec.Rule, dec.Value, dec.Meta, p)
 		}
 		if c, _ := dec.Meta["lang_conf"].(float64); c < 0.5 || c > 1 {
@@ -73,8 +73,11 @@ func TestLangidEnglishOnlyRejectsGerman(t *testing.T) {
 			!reflect.DeepEqual(dec.Limit, []string{"en"}) {
 			t.Errorf("German paragraph: %v %s %v %v\n%s", dec.Action, dec.Rule, dec.Value, dec.Limit, p)
 		}
-		if dec.Meta["lang"] != "de" {
-			t.Errorf("German paragraph meta %v", dec.Meta)
+		if dec.Meta["lang"] != "de" || dec.Labels["lang"] != "de" {
+			t.Errorf("German paragraph meta %v, metrics label %v", dec.Meta, dec.Labels)
+		}
+		if conf := dec.Metrics[0]; conf != dec.Meta["lang_conf"] || langidMetrics[0] != "lang_conf" {
+			t.Errorf("German paragraph: lang_conf metric %v, meta %v", conf, dec.Meta["lang_conf"])
 		}
 	}
 }

@@ -48,6 +48,9 @@ type Decision struct {
 	// with the stage's MetricNames(). They are written to OUT/metrics/ for
 	// every document the stage saw, kept or not.
 	Metrics []float64
+	// Labels are text values measured with the metrics (the langid
+	// stage's detected "lang"), written beside them to OUT/metrics/.
+	Labels map[string]string
 	// Meta is merged into the document's Meta (language, confidence...);
 	// for a removed document only later stages' shadow measurement sees
 	// it. It is not written to the ledger.

@@ -78,3 +78,70 @@ output:
 		}
 	}
 }
+
+// TestLangidMetricsHoldLanguage: the langid stage's metrics hold the
+// detected "lang" (a text label, not a metric what-if limits) and
+// "lang_conf" for every document it saw, removed ones included, and they
+// agree with the ledger's value for documents it removed by language.
+func TestLangidMetricsHoldLanguage(t *testing.T) {
+	run := cachedRun(t, "full", fullStages)
+	rows := readJSONL(t, run+"/metrics/langid.jsonl.zst")
+	m := readManifest(t, run)
+	direct := 0
+	for _, row := range rows {
+		if row["dropped_by"] == nil {
+			direct++
+		}
+	}
+	if int64(direct) != num(manifestStage(t, m, "langid")["docs_in"]) || direct == len(rows) {
+		t.Fatalf("%d langid rows (%d not removed before) for %d documents in", len(rows), direct, num(manifestStage(t, m, "langid")["docs_in"]))
+	}
+	langs := map[string]int{}
+	for _, row := range rows {
+		lang, ok := row["lang"].(string)
+		if _, conf := row["lang_conf"].(float64); !ok || lang == "" || !conf {
+			t.Fatalf("row without lang or lang_conf: %v", row)
+		}
+		langs[lang]++
+	}
+	if langs["en"] == 0 || len(langs) < 3 {
+		t.Errorf("languages %v", langs)
+	}
+	byLedger := map[string]string{}
+	for _, rec := range readJSONL(t, run+"/ledger/langid.jsonl.zst") {
+		if rec["rule"] == "language" {
+			byLedger[rec["doc"].(string)] = rec["value"].(string)
+		}
+	}
+	r := openRun(t, run, audit.OpenOptions{})
+	step := -1
+	for i, st := range r.Steps {
+		if st.Name == "langid" {
+			step = i
+		}
+	}
+	seen := 0
+	if _, err := r.Walk(func(tr *audit.Trail) error {
+		row := tr.Steps[step].Row
+		if row == nil {
+			return nil
+		}
+		if want, ok := byLedger[tr.ID]; ok {
+			seen++
+			if row.Labels["lang"] != want {
+				t.Errorf("%s: metrics lang %q, ledger %q", tr.ID, row.Labels["lang"], want)
+			}
+		}
+		return nil
+	}); err != nil {
+		t.Fatal(err)
+	}
+	if seen != len(byLedger) || seen == 0 {
+		t.Errorf("%d of %d language removals seen", seen, len(byLedger))
+	}
+	for _, n := range r.Steps[step].MetricNames {
+		if n == "lang" {
+			t.Errorf("lang read as a metric: %v", r.Steps[step].MetricNames)
+		}
+	}
+}

@@ -622,7 +622,7 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	}
 	if len(names) > 0 && len(dec.Metrics) > 0 {
 		row := record.MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
-			Rule: dec.Rule, DroppedBy: res.dropBy, Names: names, Values: dec.Metrics}
+			Rule: dec.Rule, DroppedBy: res.dropBy, Labels: dec.Labels, Names: names, Values: dec.Metrics}
 		if err := r.metrics.Add(st.Name, &row); err != nil {
 			return err
 		}
