@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"winnow/stages"
+	"winnow/stages/record"
 	"winnow/stages/spec"
 )
 
@@ -117,7 +118,7 @@ func TestOnlySourcesEveryPerDocumentStage(t *testing.T) {
 			}
 			out, res := onlyRun(t, stage, docs, c.files)
 			name := c.kind
-			var cnt *Counters
+			var cnt *record.Counters
 			for _, ct := range res.Manifest.Stages {
 				if ct.Name == name {
 					cnt = ct
