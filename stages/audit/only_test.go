@@ -51,6 +51,24 @@ output:
 			t.Errorf("flow %s: skipped %d", f.Stage, f.Skipped)
 		}
 	}
+	// explain says why a manuals document has no lines measurements
+	var manual string
+	for _, row := range readJSONL(t, run+"/metrics/quality.jsonl.zst") {
+		if row["source"] == "manuals" {
+			manual = row["doc"].(string)
+			break
+		}
+	}
+	ex := explain(t, r, manual)
+	noted := false
+	for _, d := range ex.Docs[0].Decisions {
+		if d.Stage == "lines" {
+			noted = len(d.Metrics) == 0 && strings.Contains(d.Note, "outside its only: scope (sources web)")
+		}
+	}
+	if !noted {
+		t.Errorf("explain %s: %+v", manual, ex.Docs[0].Decisions)
+	}
 	rep, err := audit.BuildReport(r, audit.ReportOptions{})
 	if err != nil {
 		t.Fatal(err)
@@ -135,6 +153,13 @@ func TestLangidMetricsHoldLanguage(t *testing.T) {
 		return nil
 	}); err != nil {
 		t.Fatal(err)
+	}
+	for id, lang := range byLedger {
+		ex := explain(t, r, id)
+		if got := ex.Docs[0].Decisions[step].Labels["lang"]; got != lang {
+			t.Errorf("explain %s: lang %q, want %q", id, got, lang)
+		}
+		break
 	}
 	if seen != len(byLedger) || seen == 0 {
 		t.Errorf("%d of %d language removals seen", seen, len(byLedger))
