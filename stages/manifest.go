@@ -27,6 +27,9 @@ type Manifest struct {
 	Totals      Totals         `json:"totals"`
 	Errors      []RunError     `json:"errors"`
 	ErrorCount  int64          `json:"error_count"`
+	// InternalErrors counts documents a stage panicked on (rule
+	// internal_error in the ledger; each listed in Errors with its stack).
+	InternalErrors int64 `json:"internal_errors"`
 	// Interrupted is true when the run was stopped before the end; the
 	// ledger holds every decision made until then.
 	Interrupted bool    `json:"interrupted"`
@@ -47,7 +50,7 @@ type Totals struct {
 // runner.
 func BuildManifest(version string, s *Spec, r *Runner, seconds float64) *Manifest {
 	m := &Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
-		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, Interrupted: r.Interrupted, Seconds: seconds}
+		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, InternalErrors: r.InternalErrors, Interrupted: r.Interrupted, Seconds: seconds}
 	if m.Inputs == nil {
 		m.Inputs = []InputSummary{}
 	}

@@ -42,6 +42,7 @@ type checkpoint struct {
 	Errors      []RunError       `json:"errors"`
 	ErrCount    int64            `json:"error_count"`
 	FatalInputs int              `json:"fatal_inputs"`
+	Internal    int64            `json:"internal_errors"`
 }
 
 // setFrom copies the flow counts and time of a checkpointed counter.
@@ -63,7 +64,8 @@ func (r *Runner) writeCheckpoint(si int, spill string) error {
 		return err
 	}
 	cp := checkpoint{ConfigHash: r.Spec.ConfigHash, Segment: si, Spill: spill, Ledger: led, LedgerCount: r.ledger.count,
-		Metrics: met, Read: r.Read.snapshot(), Inputs: r.InputSums, Errors: r.Errors, ErrCount: r.ErrCount, FatalInputs: r.FatalInputs}
+		Metrics: met, Read: r.Read.snapshot(), Inputs: r.InputSums, Errors: r.Errors, ErrCount: r.ErrCount, FatalInputs: r.FatalInputs,
+		Internal: r.InternalErrors}
 	for _, c := range r.Counters {
 		s := c.snapshot()
 		s.Seconds = float64(c.nanos.Load()) / 1e9
@@ -142,6 +144,7 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 		r.Counters[i].setFrom(c)
 	}
 	r.InputSums, r.Errors, r.ErrCount, r.FatalInputs = cp.Inputs, cp.Errors, cp.ErrCount, cp.FatalInputs
+	r.InternalErrors = cp.Internal
 	// Rebuild the global stage's keys from the spill, in input order.
 	g := r.Steps[segs[cp.Segment].scan].Global
 	if err := forEachSpilled(cp.Spill, func(d *Doc) error { return g.Collect(d.Order, d.ID, g.Scan(d)) }); err != nil {

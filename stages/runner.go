@@ -54,11 +54,16 @@ func (c *Counters) snapshot() *Counters {
 
 // RunError is an input problem recorded in the manifest.
 type RunError struct {
-	File    string `json:"file"`
-	Line    int64  `json:"line,omitempty"`
-	Offset  int64  `json:"offset,omitempty"`
-	Rule    string `json:"rule,omitempty"`
+	File   string `json:"file"`
+	Line   int64  `json:"line,omitempty"`
+	Offset int64  `json:"offset,omitempty"`
+	Rule   string `json:"rule,omitempty"`
+	// Stage and Doc name the stage and document of an internal error.
+	Stage   string `json:"stage,omitempty"`
+	Doc     string `json:"doc,omitempty"`
 	Message string `json:"message"`
+	// Stack holds the first frames of an internal error's stack.
+	Stack []string `json:"stack,omitempty"`
 	// Fatal is true when the rest of the file could not be read.
 	Fatal bool `json:"fatal"`
 }
@@ -121,6 +126,8 @@ type Runner struct {
 	Interrupted bool
 	// FatalInputs counts inputs that could not be read to their end.
 	FatalInputs int
+	// InternalErrors counts documents a stage panicked on.
+	InternalErrors int64
 
 	prog struct {
 		docs, raw, text atomic.Int64
@@ -147,6 +154,10 @@ type stepResult struct {
 	bytesIn  int
 	bytesOut int
 	dropBy   string
+	// ie is set when the stage panicked on the document; scan when that
+	// happened in a global stage's Scan.
+	ie   *internalError
+	scan bool
 }
 
 type docOutcome struct {
@@ -462,10 +473,13 @@ func (r *Runner) work(seg segment, b *batch) {
 		dropBy := ""
 		if seg.apply >= 0 {
 			t0 := nanotime()
-			dec := r.Steps[seg.apply].Global.Apply(d)
+			dec, ie := safeApply(r.Steps[seg.apply].Global, d)
 			r.Counters[seg.apply].nanos.Add(nanotime() - t0)
-			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text)}
-			if dec.Action == Drop {
+			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text), ie: ie}
+			if ie != nil {
+				res.dec = internalDrop(ie)
+			}
+			if res.dec.Action == Drop {
 				out.results = append(out.results, res)
 				out.dropped = true
 				continue
@@ -477,9 +491,22 @@ func (r *Runner) work(seg segment, b *batch) {
 		for _, si := range seg.steps {
 			st := r.Steps[si].Stage
 			t0 := nanotime()
-			dec := st.Process(d)
+			dec, ie := safeProcess(st, d)
 			r.Counters[si].nanos.Add(nanotime() - t0)
 			res := stepResult{step: si, dec: dec, shadow: dropBy != "", bytesIn: len(d.Text), dropBy: dropBy}
+			if ie != nil {
+				// The document goes no further, not even as a shadow.
+				res.ie = ie
+				if dropBy == "" {
+					res.dec = internalDrop(ie)
+					dropBy = r.Steps[si].Name
+				} else {
+					res.dec = Decision{}
+				}
+				res.bytesOut = res.bytesIn
+				out.results = append(out.results, res)
+				break
+			}
 			if dropBy == "" && dec.Action == Drop {
 				dropBy = r.Steps[si].Name
 			}
@@ -498,8 +525,14 @@ func (r *Runner) work(seg segment, b *batch) {
 		out.dropped = dropBy != ""
 		if !out.dropped && seg.scan >= 0 {
 			t0 := nanotime()
-			out.keys = r.Steps[seg.scan].Global.Scan(d)
+			keys, ie := safeScan(r.Steps[seg.scan].Global, d)
 			r.Counters[seg.scan].nanos.Add(nanotime() - t0)
+			if ie != nil {
+				out.results = append(out.results, stepResult{step: seg.scan, dec: internalDrop(ie), bytesIn: len(d.Text), ie: ie, scan: true})
+				out.dropped = true
+				continue
+			}
+			out.keys = keys
 		}
 	}
 }
@@ -590,12 +623,15 @@ func (r *Runner) recordResult(d *Doc, res stepResult) error {
 			return err
 		}
 	}
+	if res.ie != nil {
+		r.recordInternal(d, st.Name, res.ie, res.shadow)
+	}
 	if res.shadow {
 		return nil
 	}
 	// A global stage's docs_in is counted at scan time; per-document
-	// stages count here.
-	if st.Stage != nil {
+	// stages count here (and so does a scan that panicked).
+	if st.Stage != nil || res.scan {
 		c.DocsIn++
 		c.BytesIn += int64(res.bytesIn)
 	}

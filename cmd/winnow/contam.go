@@ -176,6 +176,9 @@ func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) e
 	if errors.Is(runErr, context.Canceled) {
 		return &exitError{code: 130, err: errors.New("interrupted: the report covers the documents read so far")}
 	}
+	if r.InternalErrors > 0 {
+		return &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): the check failed on %d document(s), which the report leaves out (please report this bug)", r.InternalErrors, r.InternalErrors)}
+	}
 	if r.FatalInputs > 0 {
 		return &exitError{code: 3, err: fmt.Errorf("finished, but %d input file(s) could not be read to the end: the report covers the documents before the break", r.FatalInputs)}
 	}

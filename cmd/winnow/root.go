@@ -26,6 +26,10 @@ Logs and progress go to stderr, results to stdout.`,
 	Version:       version,
 }
 
+// exitInternal is the exit status of a run that finished with internal
+// errors (a stage panicked on some documents).
+const exitInternal = 4
+
 // exitError carries a specific exit status.
 type exitError struct {
 	code int

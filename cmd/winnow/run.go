@@ -59,7 +59,9 @@ without reading or filtering those documents again, and gives the same
 bytes as a run never stopped.
 
 Exit status: 0 on success; 3 when some input could not be read to its end
-(unless --allow-partial); 130 when interrupted; 1 on any other error.`,
+(unless --allow-partial); 4 when a stage failed on some document (an
+internal error: the run went on, the manifest lists each one); 130 when
+interrupted; 1 on any other error.`,
 	Example: `  winnow run configs/default.yaml --out out/ --workers 2
   winnow run spec.yaml --set quality.min_words=80 --force
   winnow run spec.yaml --out out/ --resume        # after Ctrl-C or a crash`,
@@ -125,6 +127,15 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	fatal := res.Runner.FatalInputs
 	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%d tokens) in %d shards to %s\n",
 		m.Totals.DocsOut, m.Totals.TokensOut, len(m.Outputs), res.Dir)
+	if m.InternalErrors > 0 {
+		// Listed before the partial-input note so the last line is about
+		// the bug; its status wins over 3 and --allow-partial.
+		if fatal > 0 {
+			fmt.Fprintf(os.Stderr, "winnow: %d input file(s) could not be read to the end: see errors in %s/manifest.json\n", fatal, res.Dir)
+		}
+		return res, &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): a stage failed on %d document(s), recorded with rule %s in the ledger and listed with their stacks in %s/manifest.json; every other document was processed (please report this bug)",
+			m.InternalErrors, m.InternalErrors, stages.RuleInternalError, res.Dir)}
+	}
 	if fatal > 0 {
 		msg := fmt.Errorf("finished, but %d input file(s) could not be read to the end and %d record(s) were unreadable: see errors in %s/manifest.json",
 			fatal, m.ErrorCount-int64(fatal), res.Dir)
