@@ -291,8 +291,12 @@ func (p *Params) FloatMap(key string) map[string]float64 {
 	for i := 0; i+1 < len(v.Content); i += 2 {
 		k, val := v.Content[i], v.Content[i+1]
 		f, err := strconv.ParseFloat(strings.ReplaceAll(val.Value, "_", ""), 64)
-		if err != nil || val.Kind != yaml.ScalarNode || math.IsNaN(f) || math.IsInf(f, 0) || f < 0 {
+		if err != nil || val.Kind != yaml.ScalarNode || math.IsNaN(f) || math.IsInf(f, 0) {
 			p.errs = append(p.errs, p.errAt(val, key+"."+k.Value, fmt.Sprintf("want a finite number >= 0, got %q", val.Value)))
+			continue
+		}
+		if f < 0 {
+			p.errs = append(p.errs, p.errAt(val, key+"."+k.Value, fmt.Sprintf("%v: must not be negative", f)))
 			continue
 		}
 		out[k.Value] = f

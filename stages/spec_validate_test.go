@@ -33,7 +33,7 @@ func TestSpecValidatedUpFront(t *testing.T) {
 		{strings.Replace(basicSpec, "  - kind: length\n    min_chars: 5", "  - kind: quality\n    max_symbol_ratio: +Inf", 1), `spec.yaml:9:23: spec.stages[1].max_symbol_ratio: want a finite number, got "+Inf"`},
 		{strings.Replace(basicSpec, "  dir: out", "  dir: out\n  mix: {yard: NaN}", 1), `spec.yaml:12:15: spec.output.mix.yard: want a finite number >= 0, got "NaN"`},
 		{strings.Replace(basicSpec, "  dir: out", "  dir: out\n  mix: {yard: .inf}", 1), `spec.output.mix.yard: want a finite number >= 0, got ".inf"`},
-		{strings.Replace(basicSpec, "  dir: out", "  dir: out\n  mix: {yard: -1}", 1), `spec.output.mix.yard: want a finite number >= 0, got "-1"`},
+		{strings.Replace(basicSpec, "  dir: out", "  dir: out\n  mix: {yard: -1}", 1), `spec.output.mix.yard: -1: must not be negative`},
 		// A non-finite number anywhere (even a key no stage reads) is named
 		// by its place, not by a JSON encoder error at the end.
 		{strings.Replace(basicSpec, "    min_chars: 5", "    min_chars: 5\n    note: [1, .nan]", 1), `spec.yaml:10:15: spec.stages[1].note[1]: want a finite number, got ".nan"`},
