@@ -38,6 +38,13 @@ func CreateAtomic(path string) (*AtomicFile, error) {
 	if err != nil {
 		return nil, err
 	}
+	// CreateTemp makes the file private (0600); a run's outputs are
+	// shared like any file the user creates.
+	if err := f.Chmod(fileMode()); err != nil {
+		f.Close()
+		os.Remove(f.Name())
+		return nil, err
+	}
 	return &AtomicFile{f: f, final: path, buf: bufio.NewWriterSize(f, 1<<20), hash: xxh3.New()}, nil
 }
 
