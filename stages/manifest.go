@@ -4,9 +4,11 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 	"strings"
+	"time"
 
 	"winnow/stages/fsio"
 )
@@ -108,6 +110,25 @@ func ReadManifest(dir string) (*Manifest, error) {
 	return &m, nil
 }
 
+// CheckOutNotInput refuses an output directory that contains one of the
+// inputs (a run would replace or read its own output).
+func CheckOutNotInput(dir string, inputs []InputFile) error {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		return err
+	}
+	for _, in := range inputs {
+		if in.Path == "-" {
+			continue
+		}
+		p, _ := filepath.Abs(in.Path)
+		if rel, err := filepath.Rel(abs, p); err == nil && !strings.HasPrefix(rel, "..") {
+			return fmt.Errorf("output directory %s contains input %s: choose another --out", dir, in.Display)
+		}
+	}
+	return nil
+}
+
 // runMarker is written when a run starts, so an interrupted run's directory
 // is still recognised as belonging to its spec.
 const runMarker = ".winnow-run"
@@ -123,18 +144,18 @@ func PrepareRunDir(dir string, s *Spec, inputs []InputFile, force, resume bool) 
 	if err != nil {
 		return "", err
 	}
-	for _, in := range inputs {
-		if in.Path == "-" {
-			continue
-		}
-		p, _ := filepath.Abs(in.Path)
-		if rel, err := filepath.Rel(abs, p); err == nil && !strings.HasPrefix(rel, "..") {
-			return "", fmt.Errorf("output directory %s contains input %s: choose another --out", dir, in.Display)
-		}
+	if err := CheckOutNotInput(dir, inputs); err != nil {
+		return "", err
 	}
-	entries, err := os.ReadDir(abs)
+	all, err := os.ReadDir(abs)
 	if err != nil && !errors.Is(err, os.ErrNotExist) {
 		return "", err
+	}
+	var entries []os.DirEntry
+	for _, e := range all {
+		if e.Name() != lockFile {
+			entries = append(entries, e)
+		}
 	}
 	if len(entries) > 0 && !force {
 		marker, merr := os.ReadFile(filepath.Join(abs, runMarker))
@@ -183,4 +204,84 @@ func PrepareRunDir(dir string, s *Spec, inputs []InputFile, force, resume bool) 
 		return "", err
 	}
 	return tmp, nil
+}
+
+// lockFile marks a run directory in use by a running winnow process.
+const lockFile = ".winnow-lock"
+
+// LockRunDir takes the run directory for this process, creating it when
+// needed. OUT/.winnow-lock holds "host pid start-time" and is locked with
+// flock while the run lasts, so the lock of a process that died (crash,
+// kill -9) is free again and the next run takes it over. A directory in use
+// is refused naming the holder; a lock file written on another host is
+// refused too (flock is not shared between hosts on every network file
+// system). release removes the lock (and the directory, when LockRunDir
+// created it and nothing else was written).
+func LockRunDir(dir string, logf func(string, ...any)) (release func(), err error) {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		return nil, err
+	}
+	created := false
+	if _, err := os.Stat(abs); errors.Is(err, os.ErrNotExist) {
+		created = true
+	}
+	if err := os.MkdirAll(abs, 0o755); err != nil {
+		return nil, err
+	}
+	host, _ := os.Hostname()
+	me := fmt.Sprintf("%s %d %s\n", host, os.Getpid(), time.Now().UTC().Format(time.RFC3339))
+	path := filepath.Join(abs, lockFile)
+	for attempt := 0; attempt < 5; attempt++ {
+		f, err := os.OpenFile(path, os.O_RDWR|os.O_CREATE, 0o644)
+		if err != nil {
+			return nil, err
+		}
+		old, _ := io.ReadAll(io.LimitReader(f, 4096))
+		var h, since string
+		var pid int
+		n, _ := fmt.Sscanf(string(old), "%s %d %s", &h, &pid, &since)
+		if err := flockNB(f); err != nil {
+			f.Close()
+			if n < 2 {
+				return nil, fmt.Errorf("output directory %s is in use by another winnow run (lock %s): wait for it to finish, or choose another --out", dir, path)
+			}
+			return nil, fmt.Errorf("output directory %s is in use by another winnow run (host %s, pid %d, since %s): wait for it to finish, or choose another --out", dir, h, pid, since)
+		}
+		// The file may have been removed by its holder between open and
+		// lock: then the lock is on a file nobody else sees; try again.
+		fi, ferr := f.Stat()
+		pi, perr := os.Stat(path)
+		if ferr != nil || perr != nil || !os.SameFile(fi, pi) {
+			f.Close()
+			continue
+		}
+		if n >= 2 && h != host {
+			f.Close()
+			return nil, fmt.Errorf("output directory %s is locked by a winnow run on host %s (pid %d, since %s): if that run is over, remove %s", dir, h, pid, since, path)
+		}
+		if n >= 2 && logf != nil {
+			logf("%s: taking over the lock of winnow pid %d (since %s), which is no longer running", dir, pid, since)
+		}
+		if err := f.Truncate(0); err == nil {
+			_, err = f.WriteAt([]byte(me), 0)
+		}
+		if err == nil {
+			err = f.Sync()
+		}
+		if err != nil {
+			f.Close()
+			return nil, err
+		}
+		return func() {
+			if pi, err := os.Stat(path); err == nil && os.SameFile(fi, pi) {
+				os.Remove(path)
+			}
+			f.Close()
+			if created {
+				os.Remove(abs) // only when empty
+			}
+		}, nil
+	}
+	return nil, fmt.Errorf("output directory %s: could not take the lock %s", dir, path)
 }

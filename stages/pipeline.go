@@ -116,6 +116,14 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 	if out == "" {
 		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
 	}
+	if err := CheckOutNotInput(out, inputs); err != nil {
+		return nil, err
+	}
+	release, err := LockRunDir(out, opt.Log)
+	if err != nil {
+		return nil, err
+	}
+	defer release()
 	tmp, err := PrepareRunDir(out, s, inputs, opt.Force, opt.Resume)
 	if err != nil {
 		return nil, err
