@@ -40,7 +40,8 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 		if _, err := stages.OpenSink(spec.Output, stages.Env{Checking: true}, spec.Name); err != nil {
 			return err
 		}
-		w := os.Stdout
+		w := termOut(os.Stdout)
+		defer w.Flush()
 		if checkJSON {
 			return printPlanJSON(w, spec, inputs, steps)
 		}

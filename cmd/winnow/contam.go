@@ -56,7 +56,9 @@ With --out DIR, contamination.json and the ledger are kept in DIR.`,
   winnow contam --eval qa=evals/a.jsonl.gz --eval evals/b.txt corpus/ --json`,
 	Args: cobra.MinimumNArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
-		return runContam(cmd.Context(), contamOpts, args, cmd.OutOrStdout())
+		out := termOut(cmd.OutOrStdout())
+		defer out.Flush()
+		return runContam(cmd.Context(), contamOpts, args, out)
 	},
 }
 
@@ -93,7 +95,9 @@ func printDemoContamination(res *stages.RunResult) error {
 		return err
 	}
 	fmt.Printf("\ncontamination (%s):\n", path)
-	return r.WriteTableN(os.Stdout, demoContamItems)
+	out := termOut(os.Stdout)
+	defer out.Flush()
+	return r.WriteTableN(out, demoContamItems)
 }
 
 // demoContamItems is the number of contaminated items the demo lists per

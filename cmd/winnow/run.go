@@ -116,7 +116,12 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	if res == nil {
 		return nil, err
 	}
-	if perr := printStageTable(os.Stdout, res.Manifest, f.asJSON); perr != nil {
+	out := termOut(os.Stdout)
+	perr := printStageTable(out, res.Manifest, f.asJSON)
+	if ferr := out.Flush(); perr == nil {
+		perr = ferr
+	}
+	if perr != nil {
 		return res, perr
 	}
 	if errors.Is(err, context.Canceled) {

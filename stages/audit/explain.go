@@ -7,6 +7,7 @@ import (
 	"math"
 	"path/filepath"
 	"strings"
+	"winnow/stages/termtext"
 )
 
 // Explanation is the answer of `winnow explain RUN DOC_ID`: every
@@ -289,7 +290,7 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 		if n > 0 {
 			fmt.Fprintln(w)
 		}
-		fmt.Fprintf(w, "%s  source %s, %s:%d (order %s)\n", p.ID, p.Source, p.File, p.Line, p.Order)
+		fmt.Fprintf(w, "%s  source %s, %s:%d (order %s)\n", termtext.Escape(p.ID), termtext.Escape(p.Source), termtext.Escape(p.File), p.Line, p.Order)
 		for i, d := range p.Decisions {
 			act := d.Action
 			switch {
@@ -309,7 +310,7 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 				fmt.Fprintf(w, " (%s)", ch)
 			}
 			for _, k := range sortedKeys(d.Extra) {
-				fmt.Fprintf(w, " %s=%s", k, fmtAny(d.Extra[k]))
+				fmt.Fprintf(w, " %s=%s", k, termtext.Escape(fmtAny(d.Extra[k])))
 			}
 			fmt.Fprintln(w)
 			for _, m := range d.Metrics {
@@ -335,15 +336,15 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 		case "kept":
 			var parts []string
 			for _, s := range p.Result.Shards {
-				part := fmt.Sprintf("%s line %d", s.Path, s.Line)
+				part := fmt.Sprintf("%s line %d", termtext.Escape(s.Path), s.Line)
 				if s.ID != p.ID {
-					part += " (as " + s.ID + ")"
+					part += " (as " + termtext.Escape(s.ID) + ")"
 				}
 				parts = append(parts, part)
 			}
 			fmt.Fprintf(w, "result: kept, written to %s\n", strings.Join(parts, "; "))
 		case "removed", "read_error":
-			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
+			fmt.Fprintf(w, "result: %s\n", termtext.Escape(p.Result.Reason))
 		default:
 			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
 		}

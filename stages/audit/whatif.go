@@ -10,6 +10,7 @@ import (
 	"text/tabwriter"
 
 	"winnow/stages"
+	"winnow/stages/termtext"
 )
 
 // What-if semantics. A scenario replaces the limits of some threshold
@@ -982,7 +983,7 @@ func (s *ScenarioResult) writeText(out io.Writer, title string, tokens bool) {
 			if f.Value != nil {
 				v = " value " + fmtFloat(*f.Value)
 			}
-			fmt.Fprintf(out, "    %s  %s  %s/%s%s\n", f.ID, f.Source, f.Stage, f.Rule, v)
+			fmt.Fprintf(out, "    %s  %s  %s/%s%s\n", termtext.Escape(f.ID), termtext.Escape(f.Source), f.Stage, f.Rule, v)
 		}
 	}
 	flips("newly removed", s.FlipsRemoved, s.NewlyRemoved)
