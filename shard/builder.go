@@ -280,6 +280,17 @@ func (b *Builder) Close() (*Report, error) {
 	if err := b.spill.close(); err != nil {
 		return nil, err
 	}
+	if len(b.units) == 0 {
+		// Every document was removed before the output: there is nothing
+		// to mix, and no shard to write. The run still ends with its
+		// manifest, which says where the documents went.
+		if err := b.w.finish(); err != nil {
+			return nil, err
+		}
+		mix := &MixReport{Mode: "empty", Note: "no document reached the output: nothing to mix", MaxEpochs: b.opt.MaxEpochs,
+			BudgetTokens: b.opt.BudgetTokens, Sources: []MixSource{}}
+		return b.report(mix), nil
+	}
 	order, mix, err := planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
 	if err != nil {
 		return nil, fmt.Errorf("output: %w", err)

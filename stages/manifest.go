@@ -88,6 +88,42 @@ func BuildManifest(version string, s *Spec, r *Runner, seconds float64) *Manifes
 	return m
 }
 
+// EmptyReason says, when no document reached the output although some
+// were read, which stages removed them: the stage that let none through,
+// and each earlier stage's share. It is "" when documents were written
+// or none were read.
+func (m *Manifest) EmptyReason() string {
+	if m.Totals.DocsOut > 0 || m.Totals.DocsIn == 0 || m.Interrupted {
+		return ""
+	}
+	var parts []string
+	last := ""
+	for _, c := range m.Stages {
+		if c.Kind == "write" {
+			continue
+		}
+		removed := c.Dropped
+		if c.Kind == "read" {
+			removed = c.DocsIn - c.DocsOut
+		}
+		if removed > 0 {
+			parts = append(parts, fmt.Sprintf("%s removed %d", c.Name, removed))
+		}
+		if c.DocsIn > 0 && c.DocsOut == 0 {
+			last = c.Name
+			break
+		}
+	}
+	msg := fmt.Sprintf("no document reached the output: all %d documents read were removed", m.Totals.DocsIn)
+	if last != "" {
+		msg += fmt.Sprintf("; stage %s let none through", last)
+	}
+	if len(parts) > 0 {
+		msg += " (" + strings.Join(parts, ", ") + ")"
+	}
+	return msg + "; `winnow audit` shows the rules"
+}
+
 // WriteManifest writes manifest.json atomically.
 func WriteManifest(dir string, m *Manifest) error {
 	b, err := json.MarshalIndent(m, "", "  ")

@@ -132,6 +132,9 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	fatal := res.Runner.FatalInputs
 	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%d tokens) in %d shards to %s\n",
 		m.Totals.DocsOut, m.Totals.TokensOut, len(m.Outputs), res.Dir)
+	if why := m.EmptyReason(); why != "" {
+		fmt.Fprintf(os.Stderr, "winnow: warning: %s\n", why)
+	}
 	if m.InternalErrors > 0 {
 		// Listed before the partial-input note so the last line is about
 		// the bug; its status wins over 3 and --allow-partial.
