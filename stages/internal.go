@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"runtime/debug"
 	"strings"
+
+	"github.com/zeebo/xxh3"
 )
 
 // RuleInternalError is the ledger rule of a document whose processing
@@ -88,4 +90,98 @@ func (r *Runner) recordInternal(d *Doc, stage string, ie *internalError, shadow 
 		r.Errors = append(r.Errors, RunError{File: d.File, Line: d.Line, Rule: RuleInternalError, Stage: stage, Doc: d.ID,
 			Message: msg, Stack: ie.stack})
 	}
+}
+
+// idSet remembers 64-bit hashes of document ids to count ids seen twice.
+// It is an open-addressing table of 8 bytes a slot at most half full, so
+// it costs about 16 bytes a document; past maxBytes it stops (and says so)
+// rather than grow without bound.
+type idSet struct {
+	slots    []uint64
+	n        int
+	maxBytes int64
+	full     bool
+}
+
+// add records h and reports whether it was there already. Once the table
+// would outgrow maxBytes, add reports false and full is set.
+func (s *idSet) add(h uint64) bool {
+	if s.full {
+		return false
+	}
+	if h == 0 {
+		h = 1 // 0 marks an empty slot
+	}
+	if 2*(s.n+1) > len(s.slots) {
+		size := max(1024, 2*len(s.slots))
+		if int64(size)*8 > s.maxBytes {
+			s.full, s.slots = true, nil
+			return false
+		}
+		old := s.slots
+		s.slots = make([]uint64, size)
+		for _, v := range old {
+			if v != 0 {
+				s.insert(v)
+			}
+		}
+	}
+	if !s.insert(h) {
+		return true
+	}
+	s.n++
+	return false
+}
+
+// insert puts h in the table; false when it was there.
+func (s *idSet) insert(h uint64) bool {
+	mask := uint64(len(s.slots) - 1)
+	for i := h & mask; ; i = (i + 1) & mask {
+		switch s.slots[i] {
+		case 0:
+			s.slots[i] = h
+			return true
+		case h:
+			return false
+		}
+	}
+}
+
+// maxDupExamples is how many repeated ids the run names in its log.
+const maxDupExamples = 5
+
+// noteID counts a document whose id an earlier document already had
+// (explain then shows every document with that id).
+func (r *Runner) noteID(d *Doc) {
+	if r.ids == nil {
+		budget := r.Env.MemoryBudget / 4
+		if budget <= 0 {
+			budget = 256 << 20
+		}
+		r.ids = &idSet{maxBytes: budget}
+	}
+	wasFull := r.ids.full
+	if r.ids.add(xxh3.HashString(d.ID)) {
+		r.DuplicateIDs++
+		if r.DuplicateIDs <= maxDupExamples {
+			r.dupExamples = append(r.dupExamples, fmt.Sprintf("%q (%s:%d)", d.ID, d.File, d.Line))
+		}
+	}
+	if r.ids.full && !wasFull {
+		r.logf("duplicate id check stopped after %d documents: its table reached a quarter of the memory budget (%d bytes)", r.ids.n, r.ids.maxBytes)
+		r.DupCheckStopped = int64(r.ids.n)
+	}
+}
+
+// reportDuplicates logs the count of repeated ids after the inputs are read.
+func (r *Runner) reportDuplicates() {
+	if r.DuplicateIDs == 0 {
+		return
+	}
+	more := ""
+	if r.DuplicateIDs > int64(len(r.dupExamples)) {
+		more = ", ..."
+	}
+	r.logf("warning: %d document(s) have an id an earlier document already had, e.g. %s%s; `winnow explain` lists every document with an id (set id_field to a unique field to tell them apart)",
+		r.DuplicateIDs, strings.Join(r.dupExamples, ", "), more)
 }

@@ -142,3 +142,31 @@ func TestPanicStack(t *testing.T) {
 		t.Errorf("stack %q", ie.stack)
 	}
 }
+
+// The id table finds every repeat (checked against a Go map) and stops,
+// instead of growing, at its byte limit.
+func TestIDSet(t *testing.T) {
+	s := &idSet{maxBytes: 1 << 20}
+	ref := map[uint64]bool{}
+	x := uint64(88172645463325252)
+	for i := 0; i < 60000; i++ {
+		x ^= x << 13
+		x ^= x >> 7
+		x ^= x << 17
+		h := x % 40000 // repeats on purpose; includes 0
+		if got := s.add(h); got != ref[max(h, 1)] {
+			t.Fatalf("add(%d) = %v, map says %v", h, got, ref[max(h, 1)])
+		}
+		ref[max(h, 1)] = true
+	}
+	if s.full || s.n != len(ref) {
+		t.Errorf("n %d, want %d (full %v)", s.n, len(ref), s.full)
+	}
+	small := &idSet{maxBytes: 64 << 10}
+	for i := uint64(1); i <= 10000; i++ {
+		small.add(i)
+	}
+	if !small.full || small.slots != nil || small.add(1) {
+		t.Errorf("table past its limit: full %v, %d slots", small.full, len(small.slots))
+	}
+}

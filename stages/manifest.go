@@ -32,6 +32,12 @@ type Manifest struct {
 	// InternalErrors counts documents a stage panicked on (rule
 	// internal_error in the ledger; each listed in Errors with its stack).
 	InternalErrors int64 `json:"internal_errors"`
+	// DuplicateIDs counts documents whose id an earlier document already
+	// had (compared by 64-bit hash); `explain` shows all of them.
+	// DuplicateCheckStopped, when set, is the number of ids after which
+	// the check stopped to stay within memory.
+	DuplicateIDs          int64 `json:"duplicate_ids"`
+	DuplicateCheckStopped int64 `json:"duplicate_check_stopped,omitempty"`
 	// Interrupted is true when the run was stopped before the end; the
 	// ledger holds every decision made until then.
 	Interrupted bool    `json:"interrupted"`
@@ -52,7 +58,8 @@ type Totals struct {
 // runner.
 func BuildManifest(version string, s *Spec, r *Runner, seconds float64) *Manifest {
 	m := &Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
-		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, InternalErrors: r.InternalErrors, Interrupted: r.Interrupted, Seconds: seconds}
+		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, InternalErrors: r.InternalErrors,
+		DuplicateIDs: r.DuplicateIDs, DuplicateCheckStopped: r.DupCheckStopped, Interrupted: r.Interrupted, Seconds: seconds}
 	if m.Inputs == nil {
 		m.Inputs = []InputSummary{}
 	}

@@ -43,6 +43,8 @@ type checkpoint struct {
 	ErrCount    int64            `json:"error_count"`
 	FatalInputs int              `json:"fatal_inputs"`
 	Internal    int64            `json:"internal_errors"`
+	DupIDs      int64            `json:"duplicate_ids"`
+	DupStopped  int64            `json:"duplicate_check_stopped"`
 }
 
 // setFrom copies the flow counts and time of a checkpointed counter.
@@ -65,7 +67,7 @@ func (r *Runner) writeCheckpoint(si int, spill string) error {
 	}
 	cp := checkpoint{ConfigHash: r.Spec.ConfigHash, Segment: si, Spill: spill, Ledger: led, LedgerCount: r.ledger.count,
 		Metrics: met, Read: r.Read.snapshot(), Inputs: r.InputSums, Errors: r.Errors, ErrCount: r.ErrCount, FatalInputs: r.FatalInputs,
-		Internal: r.InternalErrors}
+		Internal: r.InternalErrors, DupIDs: r.DuplicateIDs, DupStopped: r.DupCheckStopped}
 	for _, c := range r.Counters {
 		s := c.snapshot()
 		s.Seconds = float64(c.nanos.Load()) / 1e9
@@ -144,7 +146,7 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 		r.Counters[i].setFrom(c)
 	}
 	r.InputSums, r.Errors, r.ErrCount, r.FatalInputs = cp.Inputs, cp.Errors, cp.ErrCount, cp.FatalInputs
-	r.InternalErrors = cp.Internal
+	r.InternalErrors, r.DuplicateIDs, r.DupCheckStopped = cp.Internal, cp.DupIDs, cp.DupStopped
 	// Rebuild the global stage's keys from the spill, in input order.
 	g := r.Steps[segs[cp.Segment].scan].Global
 	if err := forEachSpilled(cp.Spill, func(d *Doc) error { return g.Collect(d.Order, d.ID, g.Scan(d)) }); err != nil {

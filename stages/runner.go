@@ -128,6 +128,13 @@ type Runner struct {
 	FatalInputs int
 	// InternalErrors counts documents a stage panicked on.
 	InternalErrors int64
+	// DuplicateIDs counts documents whose id an earlier document had;
+	// DupCheckStopped, when > 0, is the number of ids after which the
+	// check stopped (memory).
+	DuplicateIDs    int64
+	DupCheckStopped int64
+	ids             *idSet
+	dupExamples     []string
 
 	prog struct {
 		docs, raw, text atomic.Int64
@@ -350,6 +357,10 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			produce = func(ctx context.Context, out chan<- *batch) error { return r.produceSpill(ctx, sp, out) }
 		}
 		err := r.runSegment(ctx, seg, produce, next)
+		if si == 0 {
+			r.reportDuplicates()
+			r.ids = nil // free the table: later segments read no new ids
+		}
 		if next != nil {
 			if cerr := next.close(); cerr != nil && err == nil {
 				err = cerr
@@ -575,6 +586,7 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		if seg.apply < 0 {
 			r.Read.DocsOut++
 			r.Read.BytesOut += int64(it.readBytes)
+			r.noteID(d)
 		}
 		for _, res := range out.results {
 			if err := r.recordResult(d, res); err != nil {

@@ -286,6 +286,9 @@ func shardID(b []byte) string {
 
 // WriteText prints the explanation.
 func (ex *Explanation) WriteText(w io.Writer) error {
+	if len(ex.Docs) > 1 {
+		fmt.Fprintf(w, "%d documents have the id %s (the input repeats it); each is shown:\n\n", len(ex.Docs), termtext.Escape(ex.ID))
+	}
 	for n, p := range ex.Docs {
 		if n > 0 {
 			fmt.Fprintln(w)
