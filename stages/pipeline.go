@@ -34,6 +34,8 @@ type RunOptions struct {
 	Resume bool
 	// stopAfter cancels after that many segments (tests).
 	stopAfter int
+	// afterCheckpoint is called after each checkpoint (tests).
+	afterCheckpoint func()
 }
 
 // RunResult is a finished run.
@@ -157,7 +159,8 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 		workers = runtime.NumCPU()
 	}
 	r := &Runner{Spec: s, Steps: steps, Inputs: inputs, Sink: sink, Env: env, Workers: workers,
-		OnProgress: opt.OnProgress, Log: opt.Log, Resume: opt.Resume, stopAfter: opt.stopAfter}
+		OnProgress: opt.OnProgress, Log: opt.Log, Resume: opt.Resume, stopAfter: opt.stopAfter,
+		afterCheckpoint: opt.afterCheckpoint}
 	t0 := time.Now()
 	runErr := r.Run(ctx)
 	if errors.Is(runErr, context.Canceled) {

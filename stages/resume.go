@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"winnow/stages/fsio"
 )
@@ -156,5 +157,48 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 		return fmt.Errorf("stage %s: %w", r.Steps[segs[cp.Segment].scan].Name, err)
 	}
 	r.logf("resumed after segment %d of %d (stage %s): its documents are not read or filtered again", cp.Segment+1, len(segs), r.Steps[segs[cp.Segment].scan].Name)
+	return nil
+}
+
+// inputsUnchanged compares the inputs of a resumed run with those the
+// checkpoint recorded (size, then xxh3 of the bytes): the documents before
+// the checkpoint are not read again, so a changed input would mix old and
+// new content. Standard input cannot be compared and is not read again.
+func inputsUnchanged(recorded []InputSummary, now []InputFile) error {
+	was := map[string]InputSummary{}
+	for _, in := range recorded {
+		was[in.Path] = in
+	}
+	var changed []string
+	seen := map[string]bool{}
+	for _, in := range now {
+		if in.Path == "-" {
+			continue
+		}
+		seen[in.Display] = true
+		old, ok := was[in.Display]
+		if !ok {
+			changed = append(changed, in.Display+" (new since the checkpoint)")
+			continue
+		}
+		n, h, err := fsio.HashFile(in.Path)
+		switch {
+		case err != nil:
+			changed = append(changed, fmt.Sprintf("%s (%v)", in.Display, err))
+		case n != old.Bytes:
+			changed = append(changed, fmt.Sprintf("%s (%d bytes, was %d)", in.Display, n, old.Bytes))
+		case old.XXH3 != "" && h != old.XXH3:
+			changed = append(changed, fmt.Sprintf("%s (same size, other content: xxh3 %s, was %s)", in.Display, h, old.XXH3))
+		}
+	}
+	for _, in := range recorded {
+		if in.Path != "-" && !seen[in.Path] {
+			changed = append(changed, in.Path+" (gone)")
+		}
+	}
+	if len(changed) > 0 {
+		return fmt.Errorf("cannot resume: the inputs changed since the checkpoint, whose documents would not be read again: %s; run again without --resume",
+			strings.Join(changed, ", "))
+	}
 	return nil
 }

@@ -110,6 +110,9 @@ type Runner struct {
 	// stopAfter, when > 0, cancels the run after that many segments
 	// (tests of resuming).
 	stopAfter int
+	// afterCheckpoint, when set, is called after each checkpoint (tests of
+	// interruption).
+	afterCheckpoint func()
 
 	ledger  *Ledger
 	metrics *Metrics
@@ -237,6 +240,10 @@ func (r *Runner) Run(ctx context.Context) error {
 	if r.Resume {
 		var err error
 		if cp, err = loadCheckpoint(r.Env.TempDir, r.Spec.ConfigHash); err != nil {
+			r.ledger.Abort()
+			return err
+		}
+		if err := inputsUnchanged(cp.Inputs, r.Inputs); err != nil {
 			r.ledger.Abort()
 			return err
 		}
@@ -387,6 +394,9 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			// bytes of every file) are the same whether or not it resumes.
 			if err := r.writeCheckpoint(si, spillPath); err != nil {
 				return fmt.Errorf("checkpoint: %w", err)
+			}
+			if r.afterCheckpoint != nil {
+				r.afterCheckpoint()
 			}
 		}
 		if done != "" {
