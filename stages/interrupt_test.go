@@ -3,7 +3,10 @@ package stages
 import (
 	"context"
 	"errors"
+	"fmt"
+	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -47,5 +50,94 @@ func TestInterruptJustAfterCheckpoint(t *testing.T) {
 				t.Errorf("cancel after checkpoint %d: %s differs", at, k)
 			}
 		}
+	}
+}
+
+// test_fail_reduce is a global stage whose Reduce fails while a file
+// exists, as a full disk would make a spilling index fail.
+func init() {
+	Register(Kind{Name: "test_fail_reduce", Doc: "fails in Reduce while a file exists (tests)",
+		NewGlobal: func(p *Params, env Env) (GlobalStage, error) {
+			g := &failReduce{flag: p.String("fail_while", "")}
+			return g, p.Done()
+		}})
+}
+
+type failReduce struct{ flag string }
+
+func (g *failReduce) Name() string                        { return "test_fail_reduce" }
+func (g *failReduce) Kind() string                        { return "test_fail_reduce" }
+func (g *failReduce) Scan(d *Doc) any                     { return nil }
+func (g *failReduce) Collect(OrderKey, string, any) error { return nil }
+func (g *failReduce) Apply(d *Doc) Decision               { return KeepDoc() }
+func (g *failReduce) Close() error                        { return nil }
+func (g *failReduce) Reduce() error {
+	if _, err := os.Stat(g.flag); err == nil {
+		return fmt.Errorf("write %s: no space left on device", filepath.Join(filepath.Dir(g.flag), "index.tmp"))
+	}
+	return nil
+}
+
+// A run that fails after a checkpoint (a full disk) says that --resume
+// continues from that checkpoint, keeps what the resume needs, and the
+// resumed run gives the bytes of a run that never failed. A run stopped
+// before any checkpoint says that it cannot be resumed.
+func TestFailureAfterCheckpointResumes(t *testing.T) {
+	dir := writeCorpus(t, 400)
+	flag := filepath.Join(dir, "disk-full")
+	body := `name: fail
+inputs:
+  - source: yard
+    paths: ["raw/*.zst"]
+stages:
+  - kind: normalize
+  - kind: exact_dedup
+  - kind: length
+    min_chars: 5
+  - kind: test_fail_reduce
+    fail_while: ` + flag + `
+  - kind: repetition
+output:
+  dir: out
+`
+	whole := filepath.Join(dir, "whole")
+	if _, err := RunSpec(context.Background(), writeSpec(t, dir, body), RunOptions{Out: whole, Workers: 2}); err != nil {
+		t.Fatal(err)
+	}
+	want := runDirDigest(t, whole)
+
+	os.WriteFile(flag, nil, 0o644)
+	out := filepath.Join(dir, "out")
+	_, err := RunSpec(context.Background(), writeSpec(t, dir, body), RunOptions{Out: out, Workers: 2})
+	if err == nil || !strings.Contains(err.Error(), "no space left on device") ||
+		!strings.Contains(err.Error(), "--resume` continues from the checkpoint after segment 1 of 3 (stage exact_dedup)") {
+		t.Fatalf("failure message: %v", err)
+	}
+	os.Remove(flag)
+	if _, err := RunSpec(context.Background(), writeSpec(t, dir, body), RunOptions{Out: out, Workers: 1, Resume: true}); err != nil {
+		t.Fatalf("resume after the failure: %v", err)
+	}
+	got := runDirDigest(t, out)
+	for k, v := range want {
+		if got[k] != v {
+			t.Errorf("%s differs from the run that never failed", k)
+		}
+	}
+	if len(got) != len(want) {
+		t.Errorf("%d files, want %d", len(got), len(want))
+	}
+
+	// Stopped before the first checkpoint: no promise.
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	res, err := RunSpec(ctx, writeSpec(t, dir, body), RunOptions{Out: filepath.Join(dir, "early")})
+	if !errors.Is(err, context.Canceled) {
+		t.Fatalf("early stop: %v", err)
+	}
+	if ok, why := res.Runner.CanResume(); ok || !strings.Contains(why, "stopped before its first checkpoint") {
+		t.Errorf("early stop: resumable %v, %q", ok, why)
+	}
+	if _, err := RunSpec(context.Background(), writeSpec(t, dir, body), RunOptions{Out: filepath.Join(dir, "early"), Resume: true}); !errors.Is(err, ErrNoCheckpoint) {
+		t.Errorf("resume of an early stop: %v", err)
 	}
 }

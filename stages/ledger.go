@@ -106,6 +106,25 @@ func (s *streamSet) abort() {
 	}
 }
 
+// detach stops every file and leaves its temp file for a resume.
+func (s *streamSet) detach() {
+	for _, n := range s.order {
+		s.files[n].Detach()
+	}
+}
+
+// retarget returns states with each file's current temp name: after a
+// resume the prefix lives in the new temp files.
+func (s *streamSet) retarget(states []streamState) []streamState {
+	out := append([]streamState(nil), states...)
+	for i := range out {
+		if w, ok := s.files[out[i].Name]; ok {
+			out[i].Temp = w.TempPath()
+		}
+	}
+	return out
+}
+
 // streamState is where one file of a set stood at a checkpoint.
 type streamState struct {
 	Name  string `json:"name"`

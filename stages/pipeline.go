@@ -167,7 +167,14 @@ func RunSpec(ctx context.Context, s *Spec, opt RunOptions) (*RunResult, error) {
 		// The work directory (spills, checkpoint) stays for --resume.
 		r.Interrupted = true
 	} else if runErr != nil {
-		return nil, runErr
+		if !r.started {
+			return nil, runErr
+		}
+		if ok, from := r.CanResume(); ok {
+			return nil, fmt.Errorf("%w\nthe run stopped; once the cause is fixed, `winnow run %s --out %s --resume` continues from %s", runErr, s.File, out, from)
+		} else {
+			return nil, fmt.Errorf("%w\nthe run stopped; --resume is not possible: %s", runErr, from)
+		}
 	} else {
 		os.RemoveAll(tmp)
 		removeStaleTemps(abs)

@@ -112,19 +112,8 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 	if cp.Segment >= len(segs)-1 || len(cp.Counters) != len(r.Counters) {
 		return fmt.Errorf("checkpoint does not match the pipeline (segment %d of %d)", cp.Segment, len(segs))
 	}
-	for si := 0; si <= cp.Segment; si++ {
-		steps := segs[si].steps
-		if segs[si].apply >= 0 {
-			steps = append([]int{segs[si].apply}, steps...)
-		}
-		for _, i := range steps {
-			obj := stageOf(r.Steps[i])
-			_, obs := obj.(Observer)
-			_, fin := obj.(Finisher)
-			if obs || fin {
-				return fmt.Errorf("cannot resume: stage %s, before the checkpoint, keeps a run-wide report that is not saved; run again without --resume", r.Steps[i].Name)
-			}
-		}
+	if err := r.resumeBlocker(segs, cp.Segment); err != nil {
+		return err
 	}
 	r.ledger = NewLedger(r.ledger.dir)
 	if err := r.ledger.resume(cp.Ledger); err != nil {
@@ -155,6 +144,15 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 	}
 	if err := g.Reduce(); err != nil {
 		return fmt.Errorf("stage %s: %w", r.Steps[segs[cp.Segment].scan].Name, err)
+	}
+	r.checkpointSeg = cp.Segment
+	// The streams' prefixes now live in new temp files: point the
+	// checkpoint at them, so a failure of this run can be resumed too.
+	cp.Ledger, cp.Metrics = r.ledger.retarget(cp.Ledger), r.metrics.retarget(cp.Metrics)
+	if b, err := json.Marshal(cp); err == nil {
+		if err := fsio.WriteFileAtomic(filepath.Join(r.Env.TempDir, checkpointFile), b); err != nil {
+			return fmt.Errorf("checkpoint: %w", err)
+		}
 	}
 	r.logf("resumed after segment %d of %d (stage %s): its documents are not read or filtered again", cp.Segment+1, len(segs), r.Steps[segs[cp.Segment].scan].Name)
 	return nil
@@ -201,4 +199,46 @@ func inputsUnchanged(recorded []InputSummary, now []InputFile) error {
 			strings.Join(changed, ", "))
 	}
 	return nil
+}
+
+// resumeBlocker returns why a checkpoint after segment seg cannot be
+// resumed: a stage before it keeps a run-wide report that is not saved.
+func (r *Runner) resumeBlocker(segs []segment, seg int) error {
+	for si := 0; si <= seg && si < len(segs); si++ {
+		steps := segs[si].steps
+		if segs[si].apply >= 0 {
+			steps = append([]int{segs[si].apply}, steps...)
+		}
+		for _, i := range steps {
+			obj := stageOf(r.Steps[i])
+			_, obs := obj.(Observer)
+			_, fin := obj.(Finisher)
+			if obs || fin {
+				return fmt.Errorf("cannot resume: stage %s, before the checkpoint, keeps a run-wide report that is not saved; run again without --resume", r.Steps[i].Name)
+			}
+		}
+	}
+	return nil
+}
+
+// CanResume says whether `--resume` could continue this (interrupted or
+// failed) run: from which checkpoint ("the checkpoint after segment 1 of
+// 3 (stage exact_dedup)"), or why not. It states only
+// what the run directory holds.
+func (r *Runner) CanResume() (bool, string) {
+	segs := r.segments()
+	if r.checkpointSeg < 0 {
+		if len(segs) == 1 {
+			return false, "this pipeline has no global stage, so it never checkpoints: run it again from the start"
+		}
+		return false, "it stopped before its first checkpoint (a run checkpoints once a global stage has seen every document): run it again from the start"
+	}
+	if err := r.resumeBlocker(segs, r.checkpointSeg); err != nil {
+		return false, err.Error()
+	}
+	if _, err := os.Stat(filepath.Join(r.Env.TempDir, checkpointFile)); err != nil {
+		return false, "its checkpoint file is gone: run it again from the start"
+	}
+	return true, fmt.Sprintf("the checkpoint after segment %d of %d (stage %s)", r.checkpointSeg+1, len(segs),
+		r.Steps[segs[r.checkpointSeg].scan].Name)
 }

@@ -110,6 +110,11 @@ type Runner struct {
 	// stopAfter, when > 0, cancels the run after that many segments
 	// (tests of resuming).
 	stopAfter int
+	// checkpointSeg is the segment after which the last checkpoint was
+	// written (or restored from); -1 before any.
+	checkpointSeg int
+	// started is set once the run got past opening and restoring.
+	started bool
 	// afterCheckpoint, when set, is called after each checkpoint (tests of
 	// interruption).
 	afterCheckpoint func()
@@ -232,6 +237,7 @@ func (r *Runner) Run(ctx context.Context) error {
 		}
 	}
 	r.Write = Counters{Name: "write", Kind: "write"}
+	r.checkpointSeg = -1
 	start := time.Now()
 	stopProg := r.startProgress(start)
 	defer stopProg()
@@ -253,6 +259,7 @@ func (r *Runner) Run(ctx context.Context) error {
 			return err
 		}
 	}
+	r.started = true
 	err := r.runSegments(ctx, cp)
 	if err == nil || errors.Is(err, context.Canceled) {
 		if r.Output == nil && r.Sink != nil {
@@ -284,8 +291,15 @@ func (r *Runner) Run(ctx context.Context) error {
 		if r.Sink != nil {
 			r.Sink.Abort()
 		}
-		r.ledger.Abort()
-		r.metrics.Abort()
+		if ok, _ := r.CanResume(); ok {
+			// Keep the ledger and metrics up to the checkpoint for
+			// --resume (a failure such as a full disk can be fixed).
+			r.ledger.detach()
+			r.metrics.detach()
+		} else {
+			r.ledger.Abort()
+			r.metrics.Abort()
+		}
 	}
 	for _, c := range r.Counters {
 		c.Seconds = float64(c.nanos.Load()) / 1e9
@@ -379,6 +393,9 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 		if err != nil {
 			if next != nil {
 				os.Remove(next.path)
+				if !errors.Is(err, context.Canceled) {
+					err = fmt.Errorf("%w (the unfinished spill of segment %d was removed)", err, si+1)
+				}
 			}
 			return err
 		}
@@ -395,6 +412,7 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			if err := r.writeCheckpoint(si, spillPath); err != nil {
 				return fmt.Errorf("checkpoint: %w", err)
 			}
+			r.checkpointSeg = si
 			if r.afterCheckpoint != nil {
 				r.afterCheckpoint()
 			}

@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"encoding/json"
 	"fmt"
 	"os"
@@ -61,5 +62,29 @@ func TestRunExitStatusOnInternalError(t *testing.T) {
 		if rerr != nil || json.Unmarshal(b, &m) != nil || m.InternalErrors != 1 || m.Totals.DocsOut != 49 {
 			t.Fatalf("manifest: %v, %d internal, %d out", rerr, m.InternalErrors, m.Totals.DocsOut)
 		}
+	}
+}
+
+// A run interrupted before its first checkpoint does not promise a resume.
+func TestInterruptBeforeCheckpointSaysNoResume(t *testing.T) {
+	dir := t.TempDir()
+	var raw bytes.Buffer
+	for i := 0; i < 50; i++ {
+		fmt.Fprintf(&raw, `{"id":"d%d","text":"Caulk the seams of hull %d before launch."}`+"\n", i, i)
+	}
+	os.MkdirAll(filepath.Join(dir, "raw"), 0o755)
+	os.WriteFile(filepath.Join(dir, "raw", "a.jsonl"), raw.Bytes(), 0o644)
+	spec := filepath.Join(dir, "spec.yaml")
+	os.WriteFile(spec, []byte("name: early\ninputs:\n  - source: s\n    paths: [raw/]\nstages:\n  - kind: exact_dedup\n  - kind: normalize\noutput:\n  dir: out\n"), 0o644)
+	s, err := stages.LoadSpec(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	_, err = runLoaded(ctx, s, runFlags{quiet: true})
+	if exitCode(err) != 130 || strings.Contains(err.Error(), "continues from") ||
+		!strings.Contains(err.Error(), "--resume is not possible: it stopped before its first checkpoint") {
+		t.Errorf("message: %v", err)
 	}
 }

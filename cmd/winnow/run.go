@@ -91,6 +91,24 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	}
 	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
 	defer stop()
+	prog := newProgress(f.quiet)
+	finished := make(chan struct{})
+	defer close(finished) // runs before stop
+	go func() {
+		select {
+		case <-finished:
+		case <-ctx.Done():
+			select {
+			case <-finished:
+				return
+			default:
+			}
+			// The first Ctrl-C stops the run cleanly; the next one ends
+			// the process at once (default signal handling).
+			stop()
+			prog.logf("interrupted: finishing the documents already decided and writing the manifest (Ctrl-C again to stop at once)")
+		}
+	}()
 	var mem int64
 	if f.memory != "" {
 		var err error
@@ -109,7 +127,6 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 		}
 		defer pprof.StopCPUProfile()
 	}
-	prog := newProgress(f.quiet)
 	res, err := stages.RunSpec(ctx, spec, stages.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
 		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets, Resume: f.resume})
 	prog.done()
@@ -125,8 +142,13 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 		return res, perr
 	}
 	if errors.Is(err, context.Canceled) {
-		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from the last checkpoint",
-			res.Dir, spec.File, res.Dir)}
+		if ok, from := res.Runner.CanResume(); ok {
+			return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from %s",
+				res.Dir, spec.File, res.Dir, from)}
+		} else {
+			return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); --resume is not possible: %s",
+				res.Dir, from)}
+		}
 	}
 	m := res.Manifest
 	fatal := res.Runner.FatalInputs

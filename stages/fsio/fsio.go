@@ -99,6 +99,18 @@ func (a *AtomicFile) Flush() error {
 // TempPath returns the temporary name the file is written under.
 func (a *AtomicFile) TempPath() string { return a.f.Name() }
 
+// Detach closes the temp file and leaves it on disk, unfinished: the
+// bytes up to the stream's last checkpoint stay for a resumed run to copy
+// (the next run removes what nobody resumes).
+func (a *AtomicFile) Detach() {
+	if a.done {
+		return
+	}
+	a.done = true
+	a.buf.Flush()
+	a.f.Close()
+}
+
 // Abort removes the temp file.
 func (a *AtomicFile) Abort() {
 	if a.done {
@@ -276,6 +288,13 @@ func (z *ZstdWriter) finish() error {
 	}
 	return z.err
 }
+
+// Detach stops the stream and leaves its temp file on disk (see
+// AtomicFile.Detach).
+func (z *ZstdWriter) Detach() { z.finish(); z.enc.Close(); z.file.Detach() }
+
+// TempPath returns the temporary name the stream is written under.
+func (z *ZstdWriter) TempPath() string { return z.file.TempPath() }
 
 // Commit finishes the stream and renames the file into place.
 func (z *ZstdWriter) Commit() error {
