@@ -10,7 +10,8 @@ import (
 	"strings"
 	"testing"
 
-	"winnow/stages"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 // Documents that share an id are counted in the manifest, named in a
@@ -32,9 +33,9 @@ func TestDuplicateIDsCountedAndExplained(t *testing.T) {
 	os.MkdirAll(filepath.Join(dir, "raw"), 0o755)
 	os.WriteFile(filepath.Join(dir, "raw", "a.jsonl"), a.Bytes(), 0o644)
 	os.WriteFile(filepath.Join(dir, "raw", "b.jsonl"), b.Bytes(), 0o644)
-	spec := filepath.Join(dir, "spec.yaml")
-	os.WriteFile(spec, []byte("name: dup\ninputs:\n  - source: s\n    paths: [raw/]\nstages:\n  - kind: length\n    min_chars: 20\noutput:\n  dir: out\n"), 0o644)
-	s, err := stages.LoadSpec(spec)
+	specPath := filepath.Join(dir, "spec.yaml")
+	os.WriteFile(specPath, []byte("name: dup\ninputs:\n  - source: s\n    paths: [raw/]\nstages:\n  - kind: length\n    min_chars: 20\noutput:\n  dir: out\n"), 0o644)
+	s, err := spec.LoadSpec(specPath)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -73,8 +74,8 @@ func TestDuplicateIDsCountedAndExplained(t *testing.T) {
 }
 
 // runLoadedWithLog runs a spec as `winnow run` does, collecting log lines.
-func runLoadedWithLog(s *stages.Spec, logged *[]string) (*stages.RunResult, error) {
-	return stages.RunSpec(context.Background(), s, stages.RunOptions{Version: version, Log: func(f string, a ...any) {
+func runLoadedWithLog(s *spec.Spec, logged *[]string) (*run.RunResult, error) {
+	return run.RunSpec(context.Background(), s, run.RunOptions{Version: version, Log: func(f string, a ...any) {
 		*logged = append(*logged, fmt.Sprintf(f, a...))
 	}})
 }

@@ -11,6 +11,8 @@ import (
 	"testing"
 
 	"winnow/stages"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 // A stage kind that panics on one document, registered for this test
@@ -45,11 +47,11 @@ func TestRunExitStatusOnInternalError(t *testing.T) {
 	}
 	os.MkdirAll(filepath.Join(dir, "raw"), 0o755)
 	os.WriteFile(filepath.Join(dir, "raw", "a.jsonl"), raw.Bytes(), 0o644)
-	spec := filepath.Join(dir, "spec.yaml")
-	os.WriteFile(spec, []byte("name: bug\ninputs:\n  - source: s\n    paths: [raw/]\nstages:\n  - kind: cli_test_panic\n    on: d17\n  - kind: normalize\noutput:\n  dir: out\n"), 0o644)
+	specPath := filepath.Join(dir, "spec.yaml")
+	os.WriteFile(specPath, []byte("name: bug\ninputs:\n  - source: s\n    paths: [raw/]\nstages:\n  - kind: cli_test_panic\n    on: d17\n  - kind: normalize\noutput:\n  dir: out\n"), 0o644)
 	runOpts = runFlags{}
 	defer func() { runOpts = runFlags{} }()
-	for _, args := range [][]string{{"run", spec, "-q"}, {"run", spec, "-q", "--allow-partial", "--force"}} {
+	for _, args := range [][]string{{"run", specPath, "-q"}, {"run", specPath, "-q", "--allow-partial", "--force"}} {
 		_, err := runCLI(t, args...)
 		if exitCode(err) != exitInternal || exitInternal == 0 || exitInternal == 1 || exitInternal == 3 || exitInternal == 130 {
 			t.Fatalf("%v: want the internal-error status, got %v (code %d)", args, err, exitCode(err))
@@ -58,7 +60,7 @@ func TestRunExitStatusOnInternalError(t *testing.T) {
 			t.Errorf("message %q", err)
 		}
 		b, rerr := os.ReadFile(filepath.Join(dir, "out", "manifest.json"))
-		var m stages.Manifest
+		var m run.Manifest
 		if rerr != nil || json.Unmarshal(b, &m) != nil || m.InternalErrors != 1 || m.Totals.DocsOut != 49 {
 			t.Fatalf("manifest: %v, %d internal, %d out", rerr, m.InternalErrors, m.Totals.DocsOut)
 		}
@@ -74,9 +76,9 @@ func TestInterruptBeforeCheckpointSaysNoResume(t *testing.T) {
 	}
 	os.MkdirAll(filepath.Join(dir, "raw"), 0o755)
 	os.WriteFile(filepath.Join(dir, "raw", "a.jsonl"), raw.Bytes(), 0o644)
-	spec := filepath.Join(dir, "spec.yaml")
-	os.WriteFile(spec, []byte("name: early\ninputs:\n  - source: s\n    paths: [raw/]\nstages:\n  - kind: exact_dedup\n  - kind: normalize\noutput:\n  dir: out\n"), 0o644)
-	s, err := stages.LoadSpec(spec)
+	specPath := filepath.Join(dir, "spec.yaml")
+	os.WriteFile(specPath, []byte("name: early\ninputs:\n  - source: s\n    paths: [raw/]\nstages:\n  - kind: exact_dedup\n  - kind: normalize\noutput:\n  dir: out\n"), 0o644)
+	s, err := spec.LoadSpec(specPath)
 	if err != nil {
 		t.Fatal(err)
 	}

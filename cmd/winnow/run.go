@@ -11,8 +11,9 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"winnow/stages"
 	"winnow/stages/fsio"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 type runFlags struct {
@@ -77,15 +78,15 @@ func init() {
 }
 
 func runSpecFile(ctx context.Context, path string, f runFlags) error {
-	spec, err := stages.LoadSpec(path)
+	sp, err := spec.LoadSpec(path)
 	if err != nil {
 		return err
 	}
-	_, err = runLoaded(ctx, spec, f)
+	_, err = runLoaded(ctx, sp, f)
 	return err
 }
 
-func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunResult, error) {
+func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, error) {
 	if ctx == nil {
 		ctx = context.Background()
 	}
@@ -127,7 +128,7 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 		}
 		defer pprof.StopCPUProfile()
 	}
-	res, err := stages.RunSpec(ctx, spec, stages.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
+	res, err := run.RunSpec(ctx, sp, run.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
 		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets, Resume: f.resume})
 	prog.done()
 	if res == nil {
@@ -142,13 +143,13 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 		return res, perr
 	}
 	if errors.Is(err, context.Canceled) {
-		if ok, from := res.Runner.CanResume(); ok {
-			return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from %s",
-				res.Dir, spec.File, res.Dir, from)}
-		} else {
+		ok, from := res.Runner.CanResume()
+		if !ok {
 			return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); --resume is not possible: %s",
 				res.Dir, from)}
 		}
+		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from %s",
+			res.Dir, sp.File, res.Dir, from)}
 	}
 	m := res.Manifest
 	fatal := res.Runner.FatalInputs
@@ -164,7 +165,7 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 			fmt.Fprintf(os.Stderr, "winnow: %d input file(s) could not be read to the end: see errors in %s/manifest.json\n", fatal, res.Dir)
 		}
 		return res, &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): a stage failed on %d document(s), recorded with rule %s in the ledger and listed with their stacks in %s/manifest.json; every other document was processed (please report this bug)",
-			m.InternalErrors, m.InternalErrors, stages.RuleInternalError, res.Dir)}
+			m.InternalErrors, m.InternalErrors, run.RuleInternalError, res.Dir)}
 	}
 	if fatal > 0 {
 		msg := fmt.Errorf("finished, but %d input file(s) could not be read to the end and %d record(s) were unreadable: see errors in %s/manifest.json",

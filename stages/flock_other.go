@@ -1,8 +1,0 @@
-//go:build !unix
-
-package stages
-
-import "os"
-
-// flockNB is not available here: the lock file's content is all there is.
-func flockNB(f *os.File) error { return nil }

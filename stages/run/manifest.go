@@ -1,0 +1,333 @@
+package run
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+	"time"
+
+	"winnow/stages/fsio"
+	"winnow/stages/read"
+	"winnow/stages/record"
+	"winnow/stages/spec"
+)
+
+// Manifest is OUT/manifest.json: the run's provenance. Field names are a
+// contract (see README "Run directory"). Nothing in it depends on the
+// number of workers; only the "seconds" fields vary between runs.
+type Manifest struct {
+	ToolVersion string              `json:"tool_version"`
+	Name        string              `json:"name"`
+	Config      any                 `json:"config"`
+	ConfigHash  string              `json:"config_hash"`
+	Seed        uint64              `json:"seed"`
+	Inputs      []InputSummary      `json:"inputs"`
+	Stages      []*Counters         `json:"stages"`
+	Outputs     []record.OutputFile `json:"outputs"`
+	Mix         any                 `json:"mix,omitempty"`
+	Totals      Totals              `json:"totals"`
+	Errors      []RunError          `json:"errors"`
+	ErrorCount  int64               `json:"error_count"`
+	// InternalErrors counts documents a stage panicked on (rule
+	// internal_error in the ledger; each listed in Errors with its stack).
+	InternalErrors int64 `json:"internal_errors"`
+	// DuplicateIDs counts documents whose id an earlier document already
+	// had (compared by 64-bit hash); `explain` shows all of them.
+	// DuplicateCheckStopped, when set, is the number of ids after which
+	// the check stopped to stay within memory.
+	DuplicateIDs          int64 `json:"duplicate_ids"`
+	DuplicateCheckStopped int64 `json:"duplicate_check_stopped,omitempty"`
+	// Interrupted is true when the run was stopped before the end; the
+	// ledger holds every decision made until then.
+	Interrupted bool    `json:"interrupted"`
+	Seconds     float64 `json:"seconds"`
+}
+
+// Totals sums a run.
+type Totals struct {
+	InputFiles int64 `json:"input_files"`
+	InputBytes int64 `json:"input_bytes"`
+	DocsIn     int64 `json:"docs_in"`
+	DocsOut    int64 `json:"docs_out"`
+	BytesOut   int64 `json:"bytes_out"`
+	TokensOut  int64 `json:"tokens_out"`
+}
+
+// BuildManifest assembles the manifest from a finished (or interrupted)
+// runner.
+func BuildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *Manifest {
+	m := &Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
+		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, InternalErrors: r.InternalErrors,
+		DuplicateIDs: r.DuplicateIDs, DuplicateCheckStopped: r.DupCheckStopped, Interrupted: r.Interrupted, Seconds: seconds}
+	if m.Inputs == nil {
+		m.Inputs = []InputSummary{}
+	}
+	if m.Errors == nil {
+		m.Errors = []RunError{}
+	}
+	m.Stages = append(m.Stages, r.Read.snapshot())
+	m.Stages = append(m.Stages, r.Counters...)
+	w := r.Write.snapshot()
+	if r.Output != nil {
+		m.Outputs = r.Output.Files
+		m.Mix = r.Output.Mix
+		var docs, bytes, toks int64
+		for _, f := range r.Output.Files {
+			docs += f.Docs
+			toks += f.Tokens
+		}
+		bytes = w.BytesIn
+		w.DocsOut, w.BytesOut, w.TokensOut = docs, bytes, toks
+	}
+	m.Stages = append(m.Stages, w)
+	if m.Outputs == nil {
+		m.Outputs = []record.OutputFile{}
+	}
+	for _, in := range r.InputSums {
+		m.Totals.InputFiles++
+		m.Totals.InputBytes += in.Bytes
+	}
+	m.Totals.DocsIn = r.Read.DocsIn
+	m.Totals.DocsOut = w.DocsOut
+	m.Totals.BytesOut = w.BytesOut
+	m.Totals.TokensOut = w.TokensOut
+	return m
+}
+
+// EmptyReason says, when no document reached the output although some
+// were read, which stages removed them: the stage that let none through,
+// and each earlier stage's share. It is "" when documents were written
+// or none were read.
+func (m *Manifest) EmptyReason() string {
+	if m.Totals.DocsOut > 0 || m.Totals.DocsIn == 0 || m.Interrupted {
+		return ""
+	}
+	var parts []string
+	last := ""
+	for _, c := range m.Stages {
+		if c.Kind == "write" {
+			continue
+		}
+		removed := c.Dropped
+		if c.Kind == "read" {
+			removed = c.DocsIn - c.DocsOut
+		}
+		if removed > 0 {
+			parts = append(parts, fmt.Sprintf("%s removed %d", c.Name, removed))
+		}
+		if c.DocsIn > 0 && c.DocsOut == 0 {
+			last = c.Name
+			break
+		}
+	}
+	msg := fmt.Sprintf("no document reached the output: all %d documents read were removed", m.Totals.DocsIn)
+	if last != "" {
+		msg += fmt.Sprintf("; stage %s let none through", last)
+	}
+	if len(parts) > 0 {
+		msg += " (" + strings.Join(parts, ", ") + ")"
+	}
+	return msg + "; `winnow audit` shows the rules"
+}
+
+// WriteManifest writes manifest.json atomically.
+func WriteManifest(dir string, m *Manifest) error {
+	b, err := json.MarshalIndent(m, "", "  ")
+	if err != nil {
+		return err
+	}
+	return fsio.WriteFileAtomic(filepath.Join(dir, "manifest.json"), append(b, '\n'))
+}
+
+// ReadManifest loads a run's manifest.json.
+func ReadManifest(dir string) (*Manifest, error) {
+	b, err := os.ReadFile(filepath.Join(dir, "manifest.json"))
+	if err != nil {
+		return nil, err
+	}
+	var m Manifest
+	if err := json.Unmarshal(b, &m); err != nil {
+		return nil, fmt.Errorf("%s: %w", filepath.Join(dir, "manifest.json"), err)
+	}
+	return &m, nil
+}
+
+// CheckOutNotInput refuses an output directory that contains one of the
+// inputs (a run would replace or read its own output).
+func CheckOutNotInput(dir string, inputs []read.InputFile) error {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		return err
+	}
+	for _, in := range inputs {
+		if in.Path == "-" {
+			continue
+		}
+		p, _ := filepath.Abs(in.Path)
+		if rel, err := filepath.Rel(abs, p); err == nil && !strings.HasPrefix(rel, "..") {
+			return fmt.Errorf("output directory %s contains input %s: choose another --out", dir, in.Display)
+		}
+	}
+	return nil
+}
+
+// runMarker is written when a run starts, so an interrupted run's directory
+// is still recognised as belonging to its spec.
+const runMarker = ".winnow-run"
+
+// PrepareRunDir checks that dir may receive a run of spec s and makes it
+// ready: a directory holding a different run (or anything that is not a
+// winnow run) is refused unless force; a directory that contains one of
+// the inputs is always refused. It returns the temp directory for spills.
+// With resume it keeps the interrupted run's ledger, metrics and work
+// files instead (and refuses a directory holding another run).
+func PrepareRunDir(dir string, s *spec.Spec, inputs []read.InputFile, force, resume bool) (string, error) {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		return "", err
+	}
+	if err := CheckOutNotInput(dir, inputs); err != nil {
+		return "", err
+	}
+	all, err := os.ReadDir(abs)
+	if err != nil && !errors.Is(err, os.ErrNotExist) {
+		return "", err
+	}
+	var entries []os.DirEntry
+	for _, e := range all {
+		if e.Name() != lockFile {
+			entries = append(entries, e)
+		}
+	}
+	if len(entries) > 0 && !force {
+		marker, merr := os.ReadFile(filepath.Join(abs, runMarker))
+		switch {
+		case merr != nil:
+			return "", fmt.Errorf("output directory %s is not empty and holds no winnow run: use --force to write into it", dir)
+		case strings.TrimSpace(string(marker)) != s.ConfigHash:
+			return "", fmt.Errorf("output directory %s holds a different run (config hash %s, this spec %s): use --force to replace it", dir, strings.TrimSpace(string(marker)), s.ConfigHash)
+		}
+	}
+	if resume {
+		marker, err := os.ReadFile(filepath.Join(abs, runMarker))
+		if err != nil || strings.TrimSpace(string(marker)) != s.ConfigHash {
+			return "", fmt.Errorf("--resume: %s holds no interrupted run of this spec (config hash %s)", dir, s.ConfigHash)
+		}
+		if _, err := os.Stat(filepath.Join(abs, ".work", checkpointFile)); err != nil {
+			return "", ErrNoCheckpoint
+		}
+		// Shards and reports are written again by the last segment.
+		for _, sub := range []string{"shards"} {
+			if err := os.RemoveAll(filepath.Join(abs, sub)); err != nil {
+				return "", err
+			}
+		}
+		for _, f := range []string{"manifest.json", "contamination.json"} {
+			os.Remove(filepath.Join(abs, f))
+		}
+		return filepath.Join(abs, ".work"), nil
+	}
+	if force || len(entries) > 0 {
+		// Replace the previous run's files; leave anything else alone.
+		for _, sub := range []string{"shards", "ledger", "metrics", "keys", ".work"} {
+			if err := os.RemoveAll(filepath.Join(abs, sub)); err != nil {
+				return "", err
+			}
+		}
+		for _, f := range []string{"manifest.json", "contamination.json"} {
+			os.Remove(filepath.Join(abs, f))
+		}
+	}
+	tmp := filepath.Join(abs, ".work")
+	if err := os.MkdirAll(tmp, 0o755); err != nil {
+		return "", err
+	}
+	if err := fsio.WriteFileAtomic(filepath.Join(abs, runMarker), []byte(s.ConfigHash+"\n")); err != nil {
+		return "", err
+	}
+	return tmp, nil
+}
+
+// lockFile marks a run directory in use by a running winnow process.
+const lockFile = ".winnow-lock"
+
+// LockRunDir takes the run directory for this process, creating it when
+// needed. OUT/.winnow-lock holds "host pid start-time" and is locked with
+// flock while the run lasts, so the lock of a process that died (crash,
+// kill -9) is free again and the next run takes it over. A directory in use
+// is refused naming the holder; a lock file written on another host is
+// refused too (flock is not shared between hosts on every network file
+// system). release removes the lock (and the directory, when LockRunDir
+// created it and nothing else was written).
+func LockRunDir(dir string, logf func(string, ...any)) (release func(), err error) {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		return nil, err
+	}
+	created := false
+	if _, err := os.Stat(abs); errors.Is(err, os.ErrNotExist) {
+		created = true
+	}
+	if err := os.MkdirAll(abs, 0o755); err != nil {
+		return nil, err
+	}
+	host, _ := os.Hostname()
+	me := fmt.Sprintf("%s %d %s\n", host, os.Getpid(), time.Now().UTC().Format(time.RFC3339))
+	path := filepath.Join(abs, lockFile)
+	for attempt := 0; attempt < 5; attempt++ {
+		f, err := os.OpenFile(path, os.O_RDWR|os.O_CREATE, 0o644)
+		if err != nil {
+			return nil, err
+		}
+		old, _ := io.ReadAll(io.LimitReader(f, 4096))
+		var h, since string
+		var pid int
+		n, _ := fmt.Sscanf(string(old), "%s %d %s", &h, &pid, &since)
+		if err := flockNB(f); err != nil {
+			f.Close()
+			if n < 2 {
+				return nil, fmt.Errorf("output directory %s is in use by another winnow run (lock %s): wait for it to finish, or choose another --out", dir, path)
+			}
+			return nil, fmt.Errorf("output directory %s is in use by another winnow run (host %s, pid %d, since %s): wait for it to finish, or choose another --out", dir, h, pid, since)
+		}
+		// The file may have been removed by its holder between open and
+		// lock: then the lock is on a file nobody else sees; try again.
+		fi, ferr := f.Stat()
+		pi, perr := os.Stat(path)
+		if ferr != nil || perr != nil || !os.SameFile(fi, pi) {
+			f.Close()
+			continue
+		}
+		if n >= 2 && h != host {
+			f.Close()
+			return nil, fmt.Errorf("output directory %s is locked by a winnow run on host %s (pid %d, since %s): if that run is over, remove %s", dir, h, pid, since, path)
+		}
+		if n >= 2 && logf != nil {
+			logf("%s: taking over the lock of winnow pid %d (since %s), which is no longer running", dir, pid, since)
+		}
+		if err := f.Truncate(0); err == nil {
+			_, err = f.WriteAt([]byte(me), 0)
+		}
+		if err == nil {
+			err = f.Sync()
+		}
+		if err != nil {
+			f.Close()
+			return nil, err
+		}
+		return func() {
+			if pi, err := os.Stat(path); err == nil && os.SameFile(fi, pi) {
+				os.Remove(path)
+			}
+			f.Close()
+			if created {
+				os.Remove(abs) // only when empty
+			}
+		}, nil
+	}
+	return nil, fmt.Errorf("output directory %s: could not take the lock %s", dir, path)
+}
