@@ -491,7 +491,7 @@ func TestByteShards(t *testing.T) {
 	}
 }
 
-func TestMixErrors(t *testing.T) {
+func TestMixMissingSource(t *testing.T) {
 	tok := mustLoad(t, "cl100k_base")
 	docs := corpus(1, tok)[:50]
 	run := t.TempDir()
@@ -502,8 +502,21 @@ func TestMixErrors(t *testing.T) {
 	for i := range docs {
 		b.Add(&docs[i])
 	}
-	if _, err := b.Close(); err == nil || !strings.Contains(err.Error(), "nosuch") {
-		t.Errorf("missing mix source: %v", err)
+	// A source whose documents were all removed does not cost the run:
+	// the others are mixed at their relative shares and the report says
+	// which source had nothing.
+	rep, err := b.Close()
+	if err != nil {
+		t.Fatalf("missing mix source: %v", err)
+	}
+	mix := rep.Mix
+	if mix == nil || !slices.Equal(mix.Missing, []string{"nosuch"}) || !strings.Contains(mix.Note, "source(s) nosuch have no surviving tokens") {
+		t.Fatalf("report %+v", mix)
+	}
+	for _, src := range mix.Sources {
+		if src.Source == "manuals" && (src.Share != 1 || src.ShareUsed != 1 || src.Used == 0) {
+			t.Errorf("manuals: %+v", src)
+		}
 	}
 }
 

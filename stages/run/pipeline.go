@@ -13,6 +13,7 @@ import (
 	"runtime"
 	"time"
 
+	"winnow/shard"
 	"winnow/stages"
 	"winnow/stages/record"
 	"winnow/stages/spec"
@@ -129,6 +130,11 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 	} else {
 		os.RemoveAll(tmp)
 		removeStaleTemps(abs)
+	}
+	if r.Output != nil {
+		if mr, ok := r.Output.Mix.(*shard.MixReport); ok && len(mr.Missing) > 0 {
+			r.logf("warning: mix: %s", mr.Note)
+		}
 	}
 	m := BuildManifest(opt.Version, s, r, time.Since(t0).Seconds())
 	if err := WriteManifest(abs, m); err != nil {
