@@ -11,7 +11,7 @@ import (
 	"testing"
 
 	"winnow/stages"
-	"winnow/stages/run"
+	"winnow/stages/record"
 	"winnow/stages/spec"
 )
 
@@ -60,7 +60,7 @@ func TestRunExitStatusOnInternalError(t *testing.T) {
 			t.Errorf("message %q", err)
 		}
 		b, rerr := os.ReadFile(filepath.Join(dir, "out", "manifest.json"))
-		var m run.Manifest
+		var m record.Manifest
 		if rerr != nil || json.Unmarshal(b, &m) != nil || m.InternalErrors != 1 || m.Totals.DocsOut != 49 {
 			t.Fatalf("manifest: %v, %d internal, %d out", rerr, m.InternalErrors, m.Totals.DocsOut)
 		}

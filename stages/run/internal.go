@@ -5,6 +5,7 @@ import (
 	"runtime/debug"
 	"strings"
 	"winnow/stages"
+	"winnow/stages/record"
 
 	"github.com/zeebo/xxh3"
 )
@@ -88,7 +89,7 @@ func (r *Runner) recordInternal(d *stages.Doc, stage string, ie *internalError, 
 		r.logf("internal error: %s (recorded; the run goes on)", msg)
 	}
 	if r.InternalErrors <= maxManifestErrors {
-		r.Errors = append(r.Errors, RunError{File: d.File, Line: d.Line, Rule: RuleInternalError, Stage: stage, Doc: d.ID,
+		r.Errors = append(r.Errors, record.RunError{File: d.File, Line: d.Line, Rule: RuleInternalError, Stage: stage, Doc: d.ID,
 			Message: msg, Stack: ie.stack})
 	}
 }

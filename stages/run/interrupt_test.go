@@ -9,6 +9,7 @@ import (
 	"strings"
 	"testing"
 	"winnow/stages"
+	"winnow/stages/record"
 	"winnow/stages/spec"
 )
 
@@ -139,7 +140,7 @@ output:
 	if ok, why := res.Runner.CanResume(); ok || !strings.Contains(why, "stopped before its first checkpoint") {
 		t.Errorf("early stop: resumable %v, %q", ok, why)
 	}
-	if _, err := RunSpec(context.Background(), writeSpec(t, dir, body), RunOptions{Out: filepath.Join(dir, "early"), Resume: true}); !errors.Is(err, ErrNoCheckpoint) {
+	if _, err := RunSpec(context.Background(), writeSpec(t, dir, body), RunOptions{Out: filepath.Join(dir, "early"), Resume: true}); !errors.Is(err, record.ErrNoCheckpoint) {
 		t.Errorf("resume of an early stop: %v", err)
 	}
 }

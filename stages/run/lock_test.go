@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"winnow/stages/record"
 )
 
 // TestHelperHoldLock is not a test: run as a child process (WINNOW_HOLD_LOCK
@@ -18,7 +19,7 @@ func TestHelperHoldLock(t *testing.T) {
 	if dir == "" {
 		return
 	}
-	if _, err := LockRunDir(dir, nil); err != nil {
+	if _, err := record.LockRunDir(dir, nil); err != nil {
 		fmt.Println("error:", err)
 		os.Exit(1)
 	}
@@ -36,7 +37,7 @@ func TestRunDirLock(t *testing.T) {
 	if _, err := RunSpec(context.Background(), s, RunOptions{Out: out}); err != nil {
 		t.Fatal(err)
 	}
-	if _, err := os.Stat(filepath.Join(out, lockFile)); !os.IsNotExist(err) {
+	if _, err := os.Stat(filepath.Join(out, record.LockFile)); !os.IsNotExist(err) {
 		t.Errorf("a finished run leaves its lock: %v", err)
 	}
 	before := runDirDigest(t, out)
@@ -60,7 +61,7 @@ func TestRunDirLock(t *testing.T) {
 	}
 	// The refused run touched nothing.
 	after := runDirDigest(t, out)
-	delete(after, lockFile)
+	delete(after, record.LockFile)
 	if len(after) != len(before) {
 		t.Errorf("refused run changed the directory: %d files, was %d", len(after), len(before))
 	}
@@ -72,7 +73,7 @@ func TestRunDirLock(t *testing.T) {
 	// The holder dies without cleaning up: its lock file stays, stale.
 	child.Process.Kill()
 	child.Wait()
-	if b, err := os.ReadFile(filepath.Join(out, lockFile)); err != nil || !strings.Contains(string(b), fmt.Sprint(child.Process.Pid)) {
+	if b, err := os.ReadFile(filepath.Join(out, record.LockFile)); err != nil || !strings.Contains(string(b), fmt.Sprint(child.Process.Pid)) {
 		t.Fatalf("stale lock file: %q %v", b, err)
 	}
 	var logged []string
@@ -84,13 +85,13 @@ func TestRunDirLock(t *testing.T) {
 		t.Errorf("log %q", logged)
 	}
 	// A lock written on another host is not guessed stale.
-	os.WriteFile(filepath.Join(out, lockFile), []byte("harbour-build-7 4242 2026-01-01T00:00:00Z\n"), 0o644)
+	os.WriteFile(filepath.Join(out, record.LockFile), []byte("harbour-build-7 4242 2026-01-01T00:00:00Z\n"), 0o644)
 	if _, err := RunSpec(context.Background(), s, RunOptions{Out: out, Force: true}); err == nil || !strings.Contains(err.Error(), "locked by a winnow run on host harbour-build-7 (pid 4242") {
 		t.Errorf("foreign lock: %v", err)
 	}
 	// In one process, a second run on a directory in use is refused too.
-	os.Remove(filepath.Join(out, lockFile))
-	release, err := LockRunDir(out, nil)
+	os.Remove(filepath.Join(out, record.LockFile))
+	release, err := record.LockRunDir(out, nil)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -47,7 +47,7 @@ type RunOptions struct {
 // RunResult is a finished run.
 type RunResult struct {
 	Dir      string
-	Manifest *Manifest
+	Manifest *record.Manifest
 	Runner   *Runner
 }
 
@@ -70,15 +70,15 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 	if out == "" {
 		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
 	}
-	if err := CheckOutNotInput(out, inputs); err != nil {
+	if err := record.CheckOutNotInput(out, inputs); err != nil {
 		return nil, err
 	}
-	release, err := LockRunDir(out, opt.Log)
+	release, err := record.LockRunDir(out, opt.Log)
 	if err != nil {
 		return nil, err
 	}
 	defer release()
-	tmp, err := PrepareRunDir(out, s, inputs, opt.Force, opt.Resume)
+	tmp, err := record.PrepareRunDir(out, s.ConfigHash, inputs, opt.Force, opt.Resume)
 	if err != nil {
 		return nil, err
 	}
@@ -136,8 +136,8 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 			r.logf("warning: mix: %s", mr.Note)
 		}
 	}
-	m := BuildManifest(opt.Version, s, r, time.Since(t0).Seconds())
-	if err := WriteManifest(abs, m); err != nil {
+	m := buildManifest(opt.Version, s, r, time.Since(t0).Seconds())
+	if err := record.WriteManifest(abs, m); err != nil {
 		return nil, err
 	}
 	return &RunResult{Dir: abs, Manifest: m, Runner: r}, runErr

@@ -9,19 +9,6 @@ import (
 	"winnow/stages"
 )
 
-const basicSpec = `name: basic
-seed: 1
-inputs:
-  - source: yard
-    paths: ["raw/*.zst"]
-stages:
-  - kind: normalize
-  - kind: length
-    min_chars: 5
-output:
-  dir: out
-`
-
 // Spec values that would fail late or silently are refused when the spec is
 // loaded or its stages built (what `winnow check` does), each error naming
 // file:line:column and the key.

@@ -1,4 +1,4 @@
-package run
+package record
 
 import (
 	"encoding/json"
@@ -8,30 +8,29 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync/atomic"
 	"time"
 
 	"winnow/stages/fsio"
 	"winnow/stages/read"
-	"winnow/stages/record"
-	"winnow/stages/spec"
 )
 
 // Manifest is OUT/manifest.json: the run's provenance. Field names are a
 // contract (see README "Run directory"). Nothing in it depends on the
 // number of workers; only the "seconds" fields vary between runs.
 type Manifest struct {
-	ToolVersion string              `json:"tool_version"`
-	Name        string              `json:"name"`
-	Config      any                 `json:"config"`
-	ConfigHash  string              `json:"config_hash"`
-	Seed        uint64              `json:"seed"`
-	Inputs      []InputSummary      `json:"inputs"`
-	Stages      []*Counters         `json:"stages"`
-	Outputs     []record.OutputFile `json:"outputs"`
-	Mix         any                 `json:"mix,omitempty"`
-	Totals      Totals              `json:"totals"`
-	Errors      []RunError          `json:"errors"`
-	ErrorCount  int64               `json:"error_count"`
+	ToolVersion string         `json:"tool_version"`
+	Name        string         `json:"name"`
+	Config      any            `json:"config"`
+	ConfigHash  string         `json:"config_hash"`
+	Seed        uint64         `json:"seed"`
+	Inputs      []InputSummary `json:"inputs"`
+	Stages      []*Counters    `json:"stages"`
+	Outputs     []OutputFile   `json:"outputs"`
+	Mix         any            `json:"mix,omitempty"`
+	Totals      Totals         `json:"totals"`
+	Errors      []RunError     `json:"errors"`
+	ErrorCount  int64          `json:"error_count"`
 	// InternalErrors counts documents a stage panicked on (rule
 	// internal_error in the ledger; each listed in Errors with its stack).
 	InternalErrors int64 `json:"internal_errors"`
@@ -57,46 +56,80 @@ type Totals struct {
 	TokensOut  int64 `json:"tokens_out"`
 }
 
-// BuildManifest assembles the manifest from a finished (or interrupted)
-// runner.
-func BuildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *Manifest {
-	m := &Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
-		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, InternalErrors: r.InternalErrors,
-		DuplicateIDs: r.DuplicateIDs, DuplicateCheckStopped: r.DupCheckStopped, Interrupted: r.Interrupted, Seconds: seconds}
-	if m.Inputs == nil {
-		m.Inputs = []InputSummary{}
-	}
-	if m.Errors == nil {
-		m.Errors = []RunError{}
-	}
-	m.Stages = append(m.Stages, r.Read.snapshot())
-	m.Stages = append(m.Stages, r.Counters...)
-	w := r.Write.snapshot()
-	if r.Output != nil {
-		m.Outputs = r.Output.Files
-		m.Mix = r.Output.Mix
-		var docs, bytes, toks int64
-		for _, f := range r.Output.Files {
-			docs += f.Docs
-			toks += f.Tokens
-		}
-		bytes = w.BytesIn
-		w.DocsOut, w.BytesOut, w.TokensOut = docs, bytes, toks
-	}
-	m.Stages = append(m.Stages, w)
-	if m.Outputs == nil {
-		m.Outputs = []record.OutputFile{}
-	}
-	for _, in := range r.InputSums {
-		m.Totals.InputFiles++
-		m.Totals.InputBytes += in.Bytes
-	}
-	m.Totals.DocsIn = r.Read.DocsIn
-	m.Totals.DocsOut = w.DocsOut
-	m.Totals.BytesOut = w.BytesOut
-	m.Totals.TokensOut = w.TokensOut
-	return m
+// Counters are a stage's document flow, written to the manifest.
+type Counters struct {
+	Name      string  `json:"name"`
+	Kind      string  `json:"kind"`
+	DocsIn    int64   `json:"docs_in"`
+	DocsOut   int64   `json:"docs_out"`
+	BytesIn   int64   `json:"bytes_in"`
+	BytesOut  int64   `json:"bytes_out"`
+	TokensOut int64   `json:"tokens_out,omitempty"`
+	Dropped   int64   `json:"dropped"`
+	Edited    int64   `json:"edited"`
+	Seconds   float64 `json:"seconds"`
+	nanos     atomic.Int64
 }
+
+// Snapshot copies the counts (not the running time) of c.
+func (c *Counters) Snapshot() *Counters {
+	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds}
+}
+
+// RunError is an input problem recorded in the manifest.
+type RunError struct {
+	File   string `json:"file"`
+	Line   int64  `json:"line,omitempty"`
+	Offset int64  `json:"offset,omitempty"`
+	Rule   string `json:"rule,omitempty"`
+	// Stage and Doc name the stage and document of an internal error.
+	Stage   string `json:"stage,omitempty"`
+	Doc     string `json:"doc,omitempty"`
+	Message string `json:"message"`
+	// Stack holds the first frames of an internal error's stack.
+	Stack []string `json:"stack,omitempty"`
+	// Fatal is true when the rest of the file could not be read.
+	Fatal bool `json:"fatal"`
+}
+
+// InputSummary is one input file in the manifest.
+type InputSummary struct {
+	Path        string      `json:"path"`
+	Source      string      `json:"source"`
+	Bytes       int64       `json:"bytes"`
+	XXH3        string      `json:"xxh3"`
+	Codec       read.Codec  `json:"codec"`
+	Format      read.Format `json:"format"`
+	Docs        int64       `json:"docs"`
+	Issues      int64       `json:"issues"`
+	InvalidUTF8 int64       `json:"invalid_utf8"`
+	Skipped     int64       `json:"skipped_records,omitempty"`
+	Complete    bool        `json:"complete"`
+	// Warnings are what the reader tolerated in this file (zero padding
+	// after the last compressed stream).
+	Warnings []string `json:"warnings,omitempty"`
+}
+
+// AddNanos adds running time, from any goroutine.
+func (c *Counters) AddNanos(n int64) { c.nanos.Add(n) }
+
+// Nanos is the running time so far.
+func (c *Counters) Nanos() int64 { return c.nanos.Load() }
+
+// SetFrom copies the flow counts and time of a checkpointed counter.
+func (c *Counters) SetFrom(o *Counters) {
+	c.DocsIn, c.DocsOut, c.BytesIn, c.BytesOut = o.DocsIn, o.DocsOut, o.BytesIn, o.BytesOut
+	c.TokensOut, c.Dropped, c.Edited, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Seconds
+	c.nanos.Store(int64(o.Seconds * 1e9))
+}
+
+// CheckpointFile is the checkpoint of an interrupted run, in the run's
+// work directory (.work/).
+const CheckpointFile = "checkpoint.json"
+
+// ErrNoCheckpoint is returned by --resume when there is nothing to resume.
+var ErrNoCheckpoint = errors.New("nothing to resume: the run directory holds no checkpoint (a run checkpoints after each global stage's scan; run again without --resume)")
 
 // EmptyReason says, when no document reached the output although some
 // were read, which stages removed them: the stage that let none through,
@@ -179,13 +212,13 @@ func CheckOutNotInput(dir string, inputs []read.InputFile) error {
 // is still recognised as belonging to its spec.
 const runMarker = ".winnow-run"
 
-// PrepareRunDir checks that dir may receive a run of spec s and makes it
-// ready: a directory holding a different run (or anything that is not a
-// winnow run) is refused unless force; a directory that contains one of
-// the inputs is always refused. It returns the temp directory for spills.
+// PrepareRunDir checks that dir may receive a run of the spec whose config
+// hash is configHash and makes it ready: a directory holding a different
+// run (or anything that is not a winnow run) is refused unless force; a
+// directory that contains one of the inputs is always refused. It returns the temp directory for spills.
 // With resume it keeps the interrupted run's ledger, metrics and work
 // files instead (and refuses a directory holding another run).
-func PrepareRunDir(dir string, s *spec.Spec, inputs []read.InputFile, force, resume bool) (string, error) {
+func PrepareRunDir(dir, configHash string, inputs []read.InputFile, force, resume bool) (string, error) {
 	abs, err := filepath.Abs(dir)
 	if err != nil {
 		return "", err
@@ -199,7 +232,7 @@ func PrepareRunDir(dir string, s *spec.Spec, inputs []read.InputFile, force, res
 	}
 	var entries []os.DirEntry
 	for _, e := range all {
-		if e.Name() != lockFile {
+		if e.Name() != LockFile {
 			entries = append(entries, e)
 		}
 	}
@@ -208,16 +241,16 @@ func PrepareRunDir(dir string, s *spec.Spec, inputs []read.InputFile, force, res
 		switch {
 		case merr != nil:
 			return "", fmt.Errorf("output directory %s is not empty and holds no winnow run: use --force to write into it", dir)
-		case strings.TrimSpace(string(marker)) != s.ConfigHash:
-			return "", fmt.Errorf("output directory %s holds a different run (config hash %s, this spec %s): use --force to replace it", dir, strings.TrimSpace(string(marker)), s.ConfigHash)
+		case strings.TrimSpace(string(marker)) != configHash:
+			return "", fmt.Errorf("output directory %s holds a different run (config hash %s, this spec %s): use --force to replace it", dir, strings.TrimSpace(string(marker)), configHash)
 		}
 	}
 	if resume {
 		marker, err := os.ReadFile(filepath.Join(abs, runMarker))
-		if err != nil || strings.TrimSpace(string(marker)) != s.ConfigHash {
-			return "", fmt.Errorf("--resume: %s holds no interrupted run of this spec (config hash %s)", dir, s.ConfigHash)
+		if err != nil || strings.TrimSpace(string(marker)) != configHash {
+			return "", fmt.Errorf("--resume: %s holds no interrupted run of this spec (config hash %s)", dir, configHash)
 		}
-		if _, err := os.Stat(filepath.Join(abs, ".work", checkpointFile)); err != nil {
+		if _, err := os.Stat(filepath.Join(abs, ".work", CheckpointFile)); err != nil {
 			return "", ErrNoCheckpoint
 		}
 		// Shards and reports are written again by the last segment.
@@ -246,14 +279,14 @@ func PrepareRunDir(dir string, s *spec.Spec, inputs []read.InputFile, force, res
 	if err := os.MkdirAll(tmp, 0o755); err != nil {
 		return "", err
 	}
-	if err := fsio.WriteFileAtomic(filepath.Join(abs, runMarker), []byte(s.ConfigHash+"\n")); err != nil {
+	if err := fsio.WriteFileAtomic(filepath.Join(abs, runMarker), []byte(configHash+"\n")); err != nil {
 		return "", err
 	}
 	return tmp, nil
 }
 
-// lockFile marks a run directory in use by a running winnow process.
-const lockFile = ".winnow-lock"
+// LockFile marks a run directory in use by a running winnow process.
+const LockFile = ".winnow-lock"
 
 // LockRunDir takes the run directory for this process, creating it when
 // needed. OUT/.winnow-lock holds "host pid start-time" and is locked with
@@ -277,7 +310,7 @@ func LockRunDir(dir string, logf func(string, ...any)) (release func(), err erro
 	}
 	host, _ := os.Hostname()
 	me := fmt.Sprintf("%s %d %s\n", host, os.Getpid(), time.Now().UTC().Format(time.RFC3339))
-	path := filepath.Join(abs, lockFile)
+	path := filepath.Join(abs, LockFile)
 	for attempt := 0; attempt < 5; attempt++ {
 		f, err := os.OpenFile(path, os.O_RDWR|os.O_CREATE, 0o644)
 		if err != nil {
