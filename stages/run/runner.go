@@ -257,6 +257,12 @@ func (r *Runner) Run(ctx context.Context) error {
 	err := r.runSegments(ctx, cp)
 	if err == nil || errors.Is(err, context.Canceled) {
 		if r.Output == nil && r.Sink != nil {
+			if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
+				lo.OnLeftOut(func(rec *record.LedgerRecord) error {
+					r.Write.Dropped++
+					return r.ledger.Add(rec)
+				})
+			}
 			out, cerr := r.Sink.Close()
 			if cerr != nil && err == nil {
 				err = cerr
