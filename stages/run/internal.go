@@ -73,6 +73,12 @@ func safeScan(g stages.GlobalStage, d *stages.Doc) (keys any, ie *internalError)
 	return g.Scan(d), nil
 }
 
+func safeObserve(o stages.Observer, d *stages.Doc, dec *stages.Decision) (ie *internalError) {
+	defer recoverInternal(&ie)
+	o.Observe(d, dec)
+	return nil
+}
+
 // internalDrop is the decision recorded for a document a stage panicked on.
 func internalDrop(ie *internalError) stages.Decision {
 	return stages.Decision{Action: stages.Drop, Rule: RuleInternalError, Extra: map[string]any{"message": "panic: " + ie.value}}

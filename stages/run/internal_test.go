@@ -6,6 +6,7 @@ import (
 	"strings"
 	"testing"
 	"winnow/stages"
+	"winnow/stages/record"
 )
 
 // Test-only stage kinds that panic on a chosen document: a per-document
@@ -169,5 +170,58 @@ func TestIDSet(t *testing.T) {
 	}
 	if !small.full || small.slots != nil || small.add(1) {
 		t.Errorf("table past its limit: full %v, %d slots", small.full, len(small.slots))
+	}
+}
+
+// test_panic_report is a per-document stage whose run-wide report (an
+// Observer) panics on one document.
+func init() {
+	stages.Register(stages.Kind{Name: "test_panic_report", Doc: "report panics on one document (tests)",
+		New: func(p *stages.Params, env stages.Env) (stages.Stage, error) {
+			return &panicReport{on: p.String("on", "")}, p.Done()
+		}})
+}
+
+type panicReport struct {
+	on   string
+	seen int
+}
+
+func (s *panicReport) Name() string                          { return "test_panic_report" }
+func (s *panicReport) Kind() string                          { return "test_panic_report" }
+func (s *panicReport) MetricNames() []string                 { return nil }
+func (s *panicReport) Process(d *stages.Doc) stages.Decision { return stages.KeepDoc() }
+func (s *panicReport) Observe(d *stages.Doc, dec *stages.Decision) {
+	if d.ID == s.on {
+		panic("report bug on " + d.ID)
+	}
+	s.seen++
+}
+
+// A run-wide report that panics on one document loses that document from
+// the report only: the run finishes, counts the internal error, and the
+// document still reaches the shards.
+func TestPanicInReportIsRecorded(t *testing.T) {
+	dir := writeCorpus(t, 20)
+	s := writeSpec(t, dir, "name: rep\ninputs:\n  - source: yard\n    paths: [\"raw/*.zst\"]\nstages:\n  - kind: test_panic_report\n    on: doc-4\noutput:\n  dir: out\n")
+	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out"), Workers: 2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := res.Manifest
+	if m.InternalErrors != 1 || m.Totals.DocsOut != 20 {
+		t.Fatalf("internal %d, out %d", m.InternalErrors, m.Totals.DocsOut)
+	}
+	var e record.RunError
+	for _, x := range m.Errors {
+		if x.Rule == RuleInternalError {
+			e = x
+		}
+	}
+	if e.Doc != "doc-4" || e.Stage != "test_panic_report (report)" || len(e.Stack) == 0 {
+		t.Errorf("error %+v", e)
+	}
+	if got := res.Runner.Steps[0].Stage.(*panicReport).seen; got != 19 {
+		t.Errorf("report saw %d documents, want 19", got)
 	}
 }

@@ -693,12 +693,12 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 		c.DocsOut++
 		c.BytesOut += int64(res.bytesIn)
 	}
-	if st.Stage != nil {
-		if o, ok := st.Stage.(stages.Observer); ok {
-			o.Observe(d, dec)
+	if o, ok := stageOf(st).(stages.Observer); ok {
+		// A report that fails on one document leaves that document out
+		// of the report; the run goes on and counts the internal error.
+		if ie := safeObserve(o, d, dec); ie != nil {
+			r.recordInternal(d, st.Name+" (report)", ie, false)
 		}
-	} else if o, ok := st.Global.(stages.Observer); ok {
-		o.Observe(d, dec)
 	}
 	if dec.Action == stages.Keep && dec.Rule == "" {
 		return nil // a flag (keep with a rule) is still recorded
