@@ -26,6 +26,7 @@ var roomRank = map[string]int{
 	"winnow/stages/read":        3, // inputs, codecs, record readers
 	"winnow/filters":            2,
 	"winnow/filters/langid":     2,
+	"winnow/filters/domain":     2,
 	"winnow/dedup":              2,
 	"winnow/shard":              2,
 	"winnow/stages/synth":       2, // demo corpus generator
