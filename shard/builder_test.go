@@ -491,7 +491,7 @@ func TestByteShards(t *testing.T) {
 	}
 }
 
-func TestMixErrors(t *testing.T) {
+func TestMixMissingSource(t *testing.T) {
 	tok := mustLoad(t, "cl100k_base")
 	docs := corpus(1, tok)[:50]
 	run := t.TempDir()
@@ -502,8 +502,21 @@ func TestMixErrors(t *testing.T) {
 	for i := range docs {
 		b.Add(&docs[i])
 	}
-	if _, err := b.Close(); err == nil || !strings.Contains(err.Error(), "nosuch") {
-		t.Errorf("missing mix source: %v", err)
+	// A source whose documents were all removed does not cost the run:
+	// the others are mixed at their relative shares and the report says
+	// which source had nothing.
+	rep, err := b.Close()
+	if err != nil {
+		t.Fatalf("missing mix source: %v", err)
+	}
+	mix := rep.Mix
+	if mix == nil || !slices.Equal(mix.Missing, []string{"nosuch"}) || !strings.Contains(mix.Note, "source(s) nosuch have no surviving tokens") {
+		t.Fatalf("report %+v", mix)
+	}
+	for _, src := range mix.Sources {
+		if src.Source == "manuals" && (src.Share != 1 || src.ShareUsed != 1 || src.Used == 0) {
+			t.Errorf("manuals: %+v", src)
+		}
 	}
 }
 
@@ -518,5 +531,60 @@ func TestPlanCuts(t *testing.T) {
 	// A tiny remainder joins the last shard.
 	if c := planCuts(slices.Repeat([]int64{1}, 2002), 1000); len(c) != 1 {
 		t.Errorf("cuts %v, want one", c)
+	}
+}
+
+// Every document the mix places nowhere is reported once, in input order,
+// and the reported and the written documents are all the documents, split
+// ones counted once (whatever mix of long and short documents).
+func TestMixReportsLeftOut(t *testing.T) {
+	tok := mustLoad(t, "cl100k_base")
+	docs := corpus(3, tok)
+	run := t.TempDir()
+	b, err := NewBuilder(Options{Dir: filepath.Join(run, "shards"), TempDir: run, Tokenizer: tok, Name: "lo",
+		ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var left []LeftOut
+	b.SetLeftOut(func(l LeftOut) error { left = append(left, l); return nil })
+	for i := range docs {
+		b.Add(&docs[i])
+	}
+	rep, err := b.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	written := map[string]bool{}
+	for _, f := range rep.Files {
+		for _, l := range readShard(t, filepath.Join(run, f.Path)) {
+			id, _, _ := strings.Cut(l.ID, "#")
+			written[id] = true
+		}
+	}
+	byID := map[string]Doc{}
+	order := map[string]int{}
+	for i, d := range docs {
+		byID[d.ID], order[d.ID] = d, i
+	}
+	seen := map[string]bool{}
+	for i, l := range left {
+		d, ok := byID[l.Doc]
+		switch {
+		case !ok:
+			t.Fatalf("left out %q is no input document", l.Doc)
+		case written[l.Doc]:
+			t.Errorf("%s both written and left out", l.Doc)
+		case seen[l.Doc]:
+			t.Errorf("%s left out twice", l.Doc)
+		case l.Source != d.Source || l.File != d.File || l.Line != d.Line:
+			t.Errorf("%s: %+v, input %s %s:%d", l.Doc, l, d.Source, d.File, d.Line)
+		case i > 0 && order[l.Doc] < order[left[i-1].Doc]:
+			t.Errorf("%s reported out of input order", l.Doc)
+		}
+		seen[l.Doc] = true
+	}
+	if len(left) == 0 || len(left)+len(written) != len(docs) {
+		t.Errorf("%d left out + %d written != %d documents", len(left), len(written), len(docs))
 	}
 }

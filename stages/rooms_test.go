@@ -33,6 +33,7 @@ var roomRank = map[string]int{
 	"winnow/stages/fsio":        1,
 	"winnow/stages/jsonl":       1,
 	"winnow/stages/suggest":     1,
+	"winnow/stages/termtext":    1, // escaping for terminal output
 	"winnow/configs":            1,
 }
 

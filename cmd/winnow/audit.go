@@ -10,6 +10,7 @@ import (
 
 	"winnow/stages/audit"
 	"winnow/stages/run"
+	"winnow/stages/termtext"
 )
 
 var auditOpts struct {
@@ -55,7 +56,8 @@ contamination table and a sample of removed documents with their reasons.`,
   winnow audit out/ --html out/report.html`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
-		out := cmd.OutOrStdout()
+		out := termOut(cmd.OutOrStdout())
+		defer out.Flush()
 		r, err := audit.Open(args[0], audit.OpenOptions{SpecDir: auditOpts.specDir})
 		if err != nil {
 			return err
@@ -89,7 +91,7 @@ contamination table and a sample of removed documents with their reasons.`,
 			if err := rep.WriteHTMLFile(auditOpts.html); err != nil {
 				return err
 			}
-			fmt.Fprintf(cmd.ErrOrStderr(), "winnow: report written to %s\n", auditOpts.html)
+			fmt.Fprintf(cmd.ErrOrStderr(), "winnow: report written to %s\n", termtext.EscapeLines(auditOpts.html))
 			if auditOpts.asJSON {
 				return writeJSON(out, rep.Summary)
 			}

@@ -43,7 +43,8 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 		if _, err := record.OpenSink(sp.Output, stages.Env{Checking: true}, sp.Name); err != nil {
 			return err
 		}
-		w := os.Stdout
+		w := termOut(os.Stdout)
+		defer w.Flush()
 		if checkJSON {
 			return printPlanJSON(w, sp, inputs, steps)
 		}

@@ -16,6 +16,7 @@ import (
 	"winnow/shard"
 	"winnow/stages/audit"
 	"winnow/stages/read"
+	"winnow/stages/termtext"
 )
 
 var countOpts struct {
@@ -118,7 +119,8 @@ func runCount(cmd *cobra.Command, args []string) error {
 		}
 		res.Sources = append(res.Sources, r)
 	}
-	out := cmd.OutOrStdout()
+	out := termOut(cmd.OutOrStdout())
+	defer out.Flush()
 	if countOpts.jsonOut {
 		enc := json.NewEncoder(out)
 		enc.SetIndent("", "  ")
@@ -234,7 +236,7 @@ func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow,
 		}
 		if rec.Issue != nil {
 			if issues++; issues <= maxIssueLines {
-				fmt.Fprintf(os.Stderr, "winnow count: %v\n", rec.Issue)
+				fmt.Fprintf(os.Stderr, "winnow count: %s\n", termtext.Escape(fmt.Sprint(rec.Issue)))
 			}
 			if rec.Doc == nil {
 				skipped++

@@ -47,10 +47,12 @@ change what is measured need a re-run (winnow run --set).`,
 		if err != nil {
 			return err
 		}
+		out := termOut(cmd.OutOrStdout())
+		defer out.Flush()
 		if whatifOpts.asJSON {
-			return writeJSON(cmd.OutOrStdout(), w)
+			return writeJSON(out, w)
 		}
-		return w.WriteText(cmd.OutOrStdout())
+		return w.WriteText(out)
 	},
 }
 

@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"winnow/stages"
+	"winnow/stages/termtext"
 )
 
 // Explanation is the answer of `winnow explain RUN DOC_ID`: every
@@ -337,11 +338,14 @@ func shardID(b []byte) string {
 
 // WriteText prints the explanation.
 func (ex *Explanation) WriteText(w io.Writer) error {
+	if len(ex.Docs) > 1 {
+		fmt.Fprintf(w, "%d documents have the id %s (the input repeats it); each is shown:\n\n", len(ex.Docs), termtext.Escape(ex.ID))
+	}
 	for n, p := range ex.Docs {
 		if n > 0 {
 			fmt.Fprintln(w)
 		}
-		fmt.Fprintf(w, "%s  source %s, %s:%d (order %s)\n", p.ID, p.Source, p.File, p.Line, p.Order)
+		fmt.Fprintf(w, "%s  source %s, %s:%d (order %s)\n", termtext.Escape(p.ID), termtext.Escape(p.Source), termtext.Escape(p.File), p.Line, p.Order)
 		for i, d := range p.Decisions {
 			act := d.Action
 			switch {
@@ -361,11 +365,11 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 				fmt.Fprintf(w, " (%s)", ch)
 			}
 			for _, k := range sortedKeys(d.Extra) {
-				fmt.Fprintf(w, " %s=%s", k, fmtAny(d.Extra[k]))
+				fmt.Fprintf(w, " %s=%s", k, termtext.Escape(fmtAny(d.Extra[k])))
 			}
 			fmt.Fprintln(w)
 			for _, k := range sortedKeys(d.Labels) {
-				fmt.Fprintf(w, "       %s = %s\n", k, d.Labels[k])
+				fmt.Fprintf(w, "       %s = %s\n", k, termtext.Escape(d.Labels[k]))
 			}
 			for _, m := range d.Metrics {
 				v := "null"
@@ -390,15 +394,15 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 		case "kept":
 			var parts []string
 			for _, s := range p.Result.Shards {
-				part := fmt.Sprintf("%s line %d", s.Path, s.Line)
+				part := fmt.Sprintf("%s line %d", termtext.Escape(s.Path), s.Line)
 				if s.ID != p.ID {
-					part += " (as " + s.ID + ")"
+					part += " (as " + termtext.Escape(s.ID) + ")"
 				}
 				parts = append(parts, part)
 			}
 			fmt.Fprintf(w, "result: kept, written to %s\n", strings.Join(parts, "; "))
 		case "removed", "read_error":
-			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
+			fmt.Fprintf(w, "result: %s\n", termtext.Escape(p.Result.Reason))
 		default:
 			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
 		}

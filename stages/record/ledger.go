@@ -112,6 +112,25 @@ func (s *streamSet) abort() {
 	}
 }
 
+// Detach stops every file and leaves its temp file for a resume.
+func (s *streamSet) Detach() {
+	for _, n := range s.order {
+		s.files[n].Detach()
+	}
+}
+
+// Retarget returns states with each file's current temp name: after a
+// resume the prefix lives in the new temp files.
+func (s *streamSet) Retarget(states []StreamState) []StreamState {
+	out := append([]StreamState(nil), states...)
+	for i := range out {
+		if w, ok := s.files[out[i].Name]; ok {
+			out[i].Temp = w.TempPath()
+		}
+	}
+	return out
+}
+
 // StreamState is where one file of a set stood at a checkpoint.
 type StreamState struct {
 	Name  string `json:"name"`

@@ -64,6 +64,14 @@ type Runner struct {
 	// stopAfter, when > 0, cancels the run after that many segments
 	// (tests of resuming).
 	stopAfter int
+	// checkpointSeg is the segment after which the last checkpoint was
+	// written (or restored from); -1 before any.
+	checkpointSeg int
+	// started is set once the run got past opening and restoring.
+	started bool
+	// afterCheckpoint, when set, is called after each checkpoint (tests of
+	// interruption).
+	afterCheckpoint func()
 
 	ledger  *record.Ledger
 	metrics *record.Metrics
@@ -80,6 +88,15 @@ type Runner struct {
 	Interrupted bool
 	// FatalInputs counts inputs that could not be read to their end.
 	FatalInputs int
+	// InternalErrors counts documents a stage panicked on.
+	InternalErrors int64
+	// DuplicateIDs counts documents whose id an earlier document had;
+	// DupCheckStopped, when > 0, is the number of ids after which the
+	// check stopped (memory).
+	DuplicateIDs    int64
+	DupCheckStopped int64
+	ids             *idSet
+	dupExamples     []string
 
 	prog struct {
 		docs, raw, text atomic.Int64
@@ -146,6 +163,10 @@ type stepResult struct {
 	bytesIn  int
 	bytesOut int
 	dropBy   string
+	// ie is set when the stage panicked on the document; scan when that
+	// happened in a global stage's Scan.
+	ie   *internalError
+	scan bool
 }
 
 type docOutcome struct {
@@ -215,6 +236,7 @@ func (r *Runner) Run(ctx context.Context) error {
 		}
 	}
 	r.Write = record.Counters{Name: "write", Kind: "write"}
+	r.checkpointSeg = -1
 	start := time.Now()
 	stopProg := r.startProgress(start)
 	defer stopProg()
@@ -226,15 +248,26 @@ func (r *Runner) Run(ctx context.Context) error {
 			r.ledger.Abort()
 			return err
 		}
+		if err := inputsUnchanged(cp.Inputs, r.Inputs); err != nil {
+			r.ledger.Abort()
+			return err
+		}
 		if err := r.restore(cp, r.segments()); err != nil {
 			r.ledger.Abort()
 			r.metrics.Abort()
 			return err
 		}
 	}
+	r.started = true
 	err := r.runSegments(ctx, cp)
 	if err == nil || errors.Is(err, context.Canceled) {
 		if r.Output == nil && r.Sink != nil {
+			if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
+				lo.OnLeftOut(func(rec *record.LedgerRecord) error {
+					r.Write.Dropped++
+					return r.ledger.Add(rec)
+				})
+			}
 			out, cerr := r.Sink.Close()
 			if cerr != nil && err == nil {
 				err = cerr
@@ -263,8 +296,15 @@ func (r *Runner) Run(ctx context.Context) error {
 		if r.Sink != nil {
 			r.Sink.Abort()
 		}
-		r.ledger.Abort()
-		r.metrics.Abort()
+		if ok, _ := r.CanResume(); ok {
+			// Keep the ledger and metrics up to the checkpoint for
+			// --resume (a failure such as a full disk can be fixed).
+			r.ledger.Detach()
+			r.metrics.Detach()
+		} else {
+			r.ledger.Abort()
+			r.metrics.Abort()
+		}
 	}
 	for _, c := range r.Counters {
 		c.Seconds = float64(c.Nanos()) / 1e9
@@ -343,6 +383,10 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			produce = func(ctx context.Context, out chan<- *batch) error { return r.produceSpill(ctx, sp, out) }
 		}
 		err := r.runSegment(ctx, seg, produce, next)
+		if si == 0 {
+			r.reportDuplicates()
+			r.ids = nil // free the table: later segments read no new ids
+		}
 		if next != nil {
 			if cerr := next.close(); cerr != nil && err == nil {
 				err = cerr
@@ -354,6 +398,9 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 		if err != nil {
 			if next != nil {
 				os.Remove(next.path)
+				if !errors.Is(err, context.Canceled) {
+					err = fmt.Errorf("%w (the unfinished spill of segment %d was removed)", err, si+1)
+				}
 			}
 			return err
 		}
@@ -369,6 +416,10 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			// bytes of every file) are the same whether or not it resumes.
 			if err := r.writeCheckpoint(si, spillPath); err != nil {
 				return fmt.Errorf("checkpoint: %w", err)
+			}
+			r.checkpointSeg = si
+			if r.afterCheckpoint != nil {
+				r.afterCheckpoint()
 			}
 		}
 		if done != "" {
@@ -466,10 +517,13 @@ func (r *Runner) work(seg segment, b *batch) {
 		dropBy := ""
 		if seg.apply >= 0 {
 			t0 := nanotime()
-			dec := r.Steps[seg.apply].Global.Apply(d)
+			dec, ie := safeApply(r.Steps[seg.apply].Global, d)
 			r.Counters[seg.apply].AddNanos(nanotime() - t0)
-			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text)}
-			if dec.Action == stages.Drop {
+			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text), ie: ie}
+			if ie != nil {
+				res.dec = internalDrop(ie)
+			}
+			if res.dec.Action == stages.Drop {
 				out.results = append(out.results, res)
 				out.dropped = true
 				continue
@@ -486,14 +540,29 @@ func (r *Runner) work(seg segment, b *batch) {
 				continue
 			}
 			t0 := nanotime()
-			dec := st.Process(d)
+			dec, ie := safeProcess(st, d)
 			r.Counters[si].AddNanos(nanotime() - t0)
-			for _, w := range r.wanted[si] {
-				if w.j < len(dec.Metrics) {
-					d.SetMeasured(w.name, dec.Metrics[w.j])
+			if ie == nil {
+				for _, w := range r.wanted[si] {
+					if w.j < len(dec.Metrics) {
+						d.SetMeasured(w.name, dec.Metrics[w.j])
+					}
 				}
 			}
 			res := stepResult{step: si, dec: dec, shadow: dropBy != "", bytesIn: len(d.Text), dropBy: dropBy}
+			if ie != nil {
+				// The document goes no further, not even as a shadow.
+				res.ie = ie
+				if dropBy == "" {
+					res.dec = internalDrop(ie)
+					dropBy = r.Steps[si].Name
+				} else {
+					res.dec = stages.Decision{}
+				}
+				res.bytesOut = res.bytesIn
+				out.results = append(out.results, res)
+				break
+			}
 			if dropBy == "" && dec.Action == stages.Drop {
 				dropBy = r.Steps[si].Name
 			}
@@ -519,8 +588,14 @@ func (r *Runner) work(seg segment, b *batch) {
 		out.dropped = dropBy != ""
 		if !out.dropped && seg.scan >= 0 {
 			t0 := nanotime()
-			out.keys = r.Steps[seg.scan].Global.Scan(d)
+			keys, ie := safeScan(r.Steps[seg.scan].Global, d)
 			r.Counters[seg.scan].AddNanos(nanotime() - t0)
+			if ie != nil {
+				out.results = append(out.results, stepResult{step: seg.scan, dec: internalDrop(ie), bytesIn: len(d.Text), ie: ie, scan: true})
+				out.dropped = true
+				continue
+			}
+			out.keys = keys
 		}
 	}
 }
@@ -563,6 +638,7 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		if seg.apply < 0 {
 			r.Read.DocsOut++
 			r.Read.BytesOut += int64(it.readBytes)
+			r.noteID(d)
 		}
 		for _, res := range out.results {
 			if err := r.recordResult(d, res); err != nil {
@@ -623,12 +699,15 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 			return err
 		}
 	}
+	if res.ie != nil {
+		r.recordInternal(d, st.Name, res.ie, res.shadow)
+	}
 	if res.shadow {
 		return nil
 	}
 	// A global stage's docs_in is counted at scan time; per-document
-	// stages count here.
-	if st.Stage != nil {
+	// stages count here (and so does a scan that panicked).
+	if st.Stage != nil || res.scan {
 		c.DocsIn++
 		c.BytesIn += int64(res.bytesIn)
 	}
@@ -643,12 +722,12 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 		c.DocsOut++
 		c.BytesOut += int64(res.bytesIn)
 	}
-	if st.Stage != nil {
-		if o, ok := st.Stage.(stages.Observer); ok {
-			o.Observe(d, dec)
+	if o, ok := stageOf(st).(stages.Observer); ok {
+		// A report that fails on one document leaves that document out
+		// of the report; the run goes on and counts the internal error.
+		if ie := safeObserve(o, d, dec); ie != nil {
+			r.recordInternal(d, st.Name+" (report)", ie, false)
 		}
-	} else if o, ok := st.Global.(stages.Observer); ok {
-		o.Observe(d, dec)
 	}
 	if dec.Action == stages.Keep && dec.Rule == "" {
 		return nil // a flag (keep with a rule) is still recorded

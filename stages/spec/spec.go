@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"slices"
@@ -97,8 +98,8 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	s := &Spec{File: path, Dir: filepath.Dir(abs)}
 	p := stages.NewParams(path, "spec", root)
 	s.Name = p.String("name", "winnow")
-	if s.Name == "" || strings.ContainsAny(s.Name, "/\\ \t") {
-		p.Errorf("name", "want a non-empty name without slashes or spaces")
+	if err := checkName(s.Name); err != nil {
+		p.Errorf("name", "%v", err)
 	}
 	s.Seed = uint64(p.Int("seed", 0, 0, 1<<62))
 	s.Memory = p.Size("memory", 1<<30, 1<<10, 1<<44)
@@ -152,6 +153,16 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 			continue
 		}
 		st.Name = sp.String("name", st.Kind)
+		if err := checkName(st.Name); err != nil {
+			sp.Errorf("name", "%v", err)
+			errs = append(errs, sp.TakeErrs()...)
+			continue
+		}
+		if reservedNames[st.Name] {
+			sp.Errorf("name", "%q is reserved for the runner's own records (read, write, output): choose another name", st.Name)
+			errs = append(errs, sp.TakeErrs()...)
+			continue
+		}
 		names[st.Name]++
 		if names[st.Name] > 1 {
 			if sp.Has("name") {
@@ -172,7 +183,9 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	if s.OutputDir != "" && !filepath.IsAbs(s.OutputDir) {
 		s.OutputDir = filepath.Join(s.Dir, s.OutputDir)
 	}
-	if mix := s.Output.FloatMap("mix"); len(mix) > 0 {
+	mix := s.Output.FloatMap("mix")
+	errs = append(errs, s.Output.TakeErrs()...)
+	if len(mix) > 0 {
 		known := map[string]bool{}
 		var srcs []string
 		for _, in := range s.Inputs {
@@ -200,6 +213,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	if err := p.Done(); err != nil {
 		errs = append([]error{err}, errs...)
 	}
+	errs = append(errs, unreported(errs, nonFinite(path, "spec", root))...)
 	if err := errors.Join(errs...); err != nil {
 		return nil, err
 	}
@@ -212,6 +226,101 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	return s, nil
+}
+
+// maxNameLen bounds spec and stage names: they become file names
+// (ledger/NAME.jsonl.zst, shards/NAME-00000.jsonl.zst) with room to spare
+// under the usual 255-byte limit of a file name.
+const maxNameLen = 64
+
+// reservedNames are the ledger and manifest names of the runner's own
+// steps; a stage may not take them.
+var reservedNames = map[string]bool{"read": true, "write": true, "output": true}
+
+// checkName accepts a plain file name: ASCII letters, digits, '_', '-' and
+// '.', not starting with '.', at most maxNameLen bytes. Names become file
+// names inside the run directory, so a slash, "..", an absolute path, a NUL
+// or a control character could place files elsewhere or break them.
+func checkName(name string) error {
+	if name == "" {
+		return errors.New("want a non-empty name")
+	}
+	if len(name) > maxNameLen {
+		return fmt.Errorf("name is %d bytes long, at most %d allowed (it becomes a file name)", len(name), maxNameLen)
+	}
+	for i := 0; i < len(name); i++ {
+		c := name[i]
+		ok := c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c >= '0' && c <= '9' || c == '_' || c == '-' || c == '.'
+		if !ok {
+			what := fmt.Sprintf("%q", string(rune(c)))
+			switch {
+			case c == '/' || c == '\\':
+				what = "a path separator"
+			case c == 0:
+				what = "a NUL byte"
+			case c < 0x20 || c == 0x7f:
+				what = "a control character"
+			case c >= 0x80:
+				what = "a non-ASCII character"
+			}
+			return fmt.Errorf("%q must be a plain file name (letters, digits, '_', '-', '.'), it has %s at byte %d", name, what, i)
+		}
+	}
+	if name[0] == '.' {
+		return fmt.Errorf("%q must not start with '.' (it becomes a file name; \".\" and \"..\" name directories)", name)
+	}
+	return nil
+}
+
+// nonFinite reports every number in the spec that is NaN or infinite
+// (".nan", ".inf", "NaN", "-Inf"): no setting takes one, and the config
+// could not be written to the manifest.
+func nonFinite(file, at string, n *yaml.Node) []error {
+	var errs []error
+	switch n.Kind {
+	case yaml.ScalarNode:
+		var f float64
+		if n.Tag == "!!float" && n.Decode(&f) == nil && (math.IsNaN(f) || math.IsInf(f, 0)) {
+			errs = append(errs, &stages.SpecError{File: file, Line: n.Line, Column: n.Column, Key: at,
+				Msg: fmt.Sprintf("want a finite number, got %q", n.Value)})
+		}
+	case yaml.MappingNode:
+		for i := 0; i+1 < len(n.Content); i += 2 {
+			errs = append(errs, nonFinite(file, at+"."+n.Content[i].Value, n.Content[i+1])...)
+		}
+	case yaml.SequenceNode:
+		for i, c := range n.Content {
+			errs = append(errs, nonFinite(file, fmt.Sprintf("%s[%d]", at, i), c)...)
+		}
+	}
+	return errs
+}
+
+// unreported returns the errors of more that are not at a position errs
+// already names.
+func unreported(errs, more []error) []error {
+	seen := map[[2]int]bool{}
+	var walk func(err error)
+	walk = func(err error) {
+		var se *stages.SpecError
+		if j, ok := err.(interface{ Unwrap() []error }); ok {
+			for _, e := range j.Unwrap() {
+				walk(e)
+			}
+		} else if errors.As(err, &se) {
+			seen[[2]int{se.Line, se.Column}] = true
+		}
+	}
+	for _, e := range errs {
+		walk(e)
+	}
+	var out []error
+	for _, e := range more {
+		if se := e.(*stages.SpecError); !seen[[2]int{se.Line, se.Column}] {
+			out = append(out, e)
+		}
+	}
+	return out
 }
 
 // hashConfig sets ConfigHash to the xxh3 of the config's canonical JSON
@@ -299,6 +408,12 @@ func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 			st.Params.Errorf("only", "only: applies to per-document stages; %s compares documents with each other here", st.Kind)
 			errs = append(errs, st.Params.TakeErrs()...)
 			continue
+		}
+		if ts, ok := step.Stage.(stages.ThresholdStage); ok {
+			if err := checkRuleOrder(st.Params, ts.Rules()); err != nil {
+				errs = append(errs, err)
+				continue
+			}
 		}
 		step.Name = st.Name
 		step.Only = st.Only
@@ -403,4 +518,34 @@ func parseOnly(sp *stages.Params, inputs []InputSpec, before []StageSpec, errs [
 		errs = append(errs, err)
 	}
 	return sc, errs
+}
+
+// checkRuleOrder reports a minimum above a maximum of the same metric
+// (min_chars: 500 with max_chars: 100): no document could pass both, so
+// the stage would drop everything. The error is at the minimum's key.
+func checkRuleOrder(p *stages.Params, rules []stages.Rule) error {
+	for _, lo := range rules {
+		if !lo.Enabled || (lo.Cmp != stages.AtLeast && lo.Cmp != stages.Above) {
+			continue
+		}
+		for _, hi := range rules {
+			if !hi.Enabled || hi.Metric != lo.Metric || (hi.Cmp != stages.AtMost && hi.Cmp != stages.Below) {
+				continue
+			}
+			bad := lo.Limit > hi.Limit
+			if lo.Cmp == stages.Above || hi.Cmp == stages.Below {
+				bad = lo.Limit >= hi.Limit
+			}
+			if !bad {
+				continue
+			}
+			key := lo.Key
+			if !p.Has(key) {
+				key = hi.Key
+			}
+			p.Errorf(key, "%s %v is above %s %v: no document could keep both (%s %s %v and %s %v), so the stage would drop everything",
+				lo.Key, lo.Limit, hi.Key, hi.Limit, lo.Metric, lo.Cmp, lo.Limit, hi.Cmp, hi.Limit)
+		}
+	}
+	return errors.Join(p.TakeErrs()...)
 }
