@@ -1,0 +1,449 @@
+package webpage
+
+import (
+	"bytes"
+	"strings"
+	"sync"
+	"unicode"
+	"unicode/utf8"
+
+	"golang.org/x/net/html"
+	"golang.org/x/net/html/atom"
+
+	"winnow/filters"
+)
+
+// block is one text block of a page: the text between two block-level
+// tags, whitespace collapsed (or kept as it is inside <pre>).
+type block struct {
+	start, end int // the text is extractor.buf[start:end]
+	runes      int // characters
+	linkRunes  int // characters inside <a> elements
+	heading    bool
+	pre        bool
+	cf, class  class // context-free and final classes (classify.go)
+}
+
+// extractor holds the reusable state of one extraction.
+type extractor struct {
+	buf    []byte
+	blocks []block
+
+	// The block being built.
+	cur          block
+	space        bool // whitespace seen since the last character
+	brRun        int  // consecutive <br> tags
+	linkDepth    int
+	anchors      []bool // open <a> elements: whether each has an href
+	preDepth     int
+	headingDepth int
+
+	// A dropped element being skipped: its atom (or name when it has
+	// none) and how many of it are open.
+	skipAtom  atom.Atom
+	skipName  string
+	skipDepth int
+
+	title     []byte
+	inTitle   bool
+	titleDone bool
+	htmlLang  string
+
+	usedLang string
+	scratch  filters.Scratch
+	out      []byte
+}
+
+var extractorPool = sync.Pool{New: func() any { return new(extractor) }}
+
+func getExtractor() *extractor { return extractorPool.Get().(*extractor) }
+
+// maxPooledBytes keeps an extractor that grew for a very large page out of
+// the pool, so one page does not pin its memory.
+const maxPooledBytes = 4 << 20
+
+func putExtractor(ex *extractor) {
+	if cap(ex.buf) > maxPooledBytes || cap(ex.out) > maxPooledBytes {
+		return
+	}
+	extractorPool.Put(ex)
+}
+
+func (ex *extractor) reset() {
+	ex.buf = ex.buf[:0]
+	ex.blocks = ex.blocks[:0]
+	ex.cur = block{}
+	ex.space, ex.brRun = false, 0
+	ex.linkDepth, ex.preDepth, ex.headingDepth = 0, 0, 0
+	ex.anchors = ex.anchors[:0]
+	ex.skipAtom, ex.skipName, ex.skipDepth = 0, "", 0
+	ex.title = ex.title[:0]
+	ex.inTitle, ex.titleDone = false, false
+	ex.htmlLang, ex.usedLang = "", ""
+	ex.out = ex.out[:0]
+}
+
+// blockTags are the tags that start or end a block: Pomikálek 2011's list
+// (ch. 3, "segmentation") with the sectioning elements of HTML5.
+var blockTags = func() map[atom.Atom]bool {
+	m := map[atom.Atom]bool{}
+	for _, a := range []atom.Atom{
+		atom.Address, atom.Article, atom.Aside, atom.Blockquote, atom.Body, atom.Caption, atom.Center,
+		atom.Col, atom.Colgroup, atom.Dd, atom.Details, atom.Dialog, atom.Dir, atom.Div, atom.Dl, atom.Dt,
+		atom.Fieldset, atom.Figcaption, atom.Figure, atom.Footer, atom.Form, atom.H1, atom.H2, atom.H3,
+		atom.H4, atom.H5, atom.H6, atom.Head, atom.Header, atom.Hgroup, atom.Hr, atom.Html, atom.Legend,
+		atom.Li, atom.Main, atom.Menu, atom.Nav, atom.Ol, atom.Optgroup, atom.Option, atom.P, atom.Pre,
+		atom.Section, atom.Summary, atom.Table, atom.Tbody, atom.Td, atom.Tfoot, atom.Th, atom.Thead,
+		atom.Title, atom.Tr, atom.Ul,
+	} {
+		m[a] = true
+	}
+	return m
+}()
+
+// droppedTags are removed with everything inside them: code, styling,
+// embedded objects, navigation and forms (their text is never page text).
+var droppedTags = func() map[atom.Atom]bool {
+	m := map[atom.Atom]bool{}
+	for _, a := range []atom.Atom{
+		atom.Script, atom.Style, atom.Noscript, atom.Template, atom.Svg, atom.Math, atom.Nav,
+		atom.Form, atom.Select, atom.Textarea, atom.Button, atom.Iframe, atom.Object, atom.Embed,
+		atom.Canvas, atom.Audio, atom.Video, atom.Map, atom.Datalist, atom.Noembed, atom.Noframes,
+	} {
+		m[a] = true
+	}
+	return m
+}()
+
+// voidTags have no end tag (HTML Living Standard §13.1.2), so they never
+// open a dropped subtree.
+var voidTags = map[atom.Atom]bool{
+	atom.Area: true, atom.Base: true, atom.Br: true, atom.Col: true, atom.Embed: true, atom.Hr: true,
+	atom.Img: true, atom.Input: true, atom.Link: true, atom.Meta: true, atom.Source: true,
+	atom.Track: true, atom.Wbr: true,
+}
+
+// droppedRoles are ARIA landmark and widget roles whose content is
+// navigation or page furniture (WAI-ARIA 1.2 §5.3).
+var droppedRoles = map[string]bool{
+	"navigation": true, "search": true, "banner": true, "contentinfo": true,
+	"menu": true, "menubar": true, "toolbar": true, "tablist": true,
+}
+
+func isHeading(a atom.Atom) bool {
+	switch a {
+	case atom.H1, atom.H2, atom.H3, atom.H4, atom.H5, atom.H6:
+		return true
+	}
+	return false
+}
+
+// run extracts the blocks of page (UTF-8) and classifies them.
+func (ex *extractor) run(page string, opt Options, lang, contentLang string) {
+	ex.reset()
+	z := html.NewTokenizer(strings.NewReader(page))
+	for {
+		tt := z.Next()
+		switch tt {
+		case html.ErrorToken:
+			ex.flush()
+			ex.classify(opt, lang, contentLang)
+			return
+		case html.TextToken:
+			if ex.skipDepth > 0 {
+				continue
+			}
+			t := z.Text()
+			if ex.inTitle {
+				if !ex.titleDone {
+					ex.title = append(ex.title, t...)
+				}
+				continue
+			}
+			ex.addText(t)
+		case html.StartTagToken, html.SelfClosingTagToken:
+			name, hasAttr := z.TagName()
+			a := atom.Lookup(name)
+			opens := tt == html.StartTagToken && !voidTags[a]
+			if ex.skipDepth > 0 {
+				if opens && ex.isSkipped(a, name) {
+					ex.skipDepth++
+				}
+				continue
+			}
+			drop, href := droppedTags[a], false
+			if hasAttr {
+				var d bool
+				d, href = ex.attrs(z, a)
+				drop = drop || d
+			}
+			if drop {
+				ex.flush()
+				if opens {
+					ex.skipAtom, ex.skipDepth = a, 1
+					if a == 0 {
+						ex.skipName = string(name)
+					}
+				}
+				continue
+			}
+			ex.startTag(a, tt == html.SelfClosingTagToken, href)
+		case html.EndTagToken:
+			name, _ := z.TagName()
+			a := atom.Lookup(name)
+			if ex.skipDepth > 0 {
+				if ex.isSkipped(a, name) {
+					ex.skipDepth--
+				}
+				continue
+			}
+			ex.endTag(a)
+		}
+	}
+}
+
+func (ex *extractor) isSkipped(a atom.Atom, name []byte) bool {
+	if a != 0 {
+		return a == ex.skipAtom
+	}
+	return ex.skipAtom == 0 && string(name) == ex.skipName
+}
+
+// attrs reads the attributes of the current start tag: the page language
+// from <html lang>, and whether the element is to be dropped (hidden, or
+// a navigation role), and whether it has an href.
+func (ex *extractor) attrs(z *html.Tokenizer, a atom.Atom) (drop, href bool) {
+	for {
+		k, v, more := z.TagAttr()
+		switch string(k) {
+		case "lang":
+			if a == atom.Html && ex.htmlLang == "" {
+				ex.htmlLang = string(v)
+			}
+		case "role":
+			if droppedRoles[strings.ToLower(string(bytes.TrimSpace(v)))] {
+				drop = true
+			}
+		case "href":
+			href = true
+		case "hidden":
+			drop = true
+		case "aria-hidden":
+			if string(v) == "true" {
+				drop = true
+			}
+		}
+		if !more {
+			return drop, href
+		}
+	}
+}
+
+func (ex *extractor) startTag(a atom.Atom, selfClosing, href bool) {
+	if a != atom.Br {
+		ex.brRun = 0
+	}
+	switch {
+	case a == atom.Title:
+		ex.flush()
+		ex.inTitle = !selfClosing
+		return
+	case a == atom.A:
+		// Only links count: a named anchor (<a name>, no href) is not one.
+		if !selfClosing {
+			ex.anchors = append(ex.anchors, href)
+			if href {
+				ex.linkDepth++
+			}
+		}
+		return
+	case a == atom.Br:
+		if ex.preDepth > 0 {
+			ex.appendRaw([]byte{'\n'})
+			return
+		}
+		ex.brRun++
+		if ex.brRun >= 2 {
+			ex.flush()
+		} else {
+			ex.space = true
+		}
+		return
+	case a == atom.Img || a == atom.Wbr:
+		return
+	}
+	if !blockTags[a] {
+		return
+	}
+	ex.flush()
+	if selfClosing {
+		return
+	}
+	switch {
+	case a == atom.Pre:
+		ex.preDepth++
+	case isHeading(a):
+		ex.headingDepth++
+	}
+}
+
+func (ex *extractor) endTag(a atom.Atom) {
+	ex.brRun = 0
+	switch {
+	case a == atom.Title:
+		ex.inTitle = false
+		if len(bytes.TrimSpace(ex.title)) > 0 {
+			ex.titleDone = true
+		}
+		return
+	case a == atom.A:
+		if n := len(ex.anchors); n > 0 {
+			if ex.anchors[n-1] && ex.linkDepth > 0 {
+				ex.linkDepth--
+			}
+			ex.anchors = ex.anchors[:n-1]
+		}
+		return
+	}
+	if !blockTags[a] {
+		return
+	}
+	ex.flush()
+	switch {
+	case a == atom.Pre:
+		if ex.preDepth > 0 {
+			ex.preDepth--
+		}
+	case isHeading(a):
+		if ex.headingDepth > 0 {
+			ex.headingDepth--
+		}
+	}
+}
+
+// addText appends a text token to the current block, collapsing runs of
+// white space (Unicode White_Space) to one space outside <pre>.
+func (ex *extractor) addText(t []byte) {
+	if ex.preDepth > 0 {
+		ex.appendRaw(t)
+		return
+	}
+	for i := 0; i < len(t); {
+		c := t[i]
+		n := 1
+		if c < utf8.RuneSelf {
+			if c == ' ' || c == '\n' || c == '\t' || c == '\r' || c == '\f' || c == '\v' {
+				ex.space = true
+				i++
+				continue
+			}
+		} else {
+			var r rune
+			r, n = utf8.DecodeRune(t[i:])
+			if unicode.IsSpace(r) {
+				ex.space = true
+				i += n
+				continue
+			}
+		}
+		if ex.cur.runes == 0 {
+			ex.begin()
+		} else if ex.space {
+			ex.buf = append(ex.buf, ' ')
+			ex.cur.runes++
+			if ex.linkDepth > 0 {
+				ex.cur.linkRunes++
+			}
+		}
+		ex.space = false
+		ex.brRun = 0
+		ex.buf = append(ex.buf, t[i:i+n]...)
+		ex.cur.runes++
+		if ex.linkDepth > 0 {
+			ex.cur.linkRunes++
+		}
+		i += n
+	}
+}
+
+// begin starts a block at the end of buf.
+func (ex *extractor) begin() {
+	ex.cur.start = len(ex.buf)
+	ex.cur.heading = ex.headingDepth > 0
+	ex.cur.pre = ex.preDepth > 0
+}
+
+// appendRaw appends preformatted text as it is.
+func (ex *extractor) appendRaw(t []byte) {
+	if len(t) == 0 {
+		return
+	}
+	if ex.cur.runes == 0 && !ex.cur.pre {
+		ex.begin()
+		ex.cur.pre = true
+	}
+	ex.buf = append(ex.buf, t...)
+	n := utf8.RuneCount(t)
+	ex.cur.runes += n
+	if ex.linkDepth > 0 {
+		ex.cur.linkRunes += n
+	}
+}
+
+// flush ends the current block, keeping it when it has visible text.
+func (ex *extractor) flush() {
+	ex.space = false
+	b := ex.cur
+	ex.cur = block{}
+	if b.runes == 0 {
+		return
+	}
+	if b.pre {
+		// Drop blank lines at both ends and trailing spaces of the last
+		// line; a block of white space only is no block.
+		text := ex.buf[b.start:]
+		lead := 0
+		for i, c := range text {
+			if c == '\n' {
+				lead = i + 1
+			} else if c != ' ' && c != '\t' && c != '\r' {
+				break
+			}
+		}
+		end := len(bytes.TrimRight(text, " \t\r\n"))
+		if end <= lead {
+			ex.buf = ex.buf[:b.start]
+			return
+		}
+		b.runes -= utf8.RuneCount(text[:lead]) + utf8.RuneCount(text[end:])
+		copy(ex.buf[b.start:], text[lead:end])
+		ex.buf = ex.buf[:b.start+end-lead]
+		if b.linkRunes > b.runes {
+			b.linkRunes = b.runes
+		}
+	}
+	b.end = len(ex.buf)
+	ex.blocks = append(ex.blocks, b)
+}
+
+// output joins the kept blocks, one per line (a <pre> block keeps its own
+// line breaks).
+func (ex *extractor) output() string {
+	out := ex.out[:0]
+	for _, b := range ex.blocks {
+		if b.class != good {
+			continue
+		}
+		if len(out) > 0 {
+			out = append(out, '\n')
+		}
+		out = append(out, ex.buf[b.start:b.end]...)
+	}
+	ex.out = out
+	return string(out)
+}
+
+// Title returns the collapsed text of <title>.
+func (ex *extractor) titleText() string {
+	return strings.Join(strings.Fields(string(ex.title)), " ")
+}
