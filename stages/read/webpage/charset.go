@@ -1,6 +1,7 @@
 package webpage
 
 import (
+	"bytes"
 	"strings"
 	"unicode/utf8"
 
@@ -26,7 +27,7 @@ func decodeCharset(body []byte, contentType string, isHTML bool) (string, string
 	} else {
 		e, name, certain = plainEncoding(body, contentType)
 	}
-	if !certain && name == "windows-1252" && utf8.Valid(body) {
+	if !certain && name == "windows-1252" && !(isHTML && declaresCharset(body)) && utf8.Valid(body) {
 		name, e = "utf-8", encoding.Nop
 	}
 	if name == "utf-8" || e == encoding.Nop || e == nil {
@@ -48,6 +49,19 @@ func decodeCharset(body []byte, contentType string, isHTML bool) (string, string
 		s = strings.ToValidUTF8(s, "\ufffd")
 	}
 	return s, name
+}
+
+// declaresCharset reports whether the first 1024 bytes (the prescan's
+// window) mention a charset: a page that names its encoding is read in it,
+// as browsers do, even when its bytes would also be valid UTF-8.
+func declaresCharset(body []byte) bool {
+	head := body[:min(len(body), 1024)]
+	for i := 0; i+7 <= len(head); i++ {
+		if head[i]|0x20 == 'c' && bytes.EqualFold(head[i:i+7], []byte("charset")) {
+			return true
+		}
+	}
+	return false
 }
 
 // plainEncoding is DetermineEncoding without the <meta> prescan (a plain

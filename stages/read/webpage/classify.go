@@ -4,6 +4,8 @@ import (
 	"bytes"
 	"strings"
 
+	"golang.org/x/net/html/atom"
+
 	"winnow/filters"
 )
 
@@ -107,6 +109,70 @@ func (ex *extractor) classify(opt Options, lang, contentLang string) {
 		b.class = b.cf
 	}
 	ex.revise()
+	ex.fillRegion()
+}
+
+// The content region (our addition to the thesis's method, for pages such
+// as software documentation whose paragraphs are short and dense in code
+// and names, where the context step alone keeps too little): the deepest
+// block-level element holding at least regionShare of the page's good
+// text. Inside it, every block that is not link-dense (link density at
+// most regionMaxLinkDensity) and carries no "©" is kept too. A page whose
+// region is the whole body gets no fill. When no block is good, the
+// near-good blocks of the context-free step stand in as the evidence.
+const (
+	regionShare          = 0.9
+	regionMaxLinkDensity = 0.5
+)
+
+func (ex *extractor) fillRegion() {
+	ev := make([]int, len(ex.elems))
+	total := 0
+	for pass := 0; pass < 2 && total == 0; pass++ {
+		for _, b := range ex.blocks {
+			if b.class == good || pass == 1 && (b.cf == good || b.cf == nearGood) {
+				total += b.runes
+				for e := b.elem; ; e = ex.elems[e].parent {
+					ev[e] += b.runes
+					if e == 0 {
+						break
+					}
+				}
+			}
+		}
+	}
+	if total == 0 {
+		return
+	}
+	// best[e] is the child of e with the most evidence.
+	best := make([]int32, len(ex.elems))
+	for i := 1; i < len(ex.elems); i++ {
+		p := ex.elems[i].parent
+		if best[p] == 0 || ev[i] > ev[best[p]] {
+			best[p] = int32(i)
+		}
+	}
+	region := int32(0)
+	for best[region] != 0 && float64(ev[best[region]]) >= regionShare*float64(total) {
+		region = best[region]
+	}
+	switch ex.elems[region].tag {
+	case 0, atom.Html, atom.Body:
+		return
+	}
+	for i := range ex.blocks {
+		b := &ex.blocks[i]
+		if b.class == good || float64(b.linkRunes) > regionMaxLinkDensity*float64(b.runes) ||
+			bytes.Contains(ex.buf[b.start:b.end], copyright) {
+			continue
+		}
+		for e := b.elem; e != 0; e = ex.elems[e].parent {
+			if e == region {
+				b.class = good
+				break
+			}
+		}
+	}
 }
 
 // stopwords picks the stop-word list (nil for the language-independent

@@ -17,7 +17,8 @@ import (
 // tags, whitespace collapsed (or kept as it is inside <pre>).
 type block struct {
 	start, end int // the text is extractor.buf[start:end]
-	runes      int // characters
+	elem       int32 // innermost open block-level element (0: none)
+	runes      int   // characters
 	linkRunes  int // characters inside <a> elements
 	heading    bool
 	pre        bool
@@ -43,6 +44,11 @@ type extractor struct {
 	skipAtom  atom.Atom
 	skipName  string
 	skipDepth int
+
+	// Open block-level elements (indices into elems) and every element
+	// seen: its tag and its parent, for the content region (classify.go).
+	stack []int32
+	elems []elem
 
 	title     []byte
 	inTitle   bool
@@ -77,6 +83,8 @@ func (ex *extractor) reset() {
 	ex.linkDepth, ex.preDepth, ex.headingDepth = 0, 0, 0
 	ex.anchors = ex.anchors[:0]
 	ex.skipAtom, ex.skipName, ex.skipDepth = 0, "", 0
+	ex.stack = ex.stack[:0]
+	ex.elems = append(ex.elems[:0], elem{}) // 0 is the document
 	ex.title = ex.title[:0]
 	ex.inTitle, ex.titleDone = false, false
 	ex.htmlLang, ex.usedLang = "", ""
@@ -285,6 +293,40 @@ func (ex *extractor) startTag(a atom.Atom, selfClosing, href bool) {
 	case isHeading(a):
 		ex.headingDepth++
 	}
+	if len(ex.elems) < maxElems {
+		ex.elems = append(ex.elems, elem{tag: a, parent: ex.top()})
+		ex.stack = append(ex.stack, int32(len(ex.elems)-1))
+	}
+}
+
+// elem is a block-level element of the page.
+type elem struct {
+	tag    atom.Atom
+	parent int32
+}
+
+// maxElems bounds the elements remembered per page; past it, blocks are
+// filed under the innermost remembered element.
+const maxElems = 1 << 20
+
+// top returns the innermost open block-level element, 0 for none.
+func (ex *extractor) top() int32 {
+	if n := len(ex.stack); n > 0 {
+		return ex.stack[n-1]
+	}
+	return 0
+}
+
+// pop closes the innermost open element with tag a and those opened
+// inside it (whose end tags were omitted); an end tag that matches no open
+// element is ignored, as the HTML parser does.
+func (ex *extractor) pop(a atom.Atom) {
+	for i := len(ex.stack) - 1; i >= 0; i-- {
+		if ex.elems[ex.stack[i]].tag == a {
+			ex.stack = ex.stack[:i]
+			return
+		}
+	}
 }
 
 func (ex *extractor) endTag(a atom.Atom) {
@@ -309,6 +351,7 @@ func (ex *extractor) endTag(a atom.Atom) {
 		return
 	}
 	ex.flush()
+	ex.pop(a)
 	switch {
 	case a == atom.Pre:
 		if ex.preDepth > 0 {
@@ -369,6 +412,7 @@ func (ex *extractor) addText(t []byte) {
 // begin starts a block at the end of buf.
 func (ex *extractor) begin() {
 	ex.cur.start = len(ex.buf)
+	ex.cur.elem = ex.top()
 	ex.cur.heading = ex.headingDepth > 0
 	ex.cur.pre = ex.preDepth > 0
 }
