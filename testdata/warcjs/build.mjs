@@ -41,7 +41,9 @@ const pages = [
   // [path, encoding, chunked]
   ["python3-doc/html/tutorial/interactive.html", "gzip", true],
   ["python3-doc/html/tutorial/whatnow.html", "br", false],
-  ["valgrind/html/FAQ.html", "deflate", false],
+  ["valgrind/html/dist.readme-packagers.html", "deflate", false],
+  // A table-of-contents stub: no main text.
+  ["valgrind/html/FAQ.html", "", false],
   ["libffi8/html/Memory-Usage.html", "", true],
   ["nodejs/api/documentation.html", "gzip", false],
 ];

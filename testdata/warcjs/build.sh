@@ -4,9 +4,9 @@
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
 export DEBIAN_FRONTEND=noninteractive
-apt-get install -y --no-install-recommends nodejs python3-doc valgrind libffi8 >/dev/null
+apt-get install -y -o DPkg::Lock::Timeout=300 --no-install-recommends nodejs python3-doc valgrind libffi8 >/dev/null
 # Debian's nodejs ships npm separately; some nodejs builds include it.
-command -v npm >/dev/null || apt-get install -y --no-install-recommends npm >/dev/null
+command -v npm >/dev/null || apt-get install -y -o DPkg::Lock::Timeout=300 --no-install-recommends npm >/dev/null
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 cd "$work"

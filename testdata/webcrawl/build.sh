@@ -8,7 +8,7 @@
 set -eu
 here=$(cd "$(dirname "$0")" && pwd)
 export DEBIAN_FRONTEND=noninteractive
-apt-get install -y --no-install-recommends wget python3 python3-doc debian-reference-en \
+apt-get install -y -o DPkg::Lock::Timeout=300 --no-install-recommends wget python3 python3-doc debian-reference-en \
 	nodejs valgrind libffi8 zlib1g-dev base-passwd libxslt1-dev bc >/dev/null
 port=18765
 work=$(mktemp -d)

@@ -118,8 +118,10 @@ func (ex *extractor) classify(opt Options, lang, contentLang string) {
 // block-level element holding at least regionShare of the page's good
 // text. Inside it, every block that is not link-dense (link density at
 // most regionMaxLinkDensity) and carries no "©" is kept too. A page whose
-// region is the whole body gets no fill. When no block is good, the
-// near-good blocks of the context-free step stand in as the evidence.
+// region is the whole body gets no fill. The good text counted is that of
+// the blocks good in the end or good or near-good by themselves (the
+// context-free step), so that a section of short paragraphs the context
+// step dropped still pulls the region up to its parent.
 const (
 	regionShare          = 0.9
 	regionMaxLinkDensity = 0.5
@@ -128,15 +130,13 @@ const (
 func (ex *extractor) fillRegion() {
 	ev := make([]int, len(ex.elems))
 	total := 0
-	for pass := 0; pass < 2 && total == 0; pass++ {
-		for _, b := range ex.blocks {
-			if b.class == good || pass == 1 && (b.cf == good || b.cf == nearGood) {
-				total += b.runes
-				for e := b.elem; ; e = ex.elems[e].parent {
-					ev[e] += b.runes
-					if e == 0 {
-						break
-					}
+	for _, b := range ex.blocks {
+		if b.class == good || b.cf == good || b.cf == nearGood {
+			total += b.runes
+			for e := b.elem; ; e = ex.elems[e].parent {
+				ev[e] += b.runes
+				if e == 0 {
+					break
 				}
 			}
 		}
@@ -227,20 +227,6 @@ func primaryTag(tag string) string {
 	return strings.ToLower(tag)
 }
 
-// neighbour returns the class of the nearest block before (dir -1) or
-// after (dir +1) block i that is not short (nor near-good when
-// ignoreNearGood); the page's ends are bad.
-func (ex *extractor) neighbour(i, dir int, ignoreNearGood bool) class {
-	for j := i + dir; j >= 0 && j < len(ex.blocks); j += dir {
-		c := ex.blocks[j].class
-		if c == short || ignoreNearGood && c == nearGood {
-			continue
-		}
-		return c
-	}
-	return bad
-}
-
 // goodWithin reports whether a good block follows block i within
 // maxHeadingDistance characters.
 func (ex *extractor) goodWithin(i int) bool {
@@ -254,6 +240,34 @@ func (ex *extractor) goodWithin(i int) bool {
 	return false
 }
 
+// neighbours returns, for every block, the class of the nearest block
+// before it (dir -1) or after it (dir +1) that is not short (nor
+// near-good when ignoreNearGood); the page's ends are bad. One pass, so
+// pages of many short blocks stay linear.
+func (ex *extractor) neighbours(dir int, ignoreNearGood bool) []class {
+	bs := ex.blocks
+	out := make([]class, len(bs))
+	last := bad
+	// Walk towards the neighbour's side: for the previous neighbour,
+	// front to back; for the next one, back to front.
+	if dir < 0 {
+		for i := 0; i < len(bs); i++ {
+			out[i] = last
+			if c := bs[i].class; c != short && !(ignoreNearGood && c == nearGood) {
+				last = c
+			}
+		}
+	} else {
+		for i := len(bs) - 1; i >= 0; i-- {
+			out[i] = last
+			if c := bs[i].class; c != short && !(ignoreNearGood && c == nearGood) {
+				last = c
+			}
+		}
+	}
+	return out
+}
+
 // revise is the context-sensitive step.
 func (ex *extractor) revise() {
 	bs := ex.blocks
@@ -263,20 +277,21 @@ func (ex *extractor) revise() {
 		}
 	}
 	// Short blocks, decided on the classes before this pass.
+	prevIgn, nextIgn := ex.neighbours(-1, true), ex.neighbours(1, true)
+	prevAny, nextAny := ex.neighbours(-1, false), ex.neighbours(1, false)
 	next := make([]class, len(bs))
 	for i := range bs {
 		next[i] = bs[i].class
 		if bs[i].class != short {
 			continue
 		}
-		prev, nxt := ex.neighbour(i, -1, true), ex.neighbour(i, 1, true)
+		prev, nxt := prevIgn[i], nextIgn[i]
 		switch {
 		case prev == good && nxt == good:
 			next[i] = good
 		case prev == bad && nxt == bad:
 			next[i] = bad
-		case prev == bad && ex.neighbour(i, -1, false) == nearGood,
-			nxt == bad && ex.neighbour(i, 1, false) == nearGood:
+		case prev == bad && prevAny[i] == nearGood, nxt == bad && nextAny[i] == nearGood:
 			next[i] = good
 		default:
 			next[i] = bad
@@ -285,11 +300,19 @@ func (ex *extractor) revise() {
 	for i := range bs {
 		bs[i].class = next[i]
 	}
+	// Near-good blocks, in order: no block is short any more, and those
+	// before block i are already decided, so its previous neighbour is
+	// block i-1 and its next one the first later block not near-good.
+	nextIgn = ex.neighbours(1, true)
 	for i := range bs {
 		if bs[i].class != nearGood {
 			continue
 		}
-		if ex.neighbour(i, -1, true) == bad && ex.neighbour(i, 1, true) == bad {
+		prev := bad
+		if i > 0 {
+			prev = bs[i-1].class
+		}
+		if prev == bad && nextIgn[i] == bad {
 			bs[i].class = bad
 		} else {
 			bs[i].class = good

@@ -16,10 +16,10 @@ import (
 // block is one text block of a page: the text between two block-level
 // tags, whitespace collapsed (or kept as it is inside <pre>).
 type block struct {
-	start, end int // the text is extractor.buf[start:end]
+	start, end int   // the text is extractor.buf[start:end]
 	elem       int32 // innermost open block-level element (0: none)
 	runes      int   // characters
-	linkRunes  int // characters inside <a> elements
+	linkRunes  int   // characters inside <a> elements
 	heading    bool
 	pre        bool
 	cf, class  class // context-free and final classes (classify.go)
@@ -293,7 +293,7 @@ func (ex *extractor) startTag(a atom.Atom, selfClosing, href bool) {
 	case isHeading(a):
 		ex.headingDepth++
 	}
-	if len(ex.elems) < maxElems {
+	if len(ex.elems) < maxElems && len(ex.stack) < maxDepth {
 		ex.elems = append(ex.elems, elem{tag: a, parent: ex.top()})
 		ex.stack = append(ex.stack, int32(len(ex.elems)-1))
 	}
@@ -308,6 +308,11 @@ type elem struct {
 // maxElems bounds the elements remembered per page; past it, blocks are
 // filed under the innermost remembered element.
 const maxElems = 1 << 20
+
+// maxDepth bounds the open elements remembered: deeper ones (a page of
+// unclosed <div>s) are filed under the deepest remembered one, so closing
+// a tag and walking up from a block cost at most maxDepth steps.
+const maxDepth = 256
 
 // top returns the innermost open block-level element, 0 for none.
 func (ex *extractor) top() int32 {
