@@ -195,11 +195,12 @@ func (ex *extractor) stopwords(lang, contentLang string) (*filters.Stopwords, []
 	}
 	d := make([]float64, len(ex.blocks))
 	covered, tokens := 0, 0
+	all := string(ex.buf) // one copy for every block's text
 	for i, b := range ex.blocks {
 		if b.pre || b.runes < lengthLow {
 			continue // never judged by density
 		}
-		text := string(ex.buf[b.start:b.end])
+		text := all[b.start:b.end]
 		ex.scratch.Split(text)
 		c := filters.CountStopwords(&ex.scratch, text, sw)
 		if c.Tokens > 0 {

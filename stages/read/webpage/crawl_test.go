@@ -77,6 +77,12 @@ var charsetOf = map[string]string{
 	"libxslt1-dev/html/html/libxslt-templates.html": "windows-1252",
 }
 
+// crawlPath returns the path below /usr/share/doc of a crawled URL.
+func crawlPath(uri string) string {
+	path := uri[strings.Index(uri, "/127.0.0.1:")+len("/127.0.0.1:"):]
+	return path[strings.IndexByte(path, '/')+1:]
+}
+
 func (s mainSel) match(n *html.Node) bool {
 	if n.Type != html.ElementNode || n.Data != s.tag {
 		return false
@@ -218,8 +224,7 @@ func TestCrawlMainTextF1(t *testing.T) {
 		if rec.typ != "response" {
 			continue
 		}
-		path := rec.uri[strings.Index(rec.uri, "/127.0.0.1:")+len("/127.0.0.1:"):]
-		path = path[strings.IndexByte(path, '/')+1:]
+		path := crawlPath(rec.uri)
 		sel, ok := mainOf[path]
 		if !ok {
 			continue

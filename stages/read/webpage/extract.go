@@ -55,6 +55,7 @@ type extractor struct {
 	titleDone bool
 	htmlLang  string
 
+	name     [32]byte // the current tag's name, lower case
 	usedLang string
 	scratch  filters.Scratch
 	out      []byte
@@ -138,6 +139,27 @@ var droppedRoles = map[string]bool{
 	"menu": true, "menubar": true, "toolbar": true, "tablist": true,
 }
 
+// Tag kinds, as bits of one table so a tag costs one lookup.
+const (
+	kindBlock uint8 = 1 << iota
+	kindDropped
+	kindVoid
+)
+
+var tagKinds = func() map[atom.Atom]uint8 {
+	m := map[atom.Atom]uint8{}
+	for a := range blockTags {
+		m[a] |= kindBlock
+	}
+	for a := range droppedTags {
+		m[a] |= kindDropped
+	}
+	for a := range voidTags {
+		m[a] |= kindVoid
+	}
+	return m
+}()
+
 func isHeading(a atom.Atom) bool {
 	switch a {
 	case atom.H1, atom.H2, atom.H3, atom.H4, atom.H5, atom.H6:
@@ -170,16 +192,17 @@ func (ex *extractor) run(page string, opt Options, lang, contentLang string) {
 			}
 			ex.addText(t)
 		case html.StartTagToken, html.SelfClosingTagToken:
-			name, hasAttr := z.TagName()
+			name, hasAttr := ex.tagName(z)
 			a := atom.Lookup(name)
-			opens := tt == html.StartTagToken && !voidTags[a]
+			kind := tagKinds[a]
+			opens := tt == html.StartTagToken && kind&kindVoid == 0
 			if ex.skipDepth > 0 {
 				if opens && ex.isSkipped(a, name) {
 					ex.skipDepth++
 				}
 				continue
 			}
-			drop, href := droppedTags[a], false
+			drop, href := kind&kindDropped != 0, false
 			if hasAttr {
 				var d bool
 				d, href = ex.attrs(z, a)
@@ -195,9 +218,9 @@ func (ex *extractor) run(page string, opt Options, lang, contentLang string) {
 				}
 				continue
 			}
-			ex.startTag(a, tt == html.SelfClosingTagToken, href)
+			ex.startTag(a, kind, tt == html.SelfClosingTagToken, href)
 		case html.EndTagToken:
-			name, _ := z.TagName()
+			name, _ := ex.tagName(z)
 			a := atom.Lookup(name)
 			if ex.skipDepth > 0 {
 				if ex.isSkipped(a, name) {
@@ -208,6 +231,75 @@ func (ex *extractor) run(page string, opt Options, lang, contentLang string) {
 			ex.endTag(a)
 		}
 	}
+}
+
+// tagName returns the lower-case name of the current tag and whether the
+// tag may carry an attribute this extractor reads. It reads the name from
+// the token's raw bytes, as the tokenizer delimits it (HTML Living Standard
+// §13.2.5.8: up to white space, "/" or ">"), because Tokenizer.TagName
+// copies the name on every call; names with bytes the tokenizer would
+// rewrite (NUL, non-ASCII) or longer than the buffer go to TagName.
+func (ex *extractor) tagName(z *html.Tokenizer) ([]byte, bool) {
+	raw := z.Raw()
+	i := 1
+	if i < len(raw) && raw[i] == '/' {
+		i++
+	}
+	n := 0
+	for ; i < len(raw); i++ {
+		c := raw[i]
+		if c == ' ' || c == '\t' || c == '\n' || c == '\f' || c == '\r' || c == '/' || c == '>' {
+			break
+		}
+		if c == 0 || c >= utf8.RuneSelf || n == len(ex.name) {
+			name, hasAttr := z.TagName()
+			return name, hasAttr && mayHaveWantedAttr(raw)
+		}
+		if 'A' <= c && c <= 'Z' {
+			c += 'a' - 'A'
+		}
+		ex.name[n] = c
+		n++
+	}
+	return ex.name[:n], i < len(raw) && mayHaveWantedAttr(raw[i:])
+}
+
+// mayHaveWantedAttr reports whether raw tag bytes contain, in any case,
+// the name of an attribute that attrs reads (href, role, lang, hidden,
+// aria-hidden); others are never asked for, which saves the tokenizer's
+// copies.
+func mayHaveWantedAttr(raw []byte) bool {
+	for i := 0; i+4 <= len(raw); i++ {
+		switch raw[i] | 0x20 {
+		case 'h':
+			if hasFold(raw[i:], "href") || hasFold(raw[i:], "hidden") {
+				return true
+			}
+		case 'r':
+			if hasFold(raw[i:], "role") {
+				return true
+			}
+		case 'l':
+			if hasFold(raw[i:], "lang") {
+				return true
+			}
+		}
+	}
+	return false
+}
+
+// hasFold reports whether b starts with the lower-case ASCII word w, in
+// any case.
+func hasFold(b []byte, w string) bool {
+	if len(b) < len(w) {
+		return false
+	}
+	for i := 0; i < len(w); i++ {
+		if b[i]|0x20 != w[i] {
+			return false
+		}
+	}
+	return true
 }
 
 func (ex *extractor) isSkipped(a atom.Atom, name []byte) bool {
@@ -247,7 +339,7 @@ func (ex *extractor) attrs(z *html.Tokenizer, a atom.Atom) (drop, href bool) {
 	}
 }
 
-func (ex *extractor) startTag(a atom.Atom, selfClosing, href bool) {
+func (ex *extractor) startTag(a atom.Atom, kind uint8, selfClosing, href bool) {
 	if a != atom.Br {
 		ex.brRun = 0
 	}
@@ -280,7 +372,7 @@ func (ex *extractor) startTag(a atom.Atom, selfClosing, href bool) {
 	case a == atom.Img || a == atom.Wbr:
 		return
 	}
-	if !blockTags[a] {
+	if kind&kindBlock == 0 {
 		return
 	}
 	ex.flush()
@@ -352,7 +444,7 @@ func (ex *extractor) endTag(a atom.Atom) {
 		}
 		return
 	}
-	if !blockTags[a] {
+	if tagKinds[a]&kindBlock == 0 {
 		return
 	}
 	ex.flush()
@@ -378,39 +470,48 @@ func (ex *extractor) addText(t []byte) {
 	}
 	for i := 0; i < len(t); {
 		c := t[i]
-		n := 1
 		if c < utf8.RuneSelf {
-			if c == ' ' || c == '\n' || c == '\t' || c == '\r' || c == '\f' || c == '\v' {
+			if asciiSpace[c] {
 				ex.space = true
 				i++
 				continue
 			}
+			// A run of printable ASCII: appended at once.
+			j := i + 1
+			for j < len(t) && t[j] < utf8.RuneSelf && !asciiSpace[t[j]] {
+				j++
+			}
+			ex.appendWord(t[i:j], j-i)
+			i = j
+			continue
+		}
+		r, n := utf8.DecodeRune(t[i:])
+		if unicode.IsSpace(r) {
+			ex.space = true
 		} else {
-			var r rune
-			r, n = utf8.DecodeRune(t[i:])
-			if unicode.IsSpace(r) {
-				ex.space = true
-				i += n
-				continue
-			}
-		}
-		if ex.cur.runes == 0 {
-			ex.begin()
-		} else if ex.space {
-			ex.buf = append(ex.buf, ' ')
-			ex.cur.runes++
-			if ex.linkDepth > 0 {
-				ex.cur.linkRunes++
-			}
-		}
-		ex.space = false
-		ex.brRun = 0
-		ex.buf = append(ex.buf, t[i:i+n]...)
-		ex.cur.runes++
-		if ex.linkDepth > 0 {
-			ex.cur.linkRunes++
+			ex.appendWord(t[i:i+n], 1)
 		}
 		i += n
+	}
+}
+
+var asciiSpace = [utf8.RuneSelf]bool{' ': true, '\n': true, '\t': true, '\r': true, '\f': true, '\v': true}
+
+// appendWord appends w (runes characters, no white space) to the current
+// block, after one space if white space came before it.
+func (ex *extractor) appendWord(w []byte, runes int) {
+	if ex.cur.runes == 0 {
+		ex.begin()
+	} else if ex.space {
+		ex.buf = append(ex.buf, ' ')
+		runes++
+	}
+	ex.space = false
+	ex.brRun = 0
+	ex.buf = append(ex.buf, w...)
+	ex.cur.runes += runes
+	if ex.linkDepth > 0 {
+		ex.cur.linkRunes += runes
 	}
 }
 
