@@ -258,3 +258,37 @@ func TestCrawlMainTextF1(t *testing.T) {
 	}
 	t.Logf("mean F1 %.3f over %d pages", sumF/float64(seen), seen)
 }
+
+// TestCrawlRecordsByRule sorts every record of the wget crawl: the 15
+// pages give text, and the rest is skipped by rule: the 301 (a redirect,
+// requested without following it), the 404, the PNG and the CSS file, and
+// Wget's manifest (a metadata record), argument list and log (resource
+// records under metadata://gnu.org/software/wget/warc/).
+func TestCrawlRecordsByRule(t *testing.T) {
+	got := map[string]int{}
+	for _, rec := range readWARC(t, crawlWARC) {
+		var rule string
+		var err error
+		switch {
+		case rec.typ == "warcinfo" || rec.typ == "request":
+			continue
+		case IsCrawlerRecord(rec.typ, rec.uri):
+			rule = RuleCrawlerRecord
+		case rec.typ == "response":
+			_, rule, err = FromWARCResponse(rec.block, rec.uri, rec.date, Options{})
+		default:
+			t.Fatalf("unexpected %s record %s", rec.typ, rec.uri)
+		}
+		if err != nil {
+			t.Fatalf("%s: %v", rec.uri, err)
+		}
+		if rule == "" {
+			rule = "page"
+		}
+		got[rule]++
+	}
+	want := map[string]int{"page": 15, RuleRedirect: 1, RuleHTTPStatus: 1, RuleNotText: 2, RuleCrawlerRecord: 3}
+	if fmt.Sprint(got) != fmt.Sprint(want) {
+		t.Errorf("records by rule %v, want %v", got, want)
+	}
+}
