@@ -7,7 +7,9 @@ package dedup
 // ligatures, non-breaking spaces) in a web page still produces the same
 // word sequence:
 //
-//   - Unicode NFKC (compatibility composition), then full case folding;
+//   - Unicode NFKC (compatibility composition), then full case folding
+//     as CaseFolding.txt defines it (x/text's, with Cherokee corrected:
+//     see foldCherokee);
 //   - a word is a maximal run of letters, marks and numbers (Unicode
 //     categories L, M, N);
 //   - an apostrophe (U+0027 or U+2019) between two word characters is
@@ -234,6 +236,7 @@ func (t *contamTokenizer) segment(text string, start int) int {
 	if err != nil { // cannot happen for valid UTF-8; keep the unfolded text
 		folded = append(t.folded[:0], t.seg...)
 	}
+	foldCherokee(folded)
 	t.folded = folded
 	// Split the normalized segment into words.
 	s := t.folded
@@ -269,6 +272,30 @@ func (t *contamTokenizer) segment(text string, start int) int {
 		end = start + size
 	}
 	return end
+}
+
+// foldCherokee rewrites Cherokee small letters in b as the capital
+// letters, in place. CaseFolding.txt folds Cherokee to the capitals
+// (U+AB70..U+ABBF to U+13A0..U+13EF, U+13F8..U+13FD to U+13F0..U+13F5:
+// the capitals are the older letters, and case folding is stable across
+// Unicode versions), but golang.org/x/text's cases.Fold maps the capitals
+// to the small letters, so the two cases swapped instead of meeting and
+// folding folded text changed it again. Both ranges and their images are
+// three bytes long in UTF-8, and 0xE1 and 0xEA are lead bytes only.
+func foldCherokee(b []byte) {
+	for i := 0; i+2 < len(b); i++ {
+		switch b[i] {
+		case 0xE1, 0xEA:
+			r, size := utf8.DecodeRune(b[i:])
+			switch {
+			case r >= 0xAB70 && r <= 0xABBF:
+				utf8.EncodeRune(b[i:], r-0xAB70+0x13A0)
+			case r >= 0x13F8 && r <= 0x13FD:
+				utf8.EncodeRune(b[i:], r-8)
+			}
+			i += size - 1
+		}
+	}
 }
 
 // NormalizeWords returns the words of text after contamination

@@ -2,7 +2,9 @@ package filters
 
 import (
 	"math"
+	"slices"
 	"strings"
+	"sync"
 	"testing"
 	"unicode/utf8"
 )
@@ -43,6 +45,16 @@ func checkMetrics(t *testing.T, text string, q Quality, r Repetition) {
 	}
 	if !noWords && (q.MeanWordLen < 1 || q.HashRatio < 0 || q.EllipsisRatio < 0) {
 		t.Fatalf("bad ratios: %+v", q)
+	}
+	// every metric is a finite number (NaN only where documented)
+	for name, v := range map[string]float64{"mean_word_len": q.MeanWordLen, "hash_ratio": q.HashRatio,
+		"ellipsis_ratio": q.EllipsisRatio, "symbol_ratio": q.SymbolRatio} {
+		if math.IsInf(v, 0) || math.IsNaN(v) != noWords {
+			t.Fatalf("%s = %v with %d words", name, v, q.Words)
+		}
+	}
+	if !noWords && q.SymbolRatio != max(q.HashRatio, q.EllipsisRatio) {
+		t.Fatalf("symbol ratio %v, hash %v, ellipsis %v", q.SymbolRatio, q.HashRatio, q.EllipsisRatio)
 	}
 	checkFraction(t, "alpha_words", q.AlphaWords, true)
 	checkFraction(t, "bullet_lines", q.BulletLines, false)
@@ -113,26 +125,131 @@ func FuzzCleanLines(f *testing.F) {
 		if r.Sentences < 0 || r.Sentences > len(r.Text) {
 			t.Fatalf("sentences %d", r.Sentences)
 		}
+		// cleaning is idempotent: what was kept passes every rule again
+		if r2 := CleanLines(r.Text, opt); r2.Changed || r2.Text != r.Text || r2.Kept != r.Kept {
+			t.Fatalf("second pass changed %q to %q (%+v)", r.Text, r2.Text, r2)
+		}
 	})
+}
+
+// checkRedacted asserts the invariants of Redact on any text: no panic,
+// each replacement leaves exactly one placeholder (the default
+// placeholders cannot overlap themselves, so counting them is exact),
+// valid UTF-8 stays valid, and a second pass finds nothing: redaction is
+// idempotent and leaves no address it would itself report.
+func checkRedacted(t *testing.T, text string, r RedactResult) {
+	t.Helper()
+	n := r.Email + r.IP + r.Phone
+	if n == 0 && r.Text != text {
+		t.Fatal("text changed without a replacement")
+	}
+	for _, c := range []struct {
+		ph   string
+		want int
+	}{{EmailPlaceholder, r.Email}, {IPPlaceholder, r.IP}, {PhonePlaceholder, r.Phone}} {
+		if got := strings.Count(r.Text, c.ph) - strings.Count(text, c.ph); got != c.want {
+			t.Fatalf("%d new %s in %q, counted %d", got, c.ph, r.Text, c.want)
+		}
+	}
+	if utf8.ValidString(text) && !utf8.ValidString(r.Text) {
+		t.Fatal("redaction made valid UTF-8 invalid")
+	}
+	if r2 := Redact(r.Text, DefaultRedactOptions()); r2.Email+r2.IP+r2.Phone != 0 || r2.Text != r.Text {
+		t.Fatalf("second pass found %d e-mail, %d IP, %d phone in %q: %q", r2.Email, r2.IP, r2.Phone, r.Text, r2.Text)
+	}
 }
 
 func FuzzRedact(f *testing.F) {
 	opt := DefaultRedactOptions()
 	f.Fuzz(func(t *testing.T, text string) {
-		r := Redact(text, opt)
-		n := r.Email + r.IP + r.Phone
-		if n == 0 && r.Text != text {
-			t.Fatal("text changed without a replacement")
+		checkRedacted(t, text, Redact(text, opt))
+	})
+}
+
+// FuzzSplit compares Split with its standard-library reference (refSplit:
+// strings.Fields, lines cut at '\n' and trimmed with strings.TrimSpace)
+// on any text, and checks that CountWords agrees.
+func FuzzSplit(f *testing.F) {
+	var s Scratch
+	f.Fuzz(func(t *testing.T, text string) {
+		checkSplit(t, &s, text)
+	})
+}
+
+// stopwordMaps are the normalized entries of each list as a Go map: the
+// reference that CountStopwords' hash tables are checked against.
+var stopwordMaps = sync.OnceValue(func() map[string]map[string]bool {
+	m := map[string]map[string]bool{}
+	for _, lang := range StopwordLanguages() {
+		sw, err := StopwordsFor(lang)
+		if err != nil {
+			panic(err)
 		}
-		if n > 0 && strings.Count(r.Text, "<") < n {
-			t.Fatalf("%d replacements but fewer placeholders in %q", n, r.Text)
+		set := map[string]bool{}
+		for _, w := range sw.Words() {
+			set[w] = true
 		}
-		if utf8.ValidString(text) && !utf8.ValidString(r.Text) {
-			t.Fatal("redaction made valid UTF-8 invalid")
+		m[lang] = set
+	}
+	return m
+})
+
+// FuzzStopwords checks the stop-word scan on any text with every list in
+// turn (picked by the text's length): NormalizeWord is idempotent and
+// Contains does not depend on normalizing first; the counts are bounded
+// (matches <= covered <= tokens, the English eight only with the English
+// list or none); and for a list of single words in a spaced language the
+// counts equal a plain count over strings.Fields with a Go map of the
+// list's entries (the English eight by Rae et al. 2021, section A.1.1 of
+// the appendix, from memory).
+func FuzzStopwords(f *testing.F) {
+	langs := StopwordLanguages()
+	var s Scratch
+	f.Fuzz(func(t *testing.T, text string) {
+		lang := langs[len(text)%len(langs)]
+		sw, _ := StopwordsFor(lang)
+		fields := strings.Fields(text)
+		for _, w := range fields {
+			n := string(NormalizeWord(nil, w))
+			if again := string(NormalizeWord(nil, n)); again != n {
+				t.Fatalf("NormalizeWord(%q) = %q, then %q", w, n, again)
+			}
+			if sw.Contains(w) != sw.Contains(n) {
+				t.Fatalf("%s: Contains(%q) %v, Contains(%q) %v", lang, w, sw.Contains(w), n, sw.Contains(n))
+			}
 		}
-		// what was redacted is gone: a second pass finds no e-mail address
-		if r2 := Redact(r.Text, opt); r2.Email > 0 && r.Email > 0 && strings.Count(text, "@") <= r.Email {
-			t.Fatalf("e-mail found again after redaction: %q", r.Text)
+		s.Split(text)
+		for _, l := range []*Stopwords{sw, nil} {
+			c := CountStopwords(&s, text, l)
+			if c.Matches < 0 || c.Covered < c.Matches || c.Tokens < c.Covered || c.Gopher < 0 || c.Gopher > c.Tokens {
+				t.Fatalf("%s: counts %+v", lang, c)
+			}
+			checkFraction(t, "stopword_density", c.Density(), c.Tokens == 0)
+			if l != nil && lang != "en" && c.Gopher != 0 {
+				t.Fatalf("%s: English eight counted with another list: %+v", lang, c)
+			}
+			if l == nil && c.Matches != 0 {
+				t.Fatalf("matches without a list: %+v", c)
+			}
+		}
+		c := CountStopwords(&s, text, sw)
+		if sw.Segmented || sw.maxTokens > 1 {
+			return
+		}
+		set := stopwordMaps()[lang]
+		want := StopCount{Tokens: len(fields)}
+		for _, w := range fields {
+			n := string(NormalizeWord(nil, w))
+			if len(n) <= maxNormBytes && set[n] {
+				want.Matches++
+				want.Covered++
+				if lang == "en" && slices.Contains(gopherStopwords[:], n) {
+					want.Gopher++
+				}
+			}
+		}
+		if c != want {
+			t.Fatalf("%s: counts %+v, plain count %+v", lang, c, want)
 		}
 	})
 }

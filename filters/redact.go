@@ -63,11 +63,36 @@ const (
 
 type span struct{ start, end, kind int }
 
+// maxRedactPasses bounds the passes of Redact. The default placeholders
+// hold no byte any finder takes ('<' and '>' end every token), so each
+// pass turns raw text into inert placeholders and two passes are the
+// usual most; the bound guards custom placeholders that are not inert.
+const maxRedactPasses = 8
+
 // Redact replaces e-mail addresses, IP addresses and phone-number-like
 // strings in text (see the package notes above for what is and is not
 // found). E-mail spans are found first, then IP addresses, then phone
-// numbers; a later kind never overlaps an earlier one.
+// numbers; a later kind never overlaps an earlier one, and overlapping
+// spans of one kind are joined. A finder judges a candidate by its
+// neighbours, and a placeholder is a new neighbour ("x@ab.cd-1.2.3.4":
+// the IP goes first, then "x@ab.cd" is an address), so Redact runs again
+// on its own output until a pass finds nothing: with the default
+// placeholders, Redact of the result finds nothing and changes nothing.
 func Redact(text string, opt RedactOptions) RedactResult {
+	res := RedactResult{Text: text}
+	for pass := 0; pass < maxRedactPasses; pass++ {
+		out, found := redactOnce(res.Text, opt, &res)
+		if !found {
+			break
+		}
+		res.Text = out
+	}
+	return res
+}
+
+// redactOnce finds and replaces spans in one pass, adding to the counts
+// in res; found is false when nothing was found.
+func redactOnce(text string, opt RedactOptions, res *RedactResult) (out string, found bool) {
 	var spans []span
 	if opt.Email && strings.IndexByte(text, '@') >= 0 {
 		spans = findEmails(text, spans)
@@ -81,11 +106,10 @@ func Redact(text string, opt RedactOptions) RedactResult {
 	if opt.Phone {
 		spans = findPhones(text, spans)
 	}
-	res := RedactResult{Text: text}
 	if len(spans) == 0 {
-		return res
+		return text, false
 	}
-	sort.Slice(spans, func(i, j int) bool { return spans[i].start < spans[j].start })
+	spans = mergeSpans(spans)
 	var b strings.Builder
 	b.Grow(len(text))
 	last := 0
@@ -105,8 +129,32 @@ func Redact(text string, opt RedactOptions) RedactResult {
 		last = s.end
 	}
 	b.WriteString(text[last:])
-	res.Text = b.String()
-	return res
+	return b.String(), true
+}
+
+// mergeSpans sorts spans by start and joins overlapping ones, so the
+// rebuild loop sees disjoint spans in order. Two e-mail candidates can
+// share bytes ("a@relay.example.net@pop.example.net": the second local
+// part is the first domain); a joined span is one replacement of the
+// first-claimed kind among its parts.
+func mergeSpans(spans []span) []span {
+	sort.Slice(spans, func(i, j int) bool {
+		if spans[i].start != spans[j].start {
+			return spans[i].start < spans[j].start
+		}
+		return spans[i].kind < spans[j].kind
+	})
+	out := spans[:1]
+	for _, s := range spans[1:] {
+		last := &out[len(out)-1]
+		if s.start < last.end {
+			last.end = max(last.end, s.end)
+			last.kind = min(last.kind, s.kind)
+			continue
+		}
+		out = append(out, s)
+	}
+	return out
 }
 
 func overlaps(spans []span, start, end int) bool {

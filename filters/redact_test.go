@@ -82,3 +82,32 @@ func TestRedactOptions(t *testing.T) {
 		t.Fatalf("%+v", r)
 	}
 }
+
+// TestRedactOverlappingSpans checks raw header lines whose addresses share
+// bytes: with two '@' the second local part is the first domain, and the
+// two e-mail spans overlap (this panicked in the rebuild loop). Overlapping
+// spans are joined into one replacement, and a second pass finds nothing.
+func TestRedactOverlappingSpans(t *testing.T) {
+	opt := DefaultRedactOptions()
+	for _, c := range []struct {
+		in, want         string
+		email, ip, phone int
+	}{
+		{"X-Sender: someone@relay.example.net@pop.example.net\n", "X-Sender: <EMAIL>\n", 1, 0, 0},
+		{"Return-Path: <yard@larkspur-marine.example@relay.example.net>", "Return-Path: <<EMAIL>>", 1, 0, 0},
+		{"From: a@b.example@c.example@d.example (three)", "From: <EMAIL> (three)", 1, 0, 0},
+		{"X-Sender: a@b.example@c.example, 192.0.2.1@d.example", "X-Sender: <EMAIL>, <EMAIL>", 2, 0, 0},
+		{"to x@ab.cd@ef and a@b.c@d.ef", "to <EMAIL>@ef and a@<EMAIL>", 2, 0, 0},
+		// a placeholder is a new neighbour: "x@ab.cd-" ends in a dash
+		// until the IP is replaced, then "x@ab.cd" is an address
+		{"x@ab.cd-1.2.3.4", "<EMAIL>-<IP>", 1, 1, 0},
+		{"mail a@b.co+15551234567", "mail <EMAIL><PHONE>", 1, 0, 1},
+	} {
+		r := Redact(c.in, opt)
+		if r.Text != c.want || r.Email != c.email || r.IP != c.ip || r.Phone != c.phone {
+			t.Errorf("Redact(%q) = %q (%d %d %d), want %q (%d %d %d)", c.in, r.Text, r.Email, r.IP, r.Phone,
+				c.want, c.email, c.ip, c.phone)
+		}
+		checkRedacted(t, c.in, r)
+	}
+}

@@ -14,6 +14,7 @@ import (
 	"github.com/klauspost/compress/zstd"
 
 	"winnow/dedup"
+	"winnow/stages/read"
 	"winnow/stages/synth"
 )
 
@@ -399,11 +400,11 @@ func TestDecontaminateSynthCorpus(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		dec, err := Decode(f)
+		dec, err := read.Decode(f)
 		if err != nil {
 			t.Fatal(err)
 		}
-		rr, _, err := NewRecordReader(dec, path, fi, ReadOptions{Source: "synth", TextField: "text", IDField: "id"})
+		rr, _, err := read.NewRecordReader(dec, path, fi, read.ReadOptions{Source: "synth", TextField: "text", IDField: "id"})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -419,11 +420,12 @@ func TestDecontaminateSynthCorpus(t *testing.T) {
 				continue
 			}
 			seen++
-			res := d.Process(rec.Doc)
-			d.Observe(rec.Doc, &res)
-			td := byID[rec.Doc.ID]
+			doc := DocFromRead(rec.Doc)
+			res := d.Process(doc)
+			d.Observe(doc, &res)
+			td := byID[doc.ID]
 			if td == nil {
-				t.Fatalf("doc %s not in truth", rec.Doc.ID)
+				t.Fatalf("doc %s not in truth", doc.ID)
 			}
 			p := planted(td)
 			if res.Rule != "" && p == nil {

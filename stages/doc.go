@@ -1,11 +1,17 @@
-// Package stages moves documents: it opens and parses inputs, runs the
-// configured stages over them in parallel while keeping input order, and
-// records every decision in the run's ledger and metrics files. It never
-// computes a text metric itself: those live in package filters, dedup and
-// shard; the stages here only apply thresholds and record what happened.
+// Package stages holds the document model (Doc, OrderKey), the stage
+// contracts (Stage, GlobalStage, Decision, Rule), stage parameters and the
+// kind registry, and one file per stage kind. A stage kind never computes a
+// text metric itself: those live in package filters, dedup and shard; the
+// stages here only apply thresholds and say what happened. Reading inputs
+// is package stages/read, running package stages/run, the ledger and shards
+// package stages/record, the YAML spec package stages/spec.
 package stages
 
-import "fmt"
+import (
+	"fmt"
+
+	"winnow/stages/read"
+)
 
 // OrderKey is a document's stable position in the input: the index of its
 // input file in the resolved input list (high 24 bits) and the index of the
@@ -61,4 +67,11 @@ func (d *Doc) SetMeta(key string, v any) {
 		d.Meta = make(map[string]any, 4)
 	}
 	d.Meta[key] = v
+}
+
+// DocFromRead makes the pipeline's document from one read from an input:
+// its order key is its input file's index and its line.
+func DocFromRead(r *read.Doc) *Doc {
+	return &Doc{ID: r.ID, Text: r.Text, Source: r.Source, File: r.File, Line: r.Line,
+		Order: MakeOrderKey(r.Input, r.Line), Meta: r.Meta}
 }

@@ -36,6 +36,7 @@ import (
 	"strings"
 
 	"winnow/dedup"
+	"winnow/stages/read"
 )
 
 // Eval-set file limits.
@@ -99,7 +100,7 @@ func LoadEvalSet(spec EvalSpec) (*EvalSet, error) {
 		if !filepath.IsAbs(full) && spec.Dir != "" {
 			full = filepath.Join(spec.Dir, pat)
 		}
-		files, err := expandPath(full)
+		files, err := read.ExpandPath(full)
 		if err != nil {
 			return nil, fmt.Errorf("eval set %q: path %q: %w", spec.Name, pat, err)
 		}
@@ -131,12 +132,12 @@ func LoadEvalSet(spec EvalSpec) (*EvalSet, error) {
 }
 
 func readEvalFile(path, disp string, spec EvalSpec) ([]EvalItem, error) {
-	f, err := OpenFile(path)
+	f, err := read.OpenFile(path)
 	if err != nil {
 		return nil, err
 	}
 	defer f.Close()
-	dec, err := Decode(f)
+	dec, err := read.Decode(f)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", disp, err)
 	}

@@ -36,6 +36,9 @@ type Params struct {
 // its kind numbered when repeated); "" outside a spec.
 func (p *Params) StageName() string { return p.stageName }
 
+// SetStageName sets the name StageName returns (the spec loader does).
+func (p *Params) SetStageName(name string) { p.stageName = name }
+
 // NewParams wraps a YAML mapping node. path prefixes key names in errors.
 func NewParams(file, path string, node *yaml.Node) *Params {
 	return &Params{file: file, path: path, node: node, known: map[string]bool{}}
@@ -351,9 +354,9 @@ func (p *Params) Fail(key string, err error) {
 	p.Errorf(key, "%v", err)
 }
 
-// takeErrs returns and clears the errors recorded so far (without the
+// TakeErrs returns and clears the errors recorded so far (without the
 // unknown-key check of Done).
-func (p *Params) takeErrs() []error {
+func (p *Params) TakeErrs() []error {
 	e := p.errs
 	p.errs = nil
 	return e

@@ -22,27 +22,13 @@ func (s *tokenizeStage) Process(d *Doc) Decision {
 // Tokenizer returns the stage's tokenizer.
 func (s *tokenizeStage) Tokenizer() *shard.Tokenizer { return s.tok }
 
-// TokenizeStageFor returns the tokenize stage that output.tokenizer
-// implies, or nil when the output section names no tokenizer. p is the
-// spec's output mapping; every output key is read (so that a later
-// OpenSink on the same mapping reports the same errors) and Done is
-// called.
-func TokenizeStageFor(p *Params, env Env) (Stage, error) {
-	if p == nil {
-		return nil, nil
-	}
-	c, err := parseOutput(p, env)
-	if err != nil {
-		return nil, err
-	}
-	if c.tok == nil {
-		return nil, nil
-	}
-	return &tokenizeStage{name: "tokenize", tok: c.tok}, nil
+// NewTokenizeStage returns the stage that counts tokens with tok (the one
+// output.tokenizer implies: see record.OutputStage).
+func NewTokenizeStage(tok *shard.Tokenizer) Stage {
+	return &tokenizeStage{name: "tokenize", tok: tok}
 }
 
 func init() {
-	OutputStage = TokenizeStageFor
 	Register(Kind{
 		Name: "tokenize",
 		Doc:  "count tokens with a tiktoken encoding or a tokenizer.json (sets each document's token count)",

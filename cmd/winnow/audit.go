@@ -8,8 +8,8 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"winnow/stages"
 	"winnow/stages/audit"
+	"winnow/stages/run"
 )
 
 var auditOpts struct {
@@ -124,7 +124,7 @@ func init() {
 }
 
 // writeDemoReport writes RUN/report.html for the demo and prints its path.
-func writeDemoReport(res *stages.RunResult) error {
+func writeDemoReport(res *run.RunResult) error {
 	r, err := audit.Open(res.Dir, audit.OpenOptions{})
 	if err != nil {
 		return err

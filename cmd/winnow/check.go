@@ -10,6 +10,9 @@ import (
 	"github.com/spf13/cobra"
 
 	"winnow/stages"
+	"winnow/stages/read"
+	"winnow/stages/record"
+	"winnow/stages/spec"
 )
 
 var checkCmd = &cobra.Command{
@@ -22,27 +25,27 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 	Example: `  winnow check configs/default.yaml`,
 	Args:    cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
-		spec, err := stages.LoadSpec(args[0])
+		sp, err := spec.LoadSpec(args[0])
 		if err != nil {
 			return err
 		}
-		inputs, err := stages.ResolveInputs(spec)
+		inputs, err := spec.ResolveInputs(sp)
 		if err != nil {
 			return err
 		}
-		steps, err := spec.BuildStages(stages.Env{Checking: true})
+		steps, err := sp.BuildStages(stages.Env{Checking: true})
 		if err != nil {
 			return err
 		}
-		if _, err := stages.OutputStage(spec.Output, stages.Env{Checking: true}); err != nil {
+		if _, err := record.OutputStage(sp.Output, stages.Env{Checking: true}); err != nil {
 			return err
 		}
-		if _, err := stages.OpenSink(spec.Output, stages.Env{Checking: true}, spec.Name); err != nil {
+		if _, err := record.OpenSink(sp.Output, stages.Env{Checking: true}, sp.Name); err != nil {
 			return err
 		}
 		w := os.Stdout
 		if checkJSON {
-			return printPlanJSON(w, spec, inputs, steps)
+			return printPlanJSON(w, sp, inputs, steps)
 		}
 		var total int64
 		bySource := map[string]int{}
@@ -50,11 +53,11 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 			if in.Size > 0 {
 				total += in.Size
 			}
-			bySource[in.Spec.Source]++
+			bySource[in.Options.Source]++
 		}
-		fmt.Fprintf(w, "spec %s (name %s, seed %d, config hash %s)\n", spec.File, spec.Name, spec.Seed, spec.ConfigHash)
+		fmt.Fprintf(w, "spec %s (name %s, seed %d, config hash %s)\n", sp.File, sp.Name, sp.Seed, sp.ConfigHash)
 		fmt.Fprintf(w, "inputs: %d files, %.1f MB\n", len(inputs), float64(total)/1e6)
-		for _, in := range spec.Inputs {
+		for _, in := range sp.Inputs {
 			fmt.Fprintf(w, "  %-12s %d files, format %s\n", in.Source, bySource[in.Source], in.Format)
 		}
 		fmt.Fprintln(w, "stages:")
@@ -68,7 +71,7 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 			} else {
 				kind, obj = st.Global.Kind()+" (global)", st.Global
 			}
-			k, _ := stages.LookupKind(spec.Stages[i].Kind)
+			k, _ := stages.LookupKind(sp.Stages[i].Kind)
 			fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\n", i+1, st.Name, kind, k.Doc)
 			if d, ok := obj.(stages.Describer); ok {
 				desc = d.Describe()
@@ -123,7 +126,7 @@ type planRule struct {
 }
 
 // printPlanJSON prints what `check` found as JSON.
-func printPlanJSON(w io.Writer, spec *stages.Spec, inputs []stages.InputFile, steps []stages.Step) error {
+func printPlanJSON(w io.Writer, sp *spec.Spec, inputs []read.InputFile, steps []spec.Step) error {
 	type planInput struct {
 		Path   string `json:"path"`
 		Source string `json:"source"`
@@ -136,9 +139,9 @@ func printPlanJSON(w io.Writer, spec *stages.Spec, inputs []stages.InputFile, st
 		ConfigHash string      `json:"config_hash"`
 		Inputs     []planInput `json:"inputs"`
 		Stages     []planStage `json:"stages"`
-	}{Spec: spec.File, Name: spec.Name, Seed: spec.Seed, ConfigHash: spec.ConfigHash}
+	}{Spec: sp.File, Name: sp.Name, Seed: sp.Seed, ConfigHash: sp.ConfigHash}
 	for _, in := range inputs {
-		plan.Inputs = append(plan.Inputs, planInput{Path: in.Display, Source: in.Spec.Source, Bytes: in.Size})
+		plan.Inputs = append(plan.Inputs, planInput{Path: in.Display, Source: in.Options.Source, Bytes: in.Size})
 	}
 	for _, st := range steps {
 		var obj any = st.Stage

@@ -14,6 +14,9 @@ import (
 	"github.com/spf13/cobra"
 
 	"winnow/stages"
+	"winnow/stages/read"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 type contamFlags struct {
@@ -83,7 +86,7 @@ func init() {
 
 // printDemoContamination shows the leaked items the demo's decontaminate
 // stage found (nothing when the run has no contamination report).
-func printDemoContamination(res *stages.RunResult) error {
+func printDemoContamination(res *run.RunResult) error {
 	path := filepath.Join(res.Dir, "contamination.json")
 	if _, err := os.Stat(path); err != nil {
 		return nil
@@ -136,9 +139,9 @@ func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) e
 	if err != nil {
 		return err
 	}
-	spec := &stages.Spec{Dir: ".", Inputs: []stages.InputSpec{{Paths: args, ReadOptions: stages.ReadOptions{
-		Source: f.source, Format: stages.Format(f.format), TextField: f.textField, IDField: f.docID}}}}
-	inputs, err := stages.ResolveInputs(spec)
+	sp := &spec.Spec{Dir: ".", Inputs: []spec.InputSpec{{Paths: args, ReadOptions: read.ReadOptions{
+		Source: f.source, Format: read.Format(f.format), TextField: f.textField, IDField: f.docID}}}}
+	inputs, err := spec.ResolveInputs(sp)
 	if err != nil {
 		return err
 	}
@@ -151,14 +154,14 @@ func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) e
 	if f.out != "" {
 		runDir = f.out
 	}
-	step := stages.Step{Name: "decontaminate"}
+	step := spec.Step{Name: "decontaminate"}
 	if s := d.PerDocument(); s != nil {
 		step.Stage = s
 	} else {
 		step.Global = d
 	}
 	prog := newProgress(f.quiet)
-	r := &stages.Runner{Spec: spec, Steps: []stages.Step{step}, Inputs: inputs, Workers: f.workers,
+	r := &run.Runner{Spec: sp, Steps: []spec.Step{step}, Inputs: inputs, Workers: f.workers,
 		Env: stages.Env{SpecDir: ".", RunDir: runDir, TempDir: tmp}, OnProgress: prog.update, Log: prog.logf}
 	runErr := r.Run(ctx)
 	prog.done()

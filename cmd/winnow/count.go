@@ -14,8 +14,8 @@ import (
 	"github.com/spf13/cobra"
 
 	"winnow/shard"
-	"winnow/stages"
 	"winnow/stages/audit"
+	"winnow/stages/read"
 )
 
 var countOpts struct {
@@ -179,17 +179,17 @@ type countDoc struct {
 // countFile counts one file's documents on workers goroutines.
 func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow, map[string]countRow, int64, error) {
 	row := countRow{Name: path}
-	f, err := stages.OpenFile(path)
+	f, err := read.OpenFile(path)
 	if err != nil {
 		return row, nil, 0, err
 	}
 	defer f.Close()
-	dec, err := stages.Decode(f)
+	dec, err := read.Decode(f)
 	if err != nil {
 		return row, nil, 0, err
 	}
 	defer dec.Close()
-	rr, _, err := stages.NewRecordReader(dec, path, input, stages.ReadOptions{Format: stages.Format(countOpts.format),
+	rr, _, err := read.NewRecordReader(dec, path, input, read.ReadOptions{Format: read.Format(countOpts.format),
 		TextField: countOpts.textField, IDField: "id", TextMode: countOpts.textMode})
 	if err != nil {
 		return row, nil, 0, err

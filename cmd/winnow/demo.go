@@ -8,7 +8,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"winnow/configs"
-	"winnow/stages"
+	"winnow/stages/spec"
 	"winnow/stages/synth"
 )
 
@@ -41,14 +41,14 @@ prints what each stage removed and where the outputs are.`,
 		} else if entries, _ := os.ReadDir(dir); len(entries) > 0 && !demoOpts.force {
 			return fmt.Errorf("%s is not empty: choose a fresh directory or pass --force", dir)
 		}
-		spec, err := writeDemo(dir, demoOpts.docs, demoOpts.seed)
+		sp, err := writeDemo(dir, demoOpts.docs, demoOpts.seed)
 		if err != nil {
 			return err
 		}
 		fmt.Fprintf(os.Stderr, "winnow: demo corpus and spec in %s\n", dir)
 		f := demoOpts.run
 		f.force = true
-		res, err := runLoaded(cmd.Context(), spec, f)
+		res, err := runLoaded(cmd.Context(), sp, f)
 		if err != nil {
 			return err
 		}
@@ -63,7 +63,7 @@ prints what each stage removed and where the outputs are.`,
 }
 
 // writeDemo generates the corpus under dir/corpus and writes dir/demo.yaml.
-func writeDemo(dir string, docs int, seed uint64) (*stages.Spec, error) {
+func writeDemo(dir string, docs int, seed uint64) (*spec.Spec, error) {
 	if _, err := synth.Generate(synth.Options{Dir: filepath.Join(dir, "corpus"), Docs: docs, Seed: seed}); err != nil {
 		return nil, fmt.Errorf("generating the demo corpus: %w", err)
 	}
@@ -75,7 +75,7 @@ func writeDemo(dir string, docs int, seed uint64) (*stages.Spec, error) {
 	if err := os.WriteFile(p, b, 0o644); err != nil {
 		return nil, err
 	}
-	return stages.LoadSpec(p)
+	return spec.LoadSpec(p)
 }
 
 func init() {

@@ -9,7 +9,7 @@ import (
 
 	"golang.org/x/term"
 
-	"winnow/stages"
+	"winnow/stages/run"
 )
 
 // progressLine prints a one-line, self-overwriting progress report to
@@ -27,8 +27,8 @@ func newProgress(quiet bool) *progressLine {
 	return &progressLine{w: os.Stderr, on: on}
 }
 
-// update is a stages.Runner OnProgress callback.
-func (p *progressLine) update(s stages.Progress) {
+// update is a run.Runner OnProgress callback.
+func (p *progressLine) update(s run.Progress) {
 	if !p.on {
 		return
 	}

@@ -11,8 +11,9 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"winnow/stages"
 	"winnow/stages/fsio"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 type runFlags struct {
@@ -75,15 +76,15 @@ func init() {
 }
 
 func runSpecFile(ctx context.Context, path string, f runFlags) error {
-	spec, err := stages.LoadSpec(path)
+	sp, err := spec.LoadSpec(path)
 	if err != nil {
 		return err
 	}
-	_, err = runLoaded(ctx, spec, f)
+	_, err = runLoaded(ctx, sp, f)
 	return err
 }
 
-func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunResult, error) {
+func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, error) {
 	if ctx == nil {
 		ctx = context.Background()
 	}
@@ -108,7 +109,7 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 		defer pprof.StopCPUProfile()
 	}
 	prog := newProgress(f.quiet)
-	res, err := stages.RunSpec(ctx, spec, stages.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
+	res, err := run.RunSpec(ctx, sp, run.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
 		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets, Resume: f.resume})
 	prog.done()
 	if res == nil {
@@ -119,7 +120,7 @@ func runLoaded(ctx context.Context, spec *stages.Spec, f runFlags) (*stages.RunR
 	}
 	if errors.Is(err, context.Canceled) {
 		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from the last checkpoint",
-			res.Dir, spec.File, res.Dir)}
+			res.Dir, sp.File, res.Dir)}
 	}
 	m := res.Manifest
 	fatal := res.Runner.FatalInputs

@@ -6,12 +6,12 @@ import (
 	"io"
 	"text/tabwriter"
 
-	"winnow/stages"
 	"winnow/stages/audit"
+	"winnow/stages/run"
 )
 
 // printStageTable prints the per-stage document and byte flow of a run.
-func printStageTable(w io.Writer, m *stages.Manifest, asJSON bool) error {
+func printStageTable(w io.Writer, m *run.Manifest, asJSON bool) error {
 	if asJSON {
 		enc := json.NewEncoder(w)
 		enc.SetIndent("", "  ")
@@ -32,7 +32,7 @@ func printStageTable(w io.Writer, m *stages.Manifest, asJSON bool) error {
 
 // printShardTable prints each output shard's documents, tokens and
 // per-source token shares.
-func printShardTable(w io.Writer, m *stages.Manifest) {
+func printShardTable(w io.Writer, m *run.Manifest) {
 	if len(m.Outputs) == 0 {
 		return
 	}

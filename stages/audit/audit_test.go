@@ -9,8 +9,9 @@ import (
 	"testing"
 	"unicode/utf8"
 
-	"winnow/stages"
 	"winnow/stages/audit"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 // TestAuditMatchesIndependentRecount checks every number of the audit
@@ -454,15 +455,15 @@ func TestAuditReadErrors(t *testing.T) {
 	if err := os.WriteFile(filepath.Join(dir, "raw", "a.jsonl"), []byte(strings.Join(lines, "\n")+"\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	spec := "name: errs\ninputs:\n  - source: yard\n    paths: [raw/]\nstages:\n  - kind: normalize\n  - kind: length\n    min_chars: 10\noutput:\n  dir: out/\n"
-	if err := os.WriteFile(filepath.Join(dir, "spec.yaml"), []byte(spec), 0o644); err != nil {
+	body := "name: errs\ninputs:\n  - source: yard\n    paths: [raw/]\nstages:\n  - kind: normalize\n  - kind: length\n    min_chars: 10\noutput:\n  dir: out/\n"
+	if err := os.WriteFile(filepath.Join(dir, "spec.yaml"), []byte(body), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	s, err := stages.LoadSpec(filepath.Join(dir, "spec.yaml"))
+	s, err := spec.LoadSpec(filepath.Join(dir, "spec.yaml"))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if _, err := stages.RunSpec(context.Background(), s, stages.RunOptions{Workers: 1}); err != nil {
+	if _, err := run.RunSpec(context.Background(), s, run.RunOptions{Workers: 1}); err != nil {
 		t.Fatal(err)
 	}
 	run := filepath.Join(dir, "out")

@@ -13,12 +13,13 @@ import (
 
 	"github.com/klauspost/compress/zstd"
 
-	"winnow/stages"
 	"winnow/stages/audit"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 	"winnow/stages/synth"
 )
 
-// The tests run real pipelines (stages.RunSpec) over a corpus from the
+// The tests run real pipelines (run.RunSpec) over a corpus from the
 // project's own generator and check the audit package against numbers
 // recounted here from the run's files with independent code: zstd
 // (klauspost/compress) and encoding/json, not the package's readers.
@@ -109,17 +110,17 @@ output:
 func runPipeline(t testing.TB, name, stagesYAML string, sets ...string) string {
 	t.Helper()
 	base := corpus(t)
-	spec := "name: " + name + "\nseed: 7\n" + inputsYAML + stagesYAML
+	body := "name: " + name + "\nseed: 7\n" + inputsYAML + stagesYAML
 	p := filepath.Join(base, name+".yaml")
-	if err := os.WriteFile(p, []byte(spec), 0o644); err != nil {
+	if err := os.WriteFile(p, []byte(body), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	s, err := stages.LoadSpec(p)
+	s, err := spec.LoadSpec(p)
 	if err != nil {
 		t.Fatal(err)
 	}
 	out := filepath.Join(base, name+"-run")
-	if _, err := stages.RunSpec(context.Background(), s, stages.RunOptions{Out: out, Workers: 2, Force: true, Sets: sets}); err != nil {
+	if _, err := run.RunSpec(context.Background(), s, run.RunOptions{Out: out, Workers: 2, Force: true, Sets: sets}); err != nil {
 		t.Fatal(err)
 	}
 	return out

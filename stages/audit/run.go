@@ -10,6 +10,9 @@ import (
 	"strings"
 
 	"winnow/stages"
+	"winnow/stages/read"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 // Run is an opened run directory: its manifest and where its ledger,
@@ -17,7 +20,7 @@ import (
 type Run struct {
 	// Dir is the run directory (absolute).
 	Dir      string
-	Manifest *stages.Manifest
+	Manifest *run.Manifest
 	// Steps are the run's stages between "read" and "write", in order.
 	Steps []*StepInfo
 	// SpecDir is the directory relative input and eval paths resolve
@@ -25,7 +28,7 @@ type Run struct {
 	SpecDir string
 	// Spec is the manifest's config parsed back into a spec, with paths
 	// resolved against SpecDir; nil when it could not be parsed (SpecErr).
-	Spec    *stages.Spec
+	Spec    *spec.Spec
 	SpecErr error
 	// Inputs describes each manifest input: where it is now and whether
 	// it still matches the run (same size).
@@ -52,7 +55,7 @@ type StepInfo struct {
 	// it were not measured by the stages after it.
 	Global bool
 	// Counters are the manifest's flow numbers of the stage.
-	Counters *stages.Counters
+	Counters *run.Counters
 	// MetricsPath is OUT/metrics/<name>.jsonl.zst ("" when absent);
 	// MetricNames are the names found in it, in file order (filled by
 	// the first walk).
@@ -62,18 +65,18 @@ type StepInfo struct {
 	LedgerPath string
 	// Spec is the stage's entry in the spec (nil for the tokenize stage
 	// the output section implies).
-	Spec *stages.StageSpec
+	Spec *spec.StageSpec
 }
 
 // InputState is one input file of the run, as found now.
 type InputState struct {
-	stages.InputSummary
+	run.InputSummary
 	// Path is where the file is looked for now.
 	Path string
 	// Status is "ok", "missing", "changed" (size differs from the run)
 	// or "stdin".
 	Status  string
-	Options stages.ReadOptions
+	Options read.ReadOptions
 }
 
 // OpenOptions tune Open.
@@ -89,7 +92,7 @@ func Open(dir string, opt OpenOptions) (*Run, error) {
 	if err != nil {
 		return nil, err
 	}
-	m, err := stages.ReadManifest(abs)
+	m, err := run.ReadManifest(abs)
 	if err != nil {
 		if errors.Is(err, os.ErrNotExist) {
 			return nil, fmt.Errorf("%s is not a run directory: no manifest.json", dir)
@@ -243,7 +246,7 @@ func (r *Run) parseSpec() {
 		r.SpecErr = err
 		return
 	}
-	r.Spec, r.SpecErr = stages.ParseSpec(r.configPath(), data)
+	r.Spec, r.SpecErr = spec.ParseSpec(r.configPath(), data)
 	if r.SpecErr != nil {
 		r.Notes = append(r.Notes, fmt.Sprintf("the manifest's config does not parse with this winnow (%v): thresholds cannot be rebuilt", r.SpecErr))
 	}
@@ -255,16 +258,16 @@ func (r *Run) configPath() string {
 
 // freshSpec parses the config again (Params keep state, so every build
 // with other overrides starts from a fresh parse) and applies sets.
-func (r *Run) freshSpec(sets []string) (*stages.Spec, error) {
+func (r *Run) freshSpec(sets []string) (*spec.Spec, error) {
 	data, err := json.Marshal(r.Manifest.Config)
 	if err != nil {
 		return nil, err
 	}
-	s, err := stages.ParseSpec(r.configPath(), data)
+	s, err := spec.ParseSpec(r.configPath(), data)
 	if err != nil {
 		return nil, err
 	}
-	if err := stages.ApplySets(s, sets); err != nil {
+	if err := spec.ApplySets(s, sets); err != nil {
 		return nil, err
 	}
 	return s, nil
@@ -303,7 +306,7 @@ func (r *Run) BuildStep(st *StepInfo, sets []string, checking bool) (Built, erro
 	if err != nil {
 		return Built{}, err
 	}
-	var sp *stages.StageSpec
+	var sp *spec.StageSpec
 	for i := range s.Stages {
 		if s.Stages[i].Name == st.Name {
 			sp = &s.Stages[i]
@@ -338,10 +341,10 @@ func (r *Run) BuildStep(st *StepInfo, sets []string, checking bool) (Built, erro
 // resolveInputs finds each manifest input on disk and the read options it
 // was read with.
 func (r *Run) resolveInputs() {
-	var files map[string]stages.InputFile
+	var files map[string]read.InputFile
 	if r.Spec != nil {
-		if fs, err := stages.ResolveInputs(r.Spec); err == nil {
-			files = map[string]stages.InputFile{}
+		if fs, err := spec.ResolveInputs(r.Spec); err == nil {
+			files = map[string]read.InputFile{}
 			for _, f := range fs {
 				files[f.Display] = f
 			}
@@ -351,7 +354,7 @@ func (r *Run) resolveInputs() {
 		st := InputState{InputSummary: in, Path: in.Path}
 		if f, ok := files[in.Path]; ok {
 			st.Path = f.Path
-			st.Options = f.Spec.ReadOptions
+			st.Options = *f.Options
 		} else {
 			if in.Path != "-" && !filepath.IsAbs(in.Path) {
 				st.Path = filepath.Join(r.SpecDir, filepath.FromSlash(in.Path))
@@ -366,7 +369,7 @@ func (r *Run) resolveInputs() {
 			}
 		}
 		if st.Options.Source == "" {
-			st.Options = stages.ReadOptions{Source: in.Source, Format: in.Format, TextField: "text", IDField: "id"}
+			st.Options = read.ReadOptions{Source: in.Source, Format: in.Format, TextField: "text", IDField: "id"}
 		}
 		switch fi, err := os.Stat(st.Path); {
 		case in.Path == "-":

@@ -9,6 +9,7 @@ import (
 
 	"winnow/dedup"
 	"winnow/stages"
+	"winnow/stages/read"
 )
 
 // Sample is one removed (or edited) document with the reason, the text
@@ -168,7 +169,7 @@ func (r *Run) fetchTexts(trails []*Trail) map[stages.OrderKey]fetched {
 			fail("the document came from standard input: its text cannot be read again")
 			continue
 		}
-		if in.Format == stages.FormatParquet {
+		if in.Format == read.FormatParquet {
 			fail(fmt.Sprintf("input %s is Parquet: re-reading single rows is not supported by audit", in.InputSummary.Path))
 			continue
 		}
@@ -205,24 +206,24 @@ func (r *Run) fetchTexts(trails []*Trail) map[stages.OrderKey]fetched {
 
 // readRecords reads one input with the run's readers up to record last.
 func readRecords(in InputState, idx int, last int64, fn func(d *stages.Doc)) error {
-	f, err := stages.OpenFile(in.Path)
+	f, err := read.OpenFile(in.Path)
 	if err != nil {
 		return err
 	}
 	defer f.Close()
-	dec, err := stages.Decode(f)
+	dec, err := read.Decode(f)
 	if err != nil {
 		return err
 	}
 	defer dec.Close()
-	rr, _, err := stages.NewRecordReader(dec, in.InputSummary.Path, idx, in.Options)
+	rr, _, err := read.NewRecordReader(dec, in.InputSummary.Path, idx, in.Options)
 	if err != nil {
 		return err
 	}
 	for {
 		rec, err := rr.Next()
 		if rec.Doc != nil {
-			fn(rec.Doc)
+			fn(stages.DocFromRead(rec.Doc))
 			if rec.Doc.Line >= last {
 				return nil
 			}

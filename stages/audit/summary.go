@@ -6,6 +6,7 @@ import (
 	"sort"
 
 	"winnow/stages"
+	"winnow/stages/run"
 )
 
 // Summary is what `winnow audit` prints: per stage and rule what was
@@ -13,12 +14,12 @@ import (
 // breakdown, the contamination report and the input errors. The JSON
 // field names are what `winnow audit --json` prints.
 type Summary struct {
-	Run         string        `json:"run"`
-	Name        string        `json:"name"`
-	ToolVersion string        `json:"tool_version"`
-	ConfigHash  string        `json:"config_hash"`
-	Interrupted bool          `json:"interrupted"`
-	Totals      stages.Totals `json:"totals"`
+	Run         string     `json:"run"`
+	Name        string     `json:"name"`
+	ToolVersion string     `json:"tool_version"`
+	ConfigHash  string     `json:"config_hash"`
+	Interrupted bool       `json:"interrupted"`
+	Totals      run.Totals `json:"totals"`
 	// TokenStage names the stage whose "tokens" metric gives token
 	// counts ("" when the run counted no tokens: every token figure is
 	// then unknown).
@@ -29,7 +30,7 @@ type Summary struct {
 	// Contamination is OUT/contamination.json when the run has one.
 	Contamination *stages.ContamReport `json:"contamination,omitempty"`
 	Inputs        []InputRow           `json:"inputs"`
-	Errors        []stages.RunError    `json:"errors"`
+	Errors        []run.RunError       `json:"errors"`
 	ErrorCount    int64                `json:"error_count"`
 	Histograms    []*Histogram         `json:"histograms,omitempty"`
 	Notes         []string             `json:"notes"`
@@ -161,7 +162,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 		Interrupted: m.Interrupted, Totals: m.Totals, Errors: m.Errors, ErrorCount: m.ErrorCount,
 		Contamination: r.Contam, Notes: append([]string(nil), r.Notes...)}
 	if s.Errors == nil {
-		s.Errors = []stages.RunError{}
+		s.Errors = []run.RunError{}
 	}
 	tok := r.TokenStep()
 	tokIdx := -1
@@ -486,16 +487,16 @@ func (s *Summary) fixBytes(r *Run) {
 	}
 }
 
-func (r *Run) readCounters() *stages.Counters {
+func (r *Run) readCounters() *run.Counters {
 	if len(r.Manifest.Stages) > 0 && r.Manifest.Stages[0].Name == "read" {
 		return r.Manifest.Stages[0]
 	}
-	return &stages.Counters{Name: "read", Kind: "read"}
+	return &run.Counters{Name: "read", Kind: "read"}
 }
 
-func (r *Run) writeCounters() *stages.Counters {
+func (r *Run) writeCounters() *run.Counters {
 	if n := len(r.Manifest.Stages); n > 0 && r.Manifest.Stages[n-1].Name == "write" {
 		return r.Manifest.Stages[n-1]
 	}
-	return &stages.Counters{Name: "write", Kind: "write"}
+	return &run.Counters{Name: "write", Kind: "write"}
 }

@@ -1,0 +1,392 @@
+package read
+
+import (
+	"bufio"
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"strconv"
+	"strings"
+	"unicode/utf8"
+
+	"winnow/stages/jsonl"
+)
+
+// Format names an input record format.
+type Format string
+
+// Input formats. FormatAuto picks one from the file name (after any .gz or
+// .zst suffix) and, failing that, from the first decompressed bytes.
+const (
+	FormatAuto    Format = "auto"
+	FormatJSONL   Format = "jsonl"
+	FormatText    Format = "text"
+	FormatWARC    Format = "warc"
+	FormatParquet Format = "parquet"
+)
+
+// Formats lists the formats an input may name (a spec's "format" choices).
+var Formats = []Format{FormatAuto, FormatJSONL, FormatText, FormatWARC, FormatParquet}
+
+// ReadOptions says how to turn an input file's records into documents.
+type ReadOptions struct {
+	Source string
+	Format Format
+	// TextField and IDField name the JSONL fields or Parquet columns.
+	TextField string
+	IDField   string
+	// MetaFields restricts which extra fields go into Meta (nil: all).
+	MetaFields []string
+	// TextMode is "file" (one document per file) or "blocks" (one per
+	// blank-line-separated block) for plain text.
+	TextMode string
+	// MaxDocBytes is the largest document held in memory; a longer record
+	// is consumed and dropped with rule "oversize".
+	MaxDocBytes int
+}
+
+// Read issue rules, recorded in the ledger under stage "read".
+const (
+	RuleMalformed   = "malformed_record"
+	RuleOversize    = "oversize"
+	RuleMissingText = "missing_text"
+	RuleInvalidUTF8 = "invalid_utf8"
+	// RuleBrokenInput records an input that could not be read to its end
+	// (a corrupt or truncated stream, an unreadable file); the documents
+	// before the damage are kept.
+	RuleBrokenInput = "broken_input"
+	// RuleEmptyInput notes an input with no documents (not an error).
+	RuleEmptyInput = "empty_input"
+)
+
+// ReadIssue is a problem with one record that costs only that record (or,
+// for invalid UTF-8, only the bad bytes).
+type ReadIssue struct {
+	Source string
+	File   string
+	Line   int64
+	Offset int64
+	Rule   string
+	Msg    string
+	// DocID is the id the record would have had.
+	DocID string
+	// Bytes is the size of the record.
+	Bytes int64
+	// Fatal is set when the rest of the file could not be read.
+	Fatal bool
+}
+
+func (i *ReadIssue) Error() string {
+	return fmt.Sprintf("%s:%d: %s: %s", i.File, i.Line, i.Rule, i.Msg)
+}
+
+// Record is what a RecordReader yields: a document, an issue, or both (a
+// document whose invalid UTF-8 was repaired).
+type Record struct {
+	Doc   *Doc
+	Issue *ReadIssue
+}
+
+// RecordReader yields the records of one input file in order. Next returns
+// io.EOF at the end; any other error is fatal for the rest of the file
+// (every record before it has been returned).
+type RecordReader interface {
+	Next() (Record, error)
+}
+
+// Skipper is a RecordReader that passes over records it does not turn into
+// documents (WARC request, response and metadata records) and counts them.
+type Skipper interface {
+	SkippedRecords() int64
+}
+
+// ErrBinary is returned for input that is neither text, gzip nor zstd.
+var ErrBinary = errors.New("binary data: not text, gzip or zstd (wrong format or a corrupt file)")
+
+// NewRecordReader returns the reader for format over decompressed bytes r.
+// file is the display path used in ids and messages; input is the file's
+// index in the run, used in order keys.
+func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (RecordReader, Format, error) {
+	br := bufio.NewReaderSize(r, 256<<10)
+	head, _ := br.Peek(4096)
+	format := opt.Format
+	if format == "" || format == FormatAuto {
+		format = GuessFormat(file, head)
+	}
+	if opt.MaxDocBytes <= 0 {
+		opt.MaxDocBytes = DefaultMaxDocBytes
+	}
+	base := baseReader{file: file, input: input, opt: opt}
+	switch format {
+	case FormatJSONL, FormatText:
+		if looksBinary(head) {
+			return nil, format, ErrBinary
+		}
+		if format == FormatJSONL {
+			return &jsonlReader{baseReader: base, lr: newLineReader(br, opt.MaxDocBytes)}, format, nil
+		}
+		return &textReader{baseReader: base, lr: newLineReader(br, opt.MaxDocBytes)}, format, nil
+	case FormatWARC:
+		if len(head) > 0 && !bytes.HasPrefix(head, []byte("WARC/")) {
+			return nil, format, fmt.Errorf("not a WARC file: does not start with \"WARC/\"")
+		}
+		return &warcReader{baseReader: base, br: br}, format, nil
+	case FormatParquet:
+		return nil, format, fmt.Errorf("parquet must be read from a seekable, uncompressed file")
+	}
+	return nil, format, fmt.Errorf("unknown format %q", format)
+}
+
+// DefaultMaxDocBytes is the default largest document held in memory.
+const DefaultMaxDocBytes = 8 << 20
+
+// GuessFormat picks a format from the file name (after any .gz or .zst
+// suffix) and, failing that, from the first decompressed bytes head.
+func GuessFormat(file string, head []byte) Format {
+	name := strings.ToLower(file)
+	for _, suf := range []string{".gz", ".zst", ".zstd", ".gzip"} {
+		name = strings.TrimSuffix(name, suf)
+	}
+	switch {
+	case strings.HasSuffix(name, ".jsonl"), strings.HasSuffix(name, ".json"), strings.HasSuffix(name, ".ndjson"):
+		return FormatJSONL
+	case strings.HasSuffix(name, ".warc"), strings.HasSuffix(name, ".wet"):
+		return FormatWARC
+	case strings.HasSuffix(name, ".parquet"):
+		return FormatParquet
+	case strings.HasSuffix(name, ".txt"), strings.HasSuffix(name, ".text"), strings.HasSuffix(name, ".md"):
+		return FormatText
+	}
+	switch {
+	case bytes.HasPrefix(head, []byte("PAR1")):
+		return FormatParquet
+	case bytes.HasPrefix(head, []byte("WARC/")):
+		return FormatWARC
+	case len(bytes.TrimLeft(head, " \t\r\n")) > 0 && bytes.TrimLeft(head, " \t\r\n")[0] == '{':
+		return FormatJSONL
+	}
+	return FormatText
+}
+
+// looksBinary reports whether the first bytes of a stream are not text:
+// a NUL byte, or mostly invalid UTF-8 and control characters.
+func looksBinary(head []byte) bool {
+	if len(head) == 0 {
+		return false
+	}
+	if bytes.IndexByte(head, 0) >= 0 {
+		return true
+	}
+	bad := 0
+	for i := 0; i < len(head); {
+		r, size := utf8.DecodeRune(head[i:])
+		if (r == utf8.RuneError && size == 1 && i+4 < len(head)) || (r < 0x20 && r != '\n' && r != '\r' && r != '\t' && r != '\f') {
+			bad++
+		}
+		i += size
+	}
+	return bad*10 > len(head) // more than 10% garbage
+}
+
+type baseReader struct {
+	file  string
+	input int
+	opt   ReadOptions
+	rec   int64
+}
+
+func (b *baseReader) defaultID(line int64) string {
+	return b.opt.Source + "/" + b.file + ":" + strconv.FormatInt(line, 10)
+}
+
+func (b *baseReader) newDoc(text, id string, line int64) *Doc {
+	if id == "" {
+		id = b.defaultID(line)
+	}
+	return &Doc{ID: id, Text: text, Source: b.opt.Source, File: b.file, Line: line, Input: b.input}
+}
+
+func (b *baseReader) wantMeta(key string) bool {
+	if b.opt.MetaFields == nil {
+		return true
+	}
+	for _, k := range b.opt.MetaFields {
+		if k == key {
+			return true
+		}
+	}
+	return false
+}
+
+// repairUTF8 replaces invalid UTF-8 with U+FFFD and reports whether it did.
+func repairUTF8(s string) (string, bool) {
+	if utf8.ValidString(s) {
+		return s, false
+	}
+	return string(jsonl.AppendValidUTF8(make([]byte, 0, len(s)+8), []byte(s))), true
+}
+
+func utf8Issue(b *baseReader, d *Doc) *ReadIssue {
+	return &ReadIssue{File: b.file, Line: d.Line, Rule: RuleInvalidUTF8, Msg: "invalid UTF-8 replaced with U+FFFD", DocID: d.ID, Bytes: int64(len(d.Text))}
+}
+
+type jsonlReader struct {
+	baseReader
+	lr *lineReader
+}
+
+func (r *jsonlReader) Next() (Record, error) {
+	for {
+		off := r.lr.off
+		line, n, oversize, err := r.lr.next()
+		if err != nil && err != io.EOF {
+			// A line cut by a broken stream is incomplete: report the
+			// break, not a malformed record.
+			return Record{}, err
+		}
+		if err != nil && line == nil && !oversize {
+			return Record{}, err
+		}
+		ln := r.lr.line
+		if oversize {
+			return Record{Issue: &ReadIssue{File: r.file, Line: ln, Offset: off, Rule: RuleOversize, Bytes: n,
+				Msg: fmt.Sprintf("line of %d bytes exceeds max_doc_bytes %d", n, r.opt.MaxDocBytes), DocID: r.defaultID(ln)}}, err
+		}
+		if len(bytes.TrimSpace(line)) == 0 {
+			if err != nil {
+				return Record{}, err
+			}
+			continue
+		}
+		rec := r.parse(line, ln, off)
+		return rec, err
+	}
+}
+
+func (r *jsonlReader) parse(line []byte, ln, off int64) Record {
+	sc := jsonObjectScanner{b: line}
+	var text, id []byte
+	var meta map[string]any
+	tf, idf := r.opt.TextField, r.opt.IDField
+	perr := sc.eachField(func(key, val []byte) {
+		k := string(key)
+		switch {
+		case k == tf:
+			text = val
+		case idf != "" && k == idf:
+			id = val
+		default:
+			if r.wantMeta(k) {
+				if meta == nil {
+					meta = make(map[string]any, 4)
+				}
+				meta[k] = RawJSON(append([]byte(nil), val...))
+			}
+		}
+	})
+	if perr != nil {
+		return Record{Issue: &ReadIssue{File: r.file, Line: ln, Offset: off, Rule: RuleMalformed, Msg: perr.Error(), DocID: r.defaultID(ln), Bytes: int64(len(line))}}
+	}
+	if text == nil || text[0] != '"' {
+		msg := fmt.Sprintf("no string field %q", tf)
+		if text != nil {
+			msg = fmt.Sprintf("field %q is not a string", tf)
+		}
+		return Record{Issue: &ReadIssue{File: r.file, Line: ln, Offset: off, Rule: RuleMissingText, Msg: msg, DocID: r.defaultID(ln), Bytes: int64(len(line))}}
+	}
+	s, bad := decodeJSONString(text)
+	var ids string
+	if id != nil {
+		if id[0] == '"' {
+			ids, _ = decodeJSONString(id)
+			ids, _ = repairUTF8(ids)
+		} else if id[0] != 'n' { // numbers and other scalars keep their literal; null means none
+			ids = string(id)
+		}
+	}
+	d := r.newDoc(s, ids, ln)
+	d.Meta = meta
+	if bad {
+		return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}
+	}
+	return Record{Doc: d}
+}
+
+type textReader struct {
+	baseReader
+	lr   *lineReader
+	done bool
+}
+
+// Next returns one document per file (TextMode "file") or per
+// blank-line-separated block ("blocks").
+func (r *textReader) Next() (Record, error) {
+	if r.done {
+		return Record{}, io.EOF
+	}
+	var buf []byte
+	start := int64(0)
+	oversize := false
+	var size int64
+	var startOff int64
+	for {
+		off := r.lr.off
+		line, n, over, err := r.lr.next()
+		if err != nil && line == nil && !over {
+			if err == io.EOF {
+				r.done = true
+				if start == 0 {
+					return Record{}, io.EOF
+				}
+				break
+			}
+			return Record{}, err
+		}
+		blank := !over && len(bytes.TrimSpace(line)) == 0
+		if r.opt.TextMode == "blocks" && blank {
+			if start == 0 {
+				continue
+			}
+			break
+		}
+		if start == 0 {
+			start = r.lr.line
+			startOff = off
+		}
+		size += n
+		if over || size > int64(r.opt.MaxDocBytes) {
+			oversize = true
+			buf = nil
+		}
+		if !oversize {
+			if len(buf) > 0 {
+				buf = append(buf, '\n')
+			}
+			buf = append(buf, line...)
+		}
+		if err == io.EOF {
+			r.done = true
+			break
+		}
+	}
+	if oversize {
+		return Record{Issue: &ReadIssue{File: r.file, Line: start, Offset: startOff, Rule: RuleOversize, Bytes: size,
+			Msg: fmt.Sprintf("document of %d bytes exceeds max_doc_bytes %d", size, r.opt.MaxDocBytes), DocID: r.defaultID(start)}}, nil
+	}
+	s, bad := repairUTF8(string(buf))
+	d := r.newDoc(s, "", start)
+	if bad {
+		return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}, nil
+	}
+	return Record{Doc: d}, nil
+}
+
+// OpenFile opens path for reading; "-" is standard input.
+func OpenFile(path string) (io.ReadCloser, error) {
+	if path == "-" {
+		return io.NopCloser(os.Stdin), nil
+	}
+	return os.Open(path)
+}

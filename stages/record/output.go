@@ -1,0 +1,255 @@
+package record
+
+import (
+	"fmt"
+	"path/filepath"
+	"sort"
+
+	"winnow/stages/jsonl"
+
+	"winnow/shard"
+	"winnow/stages"
+)
+
+// OutputFile describes one written output shard in the manifest.
+type OutputFile struct {
+	Path   string           `json:"path"`
+	Docs   int64            `json:"docs"`
+	Tokens int64            `json:"tokens"`
+	Bytes  int64            `json:"bytes"`
+	XXH3   string           `json:"xxh3"`
+	Source map[string]int64 `json:"source_tokens,omitempty"`
+	// SourceDocs counts the shard's lines per source.
+	SourceDocs map[string]int64 `json:"source_docs,omitempty"`
+	// TokenFile is the shard's flat token-id file (output.token_files).
+	TokenFile *shard.TokenFile `json:"token_file,omitempty"`
+}
+
+// OutputReport is what a sink tells the manifest when it closes.
+type OutputReport struct {
+	Files []OutputFile `json:"files"`
+	// Mix describes per-source availability and use (tokens available,
+	// used, epochs); nil when no mix was configured. It holds a
+	// *shard.MixReport.
+	Mix any `json:"mix,omitempty"`
+	// Edits are ledger records the sink produced (e.g. split documents).
+	Edits []LedgerRecord `json:"-"`
+}
+
+// Sink receives the documents that survived every stage, in input order,
+// on one goroutine.
+type Sink interface {
+	Add(d *stages.Doc) error
+	// Close finishes all shards and reports them.
+	Close() (*OutputReport, error)
+	// Abort removes unfinished files.
+	Abort()
+}
+
+// OutputLedgerStage is the ledger stage name of the sink's edit records
+// (documents split at paragraph boundaries).
+const OutputLedgerStage = "output"
+
+// outputConfig is the parsed "output" mapping (without "dir").
+type outputConfig struct {
+	tokenizer   string
+	tok         *shard.Tokenizer
+	shardTokens int64
+	shardBytes  int64
+	splitTokens int64
+	mix         map[string]float64
+	budget      int64
+	maxEpochs   int64
+	tokenFiles  bool
+	metaKeys    []string // nil: all
+}
+
+// OutputStage returns the tokenize stage that output.tokenizer
+// implies, or nil when the output section names no tokenizer. p is the
+// spec's output mapping; every output key is read (so that a later
+// OpenSink on the same mapping reports the same errors) and Done is
+// called.
+func OutputStage(p *stages.Params, env stages.Env) (stages.Stage, error) {
+	if p == nil {
+		return nil, nil
+	}
+	c, err := parseOutput(p, env)
+	if err != nil {
+		return nil, err
+	}
+	if c.tok == nil {
+		return nil, nil
+	}
+	return stages.NewTokenizeStage(c.tok), nil
+}
+
+// parseOutput reads every key of the output mapping, so that Done reports
+// only true unknowns, and loads the tokenizer. Keys:
+//
+//	tokenizer      encoding name (cl100k_base, o200k_base, r50k_base,
+//	               p50k_base, p50k_edit, gpt2, or a model name) or the path
+//	               of a byte-level BPE tokenizer.json (relative to the spec)
+//	shard_tokens   tokens per shard, ±1% (default 1,000,000)
+//	shard_bytes    uncompressed bytes per shard without a tokenizer
+//	               (default 256 MiB)
+//	split_tokens   documents longer than this are split at paragraph
+//	               boundaries before mixing (default shard_tokens/100 with
+//	               a mix, shard_tokens without)
+//	mix            {source: share} target token shares (normalized)
+//	budget_tokens  total output tokens (default: as many as the mix allows)
+//	max_epochs     up-sampling limit by whole-document repetition (default 1)
+//	token_files    also write flat token-id files per shard (default false)
+//	meta_keys      meta keys written into shard lines (default: all)
+func parseOutput(p *stages.Params, env stages.Env) (*outputConfig, error) {
+	c := &outputConfig{}
+	c.tokenizer = p.String("tokenizer", "")
+	c.shardTokens = p.Int("shard_tokens", shard.DefaultShardTokens, 100, 1<<40)
+	c.shardBytes = p.Int("shard_bytes", shard.DefaultShardBytes, 1<<10, 1<<40)
+	c.splitTokens = p.Int("split_tokens", 0, 0, 1<<40)
+	c.mix = p.FloatMap("mix")
+	c.budget = p.Int("budget_tokens", 0, 0, 1<<50)
+	c.maxEpochs = p.Int("max_epochs", 1, 1, 1000)
+	c.tokenFiles = p.Bool("token_files", false)
+	if p.Has("meta_keys") {
+		c.metaKeys = p.Strings("meta_keys", nil)
+		if c.metaKeys == nil {
+			c.metaKeys = []string{}
+		}
+	}
+	if c.tokenizer != "" {
+		tok, err := shard.Load(c.tokenizer, env.SpecDir)
+		if err != nil {
+			p.Fail("tokenizer", err)
+		}
+		c.tok = tok
+		if p.Has("shard_bytes") {
+			p.Errorf("shard_bytes", "applies only without output.tokenizer (shards are cut by shard_tokens)")
+		}
+	} else {
+		for _, k := range []string{"shard_tokens", "mix", "budget_tokens", "token_files", "split_tokens", "max_epochs"} {
+			if p.Has(k) {
+				p.Errorf(k, "needs output.tokenizer")
+			}
+		}
+	}
+	if c.mix != nil {
+		var sum float64
+		for _, k := range sortedStrings(c.mix) {
+			if v := c.mix[k]; v < 0 {
+				p.Errorf("mix", "share of %q is %v: shares must not be negative", k, v)
+			}
+			sum += c.mix[k]
+		}
+		if sum <= 0 {
+			p.Errorf("mix", "shares sum to %v: want a positive total", sum)
+		}
+	}
+	if c.splitTokens > c.shardTokens {
+		p.Errorf("split_tokens", "%d is larger than shard_tokens %d", c.splitTokens, c.shardTokens)
+	}
+	if err := p.Done(); err != nil {
+		return nil, err
+	}
+	return c, nil
+}
+
+func sortedStrings[V any](m map[string]V) []string {
+	out := make([]string, 0, len(m))
+	for k := range m {
+		out = append(out, k)
+	}
+	sort.Strings(out)
+	return out
+}
+
+// OpenSink builds the sink for a run from the spec's "output" section
+// (the "dir" key is read by the spec loader and marked known). name is the
+// spec's name, used as the shard file prefix; shards go to
+// env.RunDir/shards/. Under env.Checking it validates and returns a sink
+// that writes nothing.
+func OpenSink(p *stages.Params, env stages.Env, name string) (Sink, error) {
+	c, err := parseOutput(p, env)
+	if err != nil {
+		return nil, err
+	}
+	if env.Checking {
+		return discardSink{}, nil
+	}
+	tmp := env.TempDir
+	if tmp == "" {
+		tmp = filepath.Join(env.RunDir, ".work")
+	}
+	b, err := shard.NewBuilder(shard.Options{
+		Dir:          filepath.Join(env.RunDir, "shards"),
+		Name:         name,
+		Tokenizer:    c.tok,
+		ShardTokens:  c.shardTokens,
+		ShardBytes:   c.shardBytes,
+		SplitTokens:  c.splitTokens,
+		Mix:          c.mix,
+		BudgetTokens: c.budget,
+		MaxEpochs:    int(c.maxEpochs),
+		TokenFiles:   c.tokenFiles,
+		MetaKeys:     c.metaKeys,
+		Seed:         env.Seed,
+		TempDir:      tmp,
+		MemoryBudget: env.MemoryBudget,
+	})
+	if err != nil {
+		return nil, fmt.Errorf("output: %w", err)
+	}
+	return &shardSink{b: b}, nil
+}
+
+// discardSink is the sink of `winnow check`.
+type discardSink struct{}
+
+func (discardSink) Add(*stages.Doc) error         { return nil }
+func (discardSink) Close() (*OutputReport, error) { return &OutputReport{Files: []OutputFile{}}, nil }
+func (discardSink) Abort()                        {}
+
+// shardSink adapts a shard.Builder to the runner.
+type shardSink struct {
+	b *shard.Builder
+	d shard.Doc
+}
+
+// Add hands one surviving document to the builder.
+func (s *shardSink) Add(d *stages.Doc) error {
+	s.d = shard.Doc{ID: d.ID, Text: d.Text, Source: d.Source, File: d.File, Line: d.Line, Tokens: d.Tokens, Meta: d.Meta}
+	return s.b.Add(&s.d)
+}
+
+// Close writes the shards and converts the report for the manifest and
+// the ledger.
+func (s *shardSink) Close() (*OutputReport, error) {
+	rep, err := s.b.Close()
+	if err != nil {
+		return nil, err
+	}
+	out := &OutputReport{Files: make([]OutputFile, 0, len(rep.Files))}
+	for _, f := range rep.Files {
+		out.Files = append(out.Files, OutputFile{Path: f.Path, Docs: f.Docs, Tokens: f.Tokens, Bytes: f.Bytes, XXH3: f.XXH3,
+			Source: f.SourceTokens, SourceDocs: f.SourceDocs, TokenFile: f.TokenFile})
+	}
+	if rep.Mix != nil {
+		out.Mix = rep.Mix
+	}
+	for _, sp := range rep.Splits {
+		out.Edits = append(out.Edits, LedgerRecord{
+			Doc: sp.Doc, Source: sp.Source, File: sp.File, Line: sp.Line, Stage: OutputLedgerStage,
+			Rule: sp.Rule, Action: "edit", Changes: map[string]int{"pieces": len(sp.Pieces)},
+			Extra: map[string]any{"reason": sp.Reason, "pieces": sp.Pieces, "tokens": sp.Tokens},
+		})
+	}
+	return out, nil
+}
+
+// Abort removes unfinished files.
+func (s *shardSink) Abort() { s.b.Abort() }
+
+// AppendDocJSON appends d as one shard line:
+// {"id","text","source","tokens",<meta keys sorted>}.
+func AppendDocJSON(b []byte, d *stages.Doc) []byte {
+	return jsonl.AppendDocLine(b, d.ID, d.Text, d.Source, d.Tokens, d.Meta, nil)
+}

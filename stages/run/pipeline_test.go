@@ -1,0 +1,333 @@
+package run
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strings"
+	"testing"
+
+	"github.com/klauspost/compress/zstd"
+
+	"winnow/stages"
+	"winnow/stages/read"
+	"winnow/stages/spec"
+)
+
+// writeCorpus writes n small JSONL documents over two zstd files and
+// returns the directory.
+func writeCorpus(t *testing.T, n int) string {
+	t.Helper()
+	dir := t.TempDir()
+	for f := 0; f < 2; f++ {
+		var b bytes.Buffer
+		for i := f; i < n; i += 2 {
+			text := fmt.Sprintf("Hull %d:  check the keel bolts\r\nand the rudder bearing  %d.", i, i*31%17)
+			if i%7 == 0 {
+				text = "x"
+			}
+			fmt.Fprintf(&b, `{"id":"doc-%d","text":%q,"site":"yard-%d"}`+"\n", i, text, i%3)
+		}
+		var z bytes.Buffer
+		w, _ := zstd.NewWriter(&z)
+		w.Write(b.Bytes())
+		w.Close()
+		writeFile(t, dir, fmt.Sprintf("raw/part-%d.jsonl.zst", f), z.String())
+	}
+	return dir
+}
+
+func writeSpec(t *testing.T, dir, body string) *spec.Spec {
+	t.Helper()
+	p := writeFile(t, dir, "spec.yaml", body)
+	s, err := spec.LoadSpec(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+const basicSpec = `name: basic
+seed: 1
+inputs:
+  - source: yard
+    paths: ["raw/*.zst"]
+stages:
+  - kind: normalize
+  - kind: length
+    min_chars: 5
+output:
+  dir: out
+`
+
+// readZstdLines returns the decompressed content of a .zst file.
+func readZstd(t *testing.T, path string) string {
+	t.Helper()
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	d, _ := zstd.NewReader(f)
+	defer d.Close()
+	b, err := io.ReadAll(d)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return string(b)
+}
+
+var secondsRE = regexp.MustCompile(`"seconds": [0-9.e+-]+`)
+
+// runDirDigest returns every file of a run directory with timings blanked.
+func runDirDigest(t *testing.T, dir string) map[string]string {
+	t.Helper()
+	out := map[string]string{}
+	filepath.Walk(dir, func(p string, info os.FileInfo, err error) error {
+		if err != nil || info.IsDir() {
+			return err
+		}
+		rel, _ := filepath.Rel(dir, p)
+		b, _ := os.ReadFile(p)
+		if rel == "manifest.json" {
+			b = secondsRE.ReplaceAll(b, []byte(`"seconds": 0`))
+		}
+		out[rel] = string(b)
+		return nil
+	})
+	return out
+}
+
+// Same inputs, spec and seed give byte-identical run directories, whatever
+// the number of workers.
+func TestRunDeterministicAcrossWorkers(t *testing.T) {
+	dir := writeCorpus(t, 3000)
+	s := writeSpec(t, dir, basicSpec)
+	var first map[string]string
+	for _, w := range []int{1, 4, 3} {
+		out := filepath.Join(dir, fmt.Sprintf("out-%d", w))
+		res, err := RunSpec(context.Background(), s, RunOptions{Out: out, Workers: w, Version: "test"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Manifest.Totals.DocsOut != 3000-3000/7-1 {
+			t.Errorf("workers %d: %d docs out", w, res.Manifest.Totals.DocsOut)
+		}
+		got := runDirDigest(t, out)
+		if first == nil {
+			first = got
+			continue
+		}
+		if len(got) != len(first) {
+			t.Fatalf("workers %d: %d files, want %d", w, len(got), len(first))
+		}
+		for k, v := range first {
+			if got[k] != v {
+				t.Errorf("workers %d: %s differs", w, k)
+			}
+		}
+	}
+	// Output order is input order: file 0's documents, then file 1's.
+	shard := readZstd(t, filepath.Join(dir, "out-1", "shards", "basic-00000.jsonl.zst"))
+	lines := strings.Split(strings.TrimSpace(shard), "\n")
+	var d struct{ ID, Text, Site string }
+	json.Unmarshal([]byte(lines[0]), &d)
+	if d.ID != "doc-2" || d.Text != "Hull 2: check the keel bolts\nand the rudder bearing 11." || d.Site != "yard-2" {
+		t.Errorf("first shard line %s", lines[0])
+	}
+	json.Unmarshal([]byte(lines[len(lines)-1]), &d)
+	if d.ID != "doc-2999" {
+		t.Errorf("last line %s", lines[len(lines)-1])
+	}
+	// The ledger names every dropped document with the rule and limit.
+	led := readZstd(t, filepath.Join(dir, "out-1", "ledger", "length.jsonl.zst"))
+	if n := strings.Count(led, `"rule":"min_chars"`); n != 3000/7+1 {
+		t.Errorf("%d min_chars records", n)
+	}
+	if !strings.Contains(led, `{"doc":"doc-0","source":"yard","file":"raw/part-0.jsonl.zst","line":1,"stage":"length","rule":"min_chars","action":"drop","value":1,"limit":5}`) {
+		t.Errorf("ledger record shape: %s", strings.SplitN(led, "\n", 2)[0])
+	}
+}
+
+func TestRunDirRefusals(t *testing.T) {
+	dir := writeCorpus(t, 10)
+	s := writeSpec(t, dir, basicSpec)
+	// An output directory that contains an input.
+	if _, err := RunSpec(context.Background(), s, RunOptions{Out: dir}); err == nil || !strings.Contains(err.Error(), "contains input") {
+		t.Errorf("out containing input: %v", err)
+	}
+	// A directory with other content.
+	other := t.TempDir()
+	os.WriteFile(filepath.Join(other, "notes.txt"), []byte("x"), 0o644)
+	if _, err := RunSpec(context.Background(), s, RunOptions{Out: other}); err == nil || !strings.Contains(err.Error(), "--force") {
+		t.Errorf("non-run dir: %v", err)
+	}
+	// A different run.
+	out := filepath.Join(dir, "o")
+	if _, err := RunSpec(context.Background(), s, RunOptions{Out: out}); err != nil {
+		t.Fatal(err)
+	}
+	s2 := writeSpec(t, dir, strings.Replace(basicSpec, "seed: 1", "seed: 2", 1))
+	if _, err := RunSpec(context.Background(), s2, RunOptions{Out: out}); err == nil || !strings.Contains(err.Error(), "different run") {
+		t.Errorf("different run: %v", err)
+	}
+	if _, err := RunSpec(context.Background(), s2, RunOptions{Out: out, Force: true}); err != nil {
+		t.Errorf("--force: %v", err)
+	}
+	// The same spec again is allowed and replaces the run.
+	if _, err := RunSpec(context.Background(), s2, RunOptions{Out: out}); err != nil {
+		t.Errorf("rerun: %v", err)
+	}
+}
+
+func TestSpecErrorsNameLineColumnAndSuggest(t *testing.T) {
+	dir := writeCorpus(t, 4)
+	cases := []struct{ spec, want string }{
+		{strings.Replace(basicSpec, "    min_chars: 5", "    min_chras: 5", 1), `spec.yaml:9:5: spec.stages[1].min_chras: unknown key (did you mean "min_chars"?)`},
+		{strings.Replace(basicSpec, "    min_chars: 5", "    min_chars: lots", 1), `spec.yaml:9:16: spec.stages[1].min_chars: want an integer, got "lots"`},
+		{strings.Replace(basicSpec, "    min_chars: 5", "    min_chars: -5", 1), `stages[1].min_chars: -5 is out of range`},
+		{strings.Replace(basicSpec, "seed: 1", "sede: 1", 1), `spec.yaml:2:1: spec.sede: unknown key (did you mean "seed"?)`},
+		{strings.Replace(basicSpec, "kind: length", "kind: lenght", 1), `unknown stage kind "lenght" (did you mean "length"?)`},
+		{strings.Replace(basicSpec, "    paths:", "    pathz:", 1), `spec.inputs[0].pathz: unknown key (did you mean "paths"?)`},
+	}
+	for _, c := range cases {
+		p := writeFile(t, dir, "spec.yaml", c.spec)
+		s, err := spec.LoadSpec(p)
+		if err == nil {
+			_, err = s.BuildStages(stages.Env{Checking: true})
+		}
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("got %v\nwant %s", err, c.want)
+		}
+	}
+}
+
+func TestMissingInputsFailBeforeWork(t *testing.T) {
+	dir := writeCorpus(t, 4)
+	os.MkdirAll(filepath.Join(dir, "emptydir"), 0o755)
+	for _, paths := range []string{`["raw/nothing-*.zst"]`, `["raw/missing.jsonl"]`, `["emptydir"]`} {
+		s := writeSpec(t, dir, strings.Replace(basicSpec, `["raw/*.zst"]`, paths, 1))
+		_, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out-missing")})
+		if err == nil {
+			t.Errorf("%s: no error", paths)
+			continue
+		}
+		if _, statErr := os.Stat(filepath.Join(dir, "out-missing")); statErr == nil {
+			t.Errorf("%s: output directory created before the error", paths)
+		}
+	}
+}
+
+// A truncated input keeps what came before the break and names the file
+// and offset in the manifest errors.
+func TestRunTruncatedInputRecorded(t *testing.T) {
+	dir := writeCorpus(t, 16000)
+	p := filepath.Join(dir, "raw", "part-1.jsonl.zst")
+	b, _ := os.ReadFile(p)
+	os.WriteFile(p, b[:len(b)*9/10], 0o644)
+	s := writeSpec(t, dir, basicSpec)
+	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out")})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Runner.FatalInputs != 1 {
+		t.Errorf("fatal inputs %d", res.Runner.FatalInputs)
+	}
+	var found bool
+	for _, e := range res.Manifest.Errors {
+		if e.File == "raw/part-1.jsonl.zst" && e.Fatal && e.Offset > 0 && strings.Contains(e.Message, "zstd") {
+			found = true
+		}
+	}
+	if !found {
+		t.Errorf("errors %+v", res.Manifest.Errors)
+	}
+	if in := res.Manifest.Inputs[1]; in.Complete || in.Docs == 0 || in.Docs >= 8000 {
+		t.Errorf("input summary %+v", in)
+	}
+	// The broken file is also a read record in the ledger.
+	led := readZstd(t, filepath.Join(dir, "out", "ledger", "read.jsonl.zst"))
+	if !strings.Contains(led, `"file":"raw/part-1.jsonl.zst"`) || !strings.Contains(led, `"rule":"broken_input"`) || !strings.Contains(led, `"offset":`) {
+		t.Errorf("read ledger: %s", led)
+	}
+}
+
+// Cancelling mid-run flushes the ledger of what was decided and marks the
+// manifest interrupted.
+func TestRunInterrupted(t *testing.T) {
+	dir := writeCorpus(t, 20000)
+	s := writeSpec(t, dir, basicSpec)
+	// Cancel before start: the run must stop at once and still be valid.
+	ctx2, cancel2 := context.WithCancel(context.Background())
+	cancel2()
+	res, err := RunSpec(ctx2, s, RunOptions{Out: filepath.Join(dir, "out2"), Workers: 2})
+	if err == nil || res == nil || !res.Manifest.Interrupted {
+		t.Fatalf("want interrupted run, got %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "out2", "manifest.json")); err != nil {
+		t.Errorf("manifest missing: %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "out2", "ledger", "length.jsonl.zst")); err != nil {
+		t.Errorf("ledger missing: %v", err)
+	}
+}
+
+// "-" reads standard input.
+func TestRunFromStdin(t *testing.T) {
+	dir := t.TempDir()
+	pr, pw, err := os.Pipe()
+	if err != nil {
+		t.Fatal(err)
+	}
+	old := os.Stdin
+	os.Stdin = pr
+	defer func() { os.Stdin = old }()
+	go func() {
+		zw, _ := zstd.NewWriter(pw)
+		for i := 0; i < 500; i++ {
+			fmt.Fprintf(zw, `{"text":"Stdin document %d about mooring lines."}`+"\n", i)
+		}
+		zw.Close()
+		pw.Close()
+	}()
+	s := writeSpec(t, dir, strings.Replace(basicSpec, `["raw/*.zst"]`, `["-"]`, 1))
+	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out")})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Manifest.Totals.DocsOut != 500 || res.Manifest.Inputs[0].Path != "-" || res.Manifest.Inputs[0].Codec != read.CodecZstd {
+		t.Errorf("manifest %+v %+v", res.Manifest.Totals, res.Manifest.Inputs)
+	}
+	shard := readZstd(t, filepath.Join(dir, "out", "shards", "basic-00000.jsonl.zst"))
+	if !strings.Contains(shard, `"id":"yard/-:500"`) {
+		t.Errorf("stdin ids: %.200s", shard)
+	}
+}
+
+// A --set override is part of the manifest's config and config hash, so
+// the manifest says what really ran.
+func TestSetOverrideRecordedInConfig(t *testing.T) {
+	dir := writeCorpus(t, 50)
+	s := writeSpec(t, dir, basicSpec)
+	base := s.ConfigHash
+	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out"), Sets: []string{"length.min_chars=40"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Manifest.ConfigHash == base {
+		t.Error("config hash unchanged by --set")
+	}
+	st := res.Manifest.Config.(map[string]any)["stages"].([]any)[1].(map[string]any)
+	if st["min_chars"] != 40 {
+		t.Errorf("config stage %v", st)
+	}
+	led := readZstd(t, filepath.Join(dir, "out", "ledger", "length.jsonl.zst"))
+	if !strings.Contains(led, `"limit":40`) {
+		t.Errorf("override not applied: %.200s", led)
+	}
+}

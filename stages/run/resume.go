@@ -1,0 +1,157 @@
+package run
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+
+	"winnow/stages"
+	"winnow/stages/fsio"
+	"winnow/stages/record"
+)
+
+// Resuming a run. After every segment but the last (that is, once a
+// global stage has seen all its documents) the runner ends a zstd frame in
+// every ledger and metrics file and writes OUT/.work/checkpoint.json: where
+// each file stood, the counters so far, and the spill holding the
+// segment's surviving documents. `winnow run --resume` after an
+// interruption or a crash reopens the files at those sizes, rebuilds the
+// global stage's keys by scanning the spill again (Scan is pure and far
+// cheaper than the per-document stages that produced the spill), and goes
+// on with the next segment. Because frames end at the same places in every
+// run, a resumed run directory is byte-identical to an uninterrupted one.
+//
+// What is not resumed: work inside a segment (an interrupted segment starts
+// over), a pipeline without global stages (it has one segment), and a
+// checkpoint after a stage that aggregates a run-wide report (an Observer
+// or Finisher) in a finished segment, whose state is not saved: such a run
+// is refused with a message and must be re-run.
+
+const checkpointFile = "checkpoint.json"
+
+type checkpoint struct {
+	ConfigHash  string               `json:"config_hash"`
+	Segment     int                  `json:"segment"`
+	Spill       string               `json:"spill"`
+	Ledger      []record.StreamState `json:"ledger"`
+	LedgerCount map[string]int64     `json:"ledger_count"`
+	Metrics     []record.StreamState `json:"metrics"`
+	Read        *Counters            `json:"read"`
+	Counters    []*Counters          `json:"counters"`
+	Inputs      []InputSummary       `json:"inputs"`
+	Errors      []RunError           `json:"errors"`
+	ErrCount    int64                `json:"error_count"`
+	FatalInputs int                  `json:"fatal_inputs"`
+}
+
+// setFrom copies the flow counts and time of a checkpointed counter.
+func (c *Counters) setFrom(o *Counters) {
+	c.DocsIn, c.DocsOut, c.BytesIn, c.BytesOut = o.DocsIn, o.DocsOut, o.BytesIn, o.BytesOut
+	c.TokensOut, c.Dropped, c.Edited, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Seconds
+	c.nanos.Store(int64(o.Seconds * 1e9))
+}
+
+// writeCheckpoint records the state after segment si, whose survivors are
+// in spill.
+func (r *Runner) writeCheckpoint(si int, spill string) error {
+	led, err := r.ledger.Checkpoint()
+	if err != nil {
+		return err
+	}
+	met, err := r.metrics.Checkpoint()
+	if err != nil {
+		return err
+	}
+	cp := checkpoint{ConfigHash: r.Spec.ConfigHash, Segment: si, Spill: spill, Ledger: led, LedgerCount: r.ledger.Counts(),
+		Metrics: met, Read: r.Read.snapshot(), Inputs: r.InputSums, Errors: r.Errors, ErrCount: r.ErrCount, FatalInputs: r.FatalInputs}
+	for _, c := range r.Counters {
+		s := c.snapshot()
+		s.Seconds = float64(c.nanos.Load()) / 1e9
+		cp.Counters = append(cp.Counters, s)
+	}
+	b, err := json.Marshal(cp)
+	if err != nil {
+		return err
+	}
+	return fsio.WriteFileAtomic(filepath.Join(r.Env.TempDir, checkpointFile), b)
+}
+
+// ErrNoCheckpoint is returned by --resume when there is nothing to resume.
+var ErrNoCheckpoint = errors.New("nothing to resume: the run directory holds no checkpoint (a run checkpoints after each global stage's scan; run again without --resume)")
+
+// loadCheckpoint reads the checkpoint of an interrupted run in tempDir.
+func loadCheckpoint(tempDir, configHash string) (*checkpoint, error) {
+	b, err := os.ReadFile(filepath.Join(tempDir, checkpointFile))
+	if errors.Is(err, os.ErrNotExist) {
+		return nil, ErrNoCheckpoint
+	}
+	if err != nil {
+		return nil, err
+	}
+	var cp checkpoint
+	if err := json.Unmarshal(b, &cp); err != nil {
+		return nil, fmt.Errorf("checkpoint: %w", err)
+	}
+	if cp.ConfigHash != configHash {
+		return nil, fmt.Errorf("checkpoint belongs to config %s, the spec is %s: run again without --resume", cp.ConfigHash, configHash)
+	}
+	if _, err := os.Stat(cp.Spill); err != nil {
+		return nil, fmt.Errorf("checkpoint spill: %w", err)
+	}
+	return &cp, nil
+}
+
+// restore puts the runner in the state the checkpoint recorded and
+// rebuilds the global stage scanned at the end of the checkpointed segment.
+func (r *Runner) restore(cp *checkpoint, segs []segment) error {
+	if cp.Segment >= len(segs)-1 || len(cp.Counters) != len(r.Counters) {
+		return fmt.Errorf("checkpoint does not match the pipeline (segment %d of %d)", cp.Segment, len(segs))
+	}
+	for si := 0; si <= cp.Segment; si++ {
+		steps := segs[si].steps
+		if segs[si].apply >= 0 {
+			steps = append([]int{segs[si].apply}, steps...)
+		}
+		for _, i := range steps {
+			obj := stageOf(r.Steps[i])
+			_, obs := obj.(stages.Observer)
+			_, fin := obj.(stages.Finisher)
+			if obs || fin {
+				return fmt.Errorf("cannot resume: stage %s, before the checkpoint, keeps a run-wide report that is not saved; run again without --resume", r.Steps[i].Name)
+			}
+		}
+	}
+	r.ledger = record.NewLedger(r.ledger.Dir())
+	if err := r.ledger.Resume(cp.Ledger); err != nil {
+		return err
+	}
+	for k, v := range cp.LedgerCount {
+		r.ledger.SetCount(k, v)
+	}
+	r.metrics = record.NewMetrics(r.metrics.Dir())
+	if err := r.metrics.Resume(cp.Metrics); err != nil {
+		return err
+	}
+	for _, c := range r.Counters {
+		if err := r.ledger.Open(c.Name); err != nil {
+			return err
+		}
+	}
+	r.Read.setFrom(cp.Read)
+	for i, c := range cp.Counters {
+		r.Counters[i].setFrom(c)
+	}
+	r.InputSums, r.Errors, r.ErrCount, r.FatalInputs = cp.Inputs, cp.Errors, cp.ErrCount, cp.FatalInputs
+	// Rebuild the global stage's keys from the spill, in input order.
+	g := r.Steps[segs[cp.Segment].scan].Global
+	if err := forEachSpilled(cp.Spill, func(d *stages.Doc) error { return g.Collect(d.Order, d.ID, g.Scan(d)) }); err != nil {
+		return err
+	}
+	if err := g.Reduce(); err != nil {
+		return fmt.Errorf("stage %s: %w", r.Steps[segs[cp.Segment].scan].Name, err)
+	}
+	r.logf("resumed after segment %d of %d (stage %s): its documents are not read or filtered again", cp.Segment+1, len(segs), r.Steps[segs[cp.Segment].scan].Name)
+	return nil
+}

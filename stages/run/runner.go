@@ -1,0 +1,874 @@
+package run
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"runtime"
+	"sync"
+	"sync/atomic"
+	"time"
+
+	"winnow/stages"
+	"winnow/stages/fsio"
+	"winnow/stages/read"
+	"winnow/stages/record"
+	"winnow/stages/spec"
+)
+
+// The runner splits a pipeline into segments at its global stages. A
+// segment reads documents (from the inputs, or from the previous segment's
+// spill), applies the previous global stage's decisions, runs the
+// per-document stages on a pool of workers, and either scans the survivors
+// for the next global stage (spilling them) or hands them to the sink.
+// Workers process batches in any order; one collector goroutine restores
+// input order before anything is written, so every output file is the same
+// whatever the number of workers.
+
+// Tuning constants of the runner.
+const (
+	batchDocs         = 256     // documents per work unit: amortises channel costs
+	batchBytes        = 4 << 20 // ...or this much text, whichever comes first
+	inflightPerWorker = 4       // batches in flight per worker: bounds the reorder buffer
+	maxManifestErrors = 1000    // errors listed in the manifest; the ledger keeps all
+)
+
+// Counters are a stage's document flow, written to the manifest.
+type Counters struct {
+	Name      string  `json:"name"`
+	Kind      string  `json:"kind"`
+	DocsIn    int64   `json:"docs_in"`
+	DocsOut   int64   `json:"docs_out"`
+	BytesIn   int64   `json:"bytes_in"`
+	BytesOut  int64   `json:"bytes_out"`
+	TokensOut int64   `json:"tokens_out,omitempty"`
+	Dropped   int64   `json:"dropped"`
+	Edited    int64   `json:"edited"`
+	Seconds   float64 `json:"seconds"`
+	nanos     atomic.Int64
+}
+
+func (c *Counters) snapshot() *Counters {
+	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds}
+}
+
+// RunError is an input problem recorded in the manifest.
+type RunError struct {
+	File    string `json:"file"`
+	Line    int64  `json:"line,omitempty"`
+	Offset  int64  `json:"offset,omitempty"`
+	Rule    string `json:"rule,omitempty"`
+	Message string `json:"message"`
+	// Fatal is true when the rest of the file could not be read.
+	Fatal bool `json:"fatal"`
+}
+
+// InputSummary is one input file in the manifest.
+type InputSummary struct {
+	Path        string      `json:"path"`
+	Source      string      `json:"source"`
+	Bytes       int64       `json:"bytes"`
+	XXH3        string      `json:"xxh3"`
+	Codec       read.Codec  `json:"codec"`
+	Format      read.Format `json:"format"`
+	Docs        int64       `json:"docs"`
+	Issues      int64       `json:"issues"`
+	InvalidUTF8 int64       `json:"invalid_utf8"`
+	Skipped     int64       `json:"skipped_records,omitempty"`
+	Complete    bool        `json:"complete"`
+}
+
+// Progress is a snapshot of a running pipeline, for progress lines.
+type Progress struct {
+	Segment, Segments int
+	Docs              int64
+	RawBytes          int64 // input bytes consumed (compressed), segment 0
+	TotalRaw          int64 // total input bytes when known
+	TextBytes         int64 // decompressed text bytes read
+	Elapsed           time.Duration
+}
+
+// Runner executes a pipeline.
+type Runner struct {
+	Spec    *spec.Spec
+	Steps   []spec.Step
+	Inputs  []read.InputFile
+	Sink    record.Sink
+	Env     stages.Env
+	Workers int
+	// OnProgress, when set, is called about once a second.
+	OnProgress func(Progress)
+	// Log receives warnings (one line each).
+	Log func(format string, args ...any)
+	// Resume continues an interrupted run from its last checkpoint.
+	Resume bool
+	// stopAfter, when > 0, cancels the run after that many segments
+	// (tests of resuming).
+	stopAfter int
+
+	ledger  *record.Ledger
+	metrics *record.Metrics
+
+	// Results, filled by Run.
+	Read      Counters
+	Counters  []*Counters
+	Write     Counters
+	InputSums []InputSummary
+	Errors    []RunError
+	ErrCount  int64
+	Output    *record.OutputReport
+	// Interrupted is set when the context was cancelled mid-run.
+	Interrupted bool
+	// FatalInputs counts inputs that could not be read to their end.
+	FatalInputs int
+
+	prog struct {
+		docs, raw, text atomic.Int64
+		seg             atomic.Int64
+	}
+}
+
+type item struct {
+	rec       docRecord
+	input     int
+	readBytes int // text bytes as read, before any stage edited them
+}
+
+// docRecord is a read.Record whose document is a stages.Doc.
+type docRecord struct {
+	Doc   *stages.Doc
+	Issue *read.ReadIssue
+}
+
+type batch struct {
+	seq   int64
+	items []item
+	outs  []docOutcome
+}
+
+type stepResult struct {
+	step     int
+	dec      stages.Decision
+	shadow   bool
+	bytesIn  int
+	bytesOut int
+	dropBy   string
+}
+
+type docOutcome struct {
+	results []stepResult
+	keys    any
+	dropped bool
+}
+
+// segment is a run of steps ending at a global stage (scan) or the sink.
+type segment struct {
+	apply int   // index of the global step applied at the start, or -1
+	steps []int // per-document steps
+	scan  int   // index of the global step scanned at the end, or -1
+}
+
+func (r *Runner) segments() []segment {
+	var segs []segment
+	cur := segment{apply: -1, scan: -1}
+	for i, s := range r.Steps {
+		if s.Global != nil {
+			cur.scan = i
+			segs = append(segs, cur)
+			cur = segment{apply: i, scan: -1}
+			continue
+		}
+		cur.steps = append(cur.steps, i)
+	}
+	return append(segs, cur)
+}
+
+func (r *Runner) logf(format string, args ...any) {
+	if r.Log != nil {
+		r.Log(format, args...)
+	}
+}
+
+// Run executes every segment, writes ledger and metrics under env.RunDir,
+// and fills the result fields. On cancellation it stops reading, finishes
+// the documents already decided, commits what was written and returns
+// context.Canceled with Interrupted set.
+func (r *Runner) Run(ctx context.Context) error {
+	if r.Workers <= 0 {
+		r.Workers = runtime.NumCPU()
+	}
+	r.ledger = record.NewLedger(filepath.Join(r.Env.RunDir, "ledger"))
+	r.metrics = record.NewMetrics(filepath.Join(r.Env.RunDir, "metrics"))
+	r.Read = Counters{Name: "read", Kind: "read"}
+	if err := r.ledger.Open("read"); err != nil {
+		return err
+	}
+	r.Counters = nil
+	for _, s := range r.Steps {
+		kind := ""
+		if s.Stage != nil {
+			kind = s.Stage.Kind()
+		} else {
+			kind = s.Global.Kind()
+		}
+		r.Counters = append(r.Counters, &Counters{Name: s.Name, Kind: kind})
+		if err := r.ledger.Open(s.Name); err != nil {
+			return err
+		}
+	}
+	r.Write = Counters{Name: "write", Kind: "write"}
+	start := time.Now()
+	stopProg := r.startProgress(start)
+	defer stopProg()
+
+	var cp *checkpoint
+	if r.Resume {
+		var err error
+		if cp, err = loadCheckpoint(r.Env.TempDir, r.Spec.ConfigHash); err != nil {
+			r.ledger.Abort()
+			return err
+		}
+		if err := r.restore(cp, r.segments()); err != nil {
+			r.ledger.Abort()
+			r.metrics.Abort()
+			return err
+		}
+	}
+	err := r.runSegments(ctx, cp)
+	if err == nil || errors.Is(err, context.Canceled) {
+		if r.Output == nil && r.Sink != nil {
+			out, cerr := r.Sink.Close()
+			if cerr != nil && err == nil {
+				err = cerr
+			}
+			r.Output = out
+		}
+		if r.Output != nil {
+			for i := range r.Output.Edits {
+				r.ledger.Add(&r.Output.Edits[i])
+			}
+		}
+		for _, s := range r.Steps {
+			if f, ok := stageOf(s).(stages.Finisher); ok {
+				if ferr := f.Finish(r.Env.RunDir); ferr != nil && err == nil {
+					err = ferr
+				}
+			}
+		}
+		if cerr := r.ledger.Commit(); cerr != nil && err == nil {
+			err = cerr
+		}
+		if cerr := r.metrics.Commit(); cerr != nil && err == nil {
+			err = cerr
+		}
+	} else {
+		if r.Sink != nil {
+			r.Sink.Abort()
+		}
+		r.ledger.Abort()
+		r.metrics.Abort()
+	}
+	for _, c := range r.Counters {
+		c.Seconds = float64(c.nanos.Load()) / 1e9
+	}
+	for _, s := range r.Steps {
+		if s.Global != nil {
+			s.Global.Close()
+		}
+	}
+	return err
+}
+
+func stageOf(s spec.Step) any {
+	if s.Stage != nil {
+		return s.Stage
+	}
+	return s.Global
+}
+
+func (r *Runner) startProgress(start time.Time) func() {
+	if r.OnProgress == nil {
+		return func() {}
+	}
+	var total int64
+	for _, in := range r.Inputs {
+		if in.Size > 0 {
+			total += in.Size
+		}
+	}
+	segments := len(r.segments())
+	done := make(chan struct{})
+	var wg sync.WaitGroup
+	wg.Add(1)
+	go func() {
+		defer wg.Done()
+		t := time.NewTicker(time.Second)
+		defer t.Stop()
+		for {
+			select {
+			case <-done:
+				return
+			case <-t.C:
+				r.OnProgress(Progress{Segment: int(r.prog.seg.Load()) + 1, Segments: segments,
+					Docs: r.prog.docs.Load(), RawBytes: r.prog.raw.Load(), TotalRaw: total,
+					TextBytes: r.prog.text.Load(), Elapsed: time.Since(start)})
+			}
+		}
+	}()
+	return func() { close(done); wg.Wait() }
+}
+
+func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
+	segs := r.segments()
+	var spillPath string
+	first := 0
+	if cp != nil {
+		first, spillPath = cp.Segment+1, cp.Spill
+	}
+	for si := first; si < len(segs); si++ {
+		seg := segs[si]
+		r.prog.seg.Store(int64(si))
+		r.prog.docs.Store(0)
+		var next *docSpill
+		if seg.scan >= 0 {
+			p := filepath.Join(r.Env.TempDir, fmt.Sprintf("segment-%d.spill.zst", si))
+			var err error
+			if next, err = createDocSpill(p); err != nil {
+				return err
+			}
+		}
+		var produce func(ctx context.Context, out chan<- *batch) error
+		if si == 0 {
+			produce = r.produceInputs
+		} else {
+			sp := spillPath
+			produce = func(ctx context.Context, out chan<- *batch) error { return r.produceSpill(ctx, sp, out) }
+		}
+		err := r.runSegment(ctx, seg, produce, next)
+		if next != nil {
+			if cerr := next.close(); cerr != nil && err == nil {
+				err = cerr
+			}
+		}
+		// The spill this segment read stays until the next checkpoint no
+		// longer needs it (or the run ends).
+		done := spillPath
+		if err != nil {
+			if next != nil {
+				os.Remove(next.path)
+			}
+			return err
+		}
+		if seg.scan >= 0 {
+			g := r.Steps[seg.scan].Global
+			t0 := time.Now()
+			if err := g.Reduce(); err != nil {
+				return fmt.Errorf("stage %s: %w", r.Steps[seg.scan].Name, err)
+			}
+			r.Counters[seg.scan].nanos.Add(int64(time.Since(t0)))
+			spillPath = next.path
+			// Every run checkpoints here, so frame boundaries (and so the
+			// bytes of every file) are the same whether or not it resumes.
+			if err := r.writeCheckpoint(si, spillPath); err != nil {
+				return fmt.Errorf("checkpoint: %w", err)
+			}
+		}
+		if done != "" {
+			os.Remove(done)
+		}
+		if seg.scan >= 0 {
+			if r.stopAfter > 0 && si+1 >= r.stopAfter {
+				return context.Canceled
+			}
+		}
+	}
+	return nil
+}
+
+// runSegment wires producer → workers → ordered collector.
+func (r *Runner) runSegment(ctx context.Context, seg segment, produce func(context.Context, chan<- *batch) error, spill *docSpill) error {
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	jobs := make(chan *batch, r.Workers)
+	results := make(chan *batch, r.Workers)
+	window := make(chan struct{}, r.Workers*inflightPerWorker)
+	gated := make(chan *batch)
+
+	var prodErr error
+	go func() {
+		defer close(gated)
+		src := make(chan *batch)
+		go func() {
+			defer close(src)
+			prodErr = produce(ctx, src)
+		}()
+		for b := range src {
+			window <- struct{}{}
+			gated <- b
+		}
+	}()
+	go func() {
+		defer close(jobs)
+		for b := range gated {
+			jobs <- b
+		}
+	}()
+	var wg sync.WaitGroup
+	for w := 0; w < r.Workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for b := range jobs {
+				r.work(seg, b)
+				results <- b
+			}
+		}()
+	}
+	go func() { wg.Wait(); close(results) }()
+
+	pending := map[int64]*batch{}
+	var next int64
+	var collErr error
+	for b := range results {
+		pending[b.seq] = b
+		for {
+			nb, ok := pending[next]
+			if !ok {
+				break
+			}
+			delete(pending, next)
+			next++
+			if collErr == nil {
+				if err := r.collect(seg, nb, spill); err != nil {
+					collErr = err
+					cancel()
+				}
+			}
+			<-window
+		}
+	}
+	if collErr != nil {
+		return collErr
+	}
+	if prodErr != nil {
+		return prodErr
+	}
+	return ctx.Err()
+}
+
+// work runs the segment's stages over one batch (on a worker goroutine).
+func (r *Runner) work(seg segment, b *batch) {
+	b.outs = make([]docOutcome, len(b.items))
+	for i := range b.items {
+		d := b.items[i].rec.Doc
+		if d == nil {
+			continue
+		}
+		out := &b.outs[i]
+		dropBy := ""
+		if seg.apply >= 0 {
+			t0 := nanotime()
+			dec := r.Steps[seg.apply].Global.Apply(d)
+			r.Counters[seg.apply].nanos.Add(nanotime() - t0)
+			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text)}
+			if dec.Action == stages.Drop {
+				out.results = append(out.results, res)
+				out.dropped = true
+				continue
+			}
+			applyEdit(d, &res.dec)
+			res.bytesOut = len(d.Text)
+			out.results = append(out.results, res)
+		}
+		for _, si := range seg.steps {
+			st := r.Steps[si].Stage
+			t0 := nanotime()
+			dec := st.Process(d)
+			r.Counters[si].nanos.Add(nanotime() - t0)
+			res := stepResult{step: si, dec: dec, shadow: dropBy != "", bytesIn: len(d.Text), dropBy: dropBy}
+			if dropBy == "" && dec.Action == stages.Drop {
+				dropBy = r.Steps[si].Name
+			}
+			if dec.Action == stages.Edit {
+				// Shadow documents are edited too, so later stages
+				// measure what they would have seen.
+				d.Text = dec.Text
+			}
+			if !res.shadow && dec.Action != stages.Drop {
+				mergeMeta(d, &dec)
+			}
+			res.bytesOut = len(d.Text)
+			res.dec.Text = "" // the text now lives in d; keep the batch small
+			out.results = append(out.results, res)
+		}
+		out.dropped = dropBy != ""
+		if !out.dropped && seg.scan >= 0 {
+			t0 := nanotime()
+			out.keys = r.Steps[seg.scan].Global.Scan(d)
+			r.Counters[seg.scan].nanos.Add(nanotime() - t0)
+		}
+	}
+}
+
+func applyEdit(d *stages.Doc, dec *stages.Decision) {
+	if dec.Action == stages.Edit {
+		d.Text = dec.Text
+		dec.Text = ""
+	}
+	mergeMeta(d, dec)
+}
+
+func mergeMeta(d *stages.Doc, dec *stages.Decision) {
+	for k, v := range dec.Meta {
+		d.SetMeta(k, v)
+	}
+	if dec.Tokens > 0 {
+		d.Tokens = dec.Tokens
+	}
+}
+
+var clockBase = time.Now()
+
+func nanotime() int64 { return int64(time.Since(clockBase)) }
+
+// collect writes one batch's decisions in input order (collector goroutine).
+func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
+	for i := range b.items {
+		it := &b.items[i]
+		if iss := it.rec.Issue; iss != nil {
+			if err := r.recordIssue(iss); err != nil {
+				return err
+			}
+		}
+		d := it.rec.Doc
+		if d == nil {
+			continue
+		}
+		out := &b.outs[i]
+		if seg.apply < 0 {
+			r.Read.DocsOut++
+			r.Read.BytesOut += int64(it.readBytes)
+		}
+		for _, res := range out.results {
+			if err := r.recordResult(d, res); err != nil {
+				return err
+			}
+		}
+		if out.dropped {
+			continue
+		}
+		if seg.scan >= 0 {
+			c := r.Counters[seg.scan]
+			c.DocsIn++
+			c.BytesIn += int64(len(d.Text))
+			if err := r.Steps[seg.scan].Global.Collect(d.Order, d.ID, out.keys); err != nil {
+				return fmt.Errorf("stage %s: %w", r.Steps[seg.scan].Name, err)
+			}
+			if err := spill.add(d); err != nil {
+				return err
+			}
+			continue
+		}
+		r.Write.DocsIn++
+		r.Write.BytesIn += int64(len(d.Text))
+		r.Write.TokensOut += int64(d.Tokens)
+		if r.Sink != nil {
+			if err := r.Sink.Add(d); err != nil {
+				return fmt.Errorf("write: %w", err)
+			}
+		}
+	}
+	return nil
+}
+
+func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
+	st := r.Steps[res.step]
+	c := r.Counters[res.step]
+	dec := &res.dec
+	var names []string
+	if st.Stage != nil {
+		names = st.Stage.MetricNames()
+	}
+	if len(names) > 0 && len(dec.Metrics) > 0 {
+		row := record.MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
+			Rule: dec.Rule, DroppedBy: res.dropBy, Names: names, Values: dec.Metrics}
+		if err := r.metrics.Add(st.Name, &row); err != nil {
+			return err
+		}
+	}
+	if res.shadow {
+		return nil
+	}
+	// A global stage's docs_in is counted at scan time; per-document
+	// stages count here.
+	if st.Stage != nil {
+		c.DocsIn++
+		c.BytesIn += int64(res.bytesIn)
+	}
+	switch dec.Action {
+	case stages.Drop:
+		c.Dropped++
+	case stages.Edit:
+		c.Edited++
+		c.DocsOut++
+		c.BytesOut += int64(res.bytesOut)
+	default:
+		c.DocsOut++
+		c.BytesOut += int64(res.bytesIn)
+	}
+	if st.Stage != nil {
+		if o, ok := st.Stage.(stages.Observer); ok {
+			o.Observe(d, dec)
+		}
+	} else if o, ok := st.Global.(stages.Observer); ok {
+		o.Observe(d, dec)
+	}
+	if dec.Action == stages.Keep && dec.Rule == "" {
+		return nil // a flag (keep with a rule) is still recorded
+	}
+	action := dec.Action.String()
+	if dec.Action == stages.Keep {
+		action = "flag"
+	}
+	rec := record.LedgerRecord{Doc: d.ID, Source: d.Source, File: d.File, Line: d.Line, Stage: st.Name,
+		Rule: dec.Rule, Action: action, Value: dec.Value, Limit: dec.Limit,
+		Changes: dec.Changes, Extra: dec.Extra}
+	return r.ledger.Add(&rec)
+}
+
+func (r *Runner) recordIssue(iss *read.ReadIssue) error {
+	action := "drop"
+	switch {
+	case iss.Rule == read.RuleEmptyInput:
+		r.Errors = append(r.Errors, RunError{File: iss.File, Rule: iss.Rule, Message: iss.Msg})
+		return nil
+	case iss.Fatal:
+		// Fatal errors are always listed, whatever the cap.
+		r.FatalInputs++
+		r.ErrCount++
+		r.Errors = append(r.Errors, RunError{File: iss.File, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg, Fatal: true})
+	case iss.Rule == read.RuleInvalidUTF8:
+		action = "edit"
+	default:
+		r.Read.Dropped++
+		r.ErrCount++
+		if len(r.Errors) < maxManifestErrors {
+			r.Errors = append(r.Errors, RunError{File: iss.File, Line: iss.Line, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg})
+		}
+	}
+	var extra map[string]any
+	if iss.Msg != "" {
+		extra = map[string]any{"message": iss.Msg}
+	}
+	if iss.Fatal && iss.Offset > 0 {
+		if extra == nil {
+			extra = map[string]any{}
+		}
+		extra["offset"] = iss.Offset
+	}
+	rec := record.LedgerRecord{Doc: iss.DocID, Source: iss.Source, File: iss.File, Line: iss.Line, Stage: "read", Rule: iss.Rule,
+		Action: action, Value: iss.Bytes, Extra: extra}
+	return r.ledger.Add(&rec)
+}
+
+// produceInputs reads every input file in order and emits batches.
+func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
+	var seq int64
+	cur := &batch{}
+	curBytes := 0
+	flush := func() bool {
+		if len(cur.items) == 0 {
+			return true
+		}
+		cur.seq = seq
+		seq++
+		select {
+		case out <- cur:
+		case <-ctx.Done():
+			return false
+		}
+		cur = &batch{}
+		curBytes = 0
+		return true
+	}
+	for _, in := range r.Inputs {
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		sum := InputSummary{Path: in.Display, Source: in.Options.Source}
+		err := r.readInput(ctx, in, &sum, func(rec read.Record) bool {
+			if rec.Issue != nil {
+				rec.Issue.Source = in.Options.Source
+				r.Read.DocsIn++
+				r.Read.BytesIn += rec.Issue.Bytes
+				sum.Issues++
+				if rec.Issue.Rule == read.RuleInvalidUTF8 {
+					sum.InvalidUTF8++
+				}
+			}
+			if rec.Doc != nil {
+				if rec.Issue == nil {
+					r.Read.DocsIn++
+					r.Read.BytesIn += int64(len(rec.Doc.Text))
+				}
+				sum.Docs++
+				r.prog.docs.Add(1)
+				r.prog.text.Add(int64(len(rec.Doc.Text)))
+				curBytes += len(rec.Doc.Text)
+			}
+			it := item{rec: docRecord{Issue: rec.Issue}, input: in.Index}
+			if rec.Doc != nil {
+				it.rec.Doc = stages.DocFromRead(rec.Doc)
+			}
+			if rec.Doc != nil {
+				it.readBytes = len(rec.Doc.Text)
+			}
+			cur.items = append(cur.items, it)
+			if len(cur.items) >= batchDocs || curBytes >= batchBytes {
+				return flush()
+			}
+			return true
+		})
+		// Whole-file problems go through the collector like any other
+		// issue, so the manifest and ledger are written by one goroutine.
+		if err != nil && !errors.Is(err, context.Canceled) {
+			iss := &read.ReadIssue{Source: in.Options.Source, File: in.Display, Rule: read.RuleBrokenInput, Msg: err.Error(),
+				DocID: in.Options.Source + "/" + in.Display, Fatal: true}
+			var de *read.DecodeError
+			if errors.As(err, &de) {
+				iss.Offset = de.Offset
+			}
+			cur.items = append(cur.items, item{rec: docRecord{Issue: iss}, input: in.Index})
+			r.logf("%s: %v (documents before this point are kept)", in.Display, err)
+		} else if err == nil {
+			sum.Complete = true
+			if sum.Docs == 0 && sum.Issues == 0 {
+				r.logf("%s: empty input: no documents", in.Display)
+				cur.items = append(cur.items, item{rec: docRecord{Issue: &read.ReadIssue{Source: in.Options.Source, File: in.Display,
+					Rule: read.RuleEmptyInput, Msg: "empty input: no documents"}}, input: in.Index})
+			}
+		}
+		if !flush() {
+			return ctx.Err()
+		}
+		if errors.Is(err, context.Canceled) {
+			r.InputSums = append(r.InputSums, sum)
+			return err
+		}
+		r.InputSums = append(r.InputSums, sum)
+	}
+	return nil
+}
+
+// readInput opens, decodes and parses one input, calling emit per record.
+// emit returns false to stop (cancellation).
+func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *InputSummary, emit func(read.Record) bool) error {
+	f, err := read.OpenFile(in.Path)
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	opt := *in.Options
+	var rr read.RecordReader
+	var raw *read.RawCounter
+	if opt.Format == read.FormatParquet || (opt.Format == read.FormatAuto && read.GuessFormat(in.Path, nil) == read.FormatParquet) {
+		osf, ok := f.(*os.File)
+		if !ok || in.Path == "-" {
+			return fmt.Errorf("parquet cannot be read from standard input")
+		}
+		pr, err := read.NewParquetReader(osf, in.Display, in.Index, opt)
+		if err != nil {
+			return err
+		}
+		rr = pr
+		sum.Format, sum.Codec = read.FormatParquet, read.CodecNone
+		defer func() {
+			n, h, _ := fsio.HashFile(in.Path)
+			sum.Bytes, sum.XXH3 = n, h
+		}()
+	} else {
+		dec, err := read.Decode(f)
+		if err != nil {
+			return err
+		}
+		defer dec.Close()
+		raw = dec.Raw
+		sum.Codec = dec.Codec
+		rr, sum.Format, err = read.NewRecordReader(dec, in.Display, in.Index, opt)
+		if err != nil {
+			sum.Bytes, sum.XXH3 = raw.Drain()
+			return err
+		}
+	}
+	var lastRaw int64
+	for {
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		rec, err := rr.Next()
+		if raw != nil {
+			n := raw.N()
+			r.prog.raw.Add(n - lastRaw)
+			lastRaw = n
+		}
+		if rec.Doc != nil || rec.Issue != nil {
+			if !emit(rec) {
+				return ctx.Err()
+			}
+		}
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			if raw != nil {
+				sum.Bytes, sum.XXH3 = raw.Drain()
+			}
+			if wr, ok := rr.(read.Skipper); ok {
+				sum.Skipped = wr.SkippedRecords()
+			}
+			return err
+		}
+	}
+	if wr, ok := rr.(read.Skipper); ok {
+		sum.Skipped = wr.SkippedRecords()
+	}
+	if raw != nil {
+		sum.Bytes, sum.XXH3 = raw.Drain()
+	}
+	return nil
+}
+
+// produceSpill re-reads the previous segment's spill in order.
+func (r *Runner) produceSpill(ctx context.Context, path string, out chan<- *batch) error {
+	var seq int64
+	cur := &batch{}
+	curBytes := 0
+	send := func() error {
+		cur.seq = seq
+		seq++
+		select {
+		case out <- cur:
+		case <-ctx.Done():
+			return ctx.Err()
+		}
+		cur, curBytes = &batch{}, 0
+		return nil
+	}
+	err := forEachSpilled(path, func(d *stages.Doc) error {
+		cur.items = append(cur.items, item{rec: docRecord{Doc: d}})
+		curBytes += len(d.Text)
+		r.prog.docs.Add(1)
+		if len(cur.items) >= batchDocs || curBytes >= batchBytes {
+			return send()
+		}
+		return nil
+	})
+	if err == nil && len(cur.items) > 0 {
+		err = send()
+	}
+	return err
+}

@@ -1,0 +1,195 @@
+package run
+
+import (
+	"bufio"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+
+	"winnow/stages/jsonl"
+
+	"github.com/klauspost/compress/zstd"
+	"winnow/stages"
+	"winnow/stages/read"
+)
+
+// docSpill stores the documents that reached a global stage, so the next
+// segment of the pipeline can re-read them after the global decision
+// without re-reading (and re-filtering) the inputs. Records are
+// length-prefixed binary fields in a zstd stream (fastest level): order,
+// id, text, source, file, line, tokens, meta as JSON.
+type docSpill struct {
+	path string
+	f    *os.File
+	enc  *zstd.Encoder
+	buf  []byte
+	jb   jsonl.Object
+	n    int64
+}
+
+func createDocSpill(path string) (*docSpill, error) {
+	f, err := os.Create(path)
+	if err != nil {
+		return nil, err
+	}
+	enc, err := zstd.NewWriter(f, zstd.WithEncoderLevel(zstd.SpeedFastest), zstd.WithEncoderConcurrency(1))
+	if err != nil {
+		f.Close()
+		return nil, err
+	}
+	return &docSpill{path: path, f: f, enc: enc}, nil
+}
+
+func (s *docSpill) add(d *stages.Doc) error {
+	b := s.buf[:0]
+	b = binary.AppendUvarint(b, uint64(d.Order))
+	b = appendField(b, d.ID)
+	b = appendField(b, d.Text)
+	b = appendField(b, d.Source)
+	b = appendField(b, d.File)
+	b = binary.AppendVarint(b, d.Line)
+	b = binary.AppendUvarint(b, uint64(d.Tokens))
+	if len(d.Meta) > 0 {
+		s.jb.B = jsonl.AppendValue(s.jb.B[:0], d.Meta)
+		b = appendField(b, string(s.jb.B))
+	} else {
+		b = appendField(b, "")
+	}
+	var hdr [binary.MaxVarintLen64]byte
+	n := binary.PutUvarint(hdr[:], uint64(len(b)))
+	if _, err := s.enc.Write(hdr[:n]); err != nil {
+		return err
+	}
+	_, err := s.enc.Write(b)
+	s.buf = b
+	s.n++
+	return err
+}
+
+func appendField(b []byte, s string) []byte {
+	b = binary.AppendUvarint(b, uint64(len(s)))
+	return append(b, s...)
+}
+
+func (s *docSpill) close() error {
+	err := s.enc.Close()
+	if e := s.f.Close(); err == nil {
+		err = e
+	}
+	return err
+}
+
+// spillReader reads a docSpill back in order.
+type spillReader struct {
+	f   *os.File
+	dec *zstd.Decoder
+	br  *bufio.Reader
+	buf []byte
+}
+
+func openDocSpill(path string) (*spillReader, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	dec, err := zstd.NewReader(f, zstd.WithDecoderConcurrency(1))
+	if err != nil {
+		f.Close()
+		return nil, err
+	}
+	return &spillReader{f: f, dec: dec, br: bufio.NewReaderSize(dec, 1<<20)}, nil
+}
+
+var errSpill = errors.New("corrupt spill record")
+
+func (r *spillReader) next() (*stages.Doc, error) {
+	n, err := binary.ReadUvarint(r.br)
+	if err != nil {
+		return nil, err
+	}
+	if cap(r.buf) < int(n) {
+		r.buf = make([]byte, n)
+	}
+	b := r.buf[:n]
+	if _, err := io.ReadFull(r.br, b); err != nil {
+		return nil, fmt.Errorf("spill %s: %w", r.f.Name(), err)
+	}
+	d := &stages.Doc{}
+	var ok bool
+	var u uint64
+	if u, b, ok = takeUvarint(b); !ok {
+		return nil, errSpill
+	}
+	d.Order = stages.OrderKey(u)
+	fields := [4]*string{&d.ID, &d.Text, &d.Source, &d.File}
+	for _, f := range fields {
+		if *f, b, ok = takeField(b); !ok {
+			return nil, errSpill
+		}
+	}
+	line, k := binary.Varint(b)
+	if k <= 0 {
+		return nil, errSpill
+	}
+	d.Line, b = line, b[k:]
+	if u, b, ok = takeUvarint(b); !ok {
+		return nil, errSpill
+	}
+	d.Tokens = int(u)
+	var meta string
+	if meta, _, ok = takeField(b); !ok {
+		return nil, errSpill
+	}
+	if meta != "" {
+		d.Meta = map[string]any{}
+		if err := read.EachField([]byte(meta), func(k, v []byte) { d.Meta[string(k)] = read.RawJSON(append([]byte(nil), v...)) }); err != nil {
+			return nil, fmt.Errorf("spill meta: %w", err)
+		}
+	}
+	return d, nil
+}
+
+func takeUvarint(b []byte) (uint64, []byte, bool) {
+	u, k := binary.Uvarint(b)
+	if k <= 0 {
+		return 0, b, false
+	}
+	return u, b[k:], true
+}
+
+func takeField(b []byte) (string, []byte, bool) {
+	n, b, ok := takeUvarint(b)
+	if !ok || uint64(len(b)) < n {
+		return "", b, false
+	}
+	return string(b[:n]), b[n:], true
+}
+
+func (r *spillReader) close() {
+	r.dec.Close()
+	r.f.Close()
+}
+
+// forEachSpilled calls fn with every document of a spill, in order,
+// stopping at the first error.
+func forEachSpilled(path string, fn func(*stages.Doc) error) error {
+	sr, err := openDocSpill(path)
+	if err != nil {
+		return err
+	}
+	defer sr.close()
+	for {
+		d, err := sr.next()
+		if err == io.EOF {
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		if err := fn(d); err != nil {
+			return err
+		}
+	}
+}

@@ -1,0 +1,301 @@
+// Package spec loads a pipeline spec (YAML) with file:line:column errors
+// and suggestions, applies --set overrides and builds the spec's stages.
+package spec
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+
+	"github.com/zeebo/xxh3"
+	"gopkg.in/yaml.v3"
+
+	"winnow/stages"
+	"winnow/stages/read"
+	"winnow/stages/suggest"
+)
+
+// Spec is a loaded pipeline spec (YAML). See README "Pipeline spec".
+type Spec struct {
+	// File is the spec's path; Dir its directory, against which relative
+	// paths resolve.
+	File, Dir string
+	Name      string
+	Seed      uint64
+	// Memory is the byte budget of global stages before they spill.
+	Memory int64
+	Inputs []InputSpec
+	Stages []StageSpec
+	// Output is the "output" mapping; OutputDir its "dir" key resolved.
+	Output    *stages.Params
+	OutputDir string
+	// Config is the spec as plain data (written to the manifest) and
+	// ConfigHash its xxh3 over canonical JSON.
+	Config     any
+	ConfigHash string
+}
+
+// InputSpec is one entry of "inputs".
+type InputSpec struct {
+	read.ReadOptions
+	Paths []string
+	// at is the position of the entry, for error messages.
+	at *stages.Params
+}
+
+// StageSpec is one entry of "stages".
+type StageSpec struct {
+	Kind   string
+	Name   string
+	Params *stages.Params
+}
+
+// formatNames are the choices of an input's "format" key.
+var formatNames = func() []string {
+	var out []string
+	for _, f := range read.Formats {
+		out = append(out, string(f))
+	}
+	return out
+}()
+
+// LoadSpec reads and validates a spec file: every unknown key, wrong type
+// and out-of-range value is an error naming file:line:column. Stage
+// parameters are validated by building each stage (with env.Checking set
+// when only checking).
+func LoadSpec(path string) (*Spec, error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, err
+	}
+	return ParseSpec(path, data)
+}
+
+// ParseSpec parses spec bytes; path is used in messages and to resolve
+// relative paths.
+func ParseSpec(path string, data []byte) (*Spec, error) {
+	var doc yaml.Node
+	if err := yaml.Unmarshal(data, &doc); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if len(doc.Content) == 0 {
+		return nil, fmt.Errorf("%s: empty spec", path)
+	}
+	root := doc.Content[0]
+	if root.Kind != yaml.MappingNode {
+		return nil, fmt.Errorf("%s:%d:%d: the spec must be a mapping", path, root.Line, root.Column)
+	}
+	abs, _ := filepath.Abs(path)
+	s := &Spec{File: path, Dir: filepath.Dir(abs)}
+	p := stages.NewParams(path, "spec", root)
+	s.Name = p.String("name", "winnow")
+	if s.Name == "" || strings.ContainsAny(s.Name, "/\\ \t") {
+		p.Errorf("name", "want a non-empty name without slashes or spaces")
+	}
+	s.Seed = uint64(p.Int("seed", 0, 0, 1<<62))
+	s.Memory = p.Size("memory", 1<<30, 1<<10, 1<<44)
+	var errs []error
+	inputs := p.List("inputs")
+	if !p.Has("inputs") || len(inputs) == 0 {
+		p.Errorf("inputs", "at least one input is required")
+	}
+	for _, ip := range inputs {
+		in := InputSpec{at: ip}
+		in.Source = ip.String("source", "")
+		if in.Source == "" {
+			ip.Errorf("source", "every input needs a source label")
+		}
+		in.Paths = ip.Strings("paths", nil)
+		if len(in.Paths) == 0 {
+			ip.Errorf("paths", "at least one path, glob, directory or \"-\" is required")
+		}
+		in.Format = read.Format(ip.String("format", string(read.FormatAuto), formatNames...))
+		in.TextField = ip.String("text_field", "text")
+		in.IDField = ip.String("id_field", "id")
+		if ip.Has("meta_fields") {
+			in.MetaFields = ip.Strings("meta_fields", nil)
+			if in.MetaFields == nil {
+				in.MetaFields = []string{}
+			}
+		}
+		in.TextMode = ip.String("text_mode", "file", "file", "blocks")
+		in.MaxDocBytes = int(ip.Size("max_doc_bytes", read.DefaultMaxDocBytes, 1<<10, 1<<31))
+		if err := ip.Done(); err != nil {
+			errs = append(errs, err)
+		}
+		s.Inputs = append(s.Inputs, in)
+	}
+	names := map[string]int{}
+	for _, sp := range p.List("stages") {
+		st := StageSpec{Params: sp}
+		st.Kind = sp.String("kind", "")
+		sp.Ignore("kind", "name")
+		if _, ok := stages.LookupKind(st.Kind); !ok {
+			var known []string
+			for _, k := range stages.Kinds() {
+				known = append(known, k.Name)
+			}
+			msg := fmt.Sprintf("unknown stage kind %q (known: %s)", st.Kind, strings.Join(known, ", "))
+			if n := suggest.Nearest(st.Kind, known); n != "" {
+				msg = fmt.Sprintf("unknown stage kind %q (did you mean %q?)", st.Kind, n)
+			}
+			sp.Errorf("kind", "%s", msg)
+			errs = append(errs, sp.Done())
+			continue
+		}
+		st.Name = sp.String("name", st.Kind)
+		names[st.Name]++
+		if names[st.Name] > 1 {
+			if sp.Has("name") {
+				sp.Errorf("name", "stage name %q is used twice", st.Name)
+			} else {
+				st.Name = fmt.Sprintf("%s_%d", st.Kind, names[st.Name])
+			}
+		}
+		sp.SetStageName(st.Name)
+		s.Stages = append(s.Stages, st)
+	}
+	s.Output = p.Sub("output")
+	if s.Output == nil {
+		s.Output = stages.NewParams(path, "spec.output", &yaml.Node{Kind: yaml.MappingNode})
+	}
+	s.OutputDir = s.Output.String("dir", "")
+	if s.OutputDir != "" && !filepath.IsAbs(s.OutputDir) {
+		s.OutputDir = filepath.Join(s.Dir, s.OutputDir)
+	}
+	if mix := s.Output.FloatMap("mix"); len(mix) > 0 {
+		known := map[string]bool{}
+		var srcs []string
+		for _, in := range s.Inputs {
+			if !known[in.Source] {
+				srcs = append(srcs, in.Source)
+			}
+			known[in.Source] = true
+		}
+		names := make([]string, 0, len(mix))
+		for name := range mix {
+			names = append(names, name)
+		}
+		sort.Strings(names)
+		for _, name := range names {
+			if !known[name] {
+				msg := fmt.Sprintf("mix names source %q, which no input has (sources: %s)", name, strings.Join(srcs, ", "))
+				if n := suggest.Nearest(name, srcs); n != "" {
+					msg += fmt.Sprintf(" (did you mean %q?)", n)
+				}
+				s.Output.Errorf("mix", "%s", msg)
+			}
+		}
+		errs = append(errs, s.Output.TakeErrs()...)
+	}
+	if err := p.Done(); err != nil {
+		errs = append([]error{err}, errs...)
+	}
+	if err := errors.Join(errs...); err != nil {
+		return nil, err
+	}
+	var plain any
+	if err := root.Decode(&plain); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	s.Config = jsonable(plain)
+	if err := s.hashConfig(); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	return s, nil
+}
+
+// hashConfig sets ConfigHash to the xxh3 of the config's canonical JSON
+// (encoding/json sorts map keys).
+func (s *Spec) hashConfig() error {
+	canon, err := json.Marshal(s.Config)
+	if err != nil {
+		return err
+	}
+	s.ConfigHash = fmt.Sprintf("%016x", xxh3.Hash(canon))
+	return nil
+}
+
+// jsonable converts YAML-decoded maps (map[string]any with nested
+// map[any]any-free values) into values encoding/json accepts.
+func jsonable(v any) any {
+	switch x := v.(type) {
+	case map[string]any:
+		for k, e := range x {
+			x[k] = jsonable(e)
+		}
+		return x
+	case map[any]any:
+		m := map[string]any{}
+		for k, e := range x {
+			m[fmt.Sprint(k)] = jsonable(e)
+		}
+		return m
+	case []any:
+		for i, e := range x {
+			x[i] = jsonable(e)
+		}
+	}
+	return v
+}
+
+// BuildStages constructs every stage of the spec. Each stage's parameter
+// errors are collected, so `check` reports all of them at once.
+func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
+	if env.SpecDir == "" {
+		env.SpecDir = s.Dir
+	}
+	if env.Seed == 0 {
+		env.Seed = s.Seed
+	}
+	if env.MemoryBudget == 0 {
+		env.MemoryBudget = s.Memory
+	}
+	// The memory budget is the whole run's: split it between global stages.
+	globals := int64(0)
+	for _, st := range s.Stages {
+		if k, ok := stages.LookupKind(st.Kind); ok && k.NewGlobal != nil {
+			globals++
+		}
+	}
+	if globals > 1 {
+		env.MemoryBudget /= globals
+	}
+	var steps []Step
+	var errs []error
+	for _, st := range s.Stages {
+		k, _ := stages.LookupKind(st.Kind)
+		var step Step
+		var err error
+		if k.New != nil {
+			step.Stage, err = k.New(st.Params, env)
+		} else {
+			step.Global, err = k.NewGlobal(st.Params, env)
+			// A global kind may run per document in some
+			// configurations (no counting pass needed).
+			if pd, ok := step.Global.(stages.PerDocumenter); ok && err == nil {
+				if s := pd.PerDocument(); s != nil {
+					step.Stage, step.Global = s, nil
+				}
+			}
+		}
+		if err != nil {
+			errs = append(errs, err)
+			continue
+		}
+		step.Name = st.Name
+		steps = append(steps, step)
+	}
+	return steps, errors.Join(errs...)
+}
+
+// Step is one built stage of a pipeline: exactly one of Stage and Global.
+type Step struct {
+	Name   string
+	Stage  stages.Stage
+	Global stages.GlobalStage
+}
