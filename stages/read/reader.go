@@ -76,6 +76,10 @@ type ReadIssue struct {
 	Bytes int64
 	// Fatal is set when the rest of the file could not be read.
 	Fatal bool
+	// Skip marks a record passed over by rule, not an error: a WARC record
+	// that holds no page text (Rule is one of webpage.Rules: http_status,
+	// redirect, not_text, crawler_record, no_text, too_large).
+	Skip bool
 }
 
 func (i *ReadIssue) Error() string {

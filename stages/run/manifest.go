@@ -30,6 +30,8 @@ type Manifest struct {
 	Totals      Totals              `json:"totals"`
 	Errors      []RunError          `json:"errors"`
 	ErrorCount  int64               `json:"error_count"`
+	// ReadSkips sums the inputs' Skips: records passed over by rule.
+	ReadSkips map[string]int64 `json:"read_skips,omitempty"`
 	// Interrupted is true when the run was stopped before the end; the
 	// ledger holds every decision made until then.
 	Interrupted bool    `json:"interrupted"`
@@ -56,6 +58,14 @@ func BuildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *Ma
 	}
 	if m.Errors == nil {
 		m.Errors = []RunError{}
+	}
+	for _, in := range m.Inputs {
+		for rule, n := range in.Skips {
+			if m.ReadSkips == nil {
+				m.ReadSkips = map[string]int64{}
+			}
+			m.ReadSkips[rule] += n
+		}
 	}
 	m.Stages = append(m.Stages, r.Read.snapshot())
 	m.Stages = append(m.Stages, r.Counters...)
