@@ -132,6 +132,9 @@ func (r *parquetReader) Next() (Record, error) {
 	s, bad := repairUTF8(text)
 	d := r.newDoc(s, id, ln)
 	d.Meta = meta
+	if r.opt.HTML {
+		return r.fromHTML(d, []byte(s), "text/html; charset=utf-8"), nil
+	}
 	if bad {
 		return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}, nil
 	}
