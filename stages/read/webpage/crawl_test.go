@@ -70,6 +70,11 @@ var mainOf = map[string]mainSel{
 	"bc/bc.html": {tag: "body", drop: []mainSel{{tag: "div", attr: "class", val: "header"}, {tag: "div", attr: "class", val: "contents"}}},
 }
 
+// permalinks are the heading permalink signs of Sphinx (a.headerlink "¶")
+// and the Node.js docs (a.mark "#"): page furniture, not content, on
+// every page that has them.
+var permalinks = []mainSel{{tag: "a", attr: "class", val: "headerlink"}, {tag: "a", attr: "class", val: "mark"}}
+
 // charsetOf lists the pages not in UTF-8: they declare ISO-8859-1 in a
 // <meta> element, which the WHATWG Encoding Standard maps to windows-1252.
 var charsetOf = map[string]string{
@@ -187,7 +192,7 @@ func referenceWords(t *testing.T, body []byte, sel mainSel) []string {
 		t.Fatalf("main element %+v not found", sel)
 	}
 	var b strings.Builder
-	nodeText(m, sel.drop, &b)
+	nodeText(m, append(sel.drop, permalinks...), &b)
 	return strings.Fields(b.String())
 }
 

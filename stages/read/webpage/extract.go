@@ -35,7 +35,7 @@ type extractor struct {
 	space        bool // whitespace seen since the last character
 	brRun        int  // consecutive <br> tags
 	linkDepth    int
-	anchors      []bool // open <a> elements: whether each has an href
+	anchors      []anchor // open <a> elements
 	preDepth     int
 	headingDepth int
 
@@ -351,7 +351,7 @@ func (ex *extractor) startTag(a atom.Atom, kind uint8, selfClosing, href bool) {
 	case a == atom.A:
 		// Only links count: a named anchor (<a name>, no href) is not one.
 		if !selfClosing {
-			ex.anchors = append(ex.anchors, href)
+			ex.anchors = append(ex.anchors, anchor{href: href, buf: len(ex.buf), runes: ex.cur.runes, links: ex.cur.linkRunes, space: ex.space})
 			if href {
 				ex.linkDepth++
 			}
@@ -389,6 +389,34 @@ func (ex *extractor) startTag(a atom.Atom, kind uint8, selfClosing, href bool) {
 		ex.elems = append(ex.elems, elem{tag: a, parent: ex.top()})
 		ex.stack = append(ex.stack, int32(len(ex.elems)-1))
 	}
+}
+
+// anchor is an open <a> element: whether it is a link, and the state of
+// the block when it opened.
+type anchor struct {
+	href         bool
+	buf          int
+	runes, links int
+	space        bool
+}
+
+// dropPermalink removes the text of a link that is only a permalink
+// sign ("¶", "#", "§", "🔗") inside a heading, as documentation
+// generators add to every heading: it is page furniture, not text (common
+// practice in text extraction; the signs are from the generators of the
+// crawled test pages and other frequent ones).
+func (ex *extractor) dropPermalink(an anchor) {
+	if !an.href || ex.headingDepth == 0 || ex.preDepth > 0 || an.buf > len(ex.buf) || ex.cur.runes < an.runes {
+		return
+	}
+	t := bytes.TrimSpace(ex.buf[an.buf:])
+	switch string(t) {
+	case "¶", "#", "§", "🔗":
+	default:
+		return
+	}
+	ex.buf = ex.buf[:an.buf]
+	ex.cur.runes, ex.cur.linkRunes, ex.space = an.runes, an.links, an.space
 }
 
 // elem is a block-level element of the page.
@@ -437,10 +465,12 @@ func (ex *extractor) endTag(a atom.Atom) {
 		return
 	case a == atom.A:
 		if n := len(ex.anchors); n > 0 {
-			if ex.anchors[n-1] && ex.linkDepth > 0 {
+			an := ex.anchors[n-1]
+			if an.href && ex.linkDepth > 0 {
 				ex.linkDepth--
 			}
 			ex.anchors = ex.anchors[:n-1]
+			ex.dropPermalink(an)
 		}
 		return
 	}

@@ -206,12 +206,12 @@ func TestCharsets(t *testing.T) {
 
 // TestStructure checks the line layout on a small page: headings,
 // paragraphs, list items and table cells one line each, <pre> as it is,
-// scripts, styles, navigation and forms gone.
+// scripts, styles, navigation, forms and heading permalinks gone.
 func TestStructure(t *testing.T) {
 	doc := `<html><head><title> Slipway
 	 rates </title><style>p{color:red}</style></head><body>
 <nav>Home | Yard</nav><div role="navigation">Menu</div>
-<h2>Rates  for the <b>slipway</b></h2>
+<h2>Rates  for the <b>slipway</b><a class="headerlink" href="#rates">¶</a></h2>
 <p>Hauling out
    and <i>relaunching</i> are charged per metre.</p>
 <ul><li>Up to 8 m<li>Over 8 m</ul>
