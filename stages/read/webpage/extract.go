@@ -351,7 +351,8 @@ func (ex *extractor) startTag(a atom.Atom, kind uint8, selfClosing, href bool) {
 	case a == atom.A:
 		// Only links count: a named anchor (<a name>, no href) is not one.
 		if !selfClosing {
-			ex.anchors = append(ex.anchors, anchor{href: href, buf: len(ex.buf), runes: ex.cur.runes, links: ex.cur.linkRunes, space: ex.space})
+			ex.anchors = append(ex.anchors, anchor{href: href, buf: len(ex.buf), runes: ex.cur.runes, links: ex.cur.linkRunes, space: ex.space,
+				blocks: len(ex.blocks), start: ex.cur.start})
 			if href {
 				ex.linkDepth++
 			}
@@ -394,10 +395,11 @@ func (ex *extractor) startTag(a atom.Atom, kind uint8, selfClosing, href bool) {
 // anchor is an open <a> element: whether it is a link, and the state of
 // the block when it opened.
 type anchor struct {
-	href         bool
-	buf          int
-	runes, links int
-	space        bool
+	href          bool
+	buf           int
+	runes, links  int
+	space         bool
+	blocks, start int // blocks done and the current block's start
 }
 
 // dropPermalink removes the text of a link that is only a permalink
@@ -406,7 +408,9 @@ type anchor struct {
 // practice in text extraction; the signs are from the generators of the
 // crawled test pages and other frequent ones).
 func (ex *extractor) dropPermalink(an anchor) {
-	if !an.href || ex.headingDepth == 0 || ex.preDepth > 0 || an.buf > len(ex.buf) || ex.cur.runes < an.runes {
+	// Only when the link's text is the tail of the block it opened in.
+	if !an.href || ex.headingDepth == 0 || ex.preDepth > 0 || an.buf > len(ex.buf) || len(ex.blocks) != an.blocks ||
+		an.runes > 0 && ex.cur.start != an.start || ex.cur.runes < an.runes {
 		return
 	}
 	t := bytes.TrimSpace(ex.buf[an.buf:])

@@ -20,6 +20,8 @@ var fuzzSeeds = []string{
 	"<p>caf\xe9 \xff\xfe</p>",
 	"<meta charset=shift_jis><p>\x83\x89\x81[\x83N</p>",
 	"<script><p>not text</p>",
+	"<h2>T<a href=#t>x<p>¶</a></h2>",
+	"<h2><a href=#t>¶</a>T<a href=#u><div>#</div></a></h2><p>after",
 	"",
 }
 
