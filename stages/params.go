@@ -327,6 +327,14 @@ func (p *Params) List(key string) []*Params {
 	return out
 }
 
+// IsMapping reports whether the value at key is a mapping (and marks the
+// key known).
+func (p *Params) IsMapping(key string) bool {
+	p.known[key] = true
+	_, v := p.lookup(key)
+	return v != nil && v.Kind == yaml.MappingNode
+}
+
 // Sub returns the mapping at key as Params (nil when absent).
 func (p *Params) Sub(key string) *Params {
 	p.known[key] = true

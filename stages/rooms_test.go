@@ -18,7 +18,7 @@ import (
 var roomRank = map[string]int{
 	"winnow/cmd/winnow":          9, // one file per command
 	"winnow/scripts/benchdedup":  9, // developer tool
-	"winnow/stages/audit":        8, // reads finished run directories
+	"winnow/stages/audit":        7, // reads finished run directories (through record, not the engine)
 	"winnow/stages/run":          7, // runner, segments, spill, resume, manifest
 	"winnow/stages/spec":         6, // YAML spec, --set overrides
 	"winnow/stages/record":       5, // ledger, metrics, output sink

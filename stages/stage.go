@@ -213,6 +213,15 @@ type Finisher interface {
 	Finish(runDir string) error
 }
 
+// MetricUser is implemented by global stages that read metrics measured by
+// earlier stages at scan time (e.g. a dedup keep rule preferring a higher
+// quality score). UsesMetrics names them "stage.metric"; the runner checks
+// that an earlier stage measures each one and records the values into
+// Doc.Measured.
+type MetricUser interface {
+	UsesMetrics() []string
+}
+
 // Describer is implemented by stages that have something to show in
 // `winnow check` beyond their parameters (e.g. an LSH S-curve).
 type Describer interface {

@@ -7,11 +7,11 @@ import (
 	"text/tabwriter"
 
 	"winnow/stages/audit"
-	"winnow/stages/run"
+	"winnow/stages/record"
 )
 
 // printStageTable prints the per-stage document and byte flow of a run.
-func printStageTable(w io.Writer, m *run.Manifest, asJSON bool) error {
+func printStageTable(w io.Writer, m *record.Manifest, asJSON bool) error {
 	if asJSON {
 		enc := json.NewEncoder(w)
 		enc.SetIndent("", "  ")
@@ -32,7 +32,7 @@ func printStageTable(w io.Writer, m *run.Manifest, asJSON bool) error {
 
 // printShardTable prints each output shard's documents, tokens and
 // per-source token shares.
-func printShardTable(w io.Writer, m *run.Manifest) {
+func printShardTable(w io.Writer, m *record.Manifest) {
 	if len(m.Outputs) == 0 {
 		return
 	}

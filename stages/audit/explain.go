@@ -27,7 +27,27 @@ type DocPath struct {
 	Order     string     `json:"order"`
 	Decisions []Decision `json:"decisions"`
 	Result    Result     `json:"result"`
+	// Copies are the documents a dedup stage removed as copies of this
+	// one (their "of" is this id), in input order; at most maxCopies are
+	// listed, CopiesTotal counts all.
+	Copies      []Copy `json:"copies,omitempty"`
+	CopiesTotal int    `json:"copies_total,omitempty"`
 }
+
+// Copy is a document removed as a copy of the explained one.
+type Copy struct {
+	ID     string `json:"id"`
+	Source string `json:"source"`
+	Stage  string `json:"stage"`
+	Rule   string `json:"rule"`
+	// Similarity is the estimated (or, under verify: exact, exact)
+	// Jaccard similarity for near copies; 1 for exact copies.
+	Similarity float64 `json:"similarity"`
+}
+
+// maxCopies bounds the copies listed for one document (a page mirrored
+// thousands of times would otherwise flood the answer).
+const maxCopies = 100
 
 // Decision is what one stage did with the document.
 type Decision struct {
@@ -89,7 +109,25 @@ type ShardLine struct {
 func Explain(r *Run, id string) (*Explanation, error) {
 	ex := &Explanation{ID: id, Docs: []*DocPath{}}
 	var trails []*Trail
+	var copies []Copy
+	total := 0
 	if _, err := r.Walk(func(t *Trail) error {
+		for _, st := range t.Steps {
+			for i := range st.Recs {
+				rc := &st.Recs[i]
+				if rc.ExtraString("of") != id || rc.Extra["against"] != nil {
+					continue
+				}
+				total++
+				if len(copies) < maxCopies {
+					sim := 1.0
+					if v, ok := rc.Extra["similarity"].(float64); ok {
+						sim = v
+					}
+					copies = append(copies, Copy{ID: t.ID, Source: t.Source, Stage: rc.Stage, Rule: rc.Rule, Similarity: sim})
+				}
+			}
+		}
 		if t.ID == id {
 			trails = append(trails, t.Clone())
 			return nil
@@ -118,11 +156,15 @@ func Explain(r *Run, id string) (*Explanation, error) {
 			p.Decisions = append(p.Decisions, Decision{Stage: st.Name, Kind: st.Kind, Action: "keep", Note: "no record: kept without measuring"})
 		}
 		p.Result = Result{Status: "kept", Shards: shards}
+		p.Copies, p.CopiesTotal = copies, total
 		ex.Docs = append(ex.Docs, p)
 		return ex, nil
 	}
 	for _, t := range trails {
 		ex.Docs = append(ex.Docs, r.explainTrail(t, shards))
+	}
+	for _, p := range ex.Docs {
+		p.Copies, p.CopiesTotal = copies, total
 	}
 	return ex, nil
 }
@@ -346,6 +388,15 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
 		default:
 			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
+		}
+		if p.CopiesTotal > 0 {
+			fmt.Fprintf(w, "copies removed in its favour: %d\n", p.CopiesTotal)
+			for _, c := range p.Copies {
+				fmt.Fprintf(w, "  %s  source %s, %s %s, similarity %s\n", c.ID, c.Source, c.Stage, c.Rule, fmtFloat(c.Similarity))
+			}
+			if p.CopiesTotal > len(p.Copies) {
+				fmt.Fprintf(w, "  ... and %d more (winnow audit RUN --rule STAGE/RULE lists them all)\n", p.CopiesTotal-len(p.Copies))
+			}
 		}
 	}
 	return nil

@@ -11,7 +11,7 @@ import (
 
 	"winnow/stages"
 	"winnow/stages/read"
-	"winnow/stages/run"
+	"winnow/stages/record"
 	"winnow/stages/spec"
 )
 
@@ -20,7 +20,7 @@ import (
 type Run struct {
 	// Dir is the run directory (absolute).
 	Dir      string
-	Manifest *run.Manifest
+	Manifest *record.Manifest
 	// Steps are the run's stages between "read" and "write", in order.
 	Steps []*StepInfo
 	// SpecDir is the directory relative input and eval paths resolve
@@ -55,7 +55,7 @@ type StepInfo struct {
 	// it were not measured by the stages after it.
 	Global bool
 	// Counters are the manifest's flow numbers of the stage.
-	Counters *run.Counters
+	Counters *record.Counters
 	// MetricsPath is OUT/metrics/<name>.jsonl.zst ("" when absent);
 	// MetricNames are the names found in it, in file order (filled by
 	// the first walk).
@@ -70,7 +70,7 @@ type StepInfo struct {
 
 // InputState is one input file of the run, as found now.
 type InputState struct {
-	run.InputSummary
+	record.InputSummary
 	// Path is where the file is looked for now.
 	Path string
 	// Status is "ok", "missing", "changed" (size differs from the run)
@@ -92,7 +92,7 @@ func Open(dir string, opt OpenOptions) (*Run, error) {
 	if err != nil {
 		return nil, err
 	}
-	m, err := run.ReadManifest(abs)
+	m, err := record.ReadManifest(abs)
 	if err != nil {
 		if errors.Is(err, os.ErrNotExist) {
 			return nil, fmt.Errorf("%s is not a run directory: no manifest.json", dir)

@@ -6,7 +6,7 @@ import (
 	"sort"
 
 	"winnow/stages"
-	"winnow/stages/run"
+	"winnow/stages/record"
 )
 
 // Summary is what `winnow audit` prints: per stage and rule what was
@@ -14,12 +14,12 @@ import (
 // breakdown, the contamination report and the input errors. The JSON
 // field names are what `winnow audit --json` prints.
 type Summary struct {
-	Run         string     `json:"run"`
-	Name        string     `json:"name"`
-	ToolVersion string     `json:"tool_version"`
-	ConfigHash  string     `json:"config_hash"`
-	Interrupted bool       `json:"interrupted"`
-	Totals      run.Totals `json:"totals"`
+	Run         string        `json:"run"`
+	Name        string        `json:"name"`
+	ToolVersion string        `json:"tool_version"`
+	ConfigHash  string        `json:"config_hash"`
+	Interrupted bool          `json:"interrupted"`
+	Totals      record.Totals `json:"totals"`
 	// TokenStage names the stage whose "tokens" metric gives token
 	// counts ("" when the run counted no tokens: every token figure is
 	// then unknown).
@@ -30,7 +30,7 @@ type Summary struct {
 	// Contamination is OUT/contamination.json when the run has one.
 	Contamination *stages.ContamReport `json:"contamination,omitempty"`
 	Inputs        []InputRow           `json:"inputs"`
-	Errors        []run.RunError       `json:"errors"`
+	Errors        []record.RunError    `json:"errors"`
 	ErrorCount    int64                `json:"error_count"`
 	Histograms    []*Histogram         `json:"histograms,omitempty"`
 	Notes         []string             `json:"notes"`
@@ -162,7 +162,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 		Interrupted: m.Interrupted, Totals: m.Totals, Errors: m.Errors, ErrorCount: m.ErrorCount,
 		Contamination: r.Contam, Notes: append([]string(nil), r.Notes...)}
 	if s.Errors == nil {
-		s.Errors = []run.RunError{}
+		s.Errors = []record.RunError{}
 	}
 	tok := r.TokenStep()
 	tokIdx := -1
@@ -494,16 +494,16 @@ func (s *Summary) fixBytes(r *Run) {
 	}
 }
 
-func (r *Run) readCounters() *run.Counters {
+func (r *Run) readCounters() *record.Counters {
 	if len(r.Manifest.Stages) > 0 && r.Manifest.Stages[0].Name == "read" {
 		return r.Manifest.Stages[0]
 	}
-	return &run.Counters{Name: "read", Kind: "read"}
+	return &record.Counters{Name: "read", Kind: "read"}
 }
 
-func (r *Run) writeCounters() *run.Counters {
+func (r *Run) writeCounters() *record.Counters {
 	if n := len(r.Manifest.Stages); n > 0 && r.Manifest.Stages[n-1].Name == "write" {
 		return r.Manifest.Stages[n-1]
 	}
-	return &run.Counters{Name: "write", Kind: "write"}
+	return &record.Counters{Name: "write", Kind: "write"}
 }

@@ -24,9 +24,9 @@ type Doc struct {
 	Meta map[string]any
 }
 
-// MaxInputFiles is the most input files one run may have: a document's
+// maxInputFiles is the most input files one run may have: a document's
 // order key keeps the input index in its high 24 bits (stages.OrderKey).
-const MaxInputFiles = 1 << 24
+const maxInputFiles = 1 << 24
 
 // SetMeta sets one meta key, creating the map when needed.
 func (d *Doc) SetMeta(key string, v any) {

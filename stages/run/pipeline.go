@@ -43,7 +43,7 @@ type RunOptions struct {
 // RunResult is a finished run.
 type RunResult struct {
 	Dir      string
-	Manifest *Manifest
+	Manifest *record.Manifest
 	Runner   *Runner
 }
 
@@ -66,7 +66,7 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 	if out == "" {
 		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
 	}
-	tmp, err := PrepareRunDir(out, s, inputs, opt.Force, opt.Resume)
+	tmp, err := record.PrepareRunDir(out, s.ConfigHash, inputs, opt.Force, opt.Resume)
 	if err != nil {
 		return nil, err
 	}
@@ -111,8 +111,8 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 		os.RemoveAll(tmp)
 		removeStaleTemps(abs)
 	}
-	m := BuildManifest(opt.Version, s, r, time.Since(t0).Seconds())
-	if err := WriteManifest(abs, m); err != nil {
+	m := buildManifest(opt.Version, s, r, time.Since(t0).Seconds())
+	if err := record.WriteManifest(abs, m); err != nil {
 		return nil, err
 	}
 	return &RunResult{Dir: abs, Manifest: m, Runner: r}, runErr

@@ -29,28 +29,19 @@ import (
 // or Finisher) in a finished segment, whose state is not saved: such a run
 // is refused with a message and must be re-run.
 
-const checkpointFile = "checkpoint.json"
-
 type checkpoint struct {
-	ConfigHash  string               `json:"config_hash"`
-	Segment     int                  `json:"segment"`
-	Spill       string               `json:"spill"`
-	Ledger      []record.StreamState `json:"ledger"`
-	LedgerCount map[string]int64     `json:"ledger_count"`
-	Metrics     []record.StreamState `json:"metrics"`
-	Read        *Counters            `json:"read"`
-	Counters    []*Counters          `json:"counters"`
-	Inputs      []InputSummary       `json:"inputs"`
-	Errors      []RunError           `json:"errors"`
-	ErrCount    int64                `json:"error_count"`
-	FatalInputs int                  `json:"fatal_inputs"`
-}
-
-// setFrom copies the flow counts and time of a checkpointed counter.
-func (c *Counters) setFrom(o *Counters) {
-	c.DocsIn, c.DocsOut, c.BytesIn, c.BytesOut = o.DocsIn, o.DocsOut, o.BytesIn, o.BytesOut
-	c.TokensOut, c.Dropped, c.Edited, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Seconds
-	c.nanos.Store(int64(o.Seconds * 1e9))
+	ConfigHash  string                `json:"config_hash"`
+	Segment     int                   `json:"segment"`
+	Spill       string                `json:"spill"`
+	Ledger      []record.StreamState  `json:"ledger"`
+	LedgerCount map[string]int64      `json:"ledger_count"`
+	Metrics     []record.StreamState  `json:"metrics"`
+	Read        *record.Counters      `json:"read"`
+	Counters    []*record.Counters    `json:"counters"`
+	Inputs      []record.InputSummary `json:"inputs"`
+	Errors      []record.RunError     `json:"errors"`
+	ErrCount    int64                 `json:"error_count"`
+	FatalInputs int                   `json:"fatal_inputs"`
 }
 
 // writeCheckpoint records the state after segment si, whose survivors are
@@ -65,27 +56,24 @@ func (r *Runner) writeCheckpoint(si int, spill string) error {
 		return err
 	}
 	cp := checkpoint{ConfigHash: r.Spec.ConfigHash, Segment: si, Spill: spill, Ledger: led, LedgerCount: r.ledger.Counts(),
-		Metrics: met, Read: r.Read.snapshot(), Inputs: r.InputSums, Errors: r.Errors, ErrCount: r.ErrCount, FatalInputs: r.FatalInputs}
+		Metrics: met, Read: r.Read.Snapshot(), Inputs: r.InputSums, Errors: r.Errors, ErrCount: r.ErrCount, FatalInputs: r.FatalInputs}
 	for _, c := range r.Counters {
-		s := c.snapshot()
-		s.Seconds = float64(c.nanos.Load()) / 1e9
+		s := c.Snapshot()
+		s.Seconds = float64(c.Nanos()) / 1e9
 		cp.Counters = append(cp.Counters, s)
 	}
 	b, err := json.Marshal(cp)
 	if err != nil {
 		return err
 	}
-	return fsio.WriteFileAtomic(filepath.Join(r.Env.TempDir, checkpointFile), b)
+	return fsio.WriteFileAtomic(filepath.Join(r.Env.TempDir, record.CheckpointFile), b)
 }
-
-// ErrNoCheckpoint is returned by --resume when there is nothing to resume.
-var ErrNoCheckpoint = errors.New("nothing to resume: the run directory holds no checkpoint (a run checkpoints after each global stage's scan; run again without --resume)")
 
 // loadCheckpoint reads the checkpoint of an interrupted run in tempDir.
 func loadCheckpoint(tempDir, configHash string) (*checkpoint, error) {
-	b, err := os.ReadFile(filepath.Join(tempDir, checkpointFile))
+	b, err := os.ReadFile(filepath.Join(tempDir, record.CheckpointFile))
 	if errors.Is(err, os.ErrNotExist) {
-		return nil, ErrNoCheckpoint
+		return nil, record.ErrNoCheckpoint
 	}
 	if err != nil {
 		return nil, err
@@ -139,9 +127,9 @@ func (r *Runner) restore(cp *checkpoint, segs []segment) error {
 			return err
 		}
 	}
-	r.Read.setFrom(cp.Read)
+	r.Read.SetFrom(cp.Read)
 	for i, c := range cp.Counters {
-		r.Counters[i].setFrom(c)
+		r.Counters[i].SetFrom(c)
 	}
 	r.InputSums, r.Errors, r.ErrCount, r.FatalInputs = cp.Inputs, cp.Errors, cp.ErrCount, cp.FatalInputs
 	// Rebuild the global stage's keys from the spill, in input order.

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"winnow/stages/record"
 	"winnow/stages/spec"
 )
 
@@ -55,7 +56,7 @@ func TestResumeMatchesUninterruptedRun(t *testing.T) {
 		}
 	}
 	// Nothing to resume: a finished run (its checkpoint is gone).
-	if _, err := RunSpec(context.Background(), load(), RunOptions{Out: whole, Resume: true}); !errors.Is(err, ErrNoCheckpoint) {
+	if _, err := RunSpec(context.Background(), load(), RunOptions{Out: whole, Resume: true}); !errors.Is(err, record.ErrNoCheckpoint) {
 		t.Errorf("resume of a finished run: %v", err)
 	}
 }

@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -35,56 +36,6 @@ const (
 	inflightPerWorker = 4       // batches in flight per worker: bounds the reorder buffer
 	maxManifestErrors = 1000    // errors listed in the manifest; the ledger keeps all
 )
-
-// Counters are a stage's document flow, written to the manifest.
-type Counters struct {
-	Name      string  `json:"name"`
-	Kind      string  `json:"kind"`
-	DocsIn    int64   `json:"docs_in"`
-	DocsOut   int64   `json:"docs_out"`
-	BytesIn   int64   `json:"bytes_in"`
-	BytesOut  int64   `json:"bytes_out"`
-	TokensOut int64   `json:"tokens_out,omitempty"`
-	Dropped   int64   `json:"dropped"`
-	Edited    int64   `json:"edited"`
-	Seconds   float64 `json:"seconds"`
-	nanos     atomic.Int64
-}
-
-func (c *Counters) snapshot() *Counters {
-	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
-		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds}
-}
-
-// RunError is an input problem recorded in the manifest.
-type RunError struct {
-	File    string `json:"file"`
-	Line    int64  `json:"line,omitempty"`
-	Offset  int64  `json:"offset,omitempty"`
-	Rule    string `json:"rule,omitempty"`
-	Message string `json:"message"`
-	// Fatal is true when the rest of the file could not be read.
-	Fatal bool `json:"fatal"`
-}
-
-// InputSummary is one input file in the manifest.
-type InputSummary struct {
-	Path        string      `json:"path"`
-	Source      string      `json:"source"`
-	Bytes       int64       `json:"bytes"`
-	XXH3        string      `json:"xxh3"`
-	Codec       read.Codec  `json:"codec"`
-	Format      read.Format `json:"format"`
-	Docs        int64       `json:"docs"`
-	Issues      int64       `json:"issues"`
-	InvalidUTF8 int64       `json:"invalid_utf8"`
-	Skipped     int64       `json:"skipped_records,omitempty"`
-	// Skips counts, per rule, the records passed over because they hold
-	// no page text (WARC redirects, error statuses, images, the crawler's
-	// own records...); each also has a "skip" record in the read ledger.
-	Skips    map[string]int64 `json:"skips,omitempty"`
-	Complete bool             `json:"complete"`
-}
 
 // Progress is a snapshot of a running pipeline, for progress lines.
 type Progress struct {
@@ -118,11 +69,11 @@ type Runner struct {
 	metrics *record.Metrics
 
 	// Results, filled by Run.
-	Read      Counters
-	Counters  []*Counters
-	Write     Counters
-	InputSums []InputSummary
-	Errors    []RunError
+	Read      record.Counters
+	Counters  []*record.Counters
+	Write     record.Counters
+	InputSums []record.InputSummary
+	Errors    []record.RunError
 	ErrCount  int64
 	Output    *record.OutputReport
 	// Interrupted is set when the context was cancelled mid-run.
@@ -133,6 +84,39 @@ type Runner struct {
 	prog struct {
 		docs, raw, text atomic.Int64
 		seg             atomic.Int64
+	}
+	// wanted lists, per step, the metrics a later stage reads at scan
+	// time (stages.MetricUser): index into the step's metrics and name.
+	wanted [][]wantedMetric
+}
+
+type wantedMetric struct {
+	j    int
+	name string
+}
+
+// wantMetrics fills r.wanted from the MetricUser stages. The spec checked
+// that every name is measured by an earlier stage.
+func (r *Runner) wantMetrics() {
+	r.wanted = make([][]wantedMetric, len(r.Steps))
+	for _, s := range r.Steps {
+		mu, ok := stageOf(s).(stages.MetricUser)
+		if !ok {
+			continue
+		}
+		for _, name := range mu.UsesMetrics() {
+			stage, metric, _ := strings.Cut(name, ".")
+			for i, e := range r.Steps {
+				if e.Name != stage || e.Stage == nil {
+					continue
+				}
+				for j, m := range e.Stage.MetricNames() {
+					if m == metric {
+						r.wanted[i] = append(r.wanted[i], wantedMetric{j, name})
+					}
+				}
+			}
+		}
 	}
 }
 
@@ -207,10 +191,11 @@ func (r *Runner) Run(ctx context.Context) error {
 	}
 	r.ledger = record.NewLedger(filepath.Join(r.Env.RunDir, "ledger"))
 	r.metrics = record.NewMetrics(filepath.Join(r.Env.RunDir, "metrics"))
-	r.Read = Counters{Name: "read", Kind: "read"}
+	r.Read = record.Counters{Name: "read", Kind: "read"}
 	if err := r.ledger.Open("read"); err != nil {
 		return err
 	}
+	r.wantMetrics()
 	r.Counters = nil
 	for _, s := range r.Steps {
 		kind := ""
@@ -219,12 +204,12 @@ func (r *Runner) Run(ctx context.Context) error {
 		} else {
 			kind = s.Global.Kind()
 		}
-		r.Counters = append(r.Counters, &Counters{Name: s.Name, Kind: kind})
+		r.Counters = append(r.Counters, &record.Counters{Name: s.Name, Kind: kind})
 		if err := r.ledger.Open(s.Name); err != nil {
 			return err
 		}
 	}
-	r.Write = Counters{Name: "write", Kind: "write"}
+	r.Write = record.Counters{Name: "write", Kind: "write"}
 	start := time.Now()
 	stopProg := r.startProgress(start)
 	defer stopProg()
@@ -277,7 +262,7 @@ func (r *Runner) Run(ctx context.Context) error {
 		r.metrics.Abort()
 	}
 	for _, c := range r.Counters {
-		c.Seconds = float64(c.nanos.Load()) / 1e9
+		c.Seconds = float64(c.Nanos()) / 1e9
 	}
 	for _, s := range r.Steps {
 		if s.Global != nil {
@@ -373,7 +358,7 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			if err := g.Reduce(); err != nil {
 				return fmt.Errorf("stage %s: %w", r.Steps[seg.scan].Name, err)
 			}
-			r.Counters[seg.scan].nanos.Add(int64(time.Since(t0)))
+			r.Counters[seg.scan].AddNanos(int64(time.Since(t0)))
 			spillPath = next.path
 			// Every run checkpoints here, so frame boundaries (and so the
 			// bytes of every file) are the same whether or not it resumes.
@@ -477,7 +462,7 @@ func (r *Runner) work(seg segment, b *batch) {
 		if seg.apply >= 0 {
 			t0 := nanotime()
 			dec := r.Steps[seg.apply].Global.Apply(d)
-			r.Counters[seg.apply].nanos.Add(nanotime() - t0)
+			r.Counters[seg.apply].AddNanos(nanotime() - t0)
 			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text)}
 			if dec.Action == stages.Drop {
 				out.results = append(out.results, res)
@@ -492,7 +477,12 @@ func (r *Runner) work(seg segment, b *batch) {
 			st := r.Steps[si].Stage
 			t0 := nanotime()
 			dec := st.Process(d)
-			r.Counters[si].nanos.Add(nanotime() - t0)
+			r.Counters[si].AddNanos(nanotime() - t0)
+			for _, w := range r.wanted[si] {
+				if w.j < len(dec.Metrics) {
+					d.SetMeasured(w.name, dec.Metrics[w.j])
+				}
+			}
 			res := stepResult{step: si, dec: dec, shadow: dropBy != "", bytesIn: len(d.Text), dropBy: dropBy}
 			if dropBy == "" && dec.Action == stages.Drop {
 				dropBy = r.Steps[si].Name
@@ -513,7 +503,7 @@ func (r *Runner) work(seg segment, b *batch) {
 		if !out.dropped && seg.scan >= 0 {
 			t0 := nanotime()
 			out.keys = r.Steps[seg.scan].Global.Scan(d)
-			r.Counters[seg.scan].nanos.Add(nanotime() - t0)
+			r.Counters[seg.scan].AddNanos(nanotime() - t0)
 		}
 	}
 }
@@ -650,20 +640,20 @@ func (r *Runner) recordIssue(iss *read.ReadIssue) error {
 	case iss.Skip:
 		action = "skip" // not an error: counted per rule in the manifest
 	case iss.Rule == read.RuleEmptyInput:
-		r.Errors = append(r.Errors, RunError{File: iss.File, Rule: iss.Rule, Message: iss.Msg})
+		r.Errors = append(r.Errors, record.RunError{File: iss.File, Rule: iss.Rule, Message: iss.Msg})
 		return nil
 	case iss.Fatal:
 		// Fatal errors are always listed, whatever the cap.
 		r.FatalInputs++
 		r.ErrCount++
-		r.Errors = append(r.Errors, RunError{File: iss.File, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg, Fatal: true})
-	case iss.Rule == read.RuleInvalidUTF8:
+		r.Errors = append(r.Errors, record.RunError{File: iss.File, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg, Fatal: true})
+	case iss.Repair():
 		action = "edit"
 	default:
 		r.Read.Dropped++
 		r.ErrCount++
 		if len(r.Errors) < maxManifestErrors {
-			r.Errors = append(r.Errors, RunError{File: iss.File, Line: iss.Line, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg})
+			r.Errors = append(r.Errors, record.RunError{File: iss.File, Line: iss.Line, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg})
 		}
 	}
 	var extra map[string]any
@@ -705,7 +695,7 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 		if ctx.Err() != nil {
 			return ctx.Err()
 		}
-		sum := InputSummary{Path: in.Display, Source: in.Options.Source}
+		sum := record.InputSummary{Path: in.Display, Source: in.Options.Source}
 		err := r.readInput(ctx, in, &sum, func(rec read.Record) bool {
 			if rec.Issue != nil && rec.Issue.Skip {
 				rec.Issue.Source = in.Options.Source
@@ -778,18 +768,22 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 
 // readInput opens, decodes and parses one input, calling emit per record.
 // emit returns false to stop (cancellation).
-func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *InputSummary, emit func(read.Record) bool) error {
+func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *record.InputSummary, emit func(read.Record) bool) error {
 	f, err := read.OpenFile(in.Path)
 	if err != nil {
 		return err
 	}
 	defer f.Close()
+	var stamp read.InputStamp
+	osf, _ := f.(*os.File)
+	if osf != nil && in.Path != "-" {
+		stamp = read.StampFile(osf)
+	}
 	opt := *in.Options
 	var rr read.RecordReader
 	var raw *read.RawCounter
 	if opt.Format == read.FormatParquet || (opt.Format == read.FormatAuto && read.GuessFormat(in.Path, nil) == read.FormatParquet) {
-		osf, ok := f.(*os.File)
-		if !ok || in.Path == "-" {
+		if osf == nil || in.Path == "-" {
 			return fmt.Errorf("parquet cannot be read from standard input")
 		}
 		pr, err := read.NewParquetReader(osf, in.Display, in.Index, opt)
@@ -808,6 +802,12 @@ func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *InputSum
 			return err
 		}
 		defer dec.Close()
+		defer func() {
+			for _, w := range dec.Warnings() {
+				sum.Warnings = append(sum.Warnings, w)
+				r.logf("%s: %s", in.Display, w)
+			}
+		}()
 		raw = dec.Raw
 		sum.Codec = dec.Codec
 		rr, sum.Format, err = read.NewRecordReader(dec, in.Display, in.Index, opt)
@@ -848,10 +848,12 @@ func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *InputSum
 	if wr, ok := rr.(read.Skipper); ok {
 		sum.Skipped = wr.SkippedRecords()
 	}
+	nread := int64(-1)
 	if raw != nil {
 		sum.Bytes, sum.XXH3 = raw.Drain()
+		nread = sum.Bytes
 	}
-	return nil
+	return stamp.Check(in.Path, osf, nread)
 }
 
 // produceSpill re-reads the previous segment's spill in order.

@@ -292,6 +292,9 @@ func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 				}
 			}
 		}
+		if err == nil {
+			err = checkMetricUses(st.Params, step, steps)
+		}
 		if err != nil {
 			errs = append(errs, err)
 			continue
@@ -300,6 +303,46 @@ func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 		steps = append(steps, step)
 	}
 	return steps, errors.Join(errs...)
+}
+
+// checkMetricUses checks that every metric a stage reads at scan time
+// (stages.MetricUser, e.g. a dedup keep rule) is measured by an earlier
+// per-document stage; the error points at the stage's keep key.
+func checkMetricUses(p *stages.Params, step Step, earlier []Step) error {
+	var mu stages.MetricUser
+	if step.Global != nil {
+		mu, _ = step.Global.(stages.MetricUser)
+	} else {
+		mu, _ = step.Stage.(stages.MetricUser)
+	}
+	if mu == nil {
+		return nil
+	}
+	for _, name := range mu.UsesMetrics() {
+		stage, metric, _ := strings.Cut(name, ".")
+		var known []string
+		found := false
+		for _, e := range earlier {
+			if e.Stage == nil {
+				continue
+			}
+			for _, m := range e.Stage.MetricNames() {
+				known = append(known, e.Name+"."+m)
+				found = found || e.Name == stage && m == metric
+			}
+		}
+		if !found {
+			msg := fmt.Sprintf("metric %q is not measured by an earlier stage", name)
+			if s := suggest.Nearest(name, known); s != "" {
+				msg += fmt.Sprintf(" (did you mean %q?)", s)
+			} else if len(known) == 0 {
+				msg += " (no earlier stage measures anything)"
+			}
+			p.Errorf("keep", "%s", msg)
+			return p.Done()
+		}
+	}
+	return nil
 }
 
 // Step is one built stage of a pipeline: exactly one of Stage and Global.

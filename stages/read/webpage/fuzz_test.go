@@ -18,6 +18,7 @@ var fuzzSeeds = []string{
 	"<table><td>1<td>2<tr><th>3</table>",
 	"<pre>a<pre>b</pre>c</pre>",
 	"<p>caf\xe9 \xff\xfe</p>",
+	"<p>nul\x00here</p><pre>a\x00b</pre>",
 	"<meta charset=shift_jis><p>\x83\x89\x81[\x83N</p>",
 	"<script><p>not text</p>",
 	"<h2>T<a href=#t>x<p>¶</a></h2>",
@@ -26,7 +27,7 @@ var fuzzSeeds = []string{
 }
 
 // FuzzFromHTML checks properties of the extraction on any input:
-// the text and title are valid UTF-8; the same input gives the same page
+// the text and title are valid UTF-8 and the text has no NUL; the same input gives the same page
 // twice (the pooled state leaks nothing); classified output lines are a
 // subsequence of the lines kept without classification (boilerplate
 // removal only removes blocks); and extraction is idempotent on words:
@@ -46,7 +47,7 @@ func FuzzFromHTML(f *testing.F) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if !utf8.ValidString(all.Text) || !utf8.ValidString(all.Title) {
+		if !utf8.ValidString(all.Text) || !utf8.ValidString(all.Title) || strings.IndexByte(all.Text, 0) >= 0 {
 			t.Fatalf("invalid UTF-8: %q / %q", all.Text, all.Title)
 		}
 		again, _, _ := FromHTML(doc, "", Options{KeepBoilerplate: true})

@@ -42,7 +42,8 @@ const (
 	RuleHTTPStatus = "http_status"
 	// RuleRedirect: the response is a 3xx redirect.
 	RuleRedirect = "redirect"
-	// RuleNotText: the content type is not HTML, XHTML or plain text.
+	// RuleNotText: the content type is not HTML, XHTML, plain text or
+	// Markdown.
 	RuleNotText = "not_text"
 	// RuleCrawlerRecord: the record is the crawler's own bookkeeping (its
 	// argument list, its log, a manifest), not a page it fetched.
@@ -202,7 +203,7 @@ func kindOf(mt string) kind {
 	switch mt {
 	case "text/html", "application/xhtml+xml", "application/xhtml":
 		return kindHTML
-	case "text/plain":
+	case "text/plain", "text/markdown", "text/x-markdown":
 		return kindPlain
 	}
 	return kindOther
@@ -225,8 +226,14 @@ func fromBody(p Page, body []byte, ct, contentLang string, opt Options) (Page, s
 	text, name := decodeCharset(body, ct, k == kindHTML)
 	p.Charset = name
 	if k == kindPlain {
-		p.Text = plainText(text)
+		// NUL is no text character: U+FFFD marks where one was.
+		p.Text = plainText(strings.ReplaceAll(text, "\x00", "\ufffd"))
 	} else {
+		// The HTML tree builder ignores U+0000 in text (HTML Living
+		// Standard §13.2.6.4.7); the tokenizer passes it on.
+		if strings.IndexByte(text, 0) >= 0 {
+			text = strings.ReplaceAll(text, "\x00", "")
+		}
 		ex := getExtractor()
 		defer putExtractor(ex)
 		lang := opt.Lang

@@ -1,0 +1,221 @@
+package record
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"sync/atomic"
+
+	"winnow/stages/fsio"
+	"winnow/stages/read"
+)
+
+// Manifest is OUT/manifest.json: the run's provenance. Field names are a
+// contract (see README "Run directory"). Nothing in it depends on the
+// number of workers; only the "seconds" fields vary between runs.
+type Manifest struct {
+	ToolVersion string         `json:"tool_version"`
+	Name        string         `json:"name"`
+	Config      any            `json:"config"`
+	ConfigHash  string         `json:"config_hash"`
+	Seed        uint64         `json:"seed"`
+	Inputs      []InputSummary `json:"inputs"`
+	Stages      []*Counters    `json:"stages"`
+	Outputs     []OutputFile   `json:"outputs"`
+	Mix         any            `json:"mix,omitempty"`
+	Totals      Totals         `json:"totals"`
+	Errors      []RunError     `json:"errors"`
+	ErrorCount  int64          `json:"error_count"`
+	// ReadSkips sums the inputs' Skips: records passed over by rule.
+	ReadSkips map[string]int64 `json:"read_skips,omitempty"`
+	// Interrupted is true when the run was stopped before the end; the
+	// ledger holds every decision made until then.
+	Interrupted bool    `json:"interrupted"`
+	Seconds     float64 `json:"seconds"`
+}
+
+// Totals sums a run.
+type Totals struct {
+	InputFiles int64 `json:"input_files"`
+	InputBytes int64 `json:"input_bytes"`
+	DocsIn     int64 `json:"docs_in"`
+	DocsOut    int64 `json:"docs_out"`
+	BytesOut   int64 `json:"bytes_out"`
+	TokensOut  int64 `json:"tokens_out"`
+}
+
+// Counters are a stage's document flow, written to the manifest.
+type Counters struct {
+	Name      string  `json:"name"`
+	Kind      string  `json:"kind"`
+	DocsIn    int64   `json:"docs_in"`
+	DocsOut   int64   `json:"docs_out"`
+	BytesIn   int64   `json:"bytes_in"`
+	BytesOut  int64   `json:"bytes_out"`
+	TokensOut int64   `json:"tokens_out,omitempty"`
+	Dropped   int64   `json:"dropped"`
+	Edited    int64   `json:"edited"`
+	Seconds   float64 `json:"seconds"`
+	nanos     atomic.Int64
+}
+
+// Snapshot copies the counts (not the running time) of c.
+func (c *Counters) Snapshot() *Counters {
+	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds}
+}
+
+// RunError is an input problem recorded in the manifest.
+type RunError struct {
+	File    string `json:"file"`
+	Line    int64  `json:"line,omitempty"`
+	Offset  int64  `json:"offset,omitempty"`
+	Rule    string `json:"rule,omitempty"`
+	Message string `json:"message"`
+	// Fatal is true when the rest of the file could not be read.
+	Fatal bool `json:"fatal"`
+}
+
+// InputSummary is one input file in the manifest.
+type InputSummary struct {
+	Path        string      `json:"path"`
+	Source      string      `json:"source"`
+	Bytes       int64       `json:"bytes"`
+	XXH3        string      `json:"xxh3"`
+	Codec       read.Codec  `json:"codec"`
+	Format      read.Format `json:"format"`
+	Docs        int64       `json:"docs"`
+	Issues      int64       `json:"issues"`
+	InvalidUTF8 int64       `json:"invalid_utf8"`
+	Skipped     int64       `json:"skipped_records,omitempty"`
+	// Skips counts, per rule, the records passed over because they hold
+	// no page text (WARC redirects, error statuses, images, the crawler's
+	// own records...); each also has a "skip" record in the read ledger.
+	Skips    map[string]int64 `json:"skips,omitempty"`
+	Complete bool             `json:"complete"`
+	// Warnings are what the reader tolerated in this file (zero padding
+	// after the last compressed stream).
+	Warnings []string `json:"warnings,omitempty"`
+}
+
+// AddNanos adds running time, from any goroutine.
+func (c *Counters) AddNanos(n int64) { c.nanos.Add(n) }
+
+// Nanos is the running time so far.
+func (c *Counters) Nanos() int64 { return c.nanos.Load() }
+
+// SetFrom copies the flow counts and time of a checkpointed counter.
+func (c *Counters) SetFrom(o *Counters) {
+	c.DocsIn, c.DocsOut, c.BytesIn, c.BytesOut = o.DocsIn, o.DocsOut, o.BytesIn, o.BytesOut
+	c.TokensOut, c.Dropped, c.Edited, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Seconds
+	c.nanos.Store(int64(o.Seconds * 1e9))
+}
+
+// CheckpointFile is the checkpoint of an interrupted run, in the run's
+// work directory (.work/).
+const CheckpointFile = "checkpoint.json"
+
+// ErrNoCheckpoint is returned by --resume when there is nothing to resume.
+var ErrNoCheckpoint = errors.New("nothing to resume: the run directory holds no checkpoint (a run checkpoints after each global stage's scan; run again without --resume)")
+
+// WriteManifest writes manifest.json atomically.
+func WriteManifest(dir string, m *Manifest) error {
+	b, err := json.MarshalIndent(m, "", "  ")
+	if err != nil {
+		return err
+	}
+	return fsio.WriteFileAtomic(filepath.Join(dir, "manifest.json"), append(b, '\n'))
+}
+
+// ReadManifest loads a run's manifest.json.
+func ReadManifest(dir string) (*Manifest, error) {
+	b, err := os.ReadFile(filepath.Join(dir, "manifest.json"))
+	if err != nil {
+		return nil, err
+	}
+	var m Manifest
+	if err := json.Unmarshal(b, &m); err != nil {
+		return nil, fmt.Errorf("%s: %w", filepath.Join(dir, "manifest.json"), err)
+	}
+	return &m, nil
+}
+
+// runMarker is written when a run starts, so an interrupted run's directory
+// is still recognised as belonging to its spec.
+const runMarker = ".winnow-run"
+
+// PrepareRunDir checks that dir may receive a run of the spec whose config
+// hash is configHash and makes it ready: a directory holding a different
+// run (or anything that is not a winnow run) is refused unless force; a
+// directory that contains one of the inputs is always refused. It returns the temp directory for spills.
+// With resume it keeps the interrupted run's ledger, metrics and work
+// files instead (and refuses a directory holding another run).
+func PrepareRunDir(dir, configHash string, inputs []read.InputFile, force, resume bool) (string, error) {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		return "", err
+	}
+	for _, in := range inputs {
+		if in.Path == "-" {
+			continue
+		}
+		p, _ := filepath.Abs(in.Path)
+		if rel, err := filepath.Rel(abs, p); err == nil && !strings.HasPrefix(rel, "..") {
+			return "", fmt.Errorf("output directory %s contains input %s: choose another --out", dir, in.Display)
+		}
+	}
+	entries, err := os.ReadDir(abs)
+	if err != nil && !errors.Is(err, os.ErrNotExist) {
+		return "", err
+	}
+	if len(entries) > 0 && !force {
+		marker, merr := os.ReadFile(filepath.Join(abs, runMarker))
+		switch {
+		case merr != nil:
+			return "", fmt.Errorf("output directory %s is not empty and holds no winnow run: use --force to write into it", dir)
+		case strings.TrimSpace(string(marker)) != configHash:
+			return "", fmt.Errorf("output directory %s holds a different run (config hash %s, this spec %s): use --force to replace it", dir, strings.TrimSpace(string(marker)), configHash)
+		}
+	}
+	if resume {
+		marker, err := os.ReadFile(filepath.Join(abs, runMarker))
+		if err != nil || strings.TrimSpace(string(marker)) != configHash {
+			return "", fmt.Errorf("--resume: %s holds no interrupted run of this spec (config hash %s)", dir, configHash)
+		}
+		if _, err := os.Stat(filepath.Join(abs, ".work", CheckpointFile)); err != nil {
+			return "", ErrNoCheckpoint
+		}
+		// Shards and reports are written again by the last segment.
+		for _, sub := range []string{"shards"} {
+			if err := os.RemoveAll(filepath.Join(abs, sub)); err != nil {
+				return "", err
+			}
+		}
+		for _, f := range []string{"manifest.json", "contamination.json"} {
+			os.Remove(filepath.Join(abs, f))
+		}
+		return filepath.Join(abs, ".work"), nil
+	}
+	if force || len(entries) > 0 {
+		// Replace the previous run's files; leave anything else alone.
+		for _, sub := range []string{"shards", "ledger", "metrics", "keys", ".work"} {
+			if err := os.RemoveAll(filepath.Join(abs, sub)); err != nil {
+				return "", err
+			}
+		}
+		for _, f := range []string{"manifest.json", "contamination.json"} {
+			os.Remove(filepath.Join(abs, f))
+		}
+	}
+	tmp := filepath.Join(abs, ".work")
+	if err := os.MkdirAll(tmp, 0o755); err != nil {
+		return "", err
+	}
+	if err := fsio.WriteFileAtomic(filepath.Join(abs, runMarker), []byte(configHash+"\n")); err != nil {
+		return "", err
+	}
+	return tmp, nil
+}

@@ -1,0 +1,55 @@
+package run
+
+import (
+	"winnow/stages/record"
+
+	"winnow/stages/spec"
+)
+
+// buildManifest assembles the manifest from a finished (or interrupted)
+// runner.
+func buildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *record.Manifest {
+	m := &record.Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
+		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, Interrupted: r.Interrupted, Seconds: seconds}
+	if m.Inputs == nil {
+		m.Inputs = []record.InputSummary{}
+	}
+	if m.Errors == nil {
+		m.Errors = []record.RunError{}
+	}
+	for _, in := range m.Inputs {
+		for rule, n := range in.Skips {
+			if m.ReadSkips == nil {
+				m.ReadSkips = map[string]int64{}
+			}
+			m.ReadSkips[rule] += n
+		}
+	}
+	m.Stages = append(m.Stages, r.Read.Snapshot())
+	m.Stages = append(m.Stages, r.Counters...)
+	w := r.Write.Snapshot()
+	if r.Output != nil {
+		m.Outputs = r.Output.Files
+		m.Mix = r.Output.Mix
+		var docs, bytes, toks int64
+		for _, f := range r.Output.Files {
+			docs += f.Docs
+			toks += f.Tokens
+		}
+		bytes = w.BytesIn
+		w.DocsOut, w.BytesOut, w.TokensOut = docs, bytes, toks
+	}
+	m.Stages = append(m.Stages, w)
+	if m.Outputs == nil {
+		m.Outputs = []record.OutputFile{}
+	}
+	for _, in := range r.InputSums {
+		m.Totals.InputFiles++
+		m.Totals.InputBytes += in.Bytes
+	}
+	m.Totals.DocsIn = r.Read.DocsIn
+	m.Totals.DocsOut = w.DocsOut
+	m.Totals.BytesOut = w.BytesOut
+	m.Totals.TokensOut = w.TokensOut
+	return m
+}
