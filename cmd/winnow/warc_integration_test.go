@@ -71,9 +71,10 @@ func TestRunWgetWARC(t *testing.T) {
 	zr, _ := zstd.NewReader(f)
 	defer zr.Close()
 	got := map[string]int64{}
+	var skippedID string
 	sc := bufio.NewScanner(zr)
 	for sc.Scan() {
-		var rec struct{ Stage, Rule, Action string }
+		var rec struct{ Doc, Stage, Rule, Action string }
 		if err := json.Unmarshal(sc.Bytes(), &rec); err != nil {
 			t.Fatal(err)
 		}
@@ -81,11 +82,16 @@ func TestRunWgetWARC(t *testing.T) {
 			t.Errorf("ledger record %s", sc.Text())
 		}
 		got[rec.Rule]++
+		skippedID = rec.Doc
 	}
 	for k, v := range want {
 		if got[k] != v {
 			t.Errorf("ledger: %d %s records, want %d", got[k], k, v)
 		}
+	}
+	// explain tells a skipped record from a document.
+	if out, err := runCLI(t, "explain", filepath.Join(dir, "out"), skippedID); err != nil || !strings.Contains(out, "skipped at read by rule") {
+		t.Errorf("explain %s: %v\n%s", skippedID, err, out)
 	}
 	// The audit reads the run.
 	if out, err := runCLI(t, "audit", filepath.Join(dir, "out")); err != nil || !strings.Contains(out, "http_status") {
