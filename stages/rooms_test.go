@@ -27,6 +27,7 @@ var roomRank = map[string]int{
 	"winnow/stages/read/webpage": 3, // HTTP, charset and HTML main-text extraction
 	"winnow/filters":             2,
 	"winnow/filters/langid":      2,
+	"winnow/filters/domain":      2,
 	"winnow/dedup":               2,
 	"winnow/shard":               2,
 	"winnow/stages/synth":        2, // demo corpus generator

@@ -213,6 +213,21 @@ type Finisher interface {
 	Finish(runDir string) error
 }
 
+// StageFile is a file a stage wrote into the run directory (a trained
+// model, stored keys), recorded in the stage's manifest entry.
+type StageFile struct {
+	// Path is relative to the run directory, slash-separated.
+	Path  string `json:"path"`
+	Bytes int64  `json:"bytes"`
+	XXH3  string `json:"xxh3"`
+}
+
+// FileWriter is implemented by stages that write files into the run
+// directory when they are built; the manifest lists them with their hashes.
+type FileWriter interface {
+	StageFiles() []StageFile
+}
+
 // MetricUser is implemented by global stages that read metrics measured by
 // earlier stages at scan time (e.g. a dedup keep rule preferring a higher
 // quality score). UsesMetrics names them "stage.metric"; the runner checks

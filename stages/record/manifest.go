@@ -9,6 +9,7 @@ import (
 	"strings"
 	"sync/atomic"
 
+	"winnow/stages"
 	"winnow/stages/fsio"
 	"winnow/stages/read"
 )
@@ -59,13 +60,19 @@ type Counters struct {
 	Dropped   int64   `json:"dropped"`
 	Edited    int64   `json:"edited"`
 	Seconds   float64 `json:"seconds"`
-	nanos     atomic.Int64
+	// Files are the files the stage wrote into the run directory (a
+	// domain stage's model), with their hashes.
+	Files []stages.StageFile `json:"files,omitempty"`
+	// Global is true for a stage that ran as a global stage (it saw every
+	// document before deciding); audit and what-if rely on it.
+	Global bool `json:"global,omitempty"`
+	nanos  atomic.Int64
 }
 
 // Snapshot copies the counts (not the running time) of c.
 func (c *Counters) Snapshot() *Counters {
 	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
-		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds}
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds, Files: c.Files, Global: c.Global}
 }
 
 // RunError is an input problem recorded in the manifest.

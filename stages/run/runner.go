@@ -204,7 +204,11 @@ func (r *Runner) Run(ctx context.Context) error {
 		} else {
 			kind = s.Global.Kind()
 		}
-		r.Counters = append(r.Counters, &record.Counters{Name: s.Name, Kind: kind})
+		c := &record.Counters{Name: s.Name, Kind: kind, Global: s.Stage == nil}
+		if fw, ok := s.Stage.(stages.FileWriter); ok {
+			c.Files = fw.StageFiles()
+		}
+		r.Counters = append(r.Counters, c)
 		if err := r.ledger.Open(s.Name); err != nil {
 			return err
 		}
@@ -586,6 +590,8 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	var names []string
 	if st.Stage != nil {
 		names = st.Stage.MetricNames()
+	} else if m, ok := st.Global.(interface{ MetricNames() []string }); ok {
+		names = m.MetricNames() // a global stage that measures (domain with keep_fraction)
 	}
 	if len(names) > 0 && len(dec.Metrics) > 0 {
 		row := record.MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
