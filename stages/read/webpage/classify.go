@@ -11,7 +11,9 @@ import (
 
 // Boilerplate classification: the paragraph classifier of Pomikálek 2011
 // (PhD thesis "Removing Boilerplate and Duplicate Content from Web
-// Corpora", Masaryk University, ch. 3), with its published defaults.
+// Corpora", Masaryk University, ch. 3), with its published defaults (the
+// rules and numbers below are recalled from memory and match the defaults
+// documented for the thesis's reference implementation).
 //
 // Context-free step, per block, first rule that applies:
 //

@@ -20,10 +20,10 @@ import (
 // route (golang.org/x/net/html's tree parser, not the tokenizer, and all
 // text nodes under the element), is the reference. The extracted text is
 // compared word by word as multisets (precision, recall and F1 over word
-// occurrences, the word-level measure of the CleanEval shared task, Baroni
-// et al. 2008). Required, as issue 11 states: F1 >= 0.90 on every page, and
-// navigation/footer text under 5% of the output, measured as the share of
-// output words that the main element does not account for (1 - precision).
+// occurrences: common practice in evaluating boilerplate removal).
+// Required: F1 >= 0.90 on every page, and navigation/footer text under 5%
+// of the output, measured as the share of output words that the main
+// element does not account for (1 - precision).
 const crawlWARC = "../../../testdata/webcrawl/crawl.warc.gz"
 
 // mainSel picks a page's main content element: the first element with tag
