@@ -23,8 +23,8 @@ func TestKeepRulePriority(t *testing.T) {
 	if !(pm < pw && pw < po) || po != src.Priority(KeepFacts{Source: ""}) {
 		t.Errorf("sources priorities %d %d %d", pm, pw, po)
 	}
-	hi := KeepRule{By: KeepMetric, Metric: "quality.words", Max: true}
-	lo := KeepRule{By: KeepMetric, Metric: "quality.words"}
+	hi := KeepRule{By: KeepMetric, Metric: "quality.word_count", Max: true}
+	lo := KeepRule{By: KeepMetric, Metric: "quality.word_count"}
 	a, b := KeepFacts{Metric: 3, HasMetric: true}, KeepFacts{Metric: 12.5, HasMetric: true}
 	none := KeepFacts{}
 	nan := KeepFacts{Metric: math.NaN(), HasMetric: true}

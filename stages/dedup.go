@@ -92,7 +92,7 @@ func parseKeep(p *Params) dedup.KeepRule {
 		r = dedup.KeepRule{By: dedup.KeepMetric, Metric: sub.String("metric", "")}
 		r.Max = sub.String("prefer", "max", "max", "min") == "max"
 		if st, m, ok := strings.Cut(r.Metric, "."); !ok || st == "" || m == "" {
-			sub.Errorf("metric", "want STAGE.METRIC, the name of a metric an earlier stage measures (e.g. quality.words), got %q", r.Metric)
+			sub.Errorf("metric", "want STAGE.METRIC, the name of a metric an earlier stage measures (e.g. quality.word_count), got %q", r.Metric)
 		}
 	default:
 		sub.Errorf("", "keep: want sources: [a, b, ...] or metric: STAGE.METRIC")

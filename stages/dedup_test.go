@@ -415,10 +415,10 @@ func TestDedupKeepParamErrors(t *testing.T) {
 		{"near_dedup", map[string]any{"keep": "sources"}, `got "sources"`},
 		{"exact_dedup", map[string]any{"keep": map[string]any{"sources": []string{}}}, "at least one source"},
 		{"exact_dedup", map[string]any{"keep": map[string]any{"sources": []string{"web", "web"}}}, "listed twice"},
-		{"near_dedup", map[string]any{"keep": map[string]any{"sources": []string{"a"}, "metric": "quality.words"}}, "not both"},
+		{"near_dedup", map[string]any{"keep": map[string]any{"sources": []string{"a"}, "metric": "quality.word_count"}}, "not both"},
 		{"near_dedup", map[string]any{"keep": map[string]any{"metric": "words"}}, "STAGE.METRIC"},
-		{"near_dedup", map[string]any{"keep": map[string]any{"metric": "quality.words", "prefer": "high"}}, "prefer"},
-		{"near_dedup", map[string]any{"keep": map[string]any{"metrc": "quality.words"}}, `did you mean "metric"`},
+		{"near_dedup", map[string]any{"keep": map[string]any{"metric": "quality.word_count", "prefer": "high"}}, "prefer"},
+		{"near_dedup", map[string]any{"keep": map[string]any{"metrc": "quality.word_count"}}, `did you mean "metric"`},
 		{"exact_dedup", map[string]any{"scope": "paragraph", "keep": "longest"}, "keep applies only to scope: document"},
 	} {
 		k, _ := LookupKind(c.kind)
@@ -436,8 +436,8 @@ func TestDedupKeepStage(t *testing.T) {
 		"fair the keel with epoxy filler, apply two coats of primer and three of antifouling paint, then relaunch at high tide."
 	longer := base + " Check the seacocks first."
 	docs := []*Doc{
-		{ID: "mirror/1", Source: "mirror", Text: base, Order: MakeOrderKey(0, 1), Measured: map[string]float64{"quality.words": 40}},
-		{ID: "docs/1", Source: "docs", Text: longer, Order: MakeOrderKey(0, 2), Measured: map[string]float64{"quality.words": 45}},
+		{ID: "mirror/1", Source: "mirror", Text: base, Order: MakeOrderKey(0, 1), Measured: map[string]float64{"quality.word_count": 40}},
+		{ID: "docs/1", Source: "docs", Text: longer, Order: MakeOrderKey(0, 2), Measured: map[string]float64{"quality.word_count": 45}},
 		{ID: "docs/2", Source: "docs", Text: strings.ToUpper(base), Order: MakeOrderKey(0, 3)},
 	}
 	for _, c := range []struct {
@@ -448,8 +448,8 @@ func TestDedupKeepStage(t *testing.T) {
 		{"near_dedup", nil, []string{"", "mirror/1", "mirror/1"}},
 		{"near_dedup", "longest", []string{"docs/1", "", "docs/1"}},
 		{"near_dedup", map[string]any{"sources": []string{"docs"}}, []string{"docs/1", "", "docs/1"}},
-		{"near_dedup", map[string]any{"metric": "quality.words", "prefer": "min"}, []string{"", "mirror/1", "mirror/1"}},
-		{"near_dedup", map[string]any{"metric": "quality.words", "prefer": "max"}, []string{"docs/1", "", "docs/1"}},
+		{"near_dedup", map[string]any{"metric": "quality.word_count", "prefer": "min"}, []string{"", "mirror/1", "mirror/1"}},
+		{"near_dedup", map[string]any{"metric": "quality.word_count", "prefer": "max"}, []string{"docs/1", "", "docs/1"}},
 		{"exact_dedup", nil, []string{"", "", "mirror/1"}},
 		{"exact_dedup", map[string]any{"sources": []string{"docs"}}, []string{"docs/2", "", ""}},
 	} {
@@ -467,7 +467,7 @@ func TestDedupKeepStage(t *testing.T) {
 			}
 		}
 		m, _ := c.keep.(map[string]any)
-		if uses := g.(MetricUser).UsesMetrics(); (len(uses) == 1 && uses[0] == "quality.words") != (m["metric"] != nil) {
+		if uses := g.(MetricUser).UsesMetrics(); (len(uses) == 1 && uses[0] == "quality.word_count") != (m["metric"] != nil) {
 			t.Errorf("%s keep %v: UsesMetrics %v", c.kind, c.keep, uses)
 		}
 		g.Close()

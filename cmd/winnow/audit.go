@@ -51,7 +51,7 @@ from stored metrics as winnow whatif --sweep does, estimates marked), the
 contamination table and a sample of removed documents with their reasons.`,
 	Example: `  winnow audit out/
   winnow audit out/ --json | jq '.rules[] | select(.stage=="quality")'
-  winnow audit out/ --rule dup_line_frac --samples 3
+  winnow audit out/ --rule repeated_lines_share --samples 3
   winnow audit out/ --html out/report.html`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {

@@ -64,7 +64,7 @@ bytes as a run never stopped.
 Exit status: 0 on success; 3 when some input could not be read to its end
 (unless --allow-partial); 130 when interrupted; 1 on any other error.`,
 	Example: `  winnow run configs/default.yaml --out out/ --workers 2
-  winnow run spec.yaml --set quality.min_words=80 --force
+  winnow run spec.yaml --set quality.fewest_words=80 --force
   winnow run spec.yaml --out out/ --resume        # after Ctrl-C or a crash`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {

@@ -383,7 +383,7 @@ func TestRuleSamplesRecoverTextAndMarks(t *testing.T) {
 	}
 
 	// Repeated lines: each marked line repeats an earlier line.
-	set = ruleSamples(t, r, "dup_line_frac", 2)
+	set = ruleSamples(t, r, "repeated_lines_share", 2)
 	for _, sm := range set.Samples {
 		if len(sm.Marks) == 0 {
 			t.Errorf("%s: nothing marked", sm.ID)

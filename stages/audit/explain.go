@@ -7,6 +7,8 @@ import (
 	"math"
 	"path/filepath"
 	"strings"
+
+	"winnow/stages"
 )
 
 // Explanation is the answer of `winnow explain RUN DOC_ID`: every
@@ -56,15 +58,17 @@ type Decision struct {
 	// Action is keep, drop or edit; "measured after removal" rows are
 	// Shadow (with the decision the stage would have made) and stages the
 	// document never reached are "not reached".
-	Action  string           `json:"action"`
-	Shadow  bool             `json:"shadow,omitempty"`
-	Rule    string           `json:"rule,omitempty"`
-	Value   any              `json:"value,omitempty"`
-	Limit   any              `json:"limit,omitempty"`
-	Metrics []MetricValue    `json:"metrics,omitempty"`
-	Changes map[string]int64 `json:"changes,omitempty"`
-	Extra   map[string]any   `json:"extra,omitempty"`
-	Note    string           `json:"note,omitempty"`
+	Action  string        `json:"action"`
+	Shadow  bool          `json:"shadow,omitempty"`
+	Rule    string        `json:"rule,omitempty"`
+	Value   any           `json:"value,omitempty"`
+	Limit   any           `json:"limit,omitempty"`
+	Metrics []MetricValue `json:"metrics,omitempty"`
+	// Labels are the text values measured with the metrics (lang).
+	Labels  map[string]string `json:"labels,omitempty"`
+	Changes map[string]int64  `json:"changes,omitempty"`
+	Extra   map[string]any    `json:"extra,omitempty"`
+	Note    string            `json:"note,omitempty"`
 }
 
 // MetricValue is one measured value and the rules that test it.
@@ -204,6 +208,7 @@ func (r *Run) explainTrail(t *Trail, shards []ShardLine) *DocPath {
 			d.Action = tr.Row.Action
 			d.Rule = tr.Row.Rule
 			d.Shadow = tr.Row.Shadow()
+			d.Labels = tr.Row.Labels
 			rules, _ := r.StepRules(st)
 			for j, name := range st.MetricNames {
 				v := math.NaN()
@@ -220,6 +225,11 @@ func (r *Run) explainTrail(t *Trail, shards []ShardLine) *DocPath {
 			}
 			if d.Shadow {
 				d.Note = "measured after removal by " + tr.Row.DroppedBy + " (shadow measurement): the decision it would have made"
+			}
+		} else if sc := stepScope(st); sc != nil && !r.inScope(sc, t, i) {
+			d.Note = "outside its only: scope (" + sc.String() + "): passed untouched, not measured"
+			if after {
+				d.Action = "not reached"
 			}
 		} else if after {
 			d.Action = "not reached"
@@ -362,6 +372,9 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 				fmt.Fprintf(w, " %s=%s", k, fmtAny(d.Extra[k]))
 			}
 			fmt.Fprintln(w)
+			for _, k := range sortedKeys(d.Labels) {
+				fmt.Fprintf(w, "       %s = %s\n", k, d.Labels[k])
+			}
 			for _, m := range d.Metrics {
 				v := "null"
 				if m.Value != nil {
@@ -408,4 +421,26 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 		}
 	}
 	return nil
+}
+
+// stepScope returns the stage's `only:` scope, or nil.
+func stepScope(st *StepInfo) *stages.Scope {
+	if st.Spec == nil {
+		return nil
+	}
+	return st.Spec.Only
+}
+
+// inScope reports whether the document of t is inside scope sc of step
+// i: its source, and the language the last langid stage before step i
+// recorded in its metrics.
+func (r *Run) inScope(sc *stages.Scope, t *Trail, i int) bool {
+	d := &stages.Doc{Source: t.Source}
+	for j := i - 1; j >= 0; j-- {
+		if row := t.Steps[j].Row; row != nil && r.Steps[j].Kind == "langid" {
+			d.Meta = map[string]any{"lang": row.Labels["lang"]}
+			break
+		}
+	}
+	return sc.Match(d)
 }

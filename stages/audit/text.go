@@ -122,6 +122,12 @@ func (s *Summary) WriteText(w io.Writer) error {
 	if err := tw.Flush(); err != nil {
 		return err
 	}
+	for _, f := range s.Flow {
+		if f.Skipped > 0 {
+			fmt.Fprintf(w, "%s: %s of its %s documents in were outside its only: scope (passed untouched, not measured)\n",
+				f.Stage, Group(f.Skipped), Group(f.DocsIn))
+		}
+	}
 
 	fmt.Fprintln(w, "\nremoved or edited, by stage and rule (share of the stage's documents in)")
 	if len(s.Rules) == 0 {

@@ -210,7 +210,7 @@ func (l *Ledger) Abort() { l.abort() }
 // read the files directly:
 //
 //	{"doc":ID,"source":S,"order":N,"bytes":B,"action":"keep|drop|edit",
-//	 "rule":R,"dropped_by":STAGE,<metric>:<value>...}
+//	 "rule":R,"dropped_by":STAGE,<label>:"text"...,<metric>:<value>...}
 //
 // "dropped_by" is present when an earlier stage already removed the
 // document: the runner still measures it (shadow measurement) so what-if
@@ -235,8 +235,10 @@ type MetricRow struct {
 	Action    stages.Action
 	Rule      string
 	DroppedBy string
-	Names     []string
-	Values    []float64
+	// Labels are text values written after the fixed fields, by key.
+	Labels map[string]string
+	Names  []string
+	Values []float64
 }
 
 // Add writes one row for stage.
@@ -257,6 +259,16 @@ func (m *Metrics) Add(stage string, r *MetricRow) error {
 	}
 	if r.DroppedBy != "" {
 		j.Str("dropped_by", r.DroppedBy)
+	}
+	if len(r.Labels) > 0 {
+		keys := make([]string, 0, len(r.Labels))
+		for k := range r.Labels {
+			keys = append(keys, k)
+		}
+		sort.Strings(keys)
+		for _, k := range keys {
+			j.Str(k, r.Labels[k])
+		}
 	}
 	for i, n := range r.Names {
 		if i < len(r.Values) {

@@ -50,16 +50,20 @@ type Totals struct {
 
 // Counters are a stage's document flow, written to the manifest.
 type Counters struct {
-	Name      string  `json:"name"`
-	Kind      string  `json:"kind"`
-	DocsIn    int64   `json:"docs_in"`
-	DocsOut   int64   `json:"docs_out"`
-	BytesIn   int64   `json:"bytes_in"`
-	BytesOut  int64   `json:"bytes_out"`
-	TokensOut int64   `json:"tokens_out,omitempty"`
-	Dropped   int64   `json:"dropped"`
-	Edited    int64   `json:"edited"`
-	Seconds   float64 `json:"seconds"`
+	Name      string `json:"name"`
+	Kind      string `json:"kind"`
+	DocsIn    int64  `json:"docs_in"`
+	DocsOut   int64  `json:"docs_out"`
+	BytesIn   int64  `json:"bytes_in"`
+	BytesOut  int64  `json:"bytes_out"`
+	TokensOut int64  `json:"tokens_out,omitempty"`
+	Dropped   int64  `json:"dropped"`
+	Edited    int64  `json:"edited"`
+	// Skipped counts the documents outside the stage's `only:` scope:
+	// they passed it untouched (they are in DocsIn and DocsOut) and it
+	// did not measure them.
+	Skipped int64   `json:"skipped,omitempty"`
+	Seconds float64 `json:"seconds"`
 	// Files are the files the stage wrote into the run directory (a
 	// domain stage's model), with their hashes.
 	Files []stages.StageFile `json:"files,omitempty"`
@@ -72,7 +76,7 @@ type Counters struct {
 // Snapshot copies the counts (not the running time) of c.
 func (c *Counters) Snapshot() *Counters {
 	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
-		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Seconds: c.Seconds, Files: c.Files, Global: c.Global}
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Skipped: c.Skipped, Seconds: c.Seconds, Files: c.Files, Global: c.Global}
 }
 
 // RunError is an input problem recorded in the manifest.
@@ -117,7 +121,7 @@ func (c *Counters) Nanos() int64 { return c.nanos.Load() }
 // SetFrom copies the flow counts and time of a checkpointed counter.
 func (c *Counters) SetFrom(o *Counters) {
 	c.DocsIn, c.DocsOut, c.BytesIn, c.BytesOut = o.DocsIn, o.DocsOut, o.BytesIn, o.BytesOut
-	c.TokensOut, c.Dropped, c.Edited, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Seconds
+	c.TokensOut, c.Dropped, c.Edited, c.Skipped, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Skipped, o.Seconds
 	c.nanos.Store(int64(o.Seconds * 1e9))
 }
 

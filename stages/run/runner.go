@@ -142,6 +142,7 @@ type stepResult struct {
 	step     int
 	dec      stages.Decision
 	shadow   bool
+	skipped  bool // outside the step's `only:` scope: not measured
 	bytesIn  int
 	bytesOut int
 	dropBy   string
@@ -479,6 +480,11 @@ func (r *Runner) work(seg segment, b *batch) {
 		}
 		for _, si := range seg.steps {
 			st := r.Steps[si].Stage
+			if !r.Steps[si].Only.Match(d) {
+				out.results = append(out.results, stepResult{step: si, skipped: true, shadow: dropBy != "",
+					bytesIn: len(d.Text), bytesOut: len(d.Text), dropBy: dropBy})
+				continue
+			}
 			t0 := nanotime()
 			dec := st.Process(d)
 			r.Counters[si].AddNanos(nanotime() - t0)
@@ -498,6 +504,13 @@ func (r *Runner) work(seg segment, b *batch) {
 			}
 			if !res.shadow && dec.Action != stages.Drop {
 				mergeMeta(d, &dec)
+			} else {
+				// A removed document still carries what the stage found
+				// (its language, say) to the stages that measure it in
+				// the shadow, so they measure it as they would a kept one.
+				for k, v := range dec.Meta {
+					d.SetMeta(k, v)
+				}
 			}
 			res.bytesOut = len(d.Text)
 			res.dec.Text = "" // the text now lives in d; keep the batch small
@@ -586,6 +599,16 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	st := r.Steps[res.step]
 	c := r.Counters[res.step]
+	if res.skipped {
+		if !res.shadow {
+			c.DocsIn++
+			c.DocsOut++
+			c.BytesIn += int64(res.bytesIn)
+			c.BytesOut += int64(res.bytesIn)
+			c.Skipped++
+		}
+		return nil
+	}
 	dec := &res.dec
 	var names []string
 	if st.Stage != nil {
@@ -595,7 +618,7 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	}
 	if len(names) > 0 && len(dec.Metrics) > 0 {
 		row := record.MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
-			Rule: dec.Rule, DroppedBy: res.dropBy, Names: names, Values: dec.Metrics}
+			Rule: dec.Rule, DroppedBy: res.dropBy, Labels: dec.Labels, Names: names, Values: dec.Metrics}
 		if err := r.metrics.Add(st.Name, &row); err != nil {
 			return err
 		}

@@ -12,7 +12,7 @@ import (
 // values a later stage asked for (float bits compared exactly, NaN
 // included), and a document without them reads back without them.
 func FuzzDocSpillRoundTrip(f *testing.F) {
-	f.Add("doc-1", "Haul out the ketch.\n\nSand the keel.", "yard", "quality.words", 42.0, int64(7), uint64(3))
+	f.Add("doc-1", "Haul out the ketch.\n\nSand the keel.", "yard", "quality.word_count", 42.0, int64(7), uint64(3))
 	f.Add("", "", "", "", 0.0, int64(0), uint64(0))
 	f.Add("x", "ü\x00", "web", "length.chars", math.Inf(-1), int64(-1), uint64(1<<40))
 	f.Add("y", "text", "s", "a.b", math.NaN(), int64(1<<40), uint64(math.MaxUint64))

@@ -8,12 +8,14 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
 	"sort"
 	"strings"
 
 	"github.com/zeebo/xxh3"
 	"gopkg.in/yaml.v3"
 
+	"winnow/filters/langid"
 	"winnow/stages"
 	"winnow/stages/read"
 	"winnow/stages/suggest"
@@ -52,6 +54,8 @@ type StageSpec struct {
 	Kind   string
 	Name   string
 	Params *stages.Params
+	// Only is the stage's `only:` scope (nil: every document).
+	Only *stages.Scope
 }
 
 // formatNames are the choices of an input's "format" key.
@@ -166,6 +170,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 			}
 		}
 		sp.SetStageName(st.Name)
+		st.Only, errs = parseOnly(sp, s.Inputs, s.Stages, errs)
 		s.Stages = append(s.Stages, st)
 	}
 	s.Output = p.Sub("output")
@@ -299,7 +304,13 @@ func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 			errs = append(errs, err)
 			continue
 		}
+		if st.Only != nil && step.Global != nil {
+			st.Params.Errorf("only", "only: applies to per-document stages; %s compares documents with each other here", st.Kind)
+			errs = append(errs, st.Params.TakeErrs()...)
+			continue
+		}
 		step.Name = st.Name
+		step.Only = st.Only
 		steps = append(steps, step)
 	}
 	return steps, errors.Join(errs...)
@@ -350,4 +361,55 @@ type Step struct {
 	Name   string
 	Stage  stages.Stage
 	Global stages.GlobalStage
+	// Only scopes a per-document stage (nil: every document).
+	Only *stages.Scope
+}
+
+// parseOnly reads a stage's `only:` mapping, `sources: [...]` and/or
+// `languages: [...]`: sources must be input sources, languages ISO 639-1
+// codes the language detector knows, and a stage scoped by language needs
+// a langid stage before it (the language is its meta "lang"). BuildStages
+// refuses a scope on a global stage (dedup compares documents with each
+// other).
+func parseOnly(sp *stages.Params, inputs []InputSpec, before []StageSpec, errs []error) (*stages.Scope, []error) {
+	o := sp.Sub("only")
+	if o == nil {
+		return nil, errs
+	}
+	sc := &stages.Scope{Sources: o.Strings("sources", nil), Languages: o.Strings("languages", nil)}
+	if len(sc.Sources) == 0 && len(sc.Languages) == 0 {
+		o.Errorf("", "want sources: [...] and/or languages: [...]")
+	}
+	var srcs []string
+	known := map[string]bool{}
+	for _, in := range inputs {
+		if !known[in.Source] {
+			srcs = append(srcs, in.Source)
+		}
+		known[in.Source] = true
+	}
+	for _, src := range sc.Sources {
+		if !known[src] {
+			msg := fmt.Sprintf("source %q is not an input source (sources: %s)", src, strings.Join(srcs, ", "))
+			if n := suggest.Nearest(src, srcs); n != "" {
+				msg += fmt.Sprintf(" (did you mean %q?)", n)
+			}
+			o.Errorf("sources", "%s", msg)
+		}
+	}
+	for i, l := range sc.Languages {
+		code, err := langid.CanonicalCode(l)
+		if err != nil {
+			o.Errorf("languages", "%v", err)
+			continue
+		}
+		sc.Languages[i] = code
+	}
+	if len(sc.Languages) > 0 && !slices.ContainsFunc(before, func(st StageSpec) bool { return st.Kind == "langid" }) {
+		o.Errorf("languages", "needs a langid stage before this one (the language is the one it detects)")
+	}
+	if err := o.Done(); err != nil {
+		errs = append(errs, err)
+	}
+	return sc, errs
 }
