@@ -16,25 +16,26 @@ import (
 // packages of a lower rank (or its own sub-packages). A new package must be
 // added here, which is the moment to decide where it belongs.
 var roomRank = map[string]int{
-	"winnow/cmd/winnow":         9, // one file per command
-	"winnow/scripts/benchdedup": 9, // developer tool
-	"winnow/stages/audit":       7, // reads finished run directories (through record, not the engine)
-	"winnow/stages/run":         7, // runner, segments, spill, resume, manifest
-	"winnow/stages/spec":        6, // YAML spec, --set overrides
-	"winnow/stages/record":      5, // ledger, metrics, output sink
-	"winnow/stages":             4, // Doc, Decision, contracts, registry, stage kinds
-	"winnow/stages/read":        3, // inputs, codecs, record readers
-	"winnow/filters":            2,
-	"winnow/filters/langid":     2,
-	"winnow/filters/domain":     2,
-	"winnow/dedup":              2,
-	"winnow/shard":              2,
-	"winnow/stages/synth":       2, // demo corpus generator
-	"winnow/stages/fsio":        1,
-	"winnow/stages/jsonl":       1,
-	"winnow/stages/suggest":     1,
-	"winnow/stages/termtext":    1, // escaping for terminal output
-	"winnow/configs":            1,
+	"winnow/cmd/winnow":          9, // one file per command
+	"winnow/scripts/benchdedup":  9, // developer tool
+	"winnow/stages/audit":        7, // reads finished run directories (through record, not the engine)
+	"winnow/stages/run":          7, // runner, segments, spill, resume, manifest
+	"winnow/stages/spec":         6, // YAML spec, --set overrides
+	"winnow/stages/record":       5, // ledger, metrics, output sink
+	"winnow/stages":              4, // Doc, Decision, contracts, registry, stage kinds
+	"winnow/stages/read":         3, // inputs, codecs, record readers
+	"winnow/stages/read/webpage": 3, // HTTP, charset and HTML main-text extraction
+	"winnow/filters":             2,
+	"winnow/filters/langid":      2,
+	"winnow/filters/domain":      2,
+	"winnow/dedup":               2,
+	"winnow/shard":               2,
+	"winnow/stages/synth":        2, // demo corpus generator
+	"winnow/stages/fsio":         1,
+	"winnow/stages/jsonl":        1,
+	"winnow/stages/suggest":      1,
+	"winnow/stages/termtext":     1, // escaping for terminal output
+	"winnow/configs":             1,
 }
 
 // moduleImports returns, per package of the module, the module packages

@@ -234,6 +234,9 @@ func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow,
 			readErr = err
 			break
 		}
+		if rec.Issue != nil && rec.Issue.Skip && rec.Doc == nil {
+			continue // a WARC record without page text: not a document, not an error
+		}
 		if rec.Issue != nil {
 			if issues++; issues <= maxIssueLines {
 				fmt.Fprintf(os.Stderr, "winnow count: %s\n", termtext.Escape(fmt.Sprint(rec.Issue)))

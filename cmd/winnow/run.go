@@ -7,6 +7,8 @@ import (
 	"os"
 	"os/signal"
 	"runtime/pprof"
+	"sort"
+	"strings"
 	"syscall"
 
 	"github.com/spf13/cobra"
@@ -155,6 +157,9 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 	fatal := res.Runner.FatalInputs
 	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%d tokens) in %d shards to %s\n",
 		m.Totals.DocsOut, m.Totals.TokensOut, len(m.Outputs), res.Dir)
+	if line := skipLine(m.ReadSkips); line != "" {
+		fmt.Fprintln(os.Stderr, "winnow:", line)
+	}
 	if why := m.EmptyReason(); why != "" {
 		fmt.Fprintf(os.Stderr, "winnow: warning: %s\n", why)
 	}
@@ -180,4 +185,25 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		fmt.Fprintf(os.Stderr, "winnow: finished; skipped %d unreadable record(s) or empty input(s): see ledger/read.jsonl.zst\n", m.ErrorCount)
 	}
 	return res, nil
+}
+
+// skipLine sums the records passed over by rule (WARC records that hold no
+// page text), rules in name order: "skipped 7 records that hold no page
+// text (crawler_record 3, http_status 1, ...): see ledger/read.jsonl.zst".
+func skipLine(skips map[string]int64) string {
+	if len(skips) == 0 {
+		return ""
+	}
+	rules := make([]string, 0, len(skips))
+	var total int64
+	for r, n := range skips {
+		rules = append(rules, r)
+		total += n
+	}
+	sort.Strings(rules)
+	parts := make([]string, len(rules))
+	for i, r := range rules {
+		parts[i] = fmt.Sprintf("%s %d", r, skips[r])
+	}
+	return fmt.Sprintf("skipped %d record(s) that hold no page text (%s): see ledger/read.jsonl.zst", total, strings.Join(parts, ", "))
 }

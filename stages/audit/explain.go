@@ -91,7 +91,8 @@ type RuleCheck struct {
 
 // Result is where the document ended up.
 type Result struct {
-	// Status is "kept" (in the shards), "removed", "read_error" or
+	// Status is "kept" (in the shards), "removed", "read_error",
+	// "read_skip" (a record with no page text, never a document) or
 	// "not_in_shards" (it passed every stage but the output mix left it
 	// out, or the run was interrupted).
 	Status string `json:"status"`
@@ -192,6 +193,13 @@ func (r *Run) explainTrail(t *Trail, shards []ShardLine) *DocPath {
 	if step == -2 {
 		p.Result = Result{Status: "read_error", Stage: "read", Rule: rem.Rule, Reason: r.reason(nil, rem)}
 		return p
+	}
+	for _, rc := range t.Read {
+		if rc.Action == "skip" {
+			p.Result = Result{Status: "read_skip", Stage: "read", Rule: rc.Rule,
+				Reason: fmt.Sprintf("skipped at read by rule %s: the record holds no page text, so it never became a document", rc.Rule)}
+			return p
+		}
 	}
 	for i, st := range r.Steps {
 		tr := &t.Steps[i]

@@ -351,6 +351,13 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 		in := int64(0)
 		if rr.step == -1 {
 			in = r.readCounters().DocsIn
+			if rr.Action == "skip" {
+				// Skipped records never became documents: their share is
+				// of all records that could have.
+				for _, n := range r.Manifest.ReadSkips {
+					in += n
+				}
+			}
 		} else if rr.step < len(r.Steps) {
 			in = r.Steps[rr.step].Counters.DocsIn
 		} else {

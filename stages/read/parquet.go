@@ -138,6 +138,16 @@ func (r *parquetReader) Next() (Record, error) {
 	if !hasText {
 		return Record{Issue: &ReadIssue{File: r.file, Line: ln, Rule: RuleMissingText, Msg: fmt.Sprintf("row has no string %q", r.opt.TextField), DocID: r.defaultID(ln)}}, nil
 	}
+	if r.opt.HTML {
+		s, bad := repairUTF8(text)
+		d := r.newDoc("", id, ln)
+		d.Meta = meta
+		rec := r.fromHTML(d, []byte(s), "text/html; charset=utf-8")
+		if rec.Issue == nil && bad {
+			rec.Issue = repairIssue(&r.baseReader, rec.Doc, true, 0)
+		}
+		return rec, nil
+	}
 	return r.textRecord(text, false, id, ln, meta), nil
 }
 

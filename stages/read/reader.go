@@ -25,10 +25,12 @@ const (
 	FormatText    Format = "text"
 	FormatWARC    Format = "warc"
 	FormatParquet Format = "parquet"
+	// FormatHTML is one HTML page per file, reduced to its main text.
+	FormatHTML Format = "html"
 )
 
 // Formats lists the formats an input may name (a spec's "format" choices).
-var Formats = []Format{FormatAuto, FormatJSONL, FormatText, FormatWARC, FormatParquet}
+var Formats = []Format{FormatAuto, FormatJSONL, FormatText, FormatWARC, FormatParquet, FormatHTML}
 
 // ReadOptions says how to turn an input file's records into documents.
 type ReadOptions struct {
@@ -37,6 +39,10 @@ type ReadOptions struct {
 	// TextField and IDField name the JSONL fields or Parquet columns.
 	TextField string
 	IDField   string
+	// HTML says the text field holds HTML: each document is the page's
+	// main text (package webpage), its <title> in Meta "title"; a page
+	// with no main text is skipped by rule.
+	HTML bool
 	// MetaFields restricts which extra fields go into Meta (nil: all).
 	MetaFields []string
 	// TextMode is "file" (one document per file) or "blocks" (one per
@@ -82,6 +88,10 @@ type ReadIssue struct {
 	Bytes int64
 	// Fatal is set when the rest of the file could not be read.
 	Fatal bool
+	// Skip marks a record passed over by rule, not an error: a WARC record
+	// that holds no page text (Rule is one of webpage.Rules: http_status,
+	// redirect, not_text, crawler_record, no_text, too_large).
+	Skip bool
 }
 
 // Repair reports whether the issue is an edit of a document that is kept
@@ -155,6 +165,8 @@ func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (Reco
 		return &warcReader{baseReader: base, src: r, br: br}, format, nil
 	case FormatParquet:
 		return nil, format, fmt.Errorf("parquet must be read from a seekable, uncompressed file")
+	case FormatHTML:
+		return &htmlReader{baseReader: base, br: br}, format, nil
 	}
 	return nil, format, fmt.Errorf("unknown format %q", format)
 }
@@ -178,6 +190,8 @@ func GuessFormat(file string, head []byte) Format {
 		return FormatParquet
 	case strings.HasSuffix(name, ".txt"), strings.HasSuffix(name, ".text"), strings.HasSuffix(name, ".md"):
 		return FormatText
+	case strings.HasSuffix(name, ".html"), strings.HasSuffix(name, ".htm"), strings.HasSuffix(name, ".xhtml"):
+		return FormatHTML
 	}
 	switch {
 	case bytes.HasPrefix(head, []byte("PAR1")):
@@ -186,8 +200,28 @@ func GuessFormat(file string, head []byte) Format {
 		return FormatWARC
 	case len(bytes.TrimLeft(head, " \t\r\n")) > 0 && bytes.TrimLeft(head, " \t\r\n")[0] == '{':
 		return FormatJSONL
+	case looksHTML(head):
+		return FormatHTML
 	}
 	return FormatText
+}
+
+// looksHTML reports whether a stream starts, after white space and a
+// UTF-8 byte-order mark, with an HTML document type or <html> tag (an
+// XML declaration before them is allowed).
+func looksHTML(head []byte) bool {
+	h := bytes.TrimLeft(bytes.TrimPrefix(head, []byte("\ufeff")), " \t\r\n")
+	if len(h) > 5 && bytes.EqualFold(h[:5], []byte("<?xml")) {
+		if i := bytes.Index(h, []byte("?>")); i >= 0 {
+			h = bytes.TrimLeft(h[i+2:], " \t\r\n")
+		}
+	}
+	for _, p := range []string{"<!doctype html", "<html"} {
+		if len(h) >= len(p) && bytes.EqualFold(h[:len(p)], []byte(p)) {
+			return true
+		}
+	}
+	return false
 }
 
 var utf8BOM = []byte{0xef, 0xbb, 0xbf}
@@ -360,6 +394,17 @@ func (r *jsonlReader) parse(line []byte, ln, off int64) Record {
 		} else if id[0] != 'n' { // numbers and other scalars keep their literal; null means none
 			ids = string(id)
 		}
+	}
+	if r.opt.HTML {
+		d := r.newDoc("", ids, ln)
+		d.Meta = meta
+		rec := r.fromHTML(d, []byte(s), "text/html; charset=utf-8")
+		if rec.Issue != nil {
+			rec.Issue.Offset = off
+		} else if bad {
+			rec.Issue = repairIssue(&r.baseReader, rec.Doc, true, 0)
+		}
+		return rec
 	}
 	return r.textRecord(s, bad, ids, ln, meta)
 }

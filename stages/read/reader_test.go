@@ -314,9 +314,14 @@ func TestReadWARC(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if len(recs) != 2 {
-			t.Fatalf("got %d records, want 2 text records", len(recs))
+		if len(recs) != 3 {
+			t.Fatalf("got %d records, want 3 (a skipped page, 2 text records)", len(recs))
 		}
+		// The response holds a page with no text: skipped by rule.
+		if iss := recs[0].Issue; recs[0].Doc != nil || iss == nil || !iss.Skip || iss.Rule != "no_text" || iss.DocID != "urn:uuid:1" {
+			t.Errorf("response record: %+v %+v", recs[0].Doc, recs[0].Issue)
+		}
+		recs = recs[1:]
 		d := recs[0].Doc
 		if d.ID != "urn:uuid:2" || d.Text != "Winter layup checklist.\nFlush the engine." || d.Meta["url"] != "https://dock.example/a" || d.Meta["date"] != "2026-03-04T05:06:07Z" {
 			t.Errorf("doc %+v", d)

@@ -7,15 +7,21 @@ import (
 	"io"
 	"strconv"
 	"strings"
+
+	"winnow/stages/read/webpage"
 )
 
 // warcReader parses WARC files (ISO 28500, versions 1.0 and 1.1): a record
 // is a version line, named header fields, a blank line, Content-Length
-// bytes of block, and two CRLFs. Text is taken from "conversion" records
-// (extracted text, as in WET files) and from "resource" records whose
-// Content-Type is text/*; other record types (warcinfo, request, response,
-// metadata...) are skipped and counted. Per-record gzip members are handled
-// by the decoder below, which reads multi-member gzip streams.
+// bytes of block, and two CRLFs. Text is taken as it is from "conversion"
+// records (extracted text, as in WET files) and from "resource" records
+// whose Content-Type is text/* other than HTML; "response" records (HTTP
+// messages) and HTML resources go through package webpage, which keeps a
+// page's main text. Records that hold no page text (a redirect, an error
+// status, an image, the crawler's own log, a page without text) come back
+// as skip records naming the rule; record types that never hold documents
+// (warcinfo, request, revisit) are only counted. Per-record gzip members
+// are handled by the decoder below, which reads multi-member gzip streams.
 //
 // The parser is hand-written because it needs only this grammar and must
 // bound memory per record (a record longer than max_doc_bytes is skipped
@@ -322,8 +328,10 @@ func (r *warcReader) Next() (Record, error) {
 		}
 		typ := strings.ToLower(hdr["warc-type"])
 		ctype := strings.ToLower(hdr["content-type"])
-		wanted := typ == "conversion" || (typ == "resource" && (ctype == "" || strings.HasPrefix(ctype, "text/")))
-		keep := wanted && n <= int64(r.opt.MaxDocBytes)
+		uri := strings.Trim(hdr["warc-target-uri"], "<>")
+		kind, rule := warcKind(typ, ctype, uri)
+		wanted := kind != warcOther
+		keep := wanted && rule == "" && n <= int64(r.opt.MaxDocBytes)
 		blockStart := r.off
 		bs, rerr := r.readBlock(n, keep)
 		bad, err := r.endRecord(blockStart, n, bs, rerr)
@@ -337,15 +345,25 @@ func (r *warcReader) Next() (Record, error) {
 			r.Skipped++
 			continue
 		}
-		if !keep {
-			return issue(RuleOversize, fmt.Sprintf("record of %d bytes exceeds max_doc_bytes %d", n, r.opt.MaxDocBytes), n), nil
+		if rule == "" && !keep {
+			if kind != warcPage {
+				return issue(RuleOversize, fmt.Sprintf("record of %d bytes exceeds max_doc_bytes %d", n, r.opt.MaxDocBytes), n), nil
+			}
+			rule = webpage.RuleTooLarge
+		}
+		if rule != "" {
+			return r.skip(start, n, id, uri, typ, rule), nil
+		}
+		date := hdr["warc-date"]
+		if kind == warcPage {
+			return r.page(bs.data, typ, ctype, uri, date, id, start), nil
 		}
 		rec := r.textRecord(string(bs.data), false, id, r.rec, nil)
-		if u := hdr["warc-target-uri"]; u != "" {
-			rec.Doc.SetMeta("url", strings.Trim(u, "<>"))
+		if uri != "" {
+			rec.Doc.SetMeta("url", uri)
 		}
-		if t := hdr["warc-date"]; t != "" {
-			rec.Doc.SetMeta("date", t)
+		if date != "" {
+			rec.Doc.SetMeta("date", date)
 		}
 		return rec, nil
 	}
@@ -356,4 +374,90 @@ func unexpected(err error) error {
 		return io.ErrUnexpectedEOF
 	}
 	return err
+}
+
+// What a WARC record is to the reader.
+const (
+	warcOther = iota // holds no document by its type (warcinfo, request, revisit...): counted in Skipped
+	warcText         // text as it is: conversion records, text resources
+	warcPage         // a web page: response records, HTML resources
+)
+
+// warcKind sorts a record by its WARC-Type, Content-Type and target URI;
+// a record of a document type that holds no page gets the skip rule.
+func warcKind(typ, ctype, uri string) (int, string) {
+	if webpage.IsCrawlerRecord(typ, uri) {
+		return warcText, webpage.RuleCrawlerRecord
+	}
+	switch typ {
+	case "conversion":
+		return warcText, ""
+	case "resource":
+		mt, _, _ := strings.Cut(ctype, ";")
+		switch mt = strings.TrimSpace(mt); {
+		case mt == "text/html" || mt == "application/xhtml+xml":
+			return warcPage, ""
+		case mt == "" || strings.HasPrefix(mt, "text/"):
+			return warcText, ""
+		}
+		return warcText, webpage.RuleNotText
+	case "response":
+		// The block is an HTTP message ("application/http"); DNS and other
+		// protocols' responses are not pages.
+		if ctype == "" || strings.HasPrefix(ctype, "application/http") {
+			return warcPage, ""
+		}
+		return warcPage, webpage.RuleNotText
+	}
+	return warcOther, ""
+}
+
+// skip returns the record of a WARC record passed over by rule.
+func (r *warcReader) skip(start, n int64, id, uri, typ, rule string) Record {
+	return Record{Issue: &ReadIssue{File: r.file, Line: r.rec, Offset: start, Rule: rule, Bytes: n, DocID: id,
+		Msg: typ + " record " + uri, Skip: true}}
+}
+
+// page extracts the main text of a response or HTML resource record
+// (package webpage); the page's title, status and content type go into
+// Meta beside the URL and date.
+func (r *warcReader) page(block []byte, typ, ctype, uri, date, id string, start int64) Record {
+	opt := webpage.Options{MaxBytes: r.opt.MaxDocBytes}
+	var p webpage.Page
+	var rule string
+	var err error
+	if typ == "response" {
+		p, rule, err = webpage.FromWARCResponse(block, uri, date, opt)
+	} else {
+		p, rule, err = webpage.FromWARCResource(block, ctype, uri, date, opt)
+	}
+	n := int64(len(block))
+	if err != nil {
+		return Record{Issue: &ReadIssue{File: r.file, Line: r.rec, Offset: start, Rule: RuleMalformed, Bytes: n, DocID: id,
+			Msg: fmt.Sprintf("%s record %s: %v", typ, uri, err)}}
+	}
+	if rule != "" {
+		rec := r.skip(start, n, id, uri, typ, rule)
+		if p.Status != 0 {
+			rec.Issue.Msg += fmt.Sprintf(" (HTTP %d)", p.Status)
+		} else if p.ContentType != "" && rule == webpage.RuleNotText {
+			rec.Issue.Msg += " (" + p.ContentType + ")"
+		}
+		return rec
+	}
+	d := r.newDoc(p.Text, id, r.rec)
+	setPageMeta(d, p)
+	return Record{Doc: d}
+}
+
+// setPageMeta copies what is known about a page into a document's Meta.
+func setPageMeta(d *Doc, p webpage.Page) {
+	for _, kv := range [...][2]string{{"url", p.URL}, {"date", p.Date}, {"title", p.Title}, {"content_type", p.ContentType}} {
+		if kv[1] != "" {
+			d.SetMeta(kv[0], kv[1])
+		}
+	}
+	if p.Status != 0 {
+		d.SetMeta("status", p.Status)
+	}
 }

@@ -38,8 +38,10 @@ func wgetMembers(t testing.TB) [][]byte {
 	}
 }
 
-// Every record wget wrote is returned: documents (its log, a text/plain
-// resource) plus skipped records add up to the number of gzip members.
+// Every record wget wrote is returned: documents (the three Markdown files
+// it fetched) plus skipped records (its requests, the directory listing
+// with no main text, the 404, its own log and argument list) add up to the
+// number of gzip members.
 func TestWARCWrittenByWget(t *testing.T) {
 	members := wgetMembers(t)
 	raw, _ := os.ReadFile(filepath.Join("..", "..", "testdata", "warc", "crawl.warc.gz"))
@@ -47,8 +49,13 @@ func TestWARCWrittenByWget(t *testing.T) {
 	if err != nil || len(issues) != 0 {
 		t.Fatalf("%v %+v", err, issues)
 	}
-	if int(skipped)+len(docs) != len(members) || len(docs) != 1 || !strings.Contains(docs[0].Text, "127.0.0.1") {
+	if int(skipped)+len(docs) != len(members) || len(docs) != 3 {
 		t.Errorf("%d docs + %d skipped, wget wrote %d records", len(docs), skipped, len(members))
+	}
+	for _, d := range docs {
+		if u, _ := d.Meta["url"].(string); !strings.HasSuffix(u, ".md") || strings.Contains(d.Text, "wget") {
+			t.Errorf("document %s (%s) is not one of the fetched Markdown files", d.ID, u)
+		}
 	}
 }
 

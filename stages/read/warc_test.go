@@ -25,14 +25,16 @@ func readWARCBytes(t testing.TB, b []byte, maxDoc int) (docs []*Doc, issues []*R
 		if rec.Doc != nil {
 			docs = append(docs, rec.Doc)
 		}
-		if rec.Issue != nil && rec.Doc == nil {
+		if rec.Issue != nil && rec.Issue.Skip {
+			skipped++ // passed over by rule (no page text): counted with the other skipped records
+		} else if rec.Issue != nil && rec.Doc == nil {
 			issues = append(issues, rec.Issue)
 		}
 		if e != nil {
 			if e != io.EOF {
 				err = e
 			}
-			return docs, issues, rr.(*warcReader).Skipped, err
+			return docs, issues, skipped + rr.(*warcReader).Skipped, err
 		}
 	}
 }

@@ -41,6 +41,8 @@ type Manifest struct {
 	// the check stopped to stay within memory.
 	DuplicateIDs          int64 `json:"duplicate_ids"`
 	DuplicateCheckStopped int64 `json:"duplicate_check_stopped,omitempty"`
+	// ReadSkips sums the inputs' Skips: records passed over by rule.
+	ReadSkips map[string]int64 `json:"read_skips,omitempty"`
 	// Interrupted is true when the run was stopped before the end; the
 	// ledger holds every decision made until then.
 	Interrupted bool    `json:"interrupted"`
@@ -116,7 +118,11 @@ type InputSummary struct {
 	Issues      int64       `json:"issues"`
 	InvalidUTF8 int64       `json:"invalid_utf8"`
 	Skipped     int64       `json:"skipped_records,omitempty"`
-	Complete    bool        `json:"complete"`
+	// Skips counts, per rule, the records passed over because they hold
+	// no page text (WARC redirects, error statuses, images, the crawler's
+	// own records...); each also has a "skip" record in the read ledger.
+	Skips    map[string]int64 `json:"skips,omitempty"`
+	Complete bool             `json:"complete"`
 	// Warnings are what the reader tolerated in this file (zero padding
 	// after the last compressed stream).
 	Warnings []string `json:"warnings,omitempty"`

@@ -18,6 +18,14 @@ func buildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *re
 	if m.Errors == nil {
 		m.Errors = []record.RunError{}
 	}
+	for _, in := range m.Inputs {
+		for rule, n := range in.Skips {
+			if m.ReadSkips == nil {
+				m.ReadSkips = map[string]int64{}
+			}
+			m.ReadSkips[rule] += n
+		}
+	}
 	m.Stages = append(m.Stages, r.Read.Snapshot())
 	m.Stages = append(m.Stages, r.Counters...)
 	w := r.Write.Snapshot()

@@ -745,6 +745,8 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 func (r *Runner) recordIssue(iss *read.ReadIssue) error {
 	action := "drop"
 	switch {
+	case iss.Skip:
+		action = "skip" // not an error: counted per rule in the manifest
 	case iss.Rule == read.RuleEmptyInput:
 		r.Errors = append(r.Errors, record.RunError{File: iss.File, Rule: iss.Rule, Message: iss.Msg})
 		return nil
@@ -803,7 +805,13 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 		}
 		sum := record.InputSummary{Path: in.Display, Source: in.Options.Source}
 		err := r.readInput(ctx, in, &sum, func(rec read.Record) bool {
-			if rec.Issue != nil {
+			if rec.Issue != nil && rec.Issue.Skip {
+				rec.Issue.Source = in.Options.Source
+				if sum.Skips == nil {
+					sum.Skips = map[string]int64{}
+				}
+				sum.Skips[rec.Issue.Rule]++
+			} else if rec.Issue != nil {
 				rec.Issue.Source = in.Options.Source
 				r.Read.DocsIn++
 				r.Read.BytesIn += rec.Issue.Bytes
@@ -848,7 +856,7 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 			r.logf("%s: %v (documents before this point are kept)", in.Display, err)
 		} else if err == nil {
 			sum.Complete = true
-			if sum.Docs == 0 && sum.Issues == 0 {
+			if sum.Docs == 0 && sum.Issues == 0 && len(sum.Skips) == 0 {
 				r.logf("%s: empty input: no documents", in.Display)
 				cur.items = append(cur.items, item{rec: docRecord{Issue: &read.ReadIssue{Source: in.Options.Source, File: in.Display,
 					Rule: read.RuleEmptyInput, Msg: "empty input: no documents"}}, input: in.Index})

@@ -120,6 +120,15 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		}
 		in.Format = read.Format(ip.String("format", string(read.FormatAuto), formatNames...))
 		in.TextField = ip.String("text_field", "text")
+		if ip.Has("html_field") {
+			if ip.Has("text_field") {
+				ip.Errorf("html_field", "set text_field (plain text) or html_field (HTML, reduced to its main text), not both")
+			}
+			in.TextField, in.HTML = ip.String("html_field", ""), true
+			if in.TextField == "" {
+				ip.Errorf("html_field", "want the name of the field or column that holds HTML")
+			}
+		}
 		in.IDField = ip.String("id_field", "id")
 		if ip.Has("meta_fields") {
 			in.MetaFields = ip.Strings("meta_fields", nil)
