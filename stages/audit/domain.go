@@ -7,6 +7,7 @@ import (
 	"sort"
 	"strings"
 	"text/tabwriter"
+	"unicode"
 
 	"winnow/stages"
 )
@@ -376,7 +377,7 @@ func DomainExcerpt(text string, n int) string {
 	chars := 0
 	space := false
 	for _, c := range strings.TrimSpace(text) {
-		if c == ' ' || c == '\t' || c == '\n' || c == '\r' || c == '\v' || c == '\f' || c == 0x85 || c == 0xA0 || c == 0x2028 || c == 0x2029 {
+		if unicode.IsSpace(c) {
 			space = true
 			continue
 		}
