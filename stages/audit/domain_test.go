@@ -132,7 +132,9 @@ func recountDomain(t *testing.T, runDir string, bins, n int) *domainRecount {
 	for i := 0; i < n && i < len(all); i++ {
 		rc.top = append(rc.top, all[i].id)
 	}
-	sort.SliceStable(all, func(i, j int) bool { return all[i].score < all[j].score || all[i].score == all[j].score && all[i].pos < all[j].pos })
+	sort.SliceStable(all, func(i, j int) bool {
+		return all[i].score < all[j].score || all[i].score == all[j].score && all[i].pos < all[j].pos
+	})
 	for i := 0; i < n && i < len(all); i++ {
 		rc.bottom = append(rc.bottom, all[i].id)
 	}
