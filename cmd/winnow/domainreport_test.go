@@ -313,6 +313,21 @@ output:
 		t.Errorf("console/log problems: %q", problems)
 	}
 
+	// At phone width the domain section stays one column wide: nothing
+	// in it but the scrolling source table reaches past the screen (the
+	// tables of documents turn into one block per document).
+	if err := chromedp.Do(tab, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
+		t.Fatal(err)
+	}
+	wide, err := chromedp.Run(tab, chromedp.Evaluate[[]string](`[...document.querySelectorAll('#domain *')].filter(e => !(e.parentElement && e.parentElement.closest('.scroll:not(:has(table.domain-docs))')) && e.getBoundingClientRect().right > document.documentElement.clientWidth + 1).map(e => e.tagName + " " + (e.getAttribute("class") || "") + ' ' + Math.round(e.getBoundingClientRect().right))`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(wide) > 0 {
+		t.Errorf("at 390 px, parts of the domain section reach past the screen: %q", wide)
+	}
+	checkDomainReport(t, tab, js)
+
 	text, err := runCLI(t, "audit", run)
 	if err != nil {
 		t.Fatal(err)

@@ -18,13 +18,14 @@ const reportDomainDocs = 8
 // domainCSS styles the section (appended to reportCSS).
 const domainCSS = `
 table.domain-docs td.txt{min-width:28ch;font-size:.82rem;color:var(--fg)}
-table.domain-docs td.id{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:.8rem;word-break:break-all;min-width:14ch}
+table.domain-docs td.id{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:.8rem;word-break:break-all;min-width:24ch}
 svg.dhist{width:100%;height:auto;display:block;background:#fff;border-radius:4px}
 svg.dhist .axis{stroke:#8a93a3;stroke-width:1}
 svg.dhist .lbl{fill:#4a5261}
 svg.dhist .removed-side{fill:var(--side)}
 svg.dhist .threshold{stroke:#1d2430;stroke-width:1.5;stroke-dasharray:4 3}
 svg.dhist .tlbl{fill:#1d2430;font-weight:600}
+@media (max-width:600px){.scroll table.domain-docs{min-width:0}table.domain-docs thead{display:none}table.domain-docs tr{display:grid;grid-template-columns:auto 1fr auto auto;border-bottom:1px solid var(--line);padding:4px 0}table.domain-docs td{border:0;padding:2px 6px}table.domain-docs td.id{grid-column:2/-1;min-width:0}table.domain-docs td.txt{grid-column:1/-1;min-width:0}}
 `
 
 func (rep *Report) domainNav() string {
