@@ -325,7 +325,7 @@ func (d *DomainSelection) CutLabel() string {
 	case d.Mode == "min_score":
 		return "min_score " + trimZeros(fmt.Sprintf("%.4f", d.Cut))
 	case d.Method == "importance":
-		return fmt.Sprintf("lowest kept score %s (keep_fraction %g, sampled by importance weight)", trimZeros(fmt.Sprintf("%.4f", d.Cut)), d.KeepFraction)
+		return fmt.Sprintf("keep_fraction %g sampled by importance weight: lowest kept score %s", d.KeepFraction, trimZeros(fmt.Sprintf("%.4f", d.Cut)))
 	}
 	return fmt.Sprintf("keep_fraction %g: lowest kept score %s", d.KeepFraction, trimZeros(fmt.Sprintf("%.4f", d.Cut)))
 }
