@@ -49,7 +49,12 @@ no scripts): the flow, a histogram per metric with its thresholds, the
 removals per rule and source, a what-if sweep of every threshold (the
 documents reaching the output at a few limits around the run's, computed
 from stored metrics as winnow whatif --sweep does, estimates marked), the
-contamination table and a sample of removed documents with their reasons.`,
+contamination table and a sample of removed documents with their reasons.
+
+A run with a domain stage also gets, in the text, the share of each source
+the stage kept and a one-line histogram of domain_score per source, and in
+the HTML report a histogram per source with the cut marked and the highest
+and lowest scoring documents with the start of their text.`,
 	Example: `  winnow audit out/
   winnow audit out/ --json | jq '.rules[] | select(.stage=="quality")'
   winnow audit out/ --rule repeated_lines_share --samples 3

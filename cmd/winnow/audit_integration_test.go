@@ -460,6 +460,10 @@ func TestAuditReportInBrowser(t *testing.T) {
 		}
 	}
 
+	// The domain section (when the run has a domain stage) agrees with
+	// the JSON too.
+	checkDomainReport(t, tab, js)
+
 	// At phone width the page stays one column wide.
 	if err := chromedp.Do(tab, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
 		t.Fatal(err)

@@ -35,10 +35,12 @@ func BuildReport(r *Run, opt ReportOptions) (*Report, error) {
 	if opt.SampleDocs <= 0 {
 		opt.SampleDocs = 3
 	}
-	s, trails, err := Summarize(r, SummaryOptions{Samples: opt.SampleIDs, Histograms: true, KeepTrails: opt.SampleDocs})
+	s, trails, err := Summarize(r, SummaryOptions{Samples: opt.SampleIDs, Histograms: true, KeepTrails: opt.SampleDocs,
+		DomainDocs: reportDomainDocs, DomainTrails: true})
 	if err != nil {
 		return nil, err
 	}
+	r.domainTexts(s.Domain)
 	if s.WhatIf, err = buildWhatIf(r, s); err != nil {
 		return nil, err
 	}
@@ -168,7 +170,7 @@ func (rep *Report) WriteHTML(out io.Writer) error {
 	h := &htmlw{}
 	h.s("<!doctype html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">")
 	h.s(`<meta name="viewport" content="width=device-width, initial-scale=1">`)
-	h.w(`<title>winnow audit: %s</title><style>%s</style></head><body><main>`, esc(s.Name), reportCSS)
+	h.w(`<title>winnow audit: %s</title><style>%s</style></head><body><main>`, esc(s.Name), reportCSS+domainCSS)
 	h.w(`<header><h1>Audit of run “%s”</h1>`, esc(s.Name))
 	h.w(`<p class="meta">%s · winnow %s · config %s`, esc(s.Run), esc(s.ToolVersion), esc(s.ConfigHash))
 	if s.Interrupted {
@@ -199,12 +201,13 @@ func (rep *Report) WriteHTML(out io.Writer) error {
 		h.w(`<div class="kpi"><b>%s</b><span>eval items found in the corpus</span></div>`, num("contam.items_contaminated", int64(items)))
 	}
 	h.s(`</div></header>`)
-	h.s(`<nav><a href="#flow">Flow</a><a href="#rules">Removals by rule</a><a href="#sources">By source</a><a href="#metrics">Metrics</a><a href="#whatif">What-if</a><a href="#contamination">Contamination</a><a href="#samples">Removed documents</a><a href="#inputs">Inputs &amp; errors</a></nav>`)
+	h.w(`<nav><a href="#flow">Flow</a><a href="#rules">Removals by rule</a><a href="#sources">By source</a><a href="#metrics">Metrics</a>%s<a href="#whatif">What-if</a><a href="#contamination">Contamination</a><a href="#samples">Removed documents</a><a href="#inputs">Inputs &amp; errors</a></nav>`, rep.domainNav())
 
 	rep.flowSection(h)
 	rep.rulesSection(h)
 	rep.sourcesSection(h)
 	rep.metricsSection(h)
+	rep.domainSection(h)
 	rep.whatifSection(h)
 	rep.contamSection(h)
 	rep.samplesSection(h)

@@ -37,6 +37,8 @@ type Summary struct {
 	// UnplacedRecords counts ledger records whose file is not a run
 	// input (they are not in any other number).
 	UnplacedRecords int64 `json:"unplaced_records,omitempty"`
+	// Domain is the scores of every domain stage (domain.go).
+	Domain []*DomainSelection `json:"domain,omitempty"`
 	// WhatIf is the report's limit sweeps (filled by BuildReport only).
 	WhatIf *ReportWhatIf `json:"whatif,omitempty"`
 }
@@ -153,6 +155,11 @@ type SummaryOptions struct {
 	// Histograms also bins every metric (one extra pass over the
 	// metrics files).
 	Histograms bool
+	// DomainDocs highest and lowest scoring documents are kept per
+	// domain stage (default 5); DomainTrails keeps their trails, for
+	// showing their text.
+	DomainDocs   int
+	DomainTrails bool
 	// KeepTrails, when > 0, keeps the trails of up to that many removed
 	// documents per rule (for showing their text).
 	KeepTrails int
@@ -186,6 +193,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 		}
 	}
 
+	ds := newDomainSet(r, opt.DomainDocs, opt.DomainTrails)
 	rows := map[string]*RuleRow{}
 	var order []string
 	ruleRow := func(step int, stage, kind, rule, action string) *RuleRow {
@@ -238,6 +246,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 		if hs != nil {
 			hs.add(t)
 		}
+		ds.add(t)
 		step, _ := t.Removal()
 		for i := range t.Read {
 			rc := &t.Read[i]
@@ -454,6 +463,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 	if hs != nil {
 		s.Histograms = hs.finish()
 	}
+	s.Domain = ds.finish()
 	return s, trails, nil
 }
 

@@ -112,6 +112,7 @@ func (s *Summary) WriteText(w io.Writer) error {
 		fmt.Fprintf(w, ", %s tokens", Group(s.Totals.TokensOut))
 	}
 	fmt.Fprintln(w)
+	s.writeDomainHeadline(w)
 
 	fmt.Fprintln(w, "\nflow")
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
@@ -197,6 +198,9 @@ func (s *Summary) WriteText(w io.Writer) error {
 		fmt.Fprintln(tw, line)
 	}
 	if err := tw.Flush(); err != nil {
+		return err
+	}
+	if err := s.writeDomainText(w); err != nil {
 		return err
 	}
 
