@@ -94,6 +94,7 @@ h2{font-size:1.2rem;margin:1.8em 0 .5em;padding-bottom:.2em;border-bottom:2px so
 h3{font-size:1rem;margin:1.1em 0 .4em}
 p{margin:.4em 0}
 .meta,.note{color:var(--dim);font-size:.88rem}
+.meta{overflow-wrap:anywhere}
 code,pre,.mono{font-family:ui-monospace,"SFMono-Regular",Menlo,Consolas,"DejaVu Sans Mono",monospace;font-size:.86rem}
 nav{display:flex;flex-wrap:wrap;gap:6px 14px;margin:10px 0 4px;font-size:.9rem}
 nav a{color:var(--kept);text-decoration:none}

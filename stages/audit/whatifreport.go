@@ -211,8 +211,8 @@ func (rep *Report) whatifSection(h *htmlw) {
 		h.s(`</section>`)
 		return
 	}
-	h.w(`<p class="note">Documents reaching the output if one limit had another value, all else as in the run, recomputed from the stored metrics (as <code>winnow whatif --sweep</code> does; %s s for %d sweeps). Each chart: documents to the output (up) against the limit (across); the dashed line is the run's limit. Hollow points are estimates: a document would reach a stage that never measured it, or a global stage's input changes. Rules switched off in the run are not swept.</p>`,
-		esc(fmt.Sprintf("%.2f", wi.Seconds)), len(wi.Sweeps))
+	h.w(`<p class="note">Documents reaching the output if one limit had another value, all else as in the run, recomputed from the stored metrics (as <code>winnow whatif --sweep</code> does; %d sweeps). Each chart: documents to the output (up) against the limit (across); the dashed line is the run's limit. Hollow points are estimates: a document would reach a stage that never measured it, or a global stage's input changes. Rules switched off in the run are not swept.</p>`,
+		len(wi.Sweeps))
 	if len(wi.Skipped) > 0 {
 		h.w(`<p class="note warn">Only the first %d thresholds are swept, to keep the report quick to build; not swept: %s (use <code>winnow whatif --sweep</code>).</p>`,
 			wi.MaxSweeps, esc(strings.Join(wi.Skipped, ", ")))
