@@ -46,6 +46,11 @@ type Options struct {
 	// Mix gives target token shares by source (nil: input order, all
 	// sources).
 	Mix map[string]float64
+	// Shuffle orders the documents of an unmixed output by a keyed hash
+	// of their ids (with Seed) instead of input order, so every shard
+	// holds every source; pieces of a split document stay together.
+	// Needs a tokenizer (ignored with a mix, which already interleaves).
+	Shuffle bool
 	// BudgetTokens caps the total output (0: no cap).
 	BudgetTokens int64
 	// MaxEpochs bounds up-sampling by repetition (default 1: none).
@@ -135,8 +140,8 @@ func NewBuilder(opt Options) (*Builder, error) {
 	if opt.MemoryBudget <= 0 {
 		opt.MemoryBudget = defaultMemory
 	}
-	if opt.Tokenizer == nil && (opt.Mix != nil || opt.BudgetTokens > 0 || opt.TokenFiles) {
-		return nil, errors.New("mix, budget_tokens and token_files need output.tokenizer")
+	if opt.Tokenizer == nil && (opt.Mix != nil || opt.BudgetTokens > 0 || opt.TokenFiles || opt.Shuffle) {
+		return nil, errors.New("mix, shuffle, budget_tokens and token_files need output.tokenizer")
 	}
 	if opt.SplitTokens <= 0 {
 		opt.SplitTokens = opt.ShardTokens
@@ -165,10 +170,10 @@ func NewBuilder(opt Options) (*Builder, error) {
 	if b.tok != nil {
 		b.asm = &assembler{b: b, tol: int(opt.ShardTokens / cutTolerance)}
 	}
-	if b.tok != nil && opt.Mix == nil {
+	if b.tok != nil && opt.Mix == nil && !opt.Shuffle {
 		b.stream = &streamCutter{shardTokens: opt.ShardTokens, budget: opt.BudgetTokens}
 	}
-	if b.tok != nil && opt.Mix != nil {
+	if b.tok != nil && (opt.Mix != nil || opt.Shuffle) {
 		tmp := opt.TempDir
 		if tmp == "" {
 			tmp = filepath.Join(filepath.Dir(opt.Dir), ".work")
@@ -280,9 +285,16 @@ func (b *Builder) Close() (*Report, error) {
 	if err := b.spill.close(); err != nil {
 		return nil, err
 	}
-	order, mix, err := planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
-	if err != nil {
-		return nil, fmt.Errorf("output: %w", err)
+	var order []slot
+	var mix *MixReport
+	var err error
+	if b.opt.Mix != nil {
+		order, mix, err = planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
+		if err != nil {
+			return nil, fmt.Errorf("output: %w", err)
+		}
+	} else {
+		order = planShuffle(b.units, b.opt.BudgetTokens)
 	}
 	tokens := make([]int64, len(order))
 	for i, s := range order {

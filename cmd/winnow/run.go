@@ -124,8 +124,15 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 	}
 	m := res.Manifest
 	fatal := res.Runner.FatalInputs
-	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%d tokens) in %d shards to %s\n",
-		m.Totals.DocsOut, m.Totals.TokensOut, len(m.Outputs), res.Dir)
+	toks := "tokens not counted: no output.tokenizer"
+	if m.TokensCounted() {
+		toks = fmt.Sprintf("%d tokens", m.Totals.TokensOut)
+	}
+	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%s) in %d shards to %s\n",
+		m.Totals.DocsOut, toks, len(m.Outputs), res.Dir)
+	for _, l := range m.LeftOut() {
+		fmt.Fprintln(os.Stderr, "winnow: left out of the output:", l)
+	}
 	if fatal > 0 {
 		msg := fmt.Errorf("finished, but %d input file(s) could not be read to the end and %d record(s) were unreadable: see errors in %s/manifest.json",
 			fatal, m.ErrorCount-int64(fatal), res.Dir)

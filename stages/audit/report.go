@@ -184,6 +184,8 @@ func (rep *Report) WriteHTML(out io.Writer) error {
 	h.w(`<div class="kpi"><b>%s</b><span>documents in the shards</span></div>`, num("totals.docs_out", s.Totals.DocsOut))
 	if s.TokenStage != "" {
 		h.w(`<div class="kpi"><b>%s</b><span>tokens in the shards</span></div>`, num("totals.tokens_out", s.Totals.TokensOut))
+	} else {
+		h.s(`<div class="kpi"><b>not counted</b><span>tokens (no output.tokenizer)</span></div>`)
 	}
 	share := 0.0
 	if s.Totals.DocsIn > 0 {
@@ -198,7 +200,11 @@ func (rep *Report) WriteHTML(out io.Writer) error {
 		}
 		h.w(`<div class="kpi"><b>%s</b><span>eval items found in the corpus</span></div>`, num("contam.items_contaminated", int64(items)))
 	}
-	h.s(`</div></header>`)
+	h.s(`</div>`)
+	for _, l := range s.LeftOut {
+		h.w(`<p class="note warn">Left out of the output: %s</p>`, esc(l))
+	}
+	h.s(`</header>`)
 	h.s(`<nav><a href="#flow">Flow</a><a href="#rules">Removals by rule</a><a href="#sources">By source</a><a href="#metrics">Metrics</a><a href="#whatif">What-if</a><a href="#contamination">Contamination</a><a href="#samples">Removed documents</a><a href="#inputs">Inputs &amp; errors</a></nav>`)
 
 	rep.flowSection(h)
