@@ -89,6 +89,20 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 			}
 		}
 		tw.Flush()
+		var srcs []string
+		for _, in := range sp.Inputs {
+			srcs = append(srcs, in.Source)
+		}
+		left, err := record.PredictLeftOut(sp.Output, stages.Env{Checking: true}, srcs)
+		if err != nil {
+			return err
+		}
+		if len(left) > 0 {
+			fmt.Fprintln(w, "output (mix):")
+			for _, l := range left {
+				fmt.Fprintln(w, "  "+l)
+			}
+		}
 		fmt.Fprintln(w, "ok")
 		return nil
 	},
