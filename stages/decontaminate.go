@@ -453,6 +453,7 @@ func (d *Decontaminate) decide(doc *Doc, ignore []uint64) Decision {
 			dec.Changes = map[string]int{"pieces": 0, "chars_removed": r.Removed}
 		default:
 			dec = EditDoc("contaminated", strings.Join(r.Pieces, "\n\n"), map[string]int{"pieces": len(r.Pieces), "chars_removed": r.Removed})
+			dec.Value = windows // as for the drop and the flag of the same rule
 		}
 	}
 	dec.Extra = extra
