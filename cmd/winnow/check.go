@@ -4,7 +4,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"os"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
@@ -43,7 +42,7 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 		if _, err := record.OpenSink(sp.Output, stages.Env{Checking: true}, sp.Name); err != nil {
 			return err
 		}
-		w := os.Stdout
+		w := cmd.OutOrStdout()
 		if checkJSON {
 			return printPlanJSON(w, sp, inputs, steps)
 		}
