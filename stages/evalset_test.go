@@ -200,3 +200,38 @@ func FuzzEvalCSV(f *testing.F) {
 		}
 	})
 }
+
+// FuzzEvalJSONLine: a record the loader accepts is one encoding/json
+// accepts too, its id is the "id" string, and the gold answer chosen by
+// choices[label] is the element encoding/json finds at that index.
+func FuzzEvalJSONLine(f *testing.F) {
+	f.Add(`{"id":"a","q":"Which rig has one mast?","choices":["sloop","ketch"],"label":0}`)
+	f.Add(`{"id":"b","q":"x","choices":["sloop","ketch","yawl"],"label":"C"}`)
+	f.Add(`{"id":7,"q":{"stem":"nested"},"choices":[],"label":null}`)
+	f.Add(`{"id":"c","q":"x"} trailing`)
+	f.Fuzz(func(t *testing.T, line string) {
+		spec := EvalSpec{IDField: "id", Fields: []string{"q", "choices[label]"}}
+		it, err := parseEvalJSON([]byte(line), "f.jsonl", 1, spec)
+		if err != nil {
+			return
+		}
+		var ref map[string]any
+		if jerr := json.Unmarshal([]byte(line), &ref); jerr != nil {
+			t.Fatalf("accepted %q, encoding/json says %v", line, jerr)
+		}
+		if it.Text != strings.Join(it.Parts, "\n") || len(it.Parts) == 0 {
+			t.Fatalf("item %+v", it)
+		}
+		if id, ok := ref["id"].(string); ok && id != "" && it.ID != id {
+			t.Fatalf("id %q, want %q", it.ID, id)
+		}
+		choices, _ := ref["choices"].([]any)
+		label, ok := ref["label"].(float64)
+		if !ok || label != float64(int(label)) || int(label) < 0 || int(label) >= len(choices) {
+			return
+		}
+		if gold, ok := choices[int(label)].(string); ok && strings.TrimSpace(gold) != "" && it.Parts[len(it.Parts)-1] != gold {
+			t.Fatalf("choices[label] = %q, want %q (%s)", it.Parts[len(it.Parts)-1], gold, line)
+		}
+	})
+}
