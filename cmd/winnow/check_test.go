@@ -41,7 +41,7 @@ output:
 	var out bytes.Buffer
 	rootCmd.SetOut(&out)
 	rootCmd.SetArgs([]string{"check", p})
-	defer rootCmd.SetArgs(nil)
+	defer func() { rootCmd.SetArgs(nil); rootCmd.SetOut(nil) }()
 	if err := rootCmd.Execute(); err != nil {
 		t.Fatal(err)
 	}

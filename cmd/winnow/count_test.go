@@ -53,7 +53,7 @@ func TestCountCommand(t *testing.T) {
 	var out bytes.Buffer
 	rootCmd.SetOut(&out)
 	rootCmd.SetArgs([]string{"count", "--json", "--tokenizer", "cl100k_base", shardPath, txtPath})
-	defer rootCmd.SetArgs(nil)
+	defer func() { rootCmd.SetArgs(nil); rootCmd.SetOut(nil) }()
 	if err := rootCmd.Execute(); err != nil {
 		t.Fatal(err)
 	}
@@ -96,7 +96,7 @@ func TestCountPerDoc(t *testing.T) {
 	var out bytes.Buffer
 	rootCmd.SetOut(&out)
 	rootCmd.SetArgs([]string{"count", "--per-doc", "--workers", "3", path})
-	defer func() { rootCmd.SetArgs(nil); countOpts.perDoc = false; countOpts.workers = 0 }()
+	defer func() { rootCmd.SetArgs(nil); rootCmd.SetOut(nil); countOpts.perDoc = false; countOpts.workers = 0 }()
 	if err := rootCmd.Execute(); err != nil {
 		t.Fatal(err)
 	}
