@@ -17,19 +17,19 @@ package dedup
 // files.
 //
 // Memory per document: nothing while scanning (records go to disk through
-// half a megabyte of write buffers); in Reduce 24/16 = 1.5 bytes per
+// two megabytes of write buffers); in Reduce 32/64 = 0.5 bytes per
 // document on average for the partition being sorted (never more than the
 // memory budget), and 16 bytes per removed document (order key, index of
 // the kept document, similarity) plus the id string of each kept document
 // that has copies. Ids of all other documents never enter memory. Disk:
-// 24 bytes per document plus its id. A 128-bit hash makes an accidental
+// 32 bytes per document plus its id. A 128-bit hash makes an accidental
 // collision (two different texts treated as copies) vanishingly unlikely
 // (~N²/2^129).
 //
 // Incremental runs: when a previous run's keys are given, the walk merges
 // the previous run's kept hashes (sorted the same way) with this run's, so
 // a document whose hash a previous run kept is removed "of" that run's
-// document; the previous run's text is never read.
+// document whatever its priority; the previous run's text is never read.
 //
 // Key files (this run's kept documents), written atomically:
 //
@@ -60,16 +60,20 @@ import (
 	"winnow/stages/fsio"
 )
 
-// Magic strings of the key files.
+// Layout constants of exact dedup and its key files.
 const (
-	// exactPartitionBits: records are split by the top 4 bits of the hash
-	// into 16 partition files, so Reduce holds 1/16 of them at a time.
-	exactPartitionBits = 4
+	// exactPartitionBits: records are split by the top 6 bits of the hash
+	// into KeyPartitions partition files, so Reduce holds 1/64 of them at
+	// a time.
+	exactPartitionBits = 6
 	exactPartitions    = 1 << exactPartitionBits
 	exactKeysMagic     = "WNWXKEY1"
 	idsMagic           = "WNWIDS01"
 	exactHeaderLen     = 16
-	exactRecLen        = 24
+	// exactRecLen is a sort record: hash (16), priority (8), order (8).
+	exactRecLen = 32
+	// exactKeyLen is a key-file record: hash (16), order (8).
+	exactKeyLen = 24
 )
 
 // Hash128 is a 128-bit xxh3 digest.
@@ -102,7 +106,7 @@ func ExactHash(text string, norm Normalization) (h Hash128, ok bool) {
 	return h, ok
 }
 
-type exactRec struct{ hi, lo, order uint64 }
+type exactRec struct{ hi, lo, prio, order uint64 }
 
 func cmpExactHash(a, b exactRec) int {
 	if a.hi != b.hi {
@@ -120,19 +124,38 @@ func cmpExactHash(a, b exactRec) int {
 	return 0
 }
 
+// putExactKey encodes a key-file record (hash, order: no priority).
+func putExactKey(b []byte, v exactRec) {
+	binary.LittleEndian.PutUint64(b, v.hi)
+	binary.LittleEndian.PutUint64(b[8:], v.lo)
+	binary.LittleEndian.PutUint64(b[16:], v.order)
+}
+
+func getExactKey(b []byte) exactRec {
+	return exactRec{hi: binary.LittleEndian.Uint64(b), lo: binary.LittleEndian.Uint64(b[8:]), order: binary.LittleEndian.Uint64(b[16:])}
+}
+
+// exactCodec sorts by (hash, priority, order).
 var exactCodec = Codec[exactRec]{
 	Size: exactRecLen,
 	Put: func(b []byte, v exactRec) {
 		binary.LittleEndian.PutUint64(b, v.hi)
 		binary.LittleEndian.PutUint64(b[8:], v.lo)
-		binary.LittleEndian.PutUint64(b[16:], v.order)
+		binary.LittleEndian.PutUint64(b[16:], v.prio)
+		binary.LittleEndian.PutUint64(b[24:], v.order)
 	},
 	Get: func(b []byte) exactRec {
-		return exactRec{binary.LittleEndian.Uint64(b), binary.LittleEndian.Uint64(b[8:]), binary.LittleEndian.Uint64(b[16:])}
+		return exactRec{binary.LittleEndian.Uint64(b), binary.LittleEndian.Uint64(b[8:]), binary.LittleEndian.Uint64(b[16:]), binary.LittleEndian.Uint64(b[24:])}
 	},
 	Compare: func(a, b exactRec) int {
 		if c := cmpExactHash(a, b); c != 0 {
 			return c
+		}
+		if a.prio != b.prio {
+			if a.prio < b.prio {
+				return -1
+			}
+			return 1
 		}
 		if a.order != b.order {
 			if a.order < b.order {
@@ -237,7 +260,7 @@ func checkExactKeys(prefix string, norm Normalization) error {
 	if err != nil {
 		return err
 	}
-	if (st.Size()-exactHeaderLen)%exactRecLen != 0 {
+	if (st.Size()-exactHeaderLen)%exactKeyLen != 0 {
 		return fmt.Errorf("previous run keys %s.hashes: truncated", prefix)
 	}
 	if _, err := os.Stat(prefix + ".ids.zst"); err != nil {
@@ -246,9 +269,15 @@ func checkExactKeys(prefix string, norm Normalization) error {
 	return nil
 }
 
-// Add records one document's hash. Documents must be added in input
-// order (strictly increasing order keys).
+// Add records one document's hash with priority 0 (see AddPriority).
 func (x *ExactIndex) Add(order uint64, id string, h Hash128) error {
+	return x.AddPriority(order, id, h, 0)
+}
+
+// AddPriority records one document's hash and keep priority (KeepRule.Priority:
+// of a group of copies the lowest priority is kept, ties by input order).
+// Documents must be added in input order (strictly increasing order keys).
+func (x *ExactIndex) AddPriority(order uint64, id string, h Hash128, priority uint64) error {
 	if x.reduced {
 		return errors.New("dedup: ExactIndex.Add after Reduce")
 	}
@@ -256,7 +285,7 @@ func (x *ExactIndex) Add(order uint64, id string, h Hash128) error {
 		return fmt.Errorf("dedup: documents out of input order (order key %d after %d)", order, x.last)
 	}
 	x.started, x.last = true, order
-	if err := x.parts.add(int(h.Hi>>(64-exactPartitionBits)), exactRec{h.Hi, h.Lo, order}); err != nil {
+	if err := x.parts.add(int(h.Hi>>(64-exactPartitionBits)), exactRec{h.Hi, h.Lo, priority, order}); err != nil {
 		return err
 	}
 	x.stats.Docs++
@@ -301,7 +330,7 @@ func (x *ExactIndex) Reduce() (err error) {
 		}
 	}
 
-	var recBuf [exactRecLen]byte
+	var recBuf [exactKeyLen]byte
 	cur, have := it.Next()
 	for have {
 		first := cur
@@ -318,7 +347,7 @@ func (x *ExactIndex) Reduce() (err error) {
 			}
 		}
 		if rep < 0 && out != nil {
-			exactCodec.Put(recBuf[:], first)
+			putExactKey(recBuf[:], first)
 			if _, err = out.Write(recBuf[:]); err != nil {
 				return err
 			}
@@ -527,7 +556,7 @@ func openExactKeys(prefix string) (*exactKeyReader, error) {
 }
 
 func (k *exactKeyReader) advance() error {
-	var b [exactRecLen]byte
+	var b [exactKeyLen]byte
 	if _, err := io.ReadFull(k.r, b[:]); err != nil {
 		if err == io.EOF {
 			k.have, k.done = false, true
@@ -535,7 +564,7 @@ func (k *exactKeyReader) advance() error {
 		}
 		return fmt.Errorf("previous run keys %s: %w", k.path, err)
 	}
-	k.cur, k.have = exactCodec.Get(b[:]), true
+	k.cur, k.have = getExactKey(b[:]), true
 	return nil
 }
 

@@ -68,16 +68,3 @@ func TestNewBandingMustDivide(t *testing.T) {
 		}
 	}
 }
-
-func TestUnionFindEarliestRoot(t *testing.T) {
-	u := NewUnionFind(10)
-	u.Union(7, 3)
-	u.Union(9, 7)
-	u.Union(5, 9)
-	if r := u.Find(9); r != 3 {
-		t.Fatalf("root %d, want 3 (smallest member)", r)
-	}
-	if u.Same(1, 3) || !u.Same(5, 3) {
-		t.Fatal("wrong membership")
-	}
-}

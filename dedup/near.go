@@ -1,45 +1,58 @@
 package dedup
 
-// Near-duplicate detection: MinHash signatures (minhash.go), LSH banding
-// (lsh.go), candidate verification, union-find clusters (unionfind.go).
+// Near-duplicate detection: MinHash signatures (minhash.go, Broder 1997),
+// LSH banding (lsh.go), candidate pairs found per band-key partition and
+// verified, then one greedy pass in keep-priority order (near_pairs.go).
 //
 // Scan (NearIndex.Key, pure, any goroutine) computes a document's
-// signature and its band hashes. Add (input order, one goroutine) gives the
-// document the next dense index, appends its signature record to a temp
-// file, its (order key, id) to the id log, and one packed band key
-// (bandHash<<32 | index) to the temp file of each band. Reduce:
+// signature and its band hashes; the caller may set the key's keep
+// Priority (keep.go). Add (input order, one goroutine) gives the document
+// the next dense index, appends its signature record to a temp file, its
+// (order key, id) to the id log, its priority to a priority log, and one
+// packed band key (bandHash<<32 | index) per band to the partition file
+// that the band hash falls in (KeyPartitions = 64 hash ranges, fixed: the
+// same for any number of workers or processes). Reduce:
 //
-//  1. takes the bands one at a time: reads the band's keys (already in
-//     index order), sorts them by band hash (a stable radix sort; or an
-//     external sort when even one band's keys exceed the memory budget),
-//     so documents sharing a band hash arrive together, in input order.
-//     Each group keeps up to maxHeads "heads" (the earliest distinct
-//     members); every later member is compared with the heads, skipping
-//     it when a head is already in its cluster, and is unioned with the
-//     first head it matches. A match is an estimated Jaccard (fraction of
-//     equal signature values) >= threshold, or under verify exact the
-//     exact Jaccard of the two documents' hashed shingle sets. Comparing
-//     with heads instead of all pairs bounds the work of big groups
-//     (thousands of mirrored pages) to maxHeads per member.
-//  2. every document whose cluster root (smallest index = earliest
-//     document) is not itself is removed "of" the root, with the
-//     similarity of the two (estimated, or exact under verify exact). In a
-//     chain A~B~C the similarity of C to A may be below the threshold; the
-//     ledger reports it as measured.
-//  3. one sequential pass over the id log and signature file (input order)
+//  1. ranks the documents by (priority, input order) — the identity when
+//     every priority is equal (keep: first) — with previous-run documents
+//     ranked before all of this run's;
+//  2. takes the partitions one at a time, sorts their keys by (band hash,
+//     rank), and in every bucket of equal band hashes compares each
+//     member with the first BucketCap (8) members of the bucket, its
+//     heads; a pair is verified when the estimated Jaccard (fraction of
+//     equal signature values) — or under verify exact the exact Jaccard of
+//     the hashed shingle sets — is >= threshold. Verified pairs (later
+//     rank, earlier rank, similarity) go to an external sort. Partitions
+//     share no bucket, so they could run anywhere, in any order;
+//  3. walks the verified pairs in rank order: a document is removed when
+//     it has a verified pair with an earlier-ranked document that was
+//     kept, "of" the best-ranked such document. So every removed document
+//     points at a kept document at least threshold-similar to it (no
+//     chains A~B~C where C is far from A); a document whose only similar
+//     partners were themselves removed is kept;
+//  4. one sequential pass over the id log and signature file (input order)
 //     resolves order keys and kept ids and writes this run's key file.
 //
+// The heads bound the work of big buckets (thousands of mirrored pages
+// sharing a band): a bucket of m members costs at most BucketCap·m
+// comparisons, not m²/2. The price is recall: a member similar only to a
+// non-head member of every bucket it is in is missed. docs/dedup.md gives
+// the measured effect.
+//
 // Memory per document: while scanning, nothing but write buffers (band
-// keys, signatures of 4·permutations bytes, shingle sets under verify
-// exact, and ids all go to temp files; they are read back sequentially or
-// with positioned reads). During Reduce: 16 bytes per document for the one
-// band being sorted (keys + radix scratch) when that fits the memory
-// budget, else the external sort's budget; 4 bytes per document of
-// union-find parents; maxHeads signatures; 16 bytes per removed document
-// and the ids of kept documents with copies. So the resident state is
-// about 20 bytes per document, and bounded by the budget plus 4 bytes per
-// document when the budget is small. Disk: 8·bands + 4·permutations bytes
-// per document (256 + 512 at the defaults) plus ids.
+// keys, signatures of 4·permutations bytes, priorities, shingle sets under
+// verify exact, and ids all go to temp files, read back sequentially or
+// with positioned reads). During Reduce: 16 bytes per band key of the one
+// partition being sorted (bands/64 keys per document: 4 bytes per document
+// at the defaults) when that fits 3/4 of the memory budget, else an
+// external sort within it; the verified pairs (16 bytes each in memory) in
+// an external sort within the other quarter; 1 bit per document
+// (removed); 8-16 bytes per document of verified-pair table (at most 1/16
+// of the budget); 8 bytes per document of rank tables only when
+// priorities differ; BucketCap signatures; 12 bytes per removed document
+// and the ids of kept documents with copies. Disk: 8·bands +
+// 4·permutations + 8 bytes per document (128 + 512 + 8 at the defaults)
+// plus ids and 10 bytes per verified pair.
 //
 // verify: exact keeps the hashed shingle sets spilled in a temp file (there
 // is no second pass over the text in the scan/reduce/apply contract), so it
@@ -48,11 +61,12 @@ package dedup
 //
 // Incremental runs: a previous run's key file holds the signatures (and,
 // if that run verified exactly, shingle sets) and ids of its kept
-// documents. They take indices 0..P-1, before this run's documents, so
-// they win every cluster they join: this run's documents similar to them
-// are removed "of" them. The previous run's text is never read. When this
-// run verifies exactly but the previous key file has no shingle sets,
-// pairs involving a previous-run document are verified by signatures.
+// documents. They take indices and ranks 0..P-1, before this run's
+// documents, are never removed and never compared with each other, so
+// this run's documents similar to them are removed "of" them. The
+// previous run's text is never read. When this run verifies exactly but
+// the previous key file has no shingle sets, pairs involving a
+// previous-run document are verified by signatures.
 //
 // Key file PREFIX.sigs.zst (zstd stream), written atomically:
 //
@@ -63,7 +77,8 @@ package dedup
 //	sorted shingle hashes; uvarint len(id), id.
 //
 // Not implemented: re-verification of previous-run documents against each
-// other (they were deduplicated by their own run), weighting of shingles.
+// other (they were deduplicated by their own run), weighting of shingles,
+// running the partitions in parallel.
 
 import (
 	"bufio"
@@ -76,11 +91,17 @@ import (
 	"slices"
 )
 
-// Tuning constants of near-duplicate clustering.
+// Tuning constants of near-duplicate detection.
 const (
-	// maxHeads bounds comparisons per member of a band group; 8 heads
-	// catch groups mixing a few distinct clusters without quadratic cost.
-	maxHeads = 8
+	// KeyPartitions is the number of hash partitions of band keys (near
+	// dedup) and hashes (exact dedup). It is fixed, not derived from the
+	// worker count, so decisions never depend on how the reduce is split;
+	// 64 partitions keep one partition's keys at 1/64 of the total.
+	KeyPartitions = 64
+	// DefaultBucketCap bounds the heads each member of a band bucket is
+	// compared with; 8 heads catch buckets mixing a few distinct clusters
+	// without quadratic cost (recall measured in docs/dedup.md).
+	DefaultBucketCap = 8
 	// nearKeysMagic starts a near-dedup key file.
 	nearKeysMagic = "WNWNKEY1"
 	// maxDocs is the number of documents a dense uint32 index can hold
@@ -100,6 +121,12 @@ type NearOptions struct {
 	MemoryBudget int64
 	Against      string // key-file prefix of a previous run ("" for none)
 	KeysOut      string // key-file prefix for this run's kept keys ("" for none)
+	// Partitions is the number of band-key partitions (default
+	// KeyPartitions). Decisions do not depend on it; tests vary it.
+	Partitions int
+	// BucketCap is the number of heads per bucket (default
+	// DefaultBucketCap); larger values trade time for recall.
+	BucketCap int
 }
 
 // NearKey is what Scan computes for one document.
@@ -107,27 +134,35 @@ type NearKey struct {
 	Sig      []uint32 // MinHash signature
 	Bands    []uint32 // band hashes
 	Shingles []uint64 // sorted distinct shingle hashes (verify exact only)
+	// Priority is the keep priority (KeepRule.Priority): of similar
+	// documents the lowest is kept, ties by input order. Set by the caller.
+	Priority uint64
 }
 
 // NearIndex finds near-duplicate documents added in input order.
 type NearIndex struct {
-	opt     NearOptions
-	mh      *MinHasher
-	band    Banding
-	dir     string
-	bands   *partLog[uint64] // this run's band keys, one file per band
-	prevBd  *partLog[uint64] // previous run's band keys
-	ids     *idLog
-	cur     *recFile // this run's signature records
-	prevRec *recFile // previous run's signature records
-	prevN   uint32   // documents in the previous run's key file
-	prevSh  bool     // previous key file has shingle sets
-	n       uint32   // documents added
-	last    uint64
-	started bool
-	reduced bool
-	rm      removals
-	stats   IndexStats
+	opt      NearOptions
+	mh       *MinHasher
+	band     Banding
+	dir      string
+	bands    *partLog[uint64] // this run's band keys, one file per partition
+	prevBd   *partLog[uint64] // previous run's band keys
+	prios    *partLog[uint64] // this run's priorities, in input order
+	ids      *idLog
+	cur      *recFile // this run's signature records
+	prevRec  *recFile // previous run's signature records
+	prevN    uint32   // documents in the previous run's key file
+	prevSh   bool     // previous key file has shingle sets
+	n        uint32   // documents added
+	prio0    uint64   // priority of the first document
+	prioDiff bool     // some priorities differ (rank != index)
+	perm     []uint32 // rank → index (nil: identity)
+	rank     []uint32 // index → rank (nil: identity)
+	last     uint64
+	started  bool
+	reduced  bool
+	rm       removals
+	stats    IndexStats
 }
 
 // NewNearIndex returns an empty index, checking a previous run's key file
@@ -141,6 +176,12 @@ func NewNearIndex(opt NearOptions) (*NearIndex, error) {
 	}
 	if opt.Bands == 0 {
 		opt.Bands = 16
+	}
+	if opt.Partitions <= 0 {
+		opt.Partitions = KeyPartitions
+	}
+	if opt.BucketCap <= 0 {
+		opt.BucketCap = DefaultBucketCap
 	}
 	mh, err := NewMinHasher(opt.Permutations, opt.NGram, opt.Seed)
 	if err != nil {
@@ -174,7 +215,10 @@ func NewNearIndex(opt NearOptions) (*NearIndex, error) {
 		x.cur, err = newRecFile(dir, "sigs", opt.Permutations, opt.VerifyExact)
 	}
 	if err == nil {
-		x.bands, err = newPartLog(&Uint64Codec, dir, "bands", bd.Bands)
+		x.bands, err = newPartLog(&Uint64Codec, dir, "bands", opt.Partitions)
+	}
+	if err == nil {
+		x.prios, err = newPartLog(&Uint64Codec, dir, "prios", 1)
 	}
 	if err != nil {
 		x.Close()
@@ -204,6 +248,12 @@ func (x *NearIndex) Key(text string) *NearKey {
 	return k
 }
 
+// partition returns the partition of a band hash: contiguous hash ranges,
+// so any partition count splits the same buckets.
+func (x *NearIndex) partition(h uint32) int {
+	return int(uint64(h) * uint64(x.opt.Partitions) >> 32)
+}
+
 // Add indexes one document's key (nil keys are ignored: nothing to
 // compare). Documents must be added in input order.
 func (x *NearIndex) Add(order uint64, id string, k *NearKey) error {
@@ -230,8 +280,16 @@ func (x *NearIndex) Add(order uint64, id string, k *NearKey) error {
 	if err := x.ids.add(order, id); err != nil {
 		return err
 	}
-	for b, h := range k.Bands {
-		if err := x.bands.add(b, bandKey(h, idx)); err != nil {
+	if x.n == 0 {
+		x.prio0 = k.Priority
+	} else if k.Priority != x.prio0 {
+		x.prioDiff = true
+	}
+	if err := x.prios.add(0, k.Priority); err != nil {
+		return err
+	}
+	for _, h := range k.Bands {
+		if err := x.bands.add(x.partition(h), bandKey(h, idx)); err != nil {
 			return err
 		}
 	}
@@ -242,16 +300,17 @@ func (x *NearIndex) Add(order uint64, id string, k *NearKey) error {
 
 // loaded is a document's signature (and shingles) read back for comparison.
 type loaded struct {
-	idx    uint32
-	ok     bool
+	rank   uint32 // the document's rank (bucket walk)
+	ok     bool   // sig (and sh) hold the document's record
 	sig    []uint32
 	sh     []uint64
 	hasSh  bool
 	rawBuf []byte
 }
 
+// load reads the record of the document with the given dense index.
 func (x *NearIndex) load(l *loaded, idx uint32) error {
-	l.idx, l.ok = idx, true
+	l.ok = true
 	f := x.cur
 	i := int64(idx) - int64(x.prevN)
 	if idx < x.prevN {
@@ -269,13 +328,17 @@ func (x *NearIndex) similarity(a, b *loaded) float64 {
 	return EstimateJaccard(a.sig, b.sig)
 }
 
-// Reduce clusters the documents. It is called once, after the last Add.
+// Reduce decides which documents are near copies. It is called once,
+// after the last Add.
 func (x *NearIndex) Reduce() (err error) {
 	if x.reduced {
 		return errors.New("dedup: NearIndex.Reduce called twice")
 	}
 	x.reduced = true
 	if err := x.cur.flush(); err != nil {
+		return err
+	}
+	if err := x.prios.flush(); err != nil {
 		return err
 	}
 	if x.prevN > 0 {
@@ -286,81 +349,47 @@ func (x *NearIndex) Reduce() (err error) {
 	if err := x.bands.flush(); err != nil {
 		return err
 	}
-	total := x.prevN + x.n
-	uf := NewUnionFind(int(total))
-	g := grouper{x: x, uf: uf}
-	budget := x.opt.MemoryBudget
-	if budget <= 0 {
-		budget = DefaultMemoryBudget
+	if err := x.rankDocs(); err != nil {
+		return err
 	}
-	// One band at a time: 8 bytes per document for the band's keys plus 8
-	// for the radix sort's scratch, or an external sort under the budget.
-	inMemory := 16*int64(total) <= budget
-	var keys, tmp []uint64
-	if inMemory {
-		keys, tmp = make([]uint64, 0, total), make([]uint64, total)
-		x.stats.ResidentBytes = 16 * int64(total)
-	}
-	for b := 0; b < x.band.Bands; b++ {
-		g.reset()
-		if inMemory {
-			var err error
-			keys = keys[:0]
-			if x.prevBd != nil {
-				if keys, err = x.prevBd.read(b, keys); err != nil {
-					return err
-				}
-			}
-			if keys, err = x.bands.read(b, keys); err != nil {
-				return err
-			}
-			x.stats.Records += int64(len(keys))
-			sortBandKeys(keys, tmp[:len(keys)])
-			for _, k := range keys {
-				if err := g.add(k); err != nil {
-					return err
-				}
-			}
-			continue
-		}
-		if err := x.externalBand(b, &g); err != nil {
+	// The pair sort holds a quarter of the budget while the partitions
+	// are walked with the rest, so together they stay within it.
+	pairs := NewSorter(pairCodec, x.dir, max(x.budget()/4, 1))
+	defer pairs.Close()
+	w := newBucketWalker(x, pairs)
+	for p := 0; p < x.opt.Partitions; p++ {
+		if err := x.walkPartition(p, w); err != nil {
 			return err
 		}
 	}
-	keys, tmp = nil, nil
+	rms, err := x.greedy(pairs)
+	if err != nil {
+		return err
+	}
+	x.rank = nil
 
-	// Removed documents, in input order.
+	// Removed documents, in input order, each pointing at its kept
+	// document (rep entries hold the kept index until resolve).
+	for i := range rms {
+		rms[i].doc, rms[i].kept = x.indexOf(rms[i].doc), x.indexOf(rms[i].kept)
+	}
+	x.perm = nil
+	slices.SortFunc(rms, func(a, b rmRank) int { return int64cmp(int64(a.doc), int64(b.doc)) })
 	repOf := map[uint32]int32{}
-	var root, member loaded
-	seqs := make([]uint32, 0) // seq of each removal, parallel to x.rm.list
-	for seq := uint32(0); seq < x.n; seq++ {
-		u := x.prevN + seq
-		r := uf.Find(u)
-		if r == u {
-			continue
-		}
-		if !root.ok || root.idx != r {
-			if err := x.load(&root, r); err != nil {
-				return err
-			}
-		}
-		if err := x.load(&member, u); err != nil {
-			return err
-		}
-		rep, ok := repOf[r]
+	seqs := make([]uint32, 0, len(rms))
+	for _, r := range rms {
+		rep, ok := repOf[r.kept]
 		if !ok {
-			rep = x.rm.addRep(uint64(r), r < x.prevN) // order filled below
-			repOf[r] = rep
+			rep = x.rm.addRep(uint64(r.kept), r.kept < x.prevN) // order filled by resolve
+			repOf[r.kept] = rep
 		}
-		x.rm.add(0, rep, x.similarity(&root, &member))
-		seqs = append(seqs, seq)
-		if r < x.prevN {
+		x.rm.list = append(x.rm.list, removal{rep: rep, sim: r.sim})
+		seqs = append(seqs, r.doc-x.prevN)
+		if r.kept < x.prevN {
 			x.stats.RemovedPrev++
 		}
 	}
 	x.stats.Removed = int64(len(x.rm.list))
-	uf = nil
-
 	if err := x.resolve(seqs); err != nil {
 		return err
 	}
@@ -368,6 +397,23 @@ func (x *NearIndex) Reduce() (err error) {
 	// sort anyway to guard Lookup's binary search.
 	x.rm.sort()
 	return nil
+}
+
+func int64cmp(a, b int64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
+}
+
+func (x *NearIndex) budget() int64 {
+	if x.opt.MemoryBudget <= 0 {
+		return DefaultMemoryBudget
+	}
+	return x.opt.MemoryBudget
 }
 
 // resolve makes one pass over the id log and signature file in input
@@ -467,7 +513,7 @@ func (x *NearIndex) loadPrev() error {
 	}
 	var sig []uint32
 	var sh []uint64
-	if x.prevBd, err = newPartLog(&Uint64Codec, x.dir, "prev-bands", x.band.Bands); err != nil {
+	if x.prevBd, err = newPartLog(&Uint64Codec, x.dir, "prev-bands", x.opt.Partitions); err != nil {
 		return err
 	}
 	bands := make([]uint32, 0, x.band.Bands)
@@ -484,8 +530,8 @@ func (x *NearIndex) loadPrev() error {
 			return err
 		}
 		bands = x.band.Hashes(sig, bands[:0])
-		for b, h := range bands {
-			if err := x.prevBd.add(b, bandKey(h, j)); err != nil {
+		for _, h := range bands {
+			if err := x.prevBd.add(x.partition(h), bandKey(h, j)); err != nil {
 				return err
 			}
 		}
@@ -510,6 +556,7 @@ func (x *NearIndex) Close() error {
 	x.prevRec.close()
 	x.bands.close()
 	x.prevBd.close()
+	x.prios.close()
 	var err error
 	if x.dir != "" {
 		if rerr := os.RemoveAll(x.dir); err == nil {
@@ -758,127 +805,4 @@ func (o *nearKeysOut) add(sig []uint32, sh []uint64, hasSh bool, id []byte) erro
 	o.b = b
 	_, err := o.w.Write(b)
 	return err
-}
-
-// grouper walks one band's sorted keys and unions verified candidates.
-// Heads are the earliest distinct members of the current group of equal
-// band hashes (pool[:nh]); their buffers are reused from group to group.
-type grouper struct {
-	x         *NearIndex
-	uf        *UnionFind
-	pool      [maxHeads]loaded
-	nh        int
-	member    loaded
-	groupHash uint32
-	started   bool
-}
-
-func (g *grouper) reset() { g.nh, g.started = 0, false }
-
-func (g *grouper) add(key uint64) error {
-	x, uf := g.x, g.uf
-	h, idx := splitBandKey(key)
-	if !g.started || h != g.groupHash {
-		g.started, g.groupHash = true, h
-		g.nh = 0
-	}
-	if g.nh == 0 {
-		g.pool[0].idx, g.pool[0].ok = idx, false // loaded only if a second member comes
-		g.nh = 1
-		return nil
-	}
-	root := uf.Find(idx)
-	for i := 0; i < g.nh; i++ {
-		if uf.Find(g.pool[i].idx) == root {
-			return nil // already in this cluster
-		}
-	}
-	if err := x.load(&g.member, idx); err != nil {
-		return err
-	}
-	for i := 0; i < g.nh; i++ {
-		hd := &g.pool[i]
-		if !hd.ok {
-			if err := x.load(hd, hd.idx); err != nil {
-				return err
-			}
-		}
-		x.stats.Candidates++
-		if x.similarity(hd, &g.member) >= x.opt.Threshold {
-			x.stats.Verified++
-			uf.Union(hd.idx, idx)
-			return nil
-		}
-	}
-	if g.nh < maxHeads {
-		g.pool[g.nh], g.member = g.member, g.pool[g.nh]
-		g.nh++
-	}
-	return nil
-}
-
-// externalBand sorts one band's keys with an external Sorter under the
-// memory budget and feeds them to g.
-func (x *NearIndex) externalBand(b int, g *grouper) error {
-	s := NewSorter(Uint64Codec, x.dir, x.opt.MemoryBudget)
-	defer s.Close()
-	if x.prevBd != nil {
-		if err := x.prevBd.each(b, s.Add); err != nil {
-			return err
-		}
-	}
-	if err := x.bands.each(b, s.Add); err != nil {
-		return err
-	}
-	x.stats.Records += s.Len()
-	x.stats.Runs += s.Runs()
-	x.stats.ResidentBytes = max(x.stats.ResidentBytes, s.ResidentBytes())
-	it, err := s.Iterate()
-	if err != nil {
-		return err
-	}
-	defer it.Close()
-	x.stats.SpilledBytes += s.SpilledBytes()
-	for {
-		k, ok := it.Next()
-		if !ok {
-			break
-		}
-		if err := g.add(k); err != nil {
-			return err
-		}
-	}
-	return it.Err()
-}
-
-// sortBandKeys sorts one band's keys by (hash, index). The keys arrive in
-// index order, so a stable sort by the high 32 bits alone is enough: two
-// 16-bit LSD radix passes through tmp (len(tmp) == len(keys)); small
-// slices use a comparison sort (same result: keys are distinct).
-func sortBandKeys(keys, tmp []uint64) {
-	if len(keys) < 1<<14 {
-		slices.Sort(keys)
-		return
-	}
-	var count [1 << 16]int
-	radixPass(keys, tmp, 32, &count)
-	radixPass(tmp, keys, 48, &count)
-}
-
-func radixPass(src, dst []uint64, shift uint, count *[1 << 16]int) {
-	clear(count[:])
-	for _, k := range src {
-		count[(k>>shift)&0xffff]++
-	}
-	pos := 0
-	for i, c := range count {
-		count[i] = pos
-		pos += c
-	}
-	dst = dst[:len(src)]
-	for _, k := range src {
-		d := (k >> shift) & 0xffff
-		dst[count[d]] = k
-		count[d]++
-	}
 }

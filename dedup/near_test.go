@@ -46,6 +46,12 @@ func order(i int) uint64 { return uint64(i)*5 + 2 }
 // order, adds keys in input order, reduces and looks every document up.
 func runNear(t *testing.T, texts []string, opt NearOptions, workers int, ids func(int) string) ([]result, IndexStats) {
 	t.Helper()
+	return runNearKeep(t, texts, opt, workers, ids, nil)
+}
+
+// runNearKeep is runNear with a keep priority per document (nil: all 0).
+func runNearKeep(t testing.TB, texts []string, opt NearOptions, workers int, ids func(int) string, prio func(int) uint64) ([]result, IndexStats) {
+	t.Helper()
 	if opt.TempDir == "" {
 		opt.TempDir = t.TempDir()
 	}
@@ -71,6 +77,9 @@ func runNear(t *testing.T, texts []string, opt NearOptions, workers int, ids fun
 	}
 	wg.Wait()
 	for i, k := range keys {
+		if k != nil && prio != nil {
+			k.Priority = prio(i)
+		}
 		if err := x.Add(order(i), ids(i), k); err != nil {
 			t.Fatal(err)
 		}
@@ -223,7 +232,7 @@ func TestSortBandKeysRadix(t *testing.T) {
 	}
 	want := slices.Clone(keys)
 	slices.Sort(want)
-	sortBandKeys(keys, make([]uint64, len(keys)))
+	sortBandKeys(keys, make([]uint64, len(keys)), false)
 	if !slices.Equal(keys, want) {
 		t.Fatal("radix sort of band keys differs from a comparison sort")
 	}

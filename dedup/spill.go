@@ -30,6 +30,7 @@ import (
 	"io"
 	"os"
 	"slices"
+	"unsafe"
 )
 
 // Tuning constants of the external sort.
@@ -92,7 +93,10 @@ func NewSorter[T any](c Codec[T], dir string, budget int64) *Sorter[T] {
 	if budget <= 0 {
 		budget = DefaultMemoryBudget
 	}
-	limit := budget / int64(c.Size)
+	// The records in memory take the larger of their encoded size and
+	// their Go size (a 10-byte record may occupy a 16-byte struct).
+	var zero T
+	limit := budget / max(int64(c.Size), int64(unsafe.Sizeof(zero)))
 	if limit < minRunRecords {
 		limit = minRunRecords
 	}
@@ -136,7 +140,10 @@ func (s *Sorter[T]) Runs() int { return len(s.runs) }
 func (s *Sorter[T]) SpilledBytes() int64 { return s.spilled }
 
 // ResidentBytes returns the bytes of records currently held in memory.
-func (s *Sorter[T]) ResidentBytes() int64 { return int64(cap(s.buf)) * int64(s.c.Size) }
+func (s *Sorter[T]) ResidentBytes() int64 {
+	var zero T
+	return int64(cap(s.buf)) * max(int64(s.c.Size), int64(unsafe.Sizeof(zero)))
+}
 
 func (s *Sorter[T]) sortBuf() {
 	if s.c.Sort != nil {

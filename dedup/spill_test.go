@@ -68,11 +68,11 @@ func TestSorterSpillMatchesMemory(t *testing.T) {
 
 func TestSorterExactRecords(t *testing.T) {
 	dir := t.TempDir()
-	s := NewSorter(exactCodec, dir, 48) // 4-record runs
+	s := NewSorter(exactCodec, dir, 4*exactRecLen) // 4-record runs
 	var want []exactRec
 	rng := rand.New(rand.NewPCG(2, 2))
 	for i := 0; i < 300; i++ {
-		r := exactRec{rng.Uint64() % 5, rng.Uint64(), uint64(i)}
+		r := exactRec{rng.Uint64() % 5, rng.Uint64(), rng.Uint64() % 3, uint64(i)}
 		want = append(want, r)
 		s.Add(r)
 	}

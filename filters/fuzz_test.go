@@ -6,6 +6,7 @@ import (
 	"strings"
 	"sync"
 	"testing"
+	"unicode"
 	"unicode/utf8"
 )
 
@@ -32,48 +33,63 @@ func checkFraction(t *testing.T, name string, v float64, nanOK bool) {
 }
 
 // checkMetrics asserts the invariants of Measure on any text: the word
-// count is strings.Fields', ratios are defined (NaN only without words),
+// count is refWords', ratios are defined (NaN only without words),
 // fractions lie in [0, 1], stop-word counts are bounded by the tokens.
 func checkMetrics(t *testing.T, text string, q Quality, r Repetition) {
 	t.Helper()
-	if q.Words != len(strings.Fields(text)) {
-		t.Fatalf("words %d, strings.Fields %d", q.Words, len(strings.Fields(text)))
+	if q.Words != len(refWords(text)) {
+		t.Fatalf("words %d, refWords %d", q.Words, len(refWords(text)))
 	}
 	noWords := q.Words == 0
-	if noWords != math.IsNaN(q.MeanWordLen) || noWords != math.IsNaN(q.AlphaWords) || noWords != math.IsNaN(q.SymbolRatio) {
+	if noWords != math.IsNaN(q.WordsWithLettersShare) || noWords != math.IsNaN(q.SymbolsPerWord) {
 		t.Fatalf("NaN metrics do not match the word count: %+v", q)
 	}
-	if !noWords && (q.MeanWordLen < 1 || q.HashRatio < 0 || q.EllipsisRatio < 0) {
+	// the average word length is over spaced-script words, NaN unless
+	// they are the majority
+	unspaced := 0
+	for _, w := range refWords(text) {
+		if r, _ := utf8.DecodeRuneInString(w); unicode.In(r, unicode.Han, unicode.Hiragana, unicode.Katakana, unicode.Thai) || r == 0x30FC {
+			unspaced++
+		}
+	}
+	if (q.Words-unspaced > unspaced) == math.IsNaN(q.AverageWordLength) {
+		t.Fatalf("average word length %v with %d of %d words in scripts without spaces", q.AverageWordLength, unspaced, q.Words)
+	}
+	if !noWords && (q.AverageWordLength < 1 || q.HashesPerWord < 0 || q.EllipsesPerWord < 0) {
 		t.Fatalf("bad ratios: %+v", q)
 	}
-	// every metric is a finite number (NaN only where documented)
-	for name, v := range map[string]float64{"mean_word_len": q.MeanWordLen, "hash_ratio": q.HashRatio,
-		"ellipsis_ratio": q.EllipsisRatio, "symbol_ratio": q.SymbolRatio} {
+	// every metric is a finite number (NaN only where documented; the
+	// average word length is checked above)
+	for name, v := range map[string]float64{"hashes_per_word": q.HashesPerWord,
+		"ellipses_per_word": q.EllipsesPerWord, "symbols_per_word": q.SymbolsPerWord} {
 		if math.IsInf(v, 0) || math.IsNaN(v) != noWords {
 			t.Fatalf("%s = %v with %d words", name, v, q.Words)
 		}
 	}
-	if !noWords && q.SymbolRatio != max(q.HashRatio, q.EllipsisRatio) {
-		t.Fatalf("symbol ratio %v, hash %v, ellipsis %v", q.SymbolRatio, q.HashRatio, q.EllipsisRatio)
+	if math.IsInf(q.AverageWordLength, 0) {
+		t.Fatalf("average word length %v", q.AverageWordLength)
 	}
-	checkFraction(t, "alpha_words", q.AlphaWords, true)
-	checkFraction(t, "bullet_lines", q.BulletLines, false)
-	checkFraction(t, "ellipsis_lines", q.EllipsisLines, false)
+	if !noWords && q.SymbolsPerWord != max(q.HashesPerWord, q.EllipsesPerWord) {
+		t.Fatalf("symbols per word %v, hashes %v, ellipses %v", q.SymbolsPerWord, q.HashesPerWord, q.EllipsesPerWord)
+	}
+	checkFraction(t, "words_with_letters_share", q.WordsWithLettersShare, true)
+	checkFraction(t, "bulleted_lines_share", q.BulletedLinesShare, false)
+	checkFraction(t, "ellipsis_ending_lines_share", q.EllipsisEndingLinesShare, false)
 	if c := q.Stop; c.Matches < 0 || c.Covered < c.Matches || c.Covered > c.Tokens || c.Gopher > c.Tokens {
 		t.Fatalf("stop-word counts %+v", c)
 	}
-	checkFraction(t, "stopword_density", q.Stop.Density(), true)
-	checkFraction(t, "dup_line_frac", r.DupLineFrac, false)
-	checkFraction(t, "dup_para_frac", r.DupParaFrac, false)
-	checkFraction(t, "dup_line_char_frac", r.DupLineCharFrac, false)
-	checkFraction(t, "dup_para_char_frac", r.DupParaCharFrac, false)
-	for i, v := range r.TopNgram {
+	checkFraction(t, "stop_word_share", q.Stop.Density(), true)
+	checkFraction(t, "repeated_lines_share", r.RepeatedLinesShare, false)
+	checkFraction(t, "repeated_paragraphs_share", r.RepeatedParagraphsShare, false)
+	checkFraction(t, "repeated_line_chars_share", r.RepeatedLineCharsShare, false)
+	checkFraction(t, "repeated_paragraph_chars_share", r.RepeatedParagraphCharsShare, false)
+	for i, v := range r.TopPhraseCharsShare {
 		checkFraction(t, "top n-gram", v, false)
 		if noWords && v != 0 {
 			t.Fatalf("top %d-gram %v without words", i+2, v)
 		}
 	}
-	for _, v := range r.DupNgram {
+	for _, v := range r.RepeatedPhraseCharsShare {
 		checkFraction(t, "dup n-gram", v, false)
 	}
 }
@@ -89,7 +105,7 @@ func FuzzMeasure(f *testing.F) {
 		checkMetrics(t, text, q, r)
 		// the separate entry points agree with the combined one
 		var s2 Scratch
-		if q2 := MeasureQuality(&s2, text, sw); q2 != q && !(math.IsNaN(q.MeanWordLen) && q2.Words == q.Words) {
+		if q2 := MeasureQuality(&s2, text, sw); q2 != q && !(math.IsNaN(q.AverageWordLength) && q2.Words == q.Words) {
 			t.Fatalf("MeasureQuality %+v, Measure %+v", q2, q)
 		}
 		if r2 := MeasureRepetition(&s2, text); r2 != r {
@@ -102,7 +118,7 @@ func FuzzCleanLines(f *testing.F) {
 	opt := C4LineOptions()
 	f.Fuzz(func(t *testing.T, text string) {
 		r := CleanLines(text, opt)
-		removed := r.LongWord + r.NoPunct + r.Short + r.Javascript + r.Policy
+		removed := r.OverlongWord + r.Unpunctuated + r.Short + r.Javascript + r.Policy
 		if r.Kept+removed != r.Lines {
 			t.Fatalf("kept %d + removed %d != lines %d", r.Kept, removed, r.Lines)
 		}
@@ -117,7 +133,7 @@ func FuzzCleanLines(f *testing.F) {
 				if l == "" {
 					continue
 				}
-				if !EndsWithTerminal(l) || CountWords(l) < opt.MinWords || ContainsFold(l, "javascript") {
+				if !EndsWithTerminal(l) || CountWords(l) < opt.FewestWords || ContainsFold(l, "javascript") {
 					t.Fatalf("kept line %q breaks a rule", l)
 				}
 			}
@@ -199,8 +215,8 @@ var stopwordMaps = sync.OnceValue(func() map[string]map[string]bool {
 // Contains does not depend on normalizing first; the counts are bounded
 // (matches <= covered <= tokens, the English eight only with the English
 // list or none); and for a list of single words in a spaced language the
-// counts equal a plain count over strings.Fields with a Go map of the
-// list's entries (the English eight by Rae et al. 2021, section A.1.1 of
+// counts equal a plain count over the words (refWords) with a Go map of
+// the list's entries (the English eight by Rae et al. 2021, section A.1.1 of
 // the appendix, from memory).
 func FuzzStopwords(f *testing.F) {
 	langs := StopwordLanguages()
@@ -224,7 +240,7 @@ func FuzzStopwords(f *testing.F) {
 			if c.Matches < 0 || c.Covered < c.Matches || c.Tokens < c.Covered || c.Gopher < 0 || c.Gopher > c.Tokens {
 				t.Fatalf("%s: counts %+v", lang, c)
 			}
-			checkFraction(t, "stopword_density", c.Density(), c.Tokens == 0)
+			checkFraction(t, "stop_word_share", c.Density(), c.Tokens == 0)
 			if l != nil && lang != "en" && c.Gopher != 0 {
 				t.Fatalf("%s: English eight counted with another list: %+v", lang, c)
 			}
@@ -237,8 +253,9 @@ func FuzzStopwords(f *testing.F) {
 			return
 		}
 		set := stopwordMaps()[lang]
-		want := StopCount{Tokens: len(fields)}
-		for _, w := range fields {
+		words := refWords(text) // as Split cuts them (one per character in scripts without spaces)
+		want := StopCount{Tokens: len(words)}
+		for _, w := range words {
 			n := string(NormalizeWord(nil, w))
 			if len(n) <= maxNormBytes && set[n] {
 				want.Matches++

@@ -9,38 +9,39 @@ import (
 
 // Published values of the line-level cleaning of Raffel et al. 2020,
 // "Exploring the Limits of Transfer Learning with a Unified Text-to-Text
-// Transformer", section 2.2 (from memory). The paper's own words are "We
-// discarded any page with fewer than 3 sentences and only retained lines
-// that contained at least 5 words" (the project's design notes had the two
-// numbers the other way round; our reading is 5 words and 3 sentences).
+// Transformer", section 2.2, from memory: pages with fewer than 5
+// sentences are discarded and only lines of at least 3 words are kept. A
+// secondary description of the same corpus (a glossary entry on C4)
+// agrees: "Discard pages with fewer than five sentences and any line
+// shorter than three words".
 const (
-	C4MinWordsPerLine = 5 // lines with fewer words are removed
-	C4MinSentences    = 3 // pages with fewer sentences are dropped
-	// C4MaxWordLen is the word length (characters) beyond which the
+	C4FewestWordsPerLine = 3 // lines with fewer words are removed
+	C4FewestSentences    = 5 // pages with fewer sentences are dropped
+	// C4LongestWord is the word length (characters) beyond which the
 	// reference implementation removes a line; it is not in the paper
 	// (from memory of the released cleaning code: 1000).
-	C4MaxWordLen = 1000
+	C4LongestWord = 1000
 )
 
-// C4PolicyPhrases are the boilerplate policy phrases whose lines are
+// C4PolicyNoticePhrases are the boilerplate policy phrases whose lines are
 // removed (Raffel et al. 2020, section 2.2, from memory), matched without
 // regard to ASCII case.
-var C4PolicyPhrases = []string{"terms of use", "privacy policy", "cookie policy", "uses cookies", "use of cookies", "use cookies"}
+var C4PolicyNoticePhrases = []string{"terms of use", "privacy policy", "cookie policy", "uses cookies", "use of cookies", "use cookies"}
 
 // LineOptions selects the line rules CleanLines applies.
 type LineOptions struct {
-	// MinWords removes lines with fewer words (0: no limit).
-	MinWords int
-	// MaxWordLen removes lines with a word longer than this many
+	// FewestWords removes lines with fewer words (0: no limit).
+	FewestWords int
+	// LongestWord removes lines with a word longer than this many
 	// characters (0: no limit).
-	MaxWordLen int
-	// RequireTerminal removes lines that do not end in terminal
+	LongestWord int
+	// RemoveUnpunctuated removes lines that do not end in terminal
 	// punctuation, or that end in an ellipsis.
-	RequireTerminal bool
-	// DropJavascript removes lines containing "javascript".
-	DropJavascript bool
-	// DropPolicy removes lines containing a C4PolicyPhrases phrase.
-	DropPolicy bool
+	RemoveUnpunctuated bool
+	// RemoveJavascript removes lines containing "javascript".
+	RemoveJavascript bool
+	// RemovePolicyNotices removes lines containing a C4PolicyNoticePhrases phrase.
+	RemovePolicyNotices bool
 	// RemoveCitations deletes citation markers such as "[1]", "[edit]"
 	// and "[citation needed]" from lines.
 	RemoveCitations bool
@@ -48,8 +49,8 @@ type LineOptions struct {
 
 // C4LineOptions returns the options of Raffel et al. 2020.
 func C4LineOptions() LineOptions {
-	return LineOptions{MinWords: C4MinWordsPerLine, MaxWordLen: C4MaxWordLen, RequireTerminal: true,
-		DropJavascript: true, DropPolicy: true, RemoveCitations: true}
+	return LineOptions{FewestWords: C4FewestWordsPerLine, LongestWord: C4LongestWord, RemoveUnpunctuated: true,
+		RemoveJavascript: true, RemovePolicyNotices: true, RemoveCitations: true}
 }
 
 // LineResult is what CleanLines did to one text.
@@ -64,12 +65,12 @@ type LineResult struct {
 	Lines, Kept int
 	// Removed lines by the first rule they failed, in the order the rules
 	// are applied.
-	LongWord, NoPunct, Short, Javascript, Policy int
+	OverlongWord, Unpunctuated, Short, Javascript, Policy int
 	// Citations is the number of citation markers deleted from kept lines.
 	Citations int
-	// LoremIpsum and CurlyBrace report the page rules: the text contains
+	// Placeholder and Braces report the page rules: the text contains
 	// "lorem ipsum" (any case) or "{". The caller drops such pages.
-	LoremIpsum, CurlyBrace bool
+	Placeholder, Braces bool
 	// Sentences is CountSentences of the cleaned text.
 	Sentences int
 }
@@ -81,8 +82,8 @@ type LineResult struct {
 // and counts the sentences of the result.
 func CleanLines(text string, opt LineOptions) LineResult {
 	res := LineResult{
-		LoremIpsum: ContainsFold(text, "lorem ipsum"),
-		CurlyBrace: strings.IndexByte(text, '{') >= 0,
+		Placeholder: ContainsFold(text, "lorem ipsum"),
+		Braces:      strings.IndexByte(text, '{') >= 0,
 	}
 	out := make([]byte, 0, len(text))
 	var cite, lower []byte
@@ -102,8 +103,8 @@ func CleanLines(text string, opt LineOptions) LineResult {
 		}
 		res.Lines++
 		words, longest := wordStats(line)
-		if opt.MaxWordLen > 0 && longest > opt.MaxWordLen {
-			res.LongWord++
+		if opt.LongestWord > 0 && longest > opt.LongestWord {
+			res.OverlongWord++
 			continue
 		}
 		cites := 0
@@ -114,22 +115,22 @@ func CleanLines(text string, opt LineOptions) LineResult {
 				words, _ = wordStats(line)
 			}
 		}
-		if opt.RequireTerminal && !EndsWithTerminal(line) {
-			res.NoPunct++
+		if opt.RemoveUnpunctuated && !EndsWithTerminal(line) {
+			res.Unpunctuated++
 			continue
 		}
-		if words < opt.MinWords {
+		if words < opt.FewestWords {
 			res.Short++
 			continue
 		}
-		if opt.DropJavascript || opt.DropPolicy {
+		if opt.RemoveJavascript || opt.RemovePolicyNotices {
 			lower = appendLowerASCII(lower[:0], line)
 			l := unsafe.String(unsafe.SliceData(lower), len(lower))
-			if opt.DropJavascript && strings.Contains(l, "javascript") {
+			if opt.RemoveJavascript && strings.Contains(l, "javascript") {
 				res.Javascript++
 				continue
 			}
-			if opt.DropPolicy && containsAny(l, C4PolicyPhrases) {
+			if opt.RemovePolicyNotices && containsAny(l, C4PolicyNoticePhrases) {
 				res.Policy++
 				continue
 			}
@@ -156,8 +157,8 @@ func CleanLines(text string, opt LineOptions) LineResult {
 	return res
 }
 
-// wordStats returns the number of words of line and the length in
-// characters of its longest word.
+// wordStats returns the number of words of line (as Split cuts them) and
+// the length in characters of its longest word.
 func wordStats(line string) (words, longest int) {
 	cur := 0
 	for i := 0; i < len(line); {
@@ -176,6 +177,20 @@ func wordStats(line string) (words, longest int) {
 			continue
 		}
 		r, size := utf8.DecodeRuneInString(line[i:])
+		if c >= 0xE0 && isUnspaced(r) {
+			// a word of a script without spaces ends the word before it
+			// and is one word of its own (see Split)
+			if cur > 0 {
+				words++
+				longest = max(longest, cur)
+			}
+			cur = 0
+			end := unspacedEnd(line, i, r, size)
+			words++
+			longest = max(longest, utf8.RuneCountInString(line[i:end]))
+			i = end
+			continue
+		}
 		i += size
 		if unicode.IsSpace(r) {
 			if cur > 0 {

@@ -6,13 +6,13 @@ import (
 )
 
 // TestCleanLinesPage runs the line rules of Raffel et al. 2020, section
-// 2.2 (from memory), over an invented dealer page with one line of each
+// 2.2 (lines of at least 3 words, from memory), over an invented dealer page with one line of each
 // kind and checks what was removed and why.
 func TestCleanLinesPage(t *testing.T) {
 	page := strings.Join([]string{
 		"Larkspur Marine Works", // no terminal punctuation
 		"Check the stern gland before every launch, said the foreman.", // kept
-		"Call us today!", // 3 words: too short
+		"Call us!", // 2 words: too short (at least 3, Raffel et al. 2020, section 2.2)
 		"Please enable JavaScript to see the full list of boats for sale.", // javascript
 		"By using this site you agree to our Terms of Use and conditions.", // policy
 		"This website uses cookies to improve your experience with us.",    // policy
@@ -27,7 +27,7 @@ func TestCleanLinesPage(t *testing.T) {
 	if r.Lines != 11 || r.Kept != 5 {
 		t.Fatalf("lines %d kept %d, want 11 and 5\n%s", r.Lines, r.Kept, r.Text)
 	}
-	if r.NoPunct != 2 || r.Short != 1 || r.Javascript != 1 || r.Policy != 2 || r.Citations != 3 || r.LongWord != 0 {
+	if r.Unpunctuated != 2 || r.Short != 1 || r.Javascript != 1 || r.Policy != 2 || r.Citations != 3 || r.OverlongWord != 0 {
 		t.Fatalf("counts %+v", r)
 	}
 	want := "Check the stern gland before every launch, said the foreman.\n\n" +
@@ -38,8 +38,20 @@ func TestCleanLinesPage(t *testing.T) {
 	if r.Text != want {
 		t.Fatalf("cleaned text:\n%s\nwant:\n%s", r.Text, want)
 	}
-	if !r.Changed || r.LoremIpsum || r.CurlyBrace || r.Sentences != 5 {
+	if !r.Changed || r.Placeholder || r.Braces || r.Sentences != 5 {
 		t.Fatalf("page flags %+v", r)
+	}
+}
+
+// TestCleanLinesWordsPerLine: Raffel et al. 2020, section 2.2, keeps
+// only lines of at least 3 words (C4FewestWordsPerLine).
+func TestCleanLinesWordsPerLine(t *testing.T) {
+	if C4FewestWordsPerLine != 3 || C4FewestSentences != 5 {
+		t.Fatalf("line rule defaults %d words, %d sentences; Raffel et al. 2020, section 2.2: 3 and 5", C4FewestWordsPerLine, C4FewestSentences)
+	}
+	r := CleanLines("Three words here.\nTwo words.", C4LineOptions())
+	if r.Kept != 1 || r.Short != 1 || r.Text != "Three words here." {
+		t.Fatalf("%+v", r)
 	}
 }
 
@@ -52,10 +64,10 @@ func TestCleanLinesUnchanged(t *testing.T) {
 }
 
 func TestCleanLinesPageRules(t *testing.T) {
-	if r := CleanLines("Some Lorem Ipsum dolor sit amet text here.", C4LineOptions()); !r.LoremIpsum {
+	if r := CleanLines("Some Lorem Ipsum dolor sit amet text here.", C4LineOptions()); !r.Placeholder {
 		t.Fatal("lorem ipsum not seen")
 	}
-	if r := CleanLines("function f() { return 1; } is code, not prose.", C4LineOptions()); !r.CurlyBrace {
+	if r := CleanLines("function f() { return 1; } is code, not prose.", C4LineOptions()); !r.Braces {
 		t.Fatal("curly brace not seen")
 	}
 }

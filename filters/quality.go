@@ -14,36 +14,40 @@ var nan = math.NaN()
 // conditions ("remove documents with more than..."), so a value equal to a
 // limit keeps the document.
 const (
-	GopherMinWords         = 50     // "between 50 and 100,000 words"
-	GopherMaxWords         = 100000 // idem
-	GopherMinMeanWordLen   = 3.0    // "mean word length ... outside of the range of 3 to 10 characters"
-	GopherMaxMeanWordLen   = 10.0   // idem
-	GopherMaxSymbolRatio   = 0.1    // "symbol-to-word ratio greater than 0.1 for either the hash symbol or the ellipsis"
-	GopherMaxBulletLines   = 0.9    // "more than 90% of lines starting with a bullet point"
-	GopherMaxEllipsisLines = 0.3    // "more than 30% [of lines] ending with an ellipsis"
-	GopherMinAlphaWords    = 0.8    // "80% of words ... contain at least one alphabetic character"
-	GopherMinStopwords     = 2      // "at least two of the following English words: the, be, to, of, and, that, have, with"
+	GopherFewestWords             = 50     // "between 50 and 100,000 words"
+	GopherMostWords               = 100000 // idem
+	GopherShortestAverageWord     = 3.0    // "mean word length ... outside of the range of 3 to 10 characters"
+	GopherLongestAverageWord      = 10.0   // idem
+	GopherMostSymbolsPerWord      = 0.1    // "symbol-to-word ratio greater than 0.1 for either the hash symbol or the ellipsis"
+	GopherMostBulletedLines       = 0.9    // "more than 90% of lines starting with a bullet point"
+	GopherMostEllipsisEndingLines = 0.3    // "more than 30% [of lines] ending with an ellipsis"
+	GopherFewestWordsWithLetters  = 0.8    // "80% of words ... contain at least one alphabetic character"
+	GopherFewestStopWords         = 2      // "at least two of the following English words: the, be, to, of, and, that, have, with"
 )
 
 // Quality holds the document-level quality metrics of Rae et al. 2021 for
 // one text.
 type Quality struct {
-	// Words is the number of whitespace-separated words.
+	// Words is the number of words (as Split cuts them).
 	Words int
-	// MeanWordLen is the mean word length in characters (NaN without words).
-	MeanWordLen float64
-	// HashRatio is the number of '#' characters per word; EllipsisRatio the
-	// number of ellipses ("..." or U+2026) per word; SymbolRatio the larger
+	// AverageWordLength is the mean length in characters of the words of
+	// spaced scripts. The paper's rule is about alphabetic words: a text
+	// whose words are mostly one-character words of scripts without spaces
+	// (Chinese, Japanese, Thai; see Split) has no comparable word length,
+	// and the value is NaN, as it is without words.
+	AverageWordLength float64
+	// HashesPerWord is the number of '#' characters per word; EllipsesPerWord the
+	// number of ellipses ("..." or U+2026) per word; SymbolsPerWord the larger
 	// of the two, the value the paper's rule holds against 0.1 (all NaN
 	// without words).
-	HashRatio, EllipsisRatio, SymbolRatio float64
-	// BulletLines is the fraction of non-blank lines that start with a
-	// bullet; EllipsisLines the fraction that end with an ellipsis (0
+	HashesPerWord, EllipsesPerWord, SymbolsPerWord float64
+	// BulletedLinesShare is the fraction of non-blank lines that start with a
+	// bullet; EllipsisEndingLinesShare the fraction that end with an ellipsis (0
 	// without lines).
-	BulletLines, EllipsisLines float64
-	// AlphaWords is the fraction of words containing a letter (NaN without
+	BulletedLinesShare, EllipsisEndingLinesShare float64
+	// WordsWithLettersShare is the fraction of words containing a letter (NaN without
 	// words).
-	AlphaWords float64
+	WordsWithLettersShare float64
 	// Stop is the stop-word scan (the English eight and the language list).
 	Stop StopCount
 }
@@ -59,22 +63,29 @@ func MeasureQuality(s *Scratch, text string, sw *Stopwords) Quality {
 // QualityOfSplit measures text, which s.Split(text) has already split.
 func QualityOfSplit(s *Scratch, text string, sw *Stopwords) Quality {
 	q := Quality{Words: len(s.Words)}
-	chars, alpha := 0, 0
+	chars, alpha, unspaced := 0, 0, 0
 	for _, w := range s.Words {
-		chars += int(w.Runes)
+		if w.Unspaced {
+			unspaced++
+		} else {
+			chars += int(w.Runes)
+		}
 		if w.Alpha {
 			alpha++
 		}
 	}
 	if q.Words > 0 {
 		n := float64(q.Words)
-		q.MeanWordLen = float64(chars) / n
-		q.HashRatio = float64(strings.Count(text, "#")) / n
-		q.EllipsisRatio = float64(strings.Count(text, "...")+strings.Count(text, "\u2026")) / n
-		q.SymbolRatio = max(q.HashRatio, q.EllipsisRatio)
-		q.AlphaWords = float64(alpha) / n
+		q.AverageWordLength = nan
+		if spaced := q.Words - unspaced; spaced > unspaced {
+			q.AverageWordLength = float64(chars) / float64(spaced)
+		}
+		q.HashesPerWord = float64(strings.Count(text, "#")) / n
+		q.EllipsesPerWord = float64(strings.Count(text, "...")+strings.Count(text, "\u2026")) / n
+		q.SymbolsPerWord = max(q.HashesPerWord, q.EllipsesPerWord)
+		q.WordsWithLettersShare = float64(alpha) / n
 	} else {
-		q.MeanWordLen, q.HashRatio, q.EllipsisRatio, q.SymbolRatio, q.AlphaWords = nan, nan, nan, nan, nan
+		q.AverageWordLength, q.HashesPerWord, q.EllipsesPerWord, q.SymbolsPerWord, q.WordsWithLettersShare = nan, nan, nan, nan, nan
 	}
 	if len(s.Lines) > 0 {
 		bullets, ellipses := 0, 0
@@ -87,8 +98,8 @@ func QualityOfSplit(s *Scratch, text string, sw *Stopwords) Quality {
 				ellipses++
 			}
 		}
-		q.BulletLines = float64(bullets) / float64(len(s.Lines))
-		q.EllipsisLines = float64(ellipses) / float64(len(s.Lines))
+		q.BulletedLinesShare = float64(bullets) / float64(len(s.Lines))
+		q.EllipsisEndingLinesShare = float64(ellipses) / float64(len(s.Lines))
 	}
 	q.Stop = CountStopwords(s, text, sw)
 	return q

@@ -24,19 +24,19 @@ func TestQualityWorkedExample(t *testing.T) {
 		t.Fatalf("words %d, want 16", q.Words)
 	}
 	// characters: 1+3+4+2+9 + 1+5+2+3+2+4 + 5+2+6 + 3+3 = 55
-	if !near(q.MeanWordLen, 55.0/16) {
-		t.Errorf("mean word length %v, want %v", q.MeanWordLen, 55.0/16)
+	if !near(q.AverageWordLength, 55.0/16) {
+		t.Errorf("mean word length %v, want %v", q.AverageWordLength, 55.0/16)
 	}
-	if !near(q.HashRatio, 2.0/16) || !near(q.EllipsisRatio, 2.0/16) || !near(q.SymbolRatio, 2.0/16) {
-		t.Errorf("symbol ratios %v %v %v", q.HashRatio, q.EllipsisRatio, q.SymbolRatio)
+	if !near(q.HashesPerWord, 2.0/16) || !near(q.EllipsesPerWord, 2.0/16) || !near(q.SymbolsPerWord, 2.0/16) {
+		t.Errorf("symbol ratios %v %v %v", q.HashesPerWord, q.EllipsesPerWord, q.SymbolsPerWord)
 	}
 	// lines: 4 non-blank; bullets 2; ellipsis endings 2
-	if !near(q.BulletLines, 0.5) || !near(q.EllipsisLines, 0.5) {
-		t.Errorf("bullet lines %v, ellipsis lines %v", q.BulletLines, q.EllipsisLines)
+	if !near(q.BulletedLinesShare, 0.5) || !near(q.EllipsisEndingLinesShare, 0.5) {
+		t.Errorf("bullet lines %v, ellipsis lines %v", q.BulletedLinesShare, q.EllipsisEndingLinesShare)
 	}
 	// words without a letter: - - #1 #2 42 123 456 = 7 of 16
-	if !near(q.AlphaWords, 9.0/16) {
-		t.Errorf("alpha words %v, want %v", q.AlphaWords, 9.0/16)
+	if !near(q.WordsWithLettersShare, 9.0/16) {
+		t.Errorf("alpha words %v, want %v", q.WordsWithLettersShare, 9.0/16)
 	}
 	// the English eight: The, and
 	if q.Stop.Gopher != 2 {
@@ -47,8 +47,8 @@ func TestQualityWorkedExample(t *testing.T) {
 func TestQualityEmpty(t *testing.T) {
 	var s Scratch
 	q := MeasureQuality(&s, "", nil)
-	if q.Words != 0 || !math.IsNaN(q.MeanWordLen) || !math.IsNaN(q.SymbolRatio) || !math.IsNaN(q.AlphaWords) ||
-		q.BulletLines != 0 || q.EllipsisLines != 0 || !math.IsNaN(q.Stop.Density()) {
+	if q.Words != 0 || !math.IsNaN(q.AverageWordLength) || !math.IsNaN(q.SymbolsPerWord) || !math.IsNaN(q.WordsWithLettersShare) ||
+		q.BulletedLinesShare != 0 || q.EllipsisEndingLinesShare != 0 || !math.IsNaN(q.Stop.Density()) {
 		t.Fatalf("empty text: %+v", q)
 	}
 }
@@ -90,7 +90,7 @@ func TestBadInputs(t *testing.T) {
 			q, r := Measure(&s, text, sw)
 			checkMetrics(t, text, q, r)
 			l := CleanLines(text, C4LineOptions())
-			if l.Kept+l.LongWord+l.NoPunct+l.Short+l.Javascript+l.Policy != l.Lines {
+			if l.Kept+l.OverlongWord+l.Unpunctuated+l.Short+l.Javascript+l.Policy != l.Lines {
 				t.Fatalf("%s: line counts %+v", name, l)
 			}
 			Redact(text, DefaultRedactOptions())
@@ -99,14 +99,14 @@ func TestBadInputs(t *testing.T) {
 	// the 5 MB word: one word of 5 Mi characters, no repetition, and a
 	// line removed by the 1000-character word limit
 	q, r := Measure(&s, inputs["5MB word"], en)
-	if q.Words != 1 || q.MeanWordLen != 5<<20 || r.TopNgram != [3]float64{} {
+	if q.Words != 1 || q.AverageWordLength != 5<<20 || r.TopPhraseCharsShare != [3]float64{} {
 		t.Fatalf("5 MB word: %+v %+v", q, r)
 	}
-	if l := CleanLines(inputs["5MB word"], C4LineOptions()); l.LongWord != 1 || l.Kept != 0 {
+	if l := CleanLines(inputs["5MB word"], C4LineOptions()); l.OverlongWord != 1 || l.Kept != 0 {
 		t.Fatalf("5 MB word lines: %+v", l)
 	}
 	// emoji are words without letters
-	if q, _ := Measure(&s, inputs["emoji"], en); q.AlphaWords != 0 || q.Words != 200 {
+	if q, _ := Measure(&s, inputs["emoji"], en); q.WordsWithLettersShare != 0 || q.Words != 200 {
 		t.Fatalf("emoji: %+v", q)
 	}
 }

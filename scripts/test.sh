@@ -2,12 +2,13 @@
 # The project's test command (README "Set up"): installs the few system
 # tools the tests use when they are missing, then vets and tests everything.
 #   zstd, gzip  - compress test fixtures independently of winnow's own code
+#                 (the zstd package also brings pzstd, which writes skippable frames)
 #   chromium    - opens the HTML audit report headless in the audit tests
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
 need=()
-command -v zstd >/dev/null 2>&1 || need+=(zstd)
+command -v zstd >/dev/null 2>&1 && command -v pzstd >/dev/null 2>&1 || need+=(zstd)
 command -v gzip >/dev/null 2>&1 || need+=(gzip)
 command -v chromium >/dev/null 2>&1 || need+=(chromium)
 if [ ${#need[@]} -gt 0 ]; then

@@ -105,6 +105,24 @@ type Report struct {
 	Tokens int64
 }
 
+// LeftOut is a document that passed every stage but that the mix placed
+// nowhere (none of its pieces): its source had more tokens than its share
+// needed. Tokens are its (pieces') tokens.
+type LeftOut struct {
+	Doc, Source, File string
+	Line              int64
+	Tokens            int
+	// Reason is why its source lost documents, in words (the mix
+	// report's left_out_reason, or the budget of a shuffled output).
+	Reason string
+}
+
+// SetLeftOut makes Close call fn, in input order, for each document the
+// mix (or a shuffled output's token budget) leaves out, so the run can
+// record it (bounded memory: nothing is kept). It has no effect on an
+// output written in input order.
+func (b *Builder) SetLeftOut(fn func(LeftOut) error) { b.leftOut = fn }
+
 // Builder writes a run's output shards. Without a tokenizer it streams
 // documents into shards cut by bytes; with one and no mix it streams them
 // in input order, ending shards at multiples of shard_tokens; with a mix it
@@ -122,6 +140,8 @@ type Builder struct {
 	srcIdx   map[string]uint16
 	srcNames []string
 	splits   []Split
+	leftOut  func(LeftOut) error
+	leftWhy  map[string]string // source -> reason its documents are left out
 	line     []byte
 	closed   bool
 }
@@ -285,6 +305,20 @@ func (b *Builder) Close() (*Report, error) {
 	if err := b.spill.close(); err != nil {
 		return nil, err
 	}
+	if len(b.units) == 0 {
+		// Every document was removed before the output: there is nothing
+		// to mix or shuffle, and no shard to write. The run still ends
+		// with its manifest, which says where the documents went.
+		if err := b.w.finish(); err != nil {
+			return nil, err
+		}
+		if b.opt.Mix == nil {
+			return b.report(nil), nil
+		}
+		mix := &MixReport{Mode: "empty", Note: "no document reached the output: nothing to mix", MaxEpochs: b.opt.MaxEpochs,
+			BudgetTokens: b.opt.BudgetTokens, Sources: []MixSource{}}
+		return b.report(mix), nil
+	}
 	var order []slot
 	var mix *MixReport
 	var err error
@@ -295,6 +329,16 @@ func (b *Builder) Close() (*Report, error) {
 		}
 	} else {
 		order = planShuffle(b.units, b.opt.BudgetTokens)
+	}
+	b.leftWhy = map[string]string{}
+	if mix != nil {
+		for _, s := range mix.Sources {
+			b.leftWhy[s.Source] = s.LeftOutWhy
+		}
+	} else if b.opt.BudgetTokens > 0 {
+		for _, src := range b.srcNames {
+			b.leftWhy[src] = fmt.Sprintf("total capped at budget_tokens %d", b.opt.BudgetTokens)
+		}
 	}
 	tokens := make([]int64, len(order))
 	for i, s := range order {
@@ -405,9 +449,37 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 		}
 	}
 	var rec record
+	// A document's units (its pieces) are consecutive in the spill; it is
+	// left out when none of them has a position.
+	var cur LeftOut
+	curUsed, curOpen := false, false
+	flushDoc := func() error {
+		if curOpen && !curUsed && b.leftOut != nil {
+			if err := b.leftOut(cur); err != nil {
+				return err
+			}
+		}
+		curOpen = false
+		return nil
+	}
 	for ui := 0; ui < len(b.units); ui++ {
 		if err := r.next(&rec, false); err != nil {
 			return fmt.Errorf("output: reading spill: %w", err)
+		}
+		doc := rec.id
+		if rec.original != "" {
+			doc = rec.original
+		}
+		if !curOpen || rec.original == "" || rec.piece <= 1 || doc != cur.Doc {
+			if err := flushDoc(); err != nil {
+				return err
+			}
+			cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line, Reason: b.leftWhy[rec.source]}
+			curUsed, curOpen = false, true
+		}
+		cur.Tokens += rec.tokens
+		if start[ui+1] > start[ui] {
+			curUsed = true
 		}
 		for _, p := range pos[start[ui]:start[ui+1]] {
 			rec.pos = uint64(p)
@@ -419,6 +491,9 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 				return err
 			}
 		}
+	}
+	if err := flushDoc(); err != nil {
+		return err
 	}
 	if single {
 		sort.Slice(mem, func(i, j int) bool { return mem[i].pos < mem[j].pos })

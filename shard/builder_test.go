@@ -491,7 +491,7 @@ func TestByteShards(t *testing.T) {
 	}
 }
 
-func TestMixErrors(t *testing.T) {
+func TestMixMissingSource(t *testing.T) {
 	tok := mustLoad(t, "cl100k_base")
 	docs := corpus(1, tok)[:50]
 	run := t.TempDir()
@@ -502,8 +502,21 @@ func TestMixErrors(t *testing.T) {
 	for i := range docs {
 		b.Add(&docs[i])
 	}
-	if _, err := b.Close(); err == nil || !strings.Contains(err.Error(), "nosuch") {
-		t.Errorf("missing mix source: %v", err)
+	// A source whose documents were all removed does not cost the run:
+	// the others are mixed at their relative shares and the report says
+	// which source had nothing.
+	rep, err := b.Close()
+	if err != nil {
+		t.Fatalf("missing mix source: %v", err)
+	}
+	mix := rep.Mix
+	if mix == nil || !slices.Equal(mix.Missing, []string{"nosuch"}) || !strings.Contains(mix.Note, "source(s) nosuch have no surviving tokens") {
+		t.Fatalf("report %+v", mix)
+	}
+	for _, src := range mix.Sources {
+		if src.Source == "manuals" && (src.Share != 1 || src.ShareUsed != 1 || src.Used == 0) {
+			t.Errorf("manuals: %+v", src)
+		}
 	}
 }
 
@@ -618,5 +631,104 @@ func TestShuffleWithoutMix(t *testing.T) {
 	rep3, run3 := build(t, docs, opt)
 	if bytes.Equal(a[0], shardBytes(t, run3, rep3)[0]) {
 		t.Error("another seed gives the same first shard")
+	}
+}
+
+// Every document the mix places nowhere is reported once, in input order,
+// and the reported and the written documents are all the documents, split
+// ones counted once (whatever mix of long and short documents).
+func TestMixReportsLeftOut(t *testing.T) {
+	tok := mustLoad(t, "cl100k_base")
+	docs := corpus(3, tok)
+	run := t.TempDir()
+	b, err := NewBuilder(Options{Dir: filepath.Join(run, "shards"), TempDir: run, Tokenizer: tok, Name: "lo",
+		ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var left []LeftOut
+	b.SetLeftOut(func(l LeftOut) error { left = append(left, l); return nil })
+	for i := range docs {
+		b.Add(&docs[i])
+	}
+	rep, err := b.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	written := map[string]bool{}
+	for _, f := range rep.Files {
+		for _, l := range readShard(t, filepath.Join(run, f.Path)) {
+			id, _, _ := strings.Cut(l.ID, "#")
+			written[id] = true
+		}
+	}
+	byID := map[string]Doc{}
+	order := map[string]int{}
+	for i, d := range docs {
+		byID[d.ID], order[d.ID] = d, i
+	}
+	seen := map[string]bool{}
+	for i, l := range left {
+		d, ok := byID[l.Doc]
+		switch {
+		case !ok:
+			t.Fatalf("left out %q is no input document", l.Doc)
+		case written[l.Doc]:
+			t.Errorf("%s both written and left out", l.Doc)
+		case seen[l.Doc]:
+			t.Errorf("%s left out twice", l.Doc)
+		case l.Source != d.Source || l.File != d.File || l.Line != d.Line:
+			t.Errorf("%s: %+v, input %s %s:%d", l.Doc, l, d.Source, d.File, d.Line)
+		case i > 0 && order[l.Doc] < order[left[i-1].Doc]:
+			t.Errorf("%s reported out of input order", l.Doc)
+		}
+		seen[l.Doc] = true
+	}
+	if len(left) == 0 || len(left)+len(written) != len(docs) {
+		t.Errorf("%d left out + %d written != %d documents", len(left), len(written), len(docs))
+	}
+}
+
+// A shuffled output cut by budget_tokens reports each document it leaves
+// out, with the budget as the reason, and a mix reports its source's
+// left_out_reason: the ledger's record says why, not only that.
+func TestLeftOutReason(t *testing.T) {
+	tok := mustLoad(t, "cl100k_base")
+	docs := corpus(3, tok)
+	for _, opt := range []Options{
+		{Tokenizer: tok, ShardTokens: 2000, Shuffle: true, Seed: 3, BudgetTokens: 3000},
+		{Tokenizer: tok, ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}},
+	} {
+		run := t.TempDir()
+		opt.Dir, opt.TempDir, opt.Name = filepath.Join(run, "shards"), run, "why"
+		b, err := NewBuilder(opt)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var left []LeftOut
+		b.SetLeftOut(func(l LeftOut) error { left = append(left, l); return nil })
+		for i := range docs {
+			b.Add(&docs[i])
+		}
+		rep, err := b.Close()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(left) == 0 {
+			t.Fatalf("shuffle %v: nothing left out", opt.Shuffle)
+		}
+		for _, l := range left {
+			want := "total capped at budget_tokens 3000"
+			if rep.Mix != nil {
+				for _, s := range rep.Mix.Sources {
+					if s.Source == l.Source {
+						want = s.LeftOutWhy
+					}
+				}
+			}
+			if l.Reason == "" || l.Reason != want {
+				t.Errorf("shuffle %v: %s left out with reason %q, want %q", opt.Shuffle, l.Doc, l.Reason, want)
+			}
+		}
 	}
 }

@@ -94,14 +94,17 @@ type MixReport struct {
 	// source without repetition, or by max_epochs), "budget" (the budget
 	// was met by subsampling) or "upsampled" (the budget was met by
 	// repeating documents of at least one source).
-	Mode            string      `json:"mode"`
-	Note            string      `json:"note"`
-	BudgetTokens    int64       `json:"budget_tokens,omitempty"`
-	MaxEpochs       int         `json:"max_epochs"`
-	TargetTokens    int64       `json:"target_tokens"`
-	TokensAvailable int64       `json:"tokens_available"`
-	TokensUsed      int64       `json:"tokens_used"`
-	Sources         []MixSource `json:"sources"`
+	Mode            string `json:"mode"`
+	Note            string `json:"note"`
+	BudgetTokens    int64  `json:"budget_tokens,omitempty"`
+	MaxEpochs       int    `json:"max_epochs"`
+	TargetTokens    int64  `json:"target_tokens"`
+	TokensAvailable int64  `json:"tokens_available"`
+	TokensUsed      int64  `json:"tokens_used"`
+	// Missing names the sources given a share that had no surviving
+	// tokens (every document removed by the stages).
+	Missing []string    `json:"missing_sources,omitempty"`
+	Sources []MixSource `json:"sources"`
 }
 
 // mix64 is the splitmix64 finalizer: a fresh order for each pass.
@@ -146,7 +149,11 @@ func planMix(units []unit, srcNames []string, shares map[string]float64, budget 
 	if sum <= 0 {
 		return nil, nil, fmt.Errorf("mix: shares sum to %v, want a positive total", sum)
 	}
+	// A source whose documents were all removed cannot supply its share;
+	// the others are mixed at their relative shares, and the report says
+	// so (failing here would lose a whole run's work at its very end).
 	var missing []string
+	var psum float64
 	for _, name := range sortedKeys(shares) {
 		if shares[name] == 0 {
 			continue
@@ -156,10 +163,16 @@ func planMix(units []unit, srcNames []string, shares map[string]float64, budget 
 			missing = append(missing, name)
 			continue
 		}
-		w[i] = shares[name] / sum
+		psum += shares[name]
 	}
-	if len(missing) > 0 {
-		return nil, nil, fmt.Errorf("mix: source(s) %s have no surviving tokens (sources with documents: %s)", strings.Join(missing, ", "), strings.Join(srcNames, ", "))
+	if psum == 0 {
+		return nil, &MixReport{Mode: "empty", MaxEpochs: maxEpochs, BudgetTokens: budget, Missing: missing, Sources: []MixSource{},
+			Note: fmt.Sprintf("no source of the mix has surviving tokens (%s): nothing written", strings.Join(missing, ", "))}, nil
+	}
+	for _, name := range sortedKeys(shares) {
+		if i, ok := present[name]; ok && avail[i] > 0 {
+			w[i] = shares[name] / psum
+		}
 	}
 	if maxEpochs < 1 {
 		maxEpochs = 1
@@ -244,6 +257,10 @@ func planMix(units []unit, srcNames []string, shares map[string]float64, budget 
 		rep.Note = fmt.Sprintf("budget %d met by subsampling every source", budget)
 	}
 
+	if len(missing) > 0 {
+		rep.Missing = missing
+		rep.Note = fmt.Sprintf("source(s) %s have no surviving tokens, so the others are mixed at their relative shares; %s", strings.Join(missing, ", "), rep.Note)
+	}
 	order := interleave(lists, used, units)
 	var all int64
 	for i, name := range srcNames {

@@ -132,6 +132,10 @@ func TestLoadEvalSetErrors(t *testing.T) {
 	contamWriteFile(t, filepath.Join(dir, "arr.json"), []byte(`[{"id":"a","question":"one"}]`))
 	contamWriteFile(t, filepath.Join(dir, "bin.dat"), []byte("\x00\x01\x02PK"))
 	contamWriteFile(t, filepath.Join(dir, "fake.parquet"), []byte(`{"id":"a","question":"one"}`+"\n"))
+	contamWriteFile(t, filepath.Join(dir, "numfield.jsonl"), []byte(`{"id":"a","question":"Which cleat?","answer":"horn"}`+"\n"+`{"id":"b","question":"How many bolts?","answer":12}`+"\n"))
+	contamWriteFile(t, filepath.Join(dir, "emptyfield.jsonl"), []byte(`{"id":"a","question":"Which cleat?","answer":"horn"}`+"\n"+`{"id":"b","question":"","answer":"twelve"}`+"\n"))
+	contamWriteFile(t, filepath.Join(dir, "allnum.jsonl"), []byte(`{"id":"a","label":3,"score":0.5}`+"\n"))
+	contamWriteFile(t, filepath.Join(dir, "allempty.jsonl"), []byte(`{"id":"a","question":"Which cleat?"}`+"\n"+`{"id":"b","question":" ","answer":""}`+"\n"))
 	for _, c := range []struct {
 		spec EvalSpec
 		want string
@@ -148,6 +152,12 @@ func TestLoadEvalSetErrors(t *testing.T) {
 		{EvalSpec{Paths: []string{"arr.json"}}, `arr.json: cannot read as an eval set: a JSON array, not JSON lines`},
 		{EvalSpec{Paths: []string{"bin.dat"}}, `bin.dat: cannot read as an eval set: binary data`},
 		{EvalSpec{Paths: []string{"fake.parquet"}, Format: "parquet"}, `fake.parquet: not a Parquet file`},
+		// A field of the wrong type or an empty one is named with its line,
+		// not counted as a short item.
+		{EvalSpec{Paths: []string{"numfield.jsonl"}, Fields: []string{"question", "answer"}}, `numfield.jsonl:2: item "b": field "answer" is a number (12), want text`},
+		{EvalSpec{Paths: []string{"emptyfield.jsonl"}, Fields: []string{"question", "answer"}}, `emptyfield.jsonl:2: item "b": field "question" is an empty string`},
+		{EvalSpec{Paths: []string{"allnum.jsonl"}}, `allnum.jsonl:1: item "a" has no text: field(s) "label" (3), "score" (0.5) are numbers`},
+		{EvalSpec{Paths: []string{"allempty.jsonl"}}, `allempty.jsonl:2: item "b" has no text: field(s) "question", "answer" are empty strings`},
 	} {
 		c.spec.Name, c.spec.Dir = "qa", dir
 		_, err := LoadEvalSet(c.spec)

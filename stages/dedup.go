@@ -30,12 +30,12 @@ const (
 func init() {
 	Register(Kind{
 		Name:      "exact_dedup",
-		Doc:       "drop exact copies (xxh3-128 of normalized text), or with scope: paragraph remove paragraphs repeated across many documents",
+		Doc:       "drop exact copies (xxh3-128 of normalized text; keep: chooses the survivor), or with scope: paragraph remove paragraphs repeated across many documents",
 		NewGlobal: newExactDedup,
 	})
 	Register(Kind{
 		Name:      "near_dedup",
-		Doc:       "drop near copies: MinHash over word n-grams, LSH banding, union-find clusters; the earliest document of a cluster is kept",
+		Doc:       "drop near copies: MinHash over word n-grams, LSH banding, candidate pairs verified per partition; a document is dropped when similar to an earlier kept one (keep: sets the order, input order by default)",
 		NewGlobal: newNearDedup,
 	})
 }
@@ -52,6 +52,76 @@ func stageName(p *Params, kind string) string {
 	return n
 }
 
+// parseKeep reads the keep key shared by the dedup stages:
+//
+//	keep: first | longest
+//	keep: {sources: [a, b, ...]}
+//	keep: {metric: STAGE.METRIC, prefer: max | min}
+func parseKeep(p *Params) dedup.KeepRule {
+	if !p.Has("keep") {
+		return dedup.KeepRule{}
+	}
+	if !p.IsMapping("keep") {
+		switch v := p.String("keep", "first"); v {
+		case "first":
+		case "longest":
+			return dedup.KeepRule{By: dedup.KeepLongest}
+		default:
+			p.Errorf("keep", "want first, longest, {sources: [a, b, ...]} or {metric: STAGE.METRIC, prefer: max|min}, got %q", v)
+		}
+		return dedup.KeepRule{}
+	}
+	sub := p.Sub("keep")
+	var r dedup.KeepRule
+	switch hasS, hasM := sub.Has("sources"), sub.Has("metric"); {
+	case hasS && hasM:
+		sub.Errorf("metric", "keep takes sources or metric, not both")
+	case hasS:
+		r = dedup.KeepRule{By: dedup.KeepSources, Sources: sub.Strings("sources", nil)}
+		seen := map[string]bool{}
+		for _, src := range r.Sources {
+			if src == "" || seen[src] {
+				sub.Errorf("sources", "source %q is empty or listed twice", src)
+			}
+			seen[src] = true
+		}
+		if len(r.Sources) == 0 {
+			sub.Errorf("sources", "want at least one source, most preferred first")
+		}
+	case hasM:
+		r = dedup.KeepRule{By: dedup.KeepMetric, Metric: sub.String("metric", "")}
+		r.Max = sub.String("prefer", "max", "max", "min") == "max"
+		if st, m, ok := strings.Cut(r.Metric, "."); !ok || st == "" || m == "" {
+			sub.Errorf("metric", "want STAGE.METRIC, the name of a metric an earlier stage measures (e.g. quality.word_count), got %q", r.Metric)
+		}
+	default:
+		sub.Errorf("", "keep: want sources: [a, b, ...] or metric: STAGE.METRIC")
+	}
+	if err := sub.Done(); err != nil {
+		p.errs = append(p.errs, err)
+	}
+	return r
+}
+
+// keepPriority computes a document's keep priority at scan time.
+func keepPriority(r dedup.KeepRule, d *Doc) uint64 {
+	if r.Uniform() {
+		return 0
+	}
+	f := dedup.KeepFacts{Text: d.Text, Source: d.Source}
+	if r.By == dedup.KeepMetric {
+		f.Metric, f.HasMetric = d.Measured[r.Metric]
+	}
+	return r.Priority(f)
+}
+
+func keepMetrics(r dedup.KeepRule) []string {
+	if r.By == dedup.KeepMetric {
+		return []string{r.Metric}
+	}
+	return nil
+}
+
 func keysPrefix(dir, name string) string {
 	if dir == "" {
 		return ""
@@ -65,9 +135,16 @@ type exactDedupStage struct {
 	norm       dedup.Normalization
 	paragraph  bool
 	maxRepeats int
+	keep       dedup.KeepRule
 	against    string
 	idx        *dedup.ExactIndex
 	para       *dedup.ParagraphIndex
+}
+
+// exactKey is exact_dedup's scan key at document scope.
+type exactKey struct {
+	hash     dedup.Hash128
+	priority uint64
 }
 
 func newExactDedup(p *Params, env Env) (GlobalStage, error) {
@@ -79,6 +156,10 @@ func newExactDedup(p *Params, env Env) (GlobalStage, error) {
 	s.maxRepeats = int(p.Int("max_repeats", defaultMaxRepeats, 1, 1<<40))
 	if p.Has("max_repeats") && !s.paragraph {
 		p.Errorf("max_repeats", "max_repeats applies only to scope: paragraph")
+	}
+	s.keep = parseKeep(p)
+	if p.Has("keep") && s.paragraph {
+		p.Errorf("keep", "keep applies only to scope: document (scope: paragraph removes a repeated paragraph from every document, so no copy survives)")
 	}
 	if err := p.Done(); err != nil {
 		return nil, err
@@ -128,8 +209,11 @@ func (s *exactDedupStage) Scan(d *Doc) any {
 	if !ok {
 		return nil
 	}
-	return h
+	return exactKey{h, keepPriority(s.keep, d)}
 }
+
+// UsesMetrics names the metric a keep rule reads.
+func (s *exactDedupStage) UsesMetrics() []string { return keepMetrics(s.keep) }
 
 // Collect adds one document's scan keys to the index, in input order.
 func (s *exactDedupStage) Collect(order OrderKey, id string, keys any) error {
@@ -143,11 +227,11 @@ func (s *exactDedupStage) Collect(order OrderKey, id string, keys any) error {
 		}
 		return s.para.Add(hs)
 	}
-	h, ok := keys.(dedup.Hash128)
+	k, ok := keys.(exactKey)
 	if !ok {
 		return fmt.Errorf("%s: unexpected scan key %T", s.name, keys)
 	}
-	return s.idx.Add(uint64(order), id, h)
+	return s.idx.AddPriority(uint64(order), id, k.hash, k.priority)
 }
 
 // Reduce decides which documents are duplicates and writes the run's keys.
@@ -206,8 +290,8 @@ func (s *exactDedupStage) Describe() string {
 		return fmt.Sprintf("paragraph scope: paragraphs (blank-line separated, normalized with fold_punct=%v fold_digits=%v) found in more than %d documents are removed from every document; 8 bytes per (document, distinct paragraph) in memory up to the budget, then spilled\n",
 			s.norm.FoldPunct, s.norm.FoldDigits, s.maxRepeats)
 	}
-	return fmt.Sprintf("xxh3-128 of text case-folded, whitespace collapsed, fold_punct=%v fold_digits=%v; the earliest copy is kept; memory: 24 bytes/doc on disk in 16 hash partitions, sorted one at a time in reduce (about 1.5 bytes/doc resident, an external sort past the budget), 16 bytes per removed doc\n",
-		s.norm.FoldPunct, s.norm.FoldDigits)
+	return fmt.Sprintf("xxh3-128 of text case-folded, whitespace collapsed, fold_punct=%v fold_digits=%v; of each group of copies the survivor is: %s; memory: 32 bytes/doc on disk in %d hash partitions, sorted one at a time in reduce (about 0.5 bytes/doc resident, an external sort past the budget), 16 bytes per removed doc\n",
+		s.norm.FoldPunct, s.norm.FoldDigits, s.keep, dedup.KeyPartitions)
 }
 
 // nearDedupStage implements near_dedup.
@@ -215,6 +299,7 @@ type nearDedupStage struct {
 	name    string
 	opt     dedup.NearOptions
 	band    dedup.Banding
+	keep    dedup.KeepRule
 	against string
 	idx     *dedup.NearIndex
 }
@@ -227,6 +312,7 @@ func newNearDedup(p *Params, env Env) (GlobalStage, error) {
 	o.Bands = int(p.Int("bands", 16, 1, 1024))
 	o.Threshold = p.Float("threshold", defaultNearThreshold, 0, 1)
 	o.VerifyExact = p.String("verify", "signature", "signature", "exact") == "exact"
+	s.keep = parseKeep(p)
 	bd, err := dedup.NewBanding(o.Permutations, o.Bands)
 	if err != nil {
 		p.Errorf("bands", "%v", err)
@@ -264,8 +350,12 @@ func (s *nearDedupStage) Scan(d *Doc) any {
 	if k == nil {
 		return nil
 	}
+	k.Priority = keepPriority(s.keep, d)
 	return k
 }
+
+// UsesMetrics names the metric a keep rule reads.
+func (s *nearDedupStage) UsesMetrics() []string { return keepMetrics(s.keep) }
 
 // Collect adds one document's scan keys to the index, in input order.
 func (s *nearDedupStage) Collect(order OrderKey, id string, keys any) error {
@@ -315,8 +405,11 @@ func (s *nearDedupStage) Describe() string {
 		s.opt.Permutations, s.opt.NGram, verify, s.opt.Threshold)
 	if s.band.Bands > 0 {
 		sb.WriteString(s.band.SCurve())
-		fmt.Fprintf(&sb, "memory: band keys (%d bytes/doc) and signatures (%d bytes/doc) on disk; reduce sorts one band at a time (16 bytes/doc resident, an external sort past the budget) plus 4 bytes/doc of union-find\n",
-			8*s.band.Bands, 4*s.opt.Permutations)
+		fmt.Fprintf(&sb, "candidate pairs per band-key partition (%d partitions); each member of a band bucket is compared with the first %d members in keep order\n",
+			dedup.KeyPartitions, dedup.DefaultBucketCap)
+		fmt.Fprintf(&sb, "a document is dropped when similar to an earlier kept one; keep order: %s\n", s.keep)
+		fmt.Fprintf(&sb, "memory: band keys (%d bytes/doc) and signatures (%d bytes/doc) on disk; reduce sorts one partition at a time (about %d bytes/doc resident, an external sort past the budget), 1 bit/doc, a table of verified pairs (8-16 bytes/doc, at most budget/16)\n",
+			8*s.band.Bands, 4*s.opt.Permutations, 16*s.band.Bands/dedup.KeyPartitions)
 	}
 	return sb.String()
 }

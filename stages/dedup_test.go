@@ -404,3 +404,72 @@ func TestDedupAgainstSynthTruth(t *testing.T) {
 		t.Errorf("near dedup flagged %d of %d pairs with J <= 0.5 (>= 1%%)", loFlagged, loPairs)
 	}
 }
+
+func TestDedupKeepParamErrors(t *testing.T) {
+	for _, c := range []struct {
+		kind   string
+		params map[string]any
+		want   string
+	}{
+		{"near_dedup", map[string]any{"keep": "newest"}, `want first, longest, {sources: [a, b, ...]} or {metric: STAGE.METRIC, prefer: max|min}, got "newest"`},
+		{"near_dedup", map[string]any{"keep": "sources"}, `got "sources"`},
+		{"exact_dedup", map[string]any{"keep": map[string]any{"sources": []string{}}}, "at least one source"},
+		{"exact_dedup", map[string]any{"keep": map[string]any{"sources": []string{"web", "web"}}}, "listed twice"},
+		{"near_dedup", map[string]any{"keep": map[string]any{"sources": []string{"a"}, "metric": "quality.word_count"}}, "not both"},
+		{"near_dedup", map[string]any{"keep": map[string]any{"metric": "words"}}, "STAGE.METRIC"},
+		{"near_dedup", map[string]any{"keep": map[string]any{"metric": "quality.word_count", "prefer": "high"}}, "prefer"},
+		{"near_dedup", map[string]any{"keep": map[string]any{"metrc": "quality.word_count"}}, `did you mean "metric"`},
+		{"exact_dedup", map[string]any{"scope": "paragraph", "keep": "longest"}, "keep applies only to scope: document"},
+	} {
+		k, _ := LookupKind(c.kind)
+		_, err := k.NewGlobal(ParamsFromMap(c.params), Env{Checking: true})
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s %v: error %v, want it to mention %q", c.kind, c.params, err, c.want)
+		}
+	}
+}
+
+// The keep rule chooses the survivor at stage level too: by source, by
+// length, and by a metric an earlier stage measured (Doc.Measured).
+func TestDedupKeepStage(t *testing.T) {
+	base := "Haul out the ketch, pressure wash the hull below the waterline, sand the old antifouling back to a sound layer, " +
+		"fair the keel with epoxy filler, apply two coats of primer and three of antifouling paint, then relaunch at high tide."
+	longer := base + " Check the seacocks first."
+	docs := []*Doc{
+		{ID: "mirror/1", Source: "mirror", Text: base, Order: MakeOrderKey(0, 1), Measured: map[string]float64{"quality.word_count": 40}},
+		{ID: "docs/1", Source: "docs", Text: longer, Order: MakeOrderKey(0, 2), Measured: map[string]float64{"quality.word_count": 45}},
+		{ID: "docs/2", Source: "docs", Text: strings.ToUpper(base), Order: MakeOrderKey(0, 3)},
+	}
+	for _, c := range []struct {
+		kind string
+		keep any
+		want []string // survivor of each doc ("" when kept)
+	}{
+		{"near_dedup", nil, []string{"", "mirror/1", "mirror/1"}},
+		{"near_dedup", "longest", []string{"docs/1", "", "docs/1"}},
+		{"near_dedup", map[string]any{"sources": []string{"docs"}}, []string{"docs/1", "", "docs/1"}},
+		{"near_dedup", map[string]any{"metric": "quality.word_count", "prefer": "min"}, []string{"", "mirror/1", "mirror/1"}},
+		{"near_dedup", map[string]any{"metric": "quality.word_count", "prefer": "max"}, []string{"docs/1", "", "docs/1"}},
+		{"exact_dedup", nil, []string{"", "", "mirror/1"}},
+		{"exact_dedup", map[string]any{"sources": []string{"docs"}}, []string{"docs/2", "", ""}},
+	} {
+		params := map[string]any{}
+		if c.keep != nil {
+			params["keep"] = c.keep
+		}
+		g := newGlobal(t, c.kind, params, Env{})
+		reduceGlobal(t, g, docs, 2)
+		for i, d := range docs {
+			dec := g.Apply(d)
+			of, _ := dec.Extra["of"].(string)
+			if (dec.Action == Drop) != (c.want[i] != "") || of != c.want[i] {
+				t.Errorf("%s keep %v: %s: %s, want removed of %q", c.kind, c.keep, d.ID, renderDecision(dec), c.want[i])
+			}
+		}
+		m, _ := c.keep.(map[string]any)
+		if uses := g.(MetricUser).UsesMetrics(); (len(uses) == 1 && uses[0] == "quality.word_count") != (m["metric"] != nil) {
+			t.Errorf("%s keep %v: UsesMetrics %v", c.kind, c.keep, uses)
+		}
+		g.Close()
+	}
+}

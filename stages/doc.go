@@ -59,6 +59,18 @@ type Doc struct {
 	// Tokens is the document's token count once the tokenizer has run
 	// (0 before).
 	Tokens int
+	// Measured holds metric values that a later stage asked for (see
+	// MetricUser), by "stage.metric" name; nil when none was asked for.
+	// They are not written to output shards.
+	Measured map[string]float64
+}
+
+// SetMeasured records a metric value a later stage asked for.
+func (d *Doc) SetMeasured(name string, v float64) {
+	if d.Measured == nil {
+		d.Measured = make(map[string]float64, 2)
+	}
+	d.Measured[name] = v
 }
 
 // SetMeta sets one meta key, creating the map when needed.

@@ -554,11 +554,40 @@ func evalItemFromNode(root *jsonNode, base string, ln int64, spec EvalSpec) (Eva
 		it.ID = fmt.Sprintf("%s:%d", base, ln)
 	}
 	var parts []string
+	strs := 0 // parts that came from strings, not numbers
 	if spec.Fields == nil {
+		var empty, numeric []string
 		for i, k := range root.keys {
-			if k != spec.IDField {
-				parts = root.vals[i].texts(parts)
+			if k == spec.IDField {
+				continue
 			}
+			v := root.vals[i]
+			switch {
+			case v.kind == 's' && strings.TrimSpace(v.str) == "":
+				empty = append(empty, strconv.Quote(k))
+			case v.kind == 'n':
+				numeric = append(numeric, fmt.Sprintf("%q (%s)", k, v.str))
+			case v.kind == 's':
+				strs++
+			case v.kind == 'o' || v.kind == 'a':
+				strs++ // nested text is taken as it comes
+			}
+			parts = root.vals[i].texts(parts)
+		}
+		if strs == 0 {
+			// Only numbers or empty strings: the item would be a few
+			// digits long and match nearly anything, or nothing.
+			var why []string
+			if len(numeric) > 0 {
+				why = append(why, "field(s) "+strings.Join(numeric, ", ")+" are numbers")
+			}
+			if len(empty) > 0 {
+				why = append(why, "field(s) "+strings.Join(empty, ", ")+" are empty strings")
+			}
+			if len(why) == 0 {
+				return it, fmt.Errorf("item %q has no text fields", it.ID)
+			}
+			return it, fmt.Errorf("item %q has no text: %s (set fields: to the text fields)", it.ID, strings.Join(why, "; "))
 		}
 	} else {
 		var nodes []*jsonNode
@@ -569,6 +598,16 @@ func evalItemFromNode(root *jsonNode, base string, ln int64, spec EvalSpec) (Eva
 				return it, fmt.Errorf("item %q: %w", it.ID, err)
 			}
 			for _, v := range nodes {
+				switch {
+				case v.kind == 'n':
+					return it, fmt.Errorf("item %q: field %q is a number (%s), want text", it.ID, f, v.str)
+				case v.kind == 's' && strings.TrimSpace(v.str) == "":
+					return it, fmt.Errorf("item %q: field %q is an empty string", it.ID, f)
+				case v.kind == 'z':
+					return it, fmt.Errorf("item %q: field %q is null", it.ID, f)
+				case v.kind == 'b':
+					return it, fmt.Errorf("item %q: field %q is a boolean, want text", it.ID, f)
+				}
 				parts = v.texts(parts)
 			}
 		}

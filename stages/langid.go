@@ -9,11 +9,16 @@ import (
 )
 
 // langidStage keeps documents written in one of the spec's languages. The
-// language is detected among a wider candidate set (a detector offered a
-// single language always answers that one, so an English-only spec still
-// has to tell German apart) by package filters/langid, which decides with
+// language is detected among a wider candidate set, by default every
+// language the models cover (a detector offered a single language always
+// answers that one, so an English-only spec still has to tell German
+// apart, and a language left out of the candidates is confidently named
+// as its nearest candidate) by package filters/langid, which decides with
 // lingua-go's models. The detected code and its confidence go into the
-// document's meta as "lang" and "lang_conf" (contract: later stages and
+// metrics of every document the stage saw, kept or not ("lang" as a text
+// label, "lang_conf" as a metric), so language breakdowns need only
+// OUT/metrics/langid.jsonl.zst, and into the document's meta as "lang"
+// and "lang_conf" (contract: later stages and
 // output readers use these names).
 //
 // Rules, in the order they are checked (the first failing one drops):
@@ -84,7 +89,7 @@ func newLangid(p *Params, env Env) (Stage, error) {
 			s.languages = append(s.languages, code)
 		}
 	}
-	cands := p.Strings("candidates", langid.DefaultCandidates())
+	cands := p.Strings("candidates", langid.SupportedCodes())
 	inCands := map[string]bool{}
 	candsOK := true
 	for _, c := range cands {
@@ -170,6 +175,7 @@ func (s *langidStage) Process(d *Doc) Decision {
 		dec.Limit = s.languages
 	}
 	dec.Meta = map[string]any{"lang": r.Lang, "lang_conf": conf}
+	dec.Labels = map[string]string{"lang": r.Lang} // lang_conf is a metric
 	return dec
 }
 

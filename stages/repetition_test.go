@@ -66,36 +66,37 @@ func TestRepetitionThresholds(t *testing.T) {
 	dupDoc := func(k int) string { return sentence + " " + words(filler(k+1)) + " " + sentence }
 
 	cases := []struct {
-		key   string
+		rule  string // the rule and metric; its key is "most_" + rule without "_share"
 		limit float64
 		build func(k int) string
 	}{
-		{"dup_line_frac", 0.30, lineDoc("\n")},
-		{"dup_para_frac", 0.30, lineDoc("\n\n")},
-		{"dup_line_char_frac", 0.20, lineDoc("\n")},
-		{"dup_para_char_frac", 0.20, lineDoc("\n\n")},
-		{"top_2gram_frac", 0.20, phrase(2)},
-		{"top_3gram_frac", 0.18, phrase(3)},
-		{"top_4gram_frac", 0.16, phrase(4)},
-		{"dup_5gram_frac", 0.15, dupDoc},
-		{"dup_6gram_frac", 0.14, dupDoc},
-		{"dup_7gram_frac", 0.13, dupDoc},
-		{"dup_8gram_frac", 0.12, dupDoc},
-		{"dup_9gram_frac", 0.11, dupDoc},
-		{"dup_10gram_frac", 0.10, dupDoc},
+		{"repeated_lines_share", 0.30, lineDoc("\n")},
+		{"repeated_paragraphs_share", 0.30, lineDoc("\n\n")},
+		{"repeated_line_chars_share", 0.20, lineDoc("\n")},
+		{"repeated_paragraph_chars_share", 0.20, lineDoc("\n\n")},
+		{"top_2word_phrase_chars_share", 0.20, phrase(2)},
+		{"top_3word_phrase_chars_share", 0.18, phrase(3)},
+		{"top_4word_phrase_chars_share", 0.16, phrase(4)},
+		{"repeated_5word_phrase_chars_share", 0.15, dupDoc},
+		{"repeated_6word_phrase_chars_share", 0.14, dupDoc},
+		{"repeated_7word_phrase_chars_share", 0.13, dupDoc},
+		{"repeated_8word_phrase_chars_share", 0.12, dupDoc},
+		{"repeated_9word_phrase_chars_share", 0.11, dupDoc},
+		{"repeated_10word_phrase_chars_share", 0.10, dupDoc},
 	}
 	def := buildStage(t, "repetition", nil).(ThresholdStage)
 	for i, c := range cases {
-		if r := def.Rules()[i]; r.Key != c.key || r.Limit != c.limit || r.Cmp != AtMost || !r.Enabled {
-			t.Fatalf("default rule %d: %+v, want %s <= %v", i, r, c.key, c.limit)
+		key := "most_" + strings.TrimSuffix(c.rule, "_share")
+		if r := def.Rules()[i]; r.Name != c.rule || r.Metric != c.rule || r.Key != key || r.Limit != c.limit || r.Cmp != AtMost || !r.Enabled {
+			t.Fatalf("default rule %d: %+v, want %s: %s <= %s = %v", i, r, c.rule, c.rule, key, c.limit)
 		}
-		st := buildStage(t, "repetition", only(t, "repetition", c.key, nil))
-		in, out, vin, vout := straddle(t, st, c.key, c.limit, c.build)
+		st := buildStage(t, "repetition", only(t, "repetition", key, nil))
+		in, out, vin, vout := straddle(t, st, c.rule, c.limit, c.build)
 		if c.limit-vin > 0.05 || vout-c.limit > 0.05 {
-			t.Fatalf("%s: values %v and %v are not close to %v", c.key, vin, vout, c.limit)
+			t.Fatalf("%s: values %v and %v are not close to %v", c.rule, vin, vout, c.limit)
 		}
 		expect(t, st, in, "")
-		expect(t, st, out, c.key)
+		expect(t, st, out, c.rule)
 	}
 }
 
@@ -104,22 +105,20 @@ func TestRepetitionThresholds(t *testing.T) {
 func TestRepetitionAllMetricsAlways(t *testing.T) {
 	st := buildStage(t, "repetition", nil)
 	ten := words(filler(10))
-	dec := expect(t, st, strings.Repeat(ten+"\n", 5), "dup_line_frac")
-	if v := metric(t, st, dec, "dup_10gram_frac"); v < 0.7 {
+	dec := expect(t, st, strings.Repeat(ten+"\n", 5), "repeated_lines_share")
+	if v := metric(t, st, dec, "repeated_10word_phrase_chars_share"); v < 0.7 {
 		t.Fatalf("dup 10-gram fraction %v", v)
 	}
 }
 
 func TestRepetitionParams(t *testing.T) {
 	k, _ := LookupKind("repetition")
-	for _, p := range []map[string]any{{"dup_line_fraction": 0.5}, {"top_2gram_frac": 1.5}, {"disable": []string{"min_words"}}} {
+	for _, p := range []map[string]any{{"repeated_lines": 0.5}, {"most_top_2word_phrase_chars": 1.5}, {"top_2word_phrase_chars_share": 0.5}, {"disable": []string{"fewest_words"}}} {
 		if _, err := k.New(ParamsFromMap(p), Env{}); err == nil {
 			t.Errorf("%v: no error", p)
 		}
 	}
-	st := buildStage(t, "repetition", map[string]any{"dup_line_frac": 0.9, "disable": []string{"dup_line_char_frac",
-		"top_2gram_frac", "top_3gram_frac", "top_4gram_frac", "dup_5gram_frac", "dup_6gram_frac", "dup_7gram_frac",
-		"dup_8gram_frac", "dup_9gram_frac", "dup_10gram_frac", "dup_para_frac", "dup_para_char_frac"}})
+	st := buildStage(t, "repetition", only(t, "repetition", "most_repeated_lines", map[string]any{"most_repeated_lines": 0.9}))
 	expect(t, st, strings.Repeat("same line here\n", 5), "") // 4/5 = 0.8 <= 0.9
 }
 
@@ -135,7 +134,7 @@ func TestQualityRepetitionShareSplit(t *testing.T) {
 		dr := r.Process(&Doc{Text: text})
 		var s filters.Scratch
 		want := filters.MeasureRepetition(&s, text)
-		if dr.Metrics[0] != want.DupLineFrac || dr.Metrics[4] != want.TopNgram[0] || dr.Metrics[7] != want.DupNgram[0] {
+		if dr.Metrics[0] != want.RepeatedLinesShare || dr.Metrics[4] != want.TopPhraseCharsShare[0] || dr.Metrics[7] != want.RepeatedPhraseCharsShare[0] {
 			t.Fatalf("repetition metrics %v, filters %+v", dr.Metrics, want)
 		}
 		if dq.Metrics[0] != float64(90+i+2) {

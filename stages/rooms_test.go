@@ -26,12 +26,14 @@ var roomRank = map[string]int{
 	"winnow/stages/read":        3, // inputs, codecs, record readers
 	"winnow/filters":            2,
 	"winnow/filters/langid":     2,
+	"winnow/filters/domain":     2,
 	"winnow/dedup":              2,
 	"winnow/shard":              2,
 	"winnow/stages/synth":       2, // demo corpus generator
 	"winnow/stages/fsio":        1,
 	"winnow/stages/jsonl":       1,
 	"winnow/stages/suggest":     1,
+	"winnow/stages/termtext":    1, // escaping for terminal output
 	"winnow/configs":            1,
 }
 

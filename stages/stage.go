@@ -3,7 +3,9 @@ package stages
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sort"
+	"strings"
 )
 
 // Action is what a stage decided about one document.
@@ -46,8 +48,12 @@ type Decision struct {
 	// with the stage's MetricNames(). They are written to OUT/metrics/ for
 	// every document the stage saw, kept or not.
 	Metrics []float64
-	// Meta is merged into the document's Meta when the document is kept or
-	// edited (language, confidence...); it is not written to the ledger.
+	// Labels are text values measured with the metrics (the langid
+	// stage's detected "lang"), written beside them to OUT/metrics/.
+	Labels map[string]string
+	// Meta is merged into the document's Meta (language, confidence...);
+	// for a removed document only later stages' shadow measurement sees
+	// it. It is not written to the ledger.
 	Meta map[string]any
 	// Tokens, when > 0, becomes the document's token count.
 	Tokens int
@@ -121,7 +127,7 @@ func (c Cmp) String() string {
 
 // Rule is one threshold of a threshold stage: the document is dropped with
 // rule Name when Metric does not satisfy Cmp against Limit. Key is the spec
-// key that sets Limit (what-if uses it: "quality.min_words=80"). Rules are
+// key that sets Limit (what-if uses it: "quality.fewest_words=80"). Rules are
 // evaluated in table order; the first failing rule is the one recorded.
 type Rule struct {
 	Name    string
@@ -213,10 +219,72 @@ type Finisher interface {
 	Finish(runDir string) error
 }
 
+// StageFile is a file a stage wrote into the run directory (a trained
+// model, stored keys), recorded in the stage's manifest entry.
+type StageFile struct {
+	// Path is relative to the run directory, slash-separated.
+	Path  string `json:"path"`
+	Bytes int64  `json:"bytes"`
+	XXH3  string `json:"xxh3"`
+}
+
+// FileWriter is implemented by stages that write files into the run
+// directory when they are built; the manifest lists them with their hashes.
+type FileWriter interface {
+	StageFiles() []StageFile
+}
+
+// MetricUser is implemented by global stages that read metrics measured by
+// earlier stages at scan time (e.g. a dedup keep rule preferring a higher
+// quality score). UsesMetrics names them "stage.metric"; the runner checks
+// that an earlier stage measures each one and records the values into
+// Doc.Measured.
+type MetricUser interface {
+	UsesMetrics() []string
+}
+
 // Describer is implemented by stages that have something to show in
 // `winnow check` beyond their parameters (e.g. an LSH S-curve).
 type Describer interface {
 	Describe() string
+}
+
+// Scope is a per-document stage's `only:` (its sources and the detected
+// languages it applies to): a document outside passes the stage
+// untouched and is not measured by it. An empty list does not restrict.
+type Scope struct {
+	Sources   []string `json:"sources,omitempty"`
+	Languages []string `json:"languages,omitempty"`
+}
+
+// Match reports whether d is inside the scope: its source is one of
+// Sources and its meta "lang" (from the langid stage) one of Languages.
+func (s *Scope) Match(d *Doc) bool {
+	if s == nil {
+		return true
+	}
+	if len(s.Sources) > 0 && !slices.Contains(s.Sources, d.Source) {
+		return false
+	}
+	if len(s.Languages) > 0 {
+		lang, _ := d.Meta["lang"].(string)
+		if !slices.Contains(s.Languages, lang) {
+			return false
+		}
+	}
+	return true
+}
+
+// String describes the scope, e.g. "sources web, forum; languages en".
+func (s *Scope) String() string {
+	var parts []string
+	if len(s.Sources) > 0 {
+		parts = append(parts, "sources "+strings.Join(s.Sources, ", "))
+	}
+	if len(s.Languages) > 0 {
+		parts = append(parts, "languages "+strings.Join(s.Languages, ", "))
+	}
+	return strings.Join(parts, "; ")
 }
 
 // Env is what a stage constructor may use besides its own parameters.

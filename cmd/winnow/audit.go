@@ -10,6 +10,7 @@ import (
 
 	"winnow/stages/audit"
 	"winnow/stages/run"
+	"winnow/stages/termtext"
 )
 
 var auditOpts struct {
@@ -51,11 +52,12 @@ from stored metrics as winnow whatif --sweep does, estimates marked), the
 contamination table and a sample of removed documents with their reasons.`,
 	Example: `  winnow audit out/
   winnow audit out/ --json | jq '.rules[] | select(.stage=="quality")'
-  winnow audit out/ --rule dup_line_frac --samples 3
+  winnow audit out/ --rule repeated_lines_share --samples 3
   winnow audit out/ --html out/report.html`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
-		out := cmd.OutOrStdout()
+		out := termOut(cmd.OutOrStdout())
+		defer out.Flush()
 		r, err := audit.Open(args[0], audit.OpenOptions{SpecDir: auditOpts.specDir})
 		if err != nil {
 			return err
@@ -89,7 +91,7 @@ contamination table and a sample of removed documents with their reasons.`,
 			if err := rep.WriteHTMLFile(auditOpts.html); err != nil {
 				return err
 			}
-			fmt.Fprintf(cmd.ErrOrStderr(), "winnow: report written to %s\n", auditOpts.html)
+			fmt.Fprintf(cmd.ErrOrStderr(), "winnow: report written to %s\n", termtext.EscapeLines(auditOpts.html))
 			if auditOpts.asJSON {
 				return writeJSON(out, rep.Summary)
 			}

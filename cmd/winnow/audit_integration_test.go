@@ -155,7 +155,7 @@ func TestAuditExplainWhatifCommands(t *testing.T) {
 	if err != nil || !strings.Contains(out, "all reproduced") || strings.Contains(out, "DIFFER") {
 		t.Errorf("whatif check: %v\n%s", err, out)
 	}
-	out, err = runCLI(t, "whatif", run, "--set", "quality.min_words=400", "--sweep", "quality.min_words=50:250:100", "--json")
+	out, err = runCLI(t, "whatif", run, "--set", "quality.fewest_words=400", "--sweep", "quality.fewest_words=50:250:100", "--json")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -42,7 +42,8 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 		if _, err := record.OpenSink(sp.Output, stages.Env{Checking: true}, sp.Name); err != nil {
 			return err
 		}
-		w := cmd.OutOrStdout()
+		w := termOut(cmd.OutOrStdout())
+		defer w.Flush()
 		if checkJSON {
 			return printPlanJSON(w, sp, inputs, steps)
 		}
@@ -72,6 +73,9 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 			}
 			k, _ := stages.LookupKind(sp.Stages[i].Kind)
 			fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\n", i+1, st.Name, kind, k.Doc)
+			if st.Only != nil {
+				fmt.Fprintf(tw, "\t\t  only\t%s (other documents pass untouched)\n", st.Only)
+			}
 			if d, ok := obj.(stages.Describer); ok {
 				desc = d.Describe()
 			}
@@ -127,6 +131,8 @@ type planStage struct {
 	Global   bool       `json:"global"`
 	Rules    []planRule `json:"rules,omitempty"`
 	Describe string     `json:"describe,omitempty"`
+	// Only is the stage's `only:` scope.
+	Only *stages.Scope `json:"only,omitempty"`
 }
 
 // planRule is one enabled threshold: keep when metric <op> limit.
@@ -158,7 +164,7 @@ func printPlanJSON(w io.Writer, sp *spec.Spec, inputs []read.InputFile, steps []
 	}
 	for _, st := range steps {
 		var obj any = st.Stage
-		ps := planStage{Name: st.Name}
+		ps := planStage{Name: st.Name, Only: st.Only}
 		if st.Stage != nil {
 			ps.Kind = st.Stage.Kind()
 		} else {

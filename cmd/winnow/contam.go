@@ -65,7 +65,9 @@ With --out DIR, contamination.json and the ledger are kept in DIR.`,
   winnow contam --eval qa=evals/a.jsonl.gz --eval evals/b.txt corpus/ --json`,
 	Args: cobra.MinimumNArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
-		return runContam(cmd.Context(), contamOpts, args, cmd.OutOrStdout())
+		out := termOut(cmd.OutOrStdout())
+		defer out.Flush()
+		return runContam(cmd.Context(), contamOpts, args, out)
 	},
 }
 
@@ -103,7 +105,9 @@ func printDemoContamination(res *run.RunResult) error {
 		return err
 	}
 	fmt.Printf("\ncontamination (%s):\n", path)
-	return r.WriteTableN(os.Stdout, demoContamItems)
+	out := termOut(os.Stdout)
+	defer out.Flush()
+	return r.WriteTableN(out, demoContamItems)
 }
 
 // demoContamItems is the number of contaminated items the demo lists per
@@ -189,6 +193,9 @@ func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) e
 	}
 	if errors.Is(runErr, context.Canceled) {
 		return &exitError{code: 130, err: errors.New("interrupted: the report covers the documents read so far")}
+	}
+	if r.InternalErrors > 0 {
+		return &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): the check failed on %d document(s), which the report leaves out (please report this bug)", r.InternalErrors, r.InternalErrors)}
 	}
 	if r.FatalInputs > 0 {
 		return &exitError{code: 3, err: fmt.Errorf("finished, but %d input file(s) could not be read to the end: the report covers the documents before the break", r.FatalInputs)}

@@ -17,6 +17,7 @@ import (
 	"winnow/shard"
 	"winnow/stages/audit"
 	"winnow/stages/read"
+	"winnow/stages/termtext"
 )
 
 var countOpts struct {
@@ -91,16 +92,23 @@ func runCount(cmd *cobra.Command, args []string) error {
 	}
 	res := countResult{Tokenizer: tok.Name(), Total: countRow{Name: "total"}}
 	bySource := map[string]*countRow{}
+	// Everything printed goes through the terminal escaper: ids and source
+	// names come from the input (the --per-doc lines stay valid JSON).
+	out := termOut(cmd.OutOrStdout())
+	defer out.Flush()
 	var perDoc *bufio.Writer
 	var perDocW io.Writer // nil unless --per-doc (not a nil *bufio.Writer)
 	if countOpts.perDoc {
-		perDoc = bufio.NewWriterSize(cmd.OutOrStdout(), 64<<10)
+		perDoc = bufio.NewWriterSize(out, 64<<10)
 		perDocW = perDoc
 	}
 	for i, path := range args {
 		row, src, skipped, err := countFile(tok, path, i, workers, perDocW)
 		if perDoc != nil {
 			if ferr := perDoc.Flush(); err == nil {
+				err = ferr
+			}
+			if ferr := out.Flush(); err == nil {
 				err = ferr
 			}
 		}
@@ -135,7 +143,6 @@ func runCount(cmd *cobra.Command, args []string) error {
 		}
 		res.Sources = append(res.Sources, r)
 	}
-	out := cmd.OutOrStdout()
 	if perDoc != nil {
 		// The lines are the output.
 	} else if countOpts.jsonOut {
@@ -313,7 +320,7 @@ func countFile(tok *shard.Tokenizer, path string, input, workers int, perDoc io.
 		}
 		if rec.Issue != nil {
 			if issues++; issues <= maxIssueLines {
-				fmt.Fprintf(os.Stderr, "winnow count: %v\n", rec.Issue)
+				fmt.Fprintf(os.Stderr, "winnow count: %s\n", termtext.Escape(fmt.Sprint(rec.Issue)))
 			}
 			if rec.Doc == nil {
 				skipped++

@@ -52,7 +52,9 @@ prints what each stage removed and where the outputs are.`,
 		if err != nil {
 			return err
 		}
-		printShardTable(os.Stdout, res.Manifest)
+		out := termOut(os.Stdout)
+		printShardTable(out, res.Manifest)
+		out.Flush()
 		fmt.Printf("\nrun directory: %s\n  shards:   %s\n  ledger:   %s\n  manifest: %s\n",
 			res.Dir, filepath.Join(res.Dir, "shards"), filepath.Join(res.Dir, "ledger"), filepath.Join(res.Dir, "manifest.json"))
 		if err := writeDemoReport(res); err != nil {

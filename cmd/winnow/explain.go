@@ -33,10 +33,12 @@ output split it into pieces) or which rule removed it.`,
 		if err != nil {
 			return err
 		}
+		out := termOut(cmd.OutOrStdout())
+		defer out.Flush()
 		if explainOpts.asJSON {
-			return writeJSON(cmd.OutOrStdout(), ex)
+			return writeJSON(out, ex)
 		}
-		return ex.WriteText(cmd.OutOrStdout())
+		return ex.WriteText(out)
 	},
 }
 

@@ -6,11 +6,13 @@ package main
 import (
 	"fmt"
 	"os"
+
+	"winnow/stages/termtext"
 )
 
 func main() {
 	if err := rootCmd.Execute(); err != nil {
-		fmt.Fprintln(os.Stderr, "winnow:", err)
+		fmt.Fprintln(os.Stderr, "winnow:", termtext.EscapeLines(err.Error()))
 		os.Exit(exitCode(err))
 	}
 }

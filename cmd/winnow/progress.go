@@ -10,6 +10,7 @@ import (
 	"golang.org/x/term"
 
 	"winnow/stages/run"
+	"winnow/stages/termtext"
 )
 
 // progressLine prints a one-line, self-overwriting progress report to
@@ -67,5 +68,5 @@ func (p *progressLine) logf(format string, args ...any) {
 		fmt.Fprint(p.w, "\r\033[K")
 		p.active = false
 	}
-	fmt.Fprintf(os.Stderr, "winnow: "+format+"\n", args...)
+	fmt.Fprintf(os.Stderr, "winnow: %s\n", termtext.EscapeLines(fmt.Sprintf(format, args...)))
 }

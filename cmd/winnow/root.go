@@ -2,8 +2,11 @@ package main
 
 import (
 	"errors"
+	"io"
 
 	"github.com/spf13/cobra"
+
+	"winnow/stages/termtext"
 )
 
 // version is the tool version written into every manifest.
@@ -25,6 +28,15 @@ Logs and progress go to stderr, results to stdout.`,
 	SilenceErrors: true,
 	Version:       version,
 }
+
+// termOut wraps a command's output so that no control character from the
+// inputs (ids, file names, texts) reaches the terminal raw. Call Flush when
+// done.
+func termOut(w io.Writer) *termtext.Writer { return termtext.NewWriter(w) }
+
+// exitInternal is the exit status of a run that finished with internal
+// errors (a stage panicked on some documents).
+const exitInternal = 4
 
 // exitError carries a specific exit status.
 type exitError struct {

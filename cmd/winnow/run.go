@@ -14,6 +14,7 @@ import (
 	"winnow/stages/fsio"
 	"winnow/stages/run"
 	"winnow/stages/spec"
+	"winnow/stages/termtext"
 )
 
 type runFlags struct {
@@ -60,9 +61,11 @@ without reading or filtering those documents again, and gives the same
 bytes as a run never stopped.
 
 Exit status: 0 on success; 3 when some input could not be read to its end
-(unless --allow-partial); 130 when interrupted; 1 on any other error.`,
+(unless --allow-partial); 4 when a stage failed on some document (an
+internal error: the run went on, the manifest lists each one); 130 when
+interrupted; 1 on any other error.`,
 	Example: `  winnow run configs/default.yaml --out out/ --workers 2
-  winnow run spec.yaml --set quality.min_words=80 --force
+  winnow run spec.yaml --set quality.fewest_words=80 --force
   winnow run spec.yaml --out out/ --resume        # after Ctrl-C or a crash`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
@@ -90,6 +93,24 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 	}
 	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
 	defer stop()
+	prog := newProgress(f.quiet)
+	finished := make(chan struct{})
+	defer close(finished) // runs before stop
+	go func() {
+		select {
+		case <-finished:
+		case <-ctx.Done():
+			select {
+			case <-finished:
+				return
+			default:
+			}
+			// The first Ctrl-C stops the run cleanly; the next one ends
+			// the process at once (default signal handling).
+			stop()
+			prog.logf("interrupted: finishing the documents already decided and writing the manifest (Ctrl-C again to stop at once)")
+		}
+	}()
 	var mem int64
 	if f.memory != "" {
 		var err error
@@ -108,19 +129,28 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		}
 		defer pprof.StopCPUProfile()
 	}
-	prog := newProgress(f.quiet)
 	res, err := run.RunSpec(ctx, sp, run.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
 		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets, Resume: f.resume})
 	prog.done()
 	if res == nil {
 		return nil, err
 	}
-	if perr := printStageTable(os.Stdout, res.Manifest, f.asJSON); perr != nil {
+	out := termOut(os.Stdout)
+	perr := printStageTable(out, res.Manifest, f.asJSON)
+	if ferr := out.Flush(); perr == nil {
+		perr = ferr
+	}
+	if perr != nil {
 		return res, perr
 	}
 	if errors.Is(err, context.Canceled) {
-		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from the last checkpoint",
-			res.Dir, sp.File, res.Dir)}
+		ok, from := res.Runner.CanResume()
+		if !ok {
+			return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); --resume is not possible: %s",
+				res.Dir, from)}
+		}
+		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from %s",
+			res.Dir, sp.File, res.Dir, from)}
 	}
 	m := res.Manifest
 	fatal := res.Runner.FatalInputs
@@ -131,7 +161,19 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%s) in %d shards to %s\n",
 		m.Totals.DocsOut, toks, len(m.Outputs), res.Dir)
 	for _, l := range m.LeftOut() {
-		fmt.Fprintln(os.Stderr, "winnow: left out of the output:", l)
+		fmt.Fprintln(os.Stderr, "winnow: left out of the output:", termtext.Escape(l))
+	}
+	if why := m.EmptyReason(); why != "" {
+		fmt.Fprintf(os.Stderr, "winnow: warning: %s\n", why)
+	}
+	if m.InternalErrors > 0 {
+		// Listed before the partial-input note so the last line is about
+		// the bug; its status wins over 3 and --allow-partial.
+		if fatal > 0 {
+			fmt.Fprintf(os.Stderr, "winnow: %d input file(s) could not be read to the end: see errors in %s/manifest.json\n", fatal, res.Dir)
+		}
+		return res, &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): a stage failed on %d document(s), recorded with rule %s in the ledger and listed with their stacks in %s/manifest.json; every other document was processed (please report this bug)",
+			m.InternalErrors, m.InternalErrors, run.RuleInternalError, res.Dir)}
 	}
 	if fatal > 0 {
 		msg := fmt.Errorf("finished, but %d input file(s) could not be read to the end and %d record(s) were unreadable: see errors in %s/manifest.json",

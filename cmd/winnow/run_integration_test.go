@@ -44,12 +44,12 @@ func TestRunExitStatusOnTruncatedInput(t *testing.T) {
 	}
 }
 
-// check --json lists every stage with its enabled rules.
+// check --json lists every stage with its enabled rules and its scope.
 func TestCheckJSON(t *testing.T) {
 	dir := t.TempDir()
 	os.WriteFile(filepath.Join(dir, "a.jsonl"), []byte(`{"text":"x"}`+"\n"), 0o644)
 	spec := filepath.Join(dir, "spec.yaml")
-	os.WriteFile(spec, []byte("name: c\ninputs:\n  - source: s\n    paths: [a.jsonl]\nstages:\n  - kind: length\n    min_chars: 9\noutput:\n  dir: out\n"), 0o644)
+	os.WriteFile(spec, []byte("name: c\ninputs:\n  - source: s\n    paths: [a.jsonl]\nstages:\n  - kind: length\n    min_chars: 9\n    only: {sources: [s]}\noutput:\n  dir: out\n"), 0o644)
 	checkJSON = false
 	defer func() { checkJSON = false }()
 	got, err := runCLI(t, "check", spec, "--json") // check prints to the command's output
@@ -60,6 +60,7 @@ func TestCheckJSON(t *testing.T) {
 	var plan struct {
 		Stages []struct {
 			Name  string
+			Only  struct{ Sources []string }
 			Rules []struct {
 				Rule  string
 				Keep  string `json:"keep_when"`
@@ -70,7 +71,8 @@ func TestCheckJSON(t *testing.T) {
 	if err := json.Unmarshal(out.Bytes(), &plan); err != nil {
 		t.Fatalf("%v: %s", err, out.String())
 	}
-	if len(plan.Stages) != 1 || plan.Stages[0].Name != "length" || len(plan.Stages[0].Rules) != 1 || plan.Stages[0].Rules[0].Limit != 9 || plan.Stages[0].Rules[0].Keep != ">=" {
+	if len(plan.Stages) != 1 || plan.Stages[0].Name != "length" || len(plan.Stages[0].Rules) != 1 || plan.Stages[0].Rules[0].Limit != 9 || plan.Stages[0].Rules[0].Keep != ">=" ||
+		len(plan.Stages[0].Only.Sources) != 1 || plan.Stages[0].Only.Sources[0] != "s" {
 		t.Errorf("plan %s", out.String())
 	}
 }

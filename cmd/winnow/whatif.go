@@ -34,9 +34,9 @@ decontaminate with a counting pass) are not recomputed: when a change
 alters what reaches them, or reaches anything after them, the figures are
 marked as an estimate and say why. Only limits can change; keys that
 change what is measured need a re-run (winnow run --set).`,
-	Example: `  winnow whatif out/ --set quality.min_words=80
-  winnow whatif out/ --set quality.min_words=80 --set repetition.dup_line_frac=0.2
-  winnow whatif out/ --sweep quality.min_words=20:200:20 --json`,
+	Example: `  winnow whatif out/ --set quality.fewest_words=80
+  winnow whatif out/ --set quality.fewest_words=80 --set repetition.most_repeated_lines=0.2
+  winnow whatif out/ --sweep quality.fewest_words=20:200:20 --json`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
 		r, err := audit.Open(args[0], audit.OpenOptions{SpecDir: whatifOpts.specDir})
@@ -47,10 +47,12 @@ change what is measured need a re-run (winnow run --set).`,
 		if err != nil {
 			return err
 		}
+		out := termOut(cmd.OutOrStdout())
+		defer out.Flush()
 		if whatifOpts.asJSON {
-			return writeJSON(cmd.OutOrStdout(), w)
+			return writeJSON(out, w)
 		}
-		return w.WriteText(cmd.OutOrStdout())
+		return w.WriteText(out)
 	},
 }
 

@@ -3,6 +3,7 @@ package audit_test
 import (
 	"context"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -315,6 +316,41 @@ func TestExplainFollowsOneDocument(t *testing.T) {
 		t.Errorf("near duplicate result %+v, ledger %v", got, nd[0])
 	}
 
+	if !strings.Contains(ex.Docs[0].Result.Reason, fmt.Sprintf("(similarity %v)", nd[0]["similarity"])) {
+		t.Errorf("near duplicate reason %q lacks the similarity %v", ex.Docs[0].Result.Reason, nd[0]["similarity"])
+	}
+
+	// The kept twin lists the documents removed in its favour, as the
+	// ledgers of both dedup stages name them.
+	twin := nd[0]["of"].(string)
+	want := map[string]float64{}
+	for _, stage := range []string{"exact_dedup", "near_dedup"} {
+		for _, rec := range ledger[stage] {
+			if rec["of"] == twin {
+				sim, ok := rec["similarity"].(float64)
+				if !ok {
+					sim = 1
+				}
+				want[rec["doc"].(string)] = sim
+			}
+		}
+	}
+	ex = explain(t, r, twin)
+	tp := ex.Docs[0]
+	if tp.Result.Status != "kept" || tp.CopiesTotal != len(want) || len(tp.Copies) != len(want) {
+		t.Errorf("kept twin %s: %s, %d copies listed (%d total), ledgers name %d", twin, tp.Result.Status, len(tp.Copies), tp.CopiesTotal, len(want))
+	}
+	for _, c := range tp.Copies {
+		if sim, ok := want[c.ID]; !ok || sim != c.Similarity {
+			t.Errorf("kept twin %s: copy %+v, ledger similarity %v (listed %v)", twin, c, sim, ok)
+		}
+	}
+	var text strings.Builder
+	ex.WriteText(&text)
+	if !strings.Contains(text.String(), fmt.Sprintf("copies removed in its favour: %d", len(want))) || !strings.Contains(text.String(), nd[0]["doc"].(string)) {
+		t.Errorf("explain text of the kept twin:\n%s", text.String())
+	}
+
 	// A kept document: the shard line holding it.
 	lines := shardLines(t, run)
 	keptID := lines[len(lines)/2]["id"].(string)
@@ -347,7 +383,7 @@ func TestRuleSamplesRecoverTextAndMarks(t *testing.T) {
 	}
 
 	// Repeated lines: each marked line repeats an earlier line.
-	set = ruleSamples(t, r, "dup_line_frac", 2)
+	set = ruleSamples(t, r, "repeated_lines_share", 2)
 	for _, sm := range set.Samples {
 		if len(sm.Marks) == 0 {
 			t.Errorf("%s: nothing marked", sm.ID)
@@ -503,5 +539,32 @@ func TestAuditReadErrors(t *testing.T) {
 	ex = explain(t, r, "bad-utf8")
 	if ex.Docs[0].Result.Status != "kept" || ex.Docs[0].Decisions[0].Rule != "invalid_utf8" {
 		t.Errorf("explain of the repaired record: %+v", ex.Docs[0])
+	}
+}
+
+// On the generated corpus, every near copy points at a document near_dedup
+// kept, at a similarity at or above the threshold (no chains of
+// similar-to-similar), and exact copies point at a document exact_dedup
+// kept.
+func TestDedupLedgersPointAtKeptDocuments(t *testing.T) {
+	run := cachedRun(t, "full", fullStages)
+	ledger := ledgerFiles(t, run)
+	for _, stage := range []string{"exact_dedup", "near_dedup"} {
+		removed := map[string]bool{}
+		for _, rec := range ledger[stage] {
+			removed[rec["doc"].(string)] = true
+		}
+		if len(removed) == 0 {
+			t.Fatalf("%s removed nothing", stage)
+		}
+		for _, rec := range ledger[stage] {
+			of, _ := rec["of"].(string)
+			if of == "" || removed[of] {
+				t.Errorf("%s: %s removed of %q, which the stage also removed", stage, rec["doc"], of)
+			}
+			if sim, ok := rec["similarity"].(float64); stage == "near_dedup" && (!ok || sim < 0.8) {
+				t.Errorf("%s: %s removed of %s at similarity %v, threshold 0.8", stage, rec["doc"], of, rec["similarity"])
+			}
+		}
 	}
 }

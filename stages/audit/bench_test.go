@@ -59,7 +59,7 @@ func BenchmarkWhatIf(b *testing.B) {
 	b.SetBytes(rawSize(b, run))
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
-		if _, err := audit.RunWhatIf(r, audit.WhatIfOptions{Sets: []string{"quality.min_words=80"}}); err != nil {
+		if _, err := audit.RunWhatIf(r, audit.WhatIfOptions{Sets: []string{"quality.fewest_words=80"}}); err != nil {
 			b.Fatal(err)
 		}
 	}

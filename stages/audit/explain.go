@@ -7,6 +7,9 @@ import (
 	"math"
 	"path/filepath"
 	"strings"
+
+	"winnow/stages"
+	"winnow/stages/termtext"
 )
 
 // Explanation is the answer of `winnow explain RUN DOC_ID`: every
@@ -27,7 +30,27 @@ type DocPath struct {
 	Order     string     `json:"order"`
 	Decisions []Decision `json:"decisions"`
 	Result    Result     `json:"result"`
+	// Copies are the documents a dedup stage removed as copies of this
+	// one (their "of" is this id), in input order; at most maxCopies are
+	// listed, CopiesTotal counts all.
+	Copies      []Copy `json:"copies,omitempty"`
+	CopiesTotal int    `json:"copies_total,omitempty"`
 }
+
+// Copy is a document removed as a copy of the explained one.
+type Copy struct {
+	ID     string `json:"id"`
+	Source string `json:"source"`
+	Stage  string `json:"stage"`
+	Rule   string `json:"rule"`
+	// Similarity is the estimated (or, under verify: exact, exact)
+	// Jaccard similarity for near copies; 1 for exact copies.
+	Similarity float64 `json:"similarity"`
+}
+
+// maxCopies bounds the copies listed for one document (a page mirrored
+// thousands of times would otherwise flood the answer).
+const maxCopies = 100
 
 // Decision is what one stage did with the document.
 type Decision struct {
@@ -36,15 +59,17 @@ type Decision struct {
 	// Action is keep, drop or edit; "measured after removal" rows are
 	// Shadow (with the decision the stage would have made) and stages the
 	// document never reached are "not reached".
-	Action  string           `json:"action"`
-	Shadow  bool             `json:"shadow,omitempty"`
-	Rule    string           `json:"rule,omitempty"`
-	Value   any              `json:"value,omitempty"`
-	Limit   any              `json:"limit,omitempty"`
-	Metrics []MetricValue    `json:"metrics,omitempty"`
-	Changes map[string]int64 `json:"changes,omitempty"`
-	Extra   map[string]any   `json:"extra,omitempty"`
-	Note    string           `json:"note,omitempty"`
+	Action  string        `json:"action"`
+	Shadow  bool          `json:"shadow,omitempty"`
+	Rule    string        `json:"rule,omitempty"`
+	Value   any           `json:"value,omitempty"`
+	Limit   any           `json:"limit,omitempty"`
+	Metrics []MetricValue `json:"metrics,omitempty"`
+	// Labels are the text values measured with the metrics (lang).
+	Labels  map[string]string `json:"labels,omitempty"`
+	Changes map[string]int64  `json:"changes,omitempty"`
+	Extra   map[string]any    `json:"extra,omitempty"`
+	Note    string            `json:"note,omitempty"`
 }
 
 // MetricValue is one measured value and the rules that test it.
@@ -89,7 +114,25 @@ type ShardLine struct {
 func Explain(r *Run, id string) (*Explanation, error) {
 	ex := &Explanation{ID: id, Docs: []*DocPath{}}
 	var trails []*Trail
+	var copies []Copy
+	total := 0
 	if _, err := r.Walk(func(t *Trail) error {
+		for _, st := range t.Steps {
+			for i := range st.Recs {
+				rc := &st.Recs[i]
+				if rc.ExtraString("of") != id || rc.Extra["against"] != nil {
+					continue
+				}
+				total++
+				if len(copies) < maxCopies {
+					sim := 1.0
+					if v, ok := rc.Extra["similarity"].(float64); ok {
+						sim = v
+					}
+					copies = append(copies, Copy{ID: t.ID, Source: t.Source, Stage: rc.Stage, Rule: rc.Rule, Similarity: sim})
+				}
+			}
+		}
 		if t.ID == id {
 			trails = append(trails, t.Clone())
 			return nil
@@ -118,11 +161,15 @@ func Explain(r *Run, id string) (*Explanation, error) {
 			p.Decisions = append(p.Decisions, Decision{Stage: st.Name, Kind: st.Kind, Action: "keep", Note: "no record: kept without measuring"})
 		}
 		p.Result = Result{Status: "kept", Shards: shards}
+		p.Copies, p.CopiesTotal = copies, total
 		ex.Docs = append(ex.Docs, p)
 		return ex, nil
 	}
 	for _, t := range trails {
 		ex.Docs = append(ex.Docs, r.explainTrail(t, shards))
+	}
+	for _, p := range ex.Docs {
+		p.Copies, p.CopiesTotal = copies, total
 	}
 	return ex, nil
 }
@@ -154,6 +201,7 @@ func (r *Run) explainTrail(t *Trail, shards []ShardLine) *DocPath {
 			d.Action = tr.Row.Action
 			d.Rule = tr.Row.Rule
 			d.Shadow = tr.Row.Shadow()
+			d.Labels = tr.Row.Labels
 			rules, _ := r.StepRules(st)
 			for j, name := range st.MetricNames {
 				v := math.NaN()
@@ -170,6 +218,11 @@ func (r *Run) explainTrail(t *Trail, shards []ShardLine) *DocPath {
 			}
 			if d.Shadow {
 				d.Note = "measured after removal by " + tr.Row.DroppedBy + " (shadow measurement): the decision it would have made"
+			}
+		} else if sc := stepScope(st); sc != nil && !r.inScope(sc, t, i) {
+			d.Note = "outside its only: scope (" + sc.String() + "): passed untouched, not measured"
+			if after {
+				d.Action = "not reached"
 			}
 		} else if after {
 			d.Action = "not reached"
@@ -285,11 +338,14 @@ func shardID(b []byte) string {
 
 // WriteText prints the explanation.
 func (ex *Explanation) WriteText(w io.Writer) error {
+	if len(ex.Docs) > 1 {
+		fmt.Fprintf(w, "%d documents have the id %s (the input repeats it); each is shown:\n\n", len(ex.Docs), termtext.Escape(ex.ID))
+	}
 	for n, p := range ex.Docs {
 		if n > 0 {
 			fmt.Fprintln(w)
 		}
-		fmt.Fprintf(w, "%s  source %s, %s:%d (order %s)\n", p.ID, p.Source, p.File, p.Line, p.Order)
+		fmt.Fprintf(w, "%s  source %s, %s:%d (order %s)\n", termtext.Escape(p.ID), termtext.Escape(p.Source), termtext.Escape(p.File), p.Line, p.Order)
 		for i, d := range p.Decisions {
 			act := d.Action
 			switch {
@@ -309,9 +365,12 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 				fmt.Fprintf(w, " (%s)", ch)
 			}
 			for _, k := range sortedKeys(d.Extra) {
-				fmt.Fprintf(w, " %s=%s", k, fmtAny(d.Extra[k]))
+				fmt.Fprintf(w, " %s=%s", k, termtext.Escape(fmtAny(d.Extra[k])))
 			}
 			fmt.Fprintln(w)
+			for _, k := range sortedKeys(d.Labels) {
+				fmt.Fprintf(w, "       %s = %s\n", k, termtext.Escape(d.Labels[k]))
+			}
 			for _, m := range d.Metrics {
 				v := "null"
 				if m.Value != nil {
@@ -335,18 +394,49 @@ func (ex *Explanation) WriteText(w io.Writer) error {
 		case "kept":
 			var parts []string
 			for _, s := range p.Result.Shards {
-				part := fmt.Sprintf("%s line %d", s.Path, s.Line)
+				part := fmt.Sprintf("%s line %d", termtext.Escape(s.Path), s.Line)
 				if s.ID != p.ID {
-					part += " (as " + s.ID + ")"
+					part += " (as " + termtext.Escape(s.ID) + ")"
 				}
 				parts = append(parts, part)
 			}
 			fmt.Fprintf(w, "result: kept, written to %s\n", strings.Join(parts, "; "))
 		case "removed", "read_error":
-			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
+			fmt.Fprintf(w, "result: %s\n", termtext.Escape(p.Result.Reason))
 		default:
 			fmt.Fprintf(w, "result: %s\n", p.Result.Reason)
 		}
+		if p.CopiesTotal > 0 {
+			fmt.Fprintf(w, "copies removed in its favour: %d\n", p.CopiesTotal)
+			for _, c := range p.Copies {
+				fmt.Fprintf(w, "  %s  source %s, %s %s, similarity %s\n", c.ID, c.Source, c.Stage, c.Rule, fmtFloat(c.Similarity))
+			}
+			if p.CopiesTotal > len(p.Copies) {
+				fmt.Fprintf(w, "  ... and %d more (winnow audit RUN --rule STAGE/RULE lists them all)\n", p.CopiesTotal-len(p.Copies))
+			}
+		}
 	}
 	return nil
+}
+
+// stepScope returns the stage's `only:` scope, or nil.
+func stepScope(st *StepInfo) *stages.Scope {
+	if st.Spec == nil {
+		return nil
+	}
+	return st.Spec.Only
+}
+
+// inScope reports whether the document of t is inside scope sc of step
+// i: its source, and the language the last langid stage before step i
+// recorded in its metrics.
+func (r *Run) inScope(sc *stages.Scope, t *Trail, i int) bool {
+	d := &stages.Doc{Source: t.Source}
+	for j := i - 1; j >= 0; j-- {
+		if row := t.Steps[j].Row; row != nil && r.Steps[j].Kind == "langid" {
+			d.Meta = map[string]any{"lang": row.Labels["lang"]}
+			break
+		}
+	}
+	return sc.Match(d)
 }

@@ -20,14 +20,14 @@ type Span struct {
 }
 
 // What a removal rule is about is read from its name and the metric its
-// rule table names (e.g. rule "dup_line_frac" on metric
-// "dup_line_frac"), so marking works for any stage that follows the
+// rule table names (e.g. rule "repeated_lines_share" on metric
+// "repeated_lines_share"), so marking works for any stage that follows the
 // project's naming of the published rules.
 var (
-	reTopGram = regexp.MustCompile(`top_?(\d+)_?gram`)
-	reDupGram = regexp.MustCompile(`(?:dup|duplicate|repeated)\w*?_?(\d+)_?gram`)
-	reDupLine = regexp.MustCompile(`(?:dup|duplicate|repeated)_?lines?`)
-	reDupPara = regexp.MustCompile(`(?:dup|duplicate|repeated)_?para`)
+	reTopPhrase      = regexp.MustCompile(`top_(\d+)_?word_phrase`)
+	reRepeatedPhrase = regexp.MustCompile(`repeated_(\d+)_?word_phrase`)
+	reRepeatedLine   = regexp.MustCompile(`repeated_lines?`)
+	reRepeatedPara   = regexp.MustCompile(`repeated_paragraph`)
 )
 
 // markRule returns the spans of text that rule (described by its name
@@ -37,19 +37,19 @@ var (
 func markRule(desc, text string) ([]Span, string) {
 	d := strings.ToLower(desc)
 	switch {
-	case reTopGram.MatchString(d):
-		n, _ := strconv.Atoi(reTopGram.FindStringSubmatch(d)[1])
+	case reTopPhrase.MatchString(d):
+		n, _ := strconv.Atoi(reTopPhrase.FindStringSubmatch(d)[1])
 		sp, gram := topNgram(text, n)
 		if len(sp) == 0 {
-			return nil, "no repeated " + strconv.Itoa(n) + "-gram found in the text shown"
+			return nil, "no repeated " + strconv.Itoa(n) + "-word phrase found in the text shown"
 		}
-		return sp, "occurrences of the most frequent word " + strconv.Itoa(n) + "-gram " + strconv.Quote(gram)
-	case reDupGram.MatchString(d):
-		n, _ := strconv.Atoi(reDupGram.FindStringSubmatch(d)[1])
-		return dupNgrams(text, n), "words covered by a repeated occurrence of a word " + strconv.Itoa(n) + "-gram"
-	case reDupPara.MatchString(d):
+		return sp, "occurrences of the most frequent " + strconv.Itoa(n) + "-word phrase " + strconv.Quote(gram)
+	case reRepeatedPhrase.MatchString(d):
+		n, _ := strconv.Atoi(reRepeatedPhrase.FindStringSubmatch(d)[1])
+		return dupNgrams(text, n), "words covered by a repeated occurrence of a " + strconv.Itoa(n) + "-word phrase"
+	case reRepeatedPara.MatchString(d):
 		return dupBlocks(text, true), "paragraphs that repeat an earlier paragraph"
-	case reDupLine.MatchString(d):
+	case reRepeatedLine.MatchString(d):
 		return dupBlocks(text, false), "lines that repeat an earlier line"
 	case strings.Contains(d, "bullet"):
 		return linesWhere(text, filters.StartsWithBullet), "lines starting with a bullet"
@@ -57,16 +57,16 @@ func markRule(desc, text string) ([]Span, string) {
 		return linesWhere(text, filters.EndsWithEllipsis), "lines ending with an ellipsis"
 	case strings.Contains(d, "symbol") || strings.Contains(d, "hash") || strings.Contains(d, "ellipsis"):
 		return findAll(text, []string{"#", "...", "\u2026"}), "hash symbols and ellipses"
-	case strings.Contains(d, "alpha"):
+	case strings.Contains(d, "with_letters"):
 		return wordsWhere(text, func(w string) bool { return !strings.ContainsFunc(w, unicode.IsLetter) }), "words without a letter"
 	case strings.Contains(d, "stop"):
 		stop := map[string]bool{"the": true, "be": true, "to": true, "of": true, "and": true, "that": true, "have": true, "with": true}
 		return wordsWhere(text, func(w string) bool {
 			return stop[strings.ToLower(strings.TrimFunc(w, func(r rune) bool { return !unicode.IsLetter(r) }))]
 		}), "the stop words found (the, be, to, of, and, that, have, with)"
-	case strings.Contains(d, "lorem"):
+	case strings.Contains(d, "placeholder"):
 		return findFold(text, "lorem ipsum"), `"lorem ipsum"`
-	case strings.Contains(d, "brace") || strings.Contains(d, "curly"):
+	case strings.Contains(d, "brace"):
 		return findAll(text, []string{"{"}), `curly brackets`
 	case strings.Contains(d, "javascript"):
 		return findFold(text, "javascript"), `"javascript"`

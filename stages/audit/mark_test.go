@@ -47,11 +47,11 @@ func TestNgramMarks(t *testing.T) {
 func TestMarkRuleByName(t *testing.T) {
 	text := "- a bullet\nplain line...\n# heading with 42 !!"
 	cases := map[string][]string{
-		"bullet_lines bullet_lines":     {"- a bullet"},
-		"ellipsis_lines ellipsis_lines": {"plain line..."},
-		"symbol_ratio symbol_ratio":     {"...", "#"},
-		"alpha_words alpha_words":       {"-", "#", "42", "!!"},
-		"too_few_words words":           nil,
+		"bulleted_lines_share bulleted_lines_share":               {"- a bullet"},
+		"ellipsis_ending_lines_share ellipsis_ending_lines_share": {"plain line..."},
+		"symbols_per_word symbols_per_word":                       {"...", "#"},
+		"words_with_letters_share words_with_letters_share":       {"-", "#", "42", "!!"},
+		"words_too_few word_count":                                nil,
 	}
 	for desc, want := range cases {
 		sp, note := markRule(desc, text)
@@ -59,8 +59,22 @@ func TestMarkRuleByName(t *testing.T) {
 			t.Errorf("%s: %q (%s), want %q", desc, got, note, want)
 		}
 	}
-	if _, note := markRule("dup_line_frac dup_line_frac", "a\na"); !strings.Contains(note, "repeat an earlier line") {
-		t.Errorf("dup_line_frac note %q", note)
+	// every rule name of the repetition and lines stages is recognised
+	notes := map[string]string{
+		"repeated_lines_share repeated_lines_share":                             "repeat an earlier line",
+		"repeated_line_chars_share repeated_line_chars_share":                   "repeat an earlier line",
+		"repeated_paragraphs_share repeated_paragraphs_share":                   "repeat an earlier paragraph",
+		"repeated_paragraph_chars_share repeated_paragraph_chars_share":         "repeat an earlier paragraph",
+		"top_3word_phrase_chars_share top_3word_phrase_chars_share":             "3-word phrase",
+		"repeated_10word_phrase_chars_share repeated_10word_phrase_chars_share": "10-word phrase",
+		"stop_word_count stop_word_count":                                       "stop words",
+		"has_placeholder_text has_placeholder_text":                             "lorem ipsum",
+		"has_braces has_braces":                                                 "curly brackets",
+	}
+	for desc, want := range notes {
+		if _, note := markRule(desc, "a\na"); !strings.Contains(note, want) {
+			t.Errorf("%s: note %q, want %q", desc, note, want)
+		}
 	}
 }
 

@@ -50,7 +50,9 @@ type MetricRow struct {
 	Action    string
 	Rule      string
 	DroppedBy string
-	Values    []float64
+	// Labels are the row's text values (the langid stage's "lang").
+	Labels map[string]string
+	Values []float64
 }
 
 // Shadow reports whether the row is a shadow measurement: the document
@@ -231,6 +233,13 @@ func (m *metricsFile) next() (*MetricRow, error) {
 		case "dropped_by":
 			row.DroppedBy = str
 		default:
+			if kind == 's' {
+				if row.Labels == nil {
+					row.Labels = map[string]string{}
+				}
+				row.Labels[string(key)] = str
+				return nil
+			}
 			i, ok := m.index[string(key)]
 			if !ok {
 				i = len(m.names)

@@ -248,7 +248,14 @@ func (rep *Report) flowSection(h *htmlw) {
 			num("flow."+f.Stage+".dropped", f.Dropped), num("flow."+f.Stage+".edited", f.Edited),
 			esc(HumanBytes(f.BytesIn)), esc(HumanBytes(f.BytesOut)), rep.tokCell(&f, "tokens_in", f.TokensIn), rep.tokCell(&f, "tokens_out", f.TokensOut))
 	}
-	h.s(`</tbody></table></div></section>`)
+	h.s(`</tbody></table></div>`)
+	for _, f := range s.Flow {
+		if f.Skipped > 0 {
+			h.w(`<p class="note">%s: %s of its %s documents in were outside its <code>only:</code> scope (passed untouched, not measured).</p>`,
+				esc(f.Stage), num("flow."+f.Stage+".skipped", f.Skipped), num("flow."+f.Stage+".docs_in", f.DocsIn))
+		}
+	}
+	h.s(`</section>`)
 }
 
 func (rep *Report) tokCell(f *FlowRow, key string, v int64) string {

@@ -141,6 +141,11 @@ func Open(dir string, opt OpenOptions) (*Run, error) {
 				st.Global = false
 			}
 		}
+		// A global stage may also write metrics (domain with
+		// keep_fraction); the manifest says how it ran.
+		if c.Global {
+			st.Global = true
+		}
 		r.Steps = append(r.Steps, st)
 	}
 	known := map[string]bool{"read": true}

@@ -51,14 +51,17 @@ type Summary struct {
 // stage that precedes the token stage) TokensExact is false and the
 // figures are lower bounds.
 type FlowRow struct {
-	Stage    string `json:"stage"`
-	Kind     string `json:"kind"`
-	DocsIn   int64  `json:"docs_in"`
-	DocsOut  int64  `json:"docs_out"`
-	Dropped  int64  `json:"dropped"`
-	Edited   int64  `json:"edited"`
-	BytesIn  int64  `json:"bytes_in"`
-	BytesOut int64  `json:"bytes_out"`
+	Stage   string `json:"stage"`
+	Kind    string `json:"kind"`
+	DocsIn  int64  `json:"docs_in"`
+	DocsOut int64  `json:"docs_out"`
+	Dropped int64  `json:"dropped"`
+	Edited  int64  `json:"edited"`
+	// Skipped counts the documents outside the stage's `only:` scope:
+	// in DocsIn and DocsOut, passed untouched and not measured.
+	Skipped  int64 `json:"skipped,omitempty"`
+	BytesIn  int64 `json:"bytes_in"`
+	BytesOut int64 `json:"bytes_out"`
 	// TokensIn/TokensOut are the tokens of the documents entering and
 	// leaving the stage; TokensRemoved those of the documents it removed.
 	TokensIn      int64 `json:"tokens_in"`
@@ -382,7 +385,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 	for i, st := range r.Steps {
 		c := st.Counters
 		s.Flow = append(s.Flow, FlowRow{Stage: st.Name, Kind: st.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, Dropped: c.Dropped,
-			Edited: c.Edited, BytesIn: c.BytesIn, BytesOut: c.BytesOut, TokensIn: after[i], TokensOut: after[i+1],
+			Edited: c.Edited, Skipped: c.Skipped, BytesIn: c.BytesIn, BytesOut: c.BytesOut, TokensIn: after[i], TokensOut: after[i+1],
 			TokensRemoved: stepTokRemoved[i], TokensUnknown: stepTokUnknown[i], TokensExact: exactAfter[i], TokensKnown: known})
 	}
 	wTokOut := wr.TokensOut

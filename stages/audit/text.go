@@ -8,6 +8,7 @@ import (
 	"text/tabwriter"
 
 	"winnow/stages"
+	"winnow/stages/termtext"
 )
 
 // Group formats n with thousands separators.
@@ -127,6 +128,12 @@ func (s *Summary) WriteText(w io.Writer) error {
 	if err := tw.Flush(); err != nil {
 		return err
 	}
+	for _, f := range s.Flow {
+		if f.Skipped > 0 {
+			fmt.Fprintf(w, "%s: %s of its %s documents in were outside its only: scope (passed untouched, not measured)\n",
+				f.Stage, Group(f.Skipped), Group(f.DocsIn))
+		}
+	}
 
 	fmt.Fprintln(w, "\nremoved or edited, by stage and rule (share of the stage's documents in)")
 	if len(s.Rules) == 0 {
@@ -136,7 +143,11 @@ func (s *Summary) WriteText(w io.Writer) error {
 		fmt.Fprintln(tw, "stage\trule\taction\tdocs\tshare\tbytes\ttokens\tsample ids")
 		for i := range s.Rules {
 			r := &s.Rules[i]
-			samples := strings.Join(r.Samples, ", ")
+			ids := make([]string, len(r.Samples))
+			for j, id := range r.Samples {
+				ids[j] = termtext.Escape(id)
+			}
+			samples := strings.Join(ids, ", ")
 			if ch := changesText(r.Changes); ch != "" && r.Action == "edit" {
 				samples = ch + "; " + samples
 			}
@@ -214,7 +225,7 @@ func (s *Summary) WriteText(w io.Writer) error {
 		fmt.Fprintf(w, ", %d missing or changed since the run (their removed documents' text cannot be shown):\n", missing)
 		for _, in := range s.Inputs {
 			if in.Status != "ok" {
-				fmt.Fprintf(w, "  %s: %s\n", in.Path, in.Status)
+				fmt.Fprintf(w, "  %s: %s\n", termtext.Escape(in.Path), in.Status)
 			}
 		}
 	}
@@ -234,7 +245,7 @@ func (s *Summary) WriteText(w io.Writer) error {
 		if e.Fatal {
 			fatal = " (the rest of the file was not read)"
 		}
-		fmt.Fprintf(w, "  %s: %s%s%s\n", loc, rule, e.Message, fatal)
+		fmt.Fprintf(w, "  %s: %s%s%s\n", termtext.Escape(loc), termtext.Escape(rule), termtext.Escape(e.Message), fatal)
 	}
 	if n := s.ErrorCount - int64(len(s.Errors)); n > 0 {
 		fmt.Fprintf(w, "  ... and %d more in ledger/read.jsonl.zst\n", n)

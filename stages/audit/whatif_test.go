@@ -22,8 +22,8 @@ func whatIf(t *testing.T, run string, opt audit.WhatIfOptions) *audit.WhatIf {
 // run's removals exactly.
 func TestWhatIfAtRunLimitsReproducesRun(t *testing.T) {
 	run := cachedRun(t, "perdoc", perDocStages)
-	w := whatIf(t, run, audit.WhatIfOptions{Sets: []string{"length.min_chars=50", "quality.min_words=50", "repetition.dup_line_frac=0.3",
-		"lines.min_sentences=5"}})
+	w := whatIf(t, run, audit.WhatIfOptions{Sets: []string{"length.min_chars=50", "quality.fewest_words=50", "repetition.most_repeated_lines=0.3",
+		"lines.fewest_sentences=5"}})
 	want := removedByRule(t, run)
 	m := readManifest(t, run)
 	rows := map[string]int{}
@@ -76,11 +76,11 @@ func TestWhatIfMatchesRerun(t *testing.T) {
 		name string
 		sets []string
 	}{
-		{"tighter", []string{"quality.min_words=200", "repetition.dup_line_frac=0.05", "length.min_chars=1200"}},
+		{"tighter", []string{"quality.fewest_words=200", "repetition.most_repeated_lines=0.05", "length.min_chars=1200"}},
 		// Looser early rules let documents through to later stages,
 		// which measured them as shadows.
-		{"looser", []string{"length.min_chars=10", "quality.min_words=20", "quality.min_stopwords=1", "repetition.dup_line_frac=0.6"}},
-		{"mixed", []string{"quality.max_words=700", "quality.max_bullet_lines=1", "repetition.top_2gram_frac=0.12", "length.max_lines=60"}},
+		{"looser", []string{"length.min_chars=10", "quality.fewest_words=20", "quality.fewest_stop_words=1", "repetition.most_repeated_lines=0.6"}},
+		{"mixed", []string{"quality.most_words=700", "quality.most_bulleted_lines=1", "repetition.most_top_2word_phrase_chars=0.12", "length.max_lines=60"}},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
@@ -161,22 +161,22 @@ func TestWhatIfMatchesRerun(t *testing.T) {
 // the same limit set alone.
 func TestWhatIfSweepMatchesScenarios(t *testing.T) {
 	base := cachedRun(t, "perdoc", perDocStages)
-	w := whatIf(t, base, audit.WhatIfOptions{Sweeps: []string{"quality.min_words=20:140:60"}})
+	w := whatIf(t, base, audit.WhatIfOptions{Sweeps: []string{"quality.fewest_words=20:140:60"}})
 	if len(w.Sweeps) != 1 || len(w.Sweeps[0].Points) != 3 {
 		t.Fatalf("sweeps %+v", w.Sweeps)
 	}
 	prev := int64(-1)
 	for _, p := range w.Sweeps[0].Points {
-		one := whatIf(t, base, audit.WhatIfOptions{Sets: []string{"quality.min_words=" + strconv.FormatFloat(p.Value, 'g', -1, 64)}})
+		one := whatIf(t, base, audit.WhatIfOptions{Sets: []string{"quality.fewest_words=" + strconv.FormatFloat(p.Value, 'g', -1, 64)}})
 		if p.DocsKept != one.Combined.DocsKept || p.TokensKept != one.Combined.TokensKept || p.NewlyRemoved != one.Combined.NewlyRemoved {
 			t.Errorf("sweep point %v: %+v, scenario %+v", p.Value, p, one.Combined)
 		}
 		if prev >= 0 && p.RemovedByStage < prev {
-			t.Errorf("a higher min_words removes fewer documents: %v", w.Sweeps[0].Points)
+			t.Errorf("a higher fewest_words removes fewer documents: %v", w.Sweeps[0].Points)
 		}
 		prev = p.RemovedByStage
 	}
-	if _, err := audit.RunWhatIf(openRun(t, base, audit.OpenOptions{}), audit.WhatIfOptions{Sweeps: []string{"quality.min_words=200:20:20"}}); err == nil {
+	if _, err := audit.RunWhatIf(openRun(t, base, audit.OpenOptions{}), audit.WhatIfOptions{Sweeps: []string{"quality.fewest_words=200:20:20"}}); err == nil {
 		t.Error("a sweep stepping away from its end was accepted")
 	}
 }
@@ -187,7 +187,7 @@ func TestWhatIfGlobalStagesEstimate(t *testing.T) {
 	run := cachedRun(t, "full", fullStages)
 	// Looser: documents the run removed now reach exact_dedup, which
 	// never saw them.
-	w := whatIf(t, run, audit.WhatIfOptions{Sets: []string{"quality.min_words=10"}})
+	w := whatIf(t, run, audit.WhatIfOptions{Sets: []string{"quality.fewest_words=10"}})
 	sc := w.Combined
 	if sc.Exact || sc.Estimated == 0 || sc.NewlyKept == 0 {
 		t.Fatalf("looser quality before dedup: exact %v, estimated %d, newly kept %d", sc.Exact, sc.Estimated, sc.NewlyKept)
@@ -202,7 +202,7 @@ func TestWhatIfGlobalStagesEstimate(t *testing.T) {
 		t.Errorf("exact_dedup delta %+v, notes %v", dedup, sc.Notes)
 	}
 	// Tighter: documents exact_dedup saw are removed before it.
-	w = whatIf(t, run, audit.WhatIfOptions{Sets: []string{"quality.min_words=300"}})
+	w = whatIf(t, run, audit.WhatIfOptions{Sets: []string{"quality.fewest_words=300"}})
 	for _, d := range w.Combined.Stages {
 		if d.Stage == "exact_dedup" && (!d.Estimate || d.LostInput == 0) {
 			t.Errorf("tighter quality: exact_dedup %+v", d)
@@ -211,7 +211,7 @@ func TestWhatIfGlobalStagesEstimate(t *testing.T) {
 	// A limit after every change point and before no global stage would
 	// be exact; here every threshold stage precedes the dedup stages, so
 	// a change that flips nothing stays exact.
-	w = whatIf(t, run, audit.WhatIfOptions{Sets: []string{"quality.max_words=100000"}})
+	w = whatIf(t, run, audit.WhatIfOptions{Sets: []string{"quality.most_words=100000"}})
 	if !w.Combined.Exact {
 		t.Errorf("an unchanged limit gave an estimate: %v", w.Combined.Notes)
 	}
@@ -226,10 +226,10 @@ func TestWhatIfRejectsWhatItCannotRecompute(t *testing.T) {
 		"near_dedup.threshold=0.5": "global stage",
 		"langid.languages=de":      "numeric limits only",
 		"quality.language=de":      "numeric limits only",
-		"lines.max_word_len=500":   "not a threshold",
-		"nosuch.min_words=3":       "no stage",
-		"quality.min_words":        "STAGE.KEY=VALUE",
-		"quality.min_words=-4":     "out of range",
+		"lines.longest_word=500":   "not a threshold",
+		"nosuch.fewest_words=3":    "no stage",
+		"quality.fewest_words":     "STAGE.KEY=VALUE",
+		"quality.fewest_words=-4":  "out of range",
 	} {
 		_, err := audit.RunWhatIf(r, audit.WhatIfOptions{Sets: []string{set}})
 		if err == nil || !strings.Contains(err.Error(), want) {

@@ -5,6 +5,8 @@ import (
 	"io"
 	"strings"
 	"text/tabwriter"
+
+	"winnow/stages/termtext"
 )
 
 // WriteText prints the what-if as tables.
@@ -119,7 +121,7 @@ func (s *ScenarioResult) writeText(out io.Writer, title string, tokens bool) {
 			if f.Value != nil {
 				v = " value " + fmtFloat(*f.Value)
 			}
-			fmt.Fprintf(out, "    %s  %s  %s/%s%s\n", f.ID, f.Source, f.Stage, f.Rule, v)
+			fmt.Fprintf(out, "    %s  %s  %s/%s%s\n", termtext.Escape(f.ID), termtext.Escape(f.Source), f.Stage, f.Rule, v)
 		}
 	}
 	flips("newly removed", s.FlipsRemoved, s.NewlyRemoved)

@@ -38,6 +38,13 @@ func CreateAtomic(path string) (*AtomicFile, error) {
 	if err != nil {
 		return nil, err
 	}
+	// CreateTemp makes the file private (0600); a run's outputs are
+	// shared like any file the user creates.
+	if err := f.Chmod(fileMode()); err != nil {
+		f.Close()
+		os.Remove(f.Name())
+		return nil, err
+	}
 	return &AtomicFile{f: f, final: path, buf: bufio.NewWriterSize(f, 1<<20), hash: xxh3.New()}, nil
 }
 
@@ -91,6 +98,18 @@ func (a *AtomicFile) Flush() error {
 
 // TempPath returns the temporary name the file is written under.
 func (a *AtomicFile) TempPath() string { return a.f.Name() }
+
+// Detach closes the temp file and leaves it on disk, unfinished: the
+// bytes up to the stream's last checkpoint stay for a resumed run to copy
+// (the next run removes what nobody resumes).
+func (a *AtomicFile) Detach() {
+	if a.done {
+		return
+	}
+	a.done = true
+	a.buf.Flush()
+	a.f.Close()
+}
 
 // Abort removes the temp file.
 func (a *AtomicFile) Abort() {
@@ -269,6 +288,13 @@ func (z *ZstdWriter) finish() error {
 	}
 	return z.err
 }
+
+// Detach stops the stream and leaves its temp file on disk (see
+// AtomicFile.Detach).
+func (z *ZstdWriter) Detach() { z.finish(); z.enc.Close(); z.file.Detach() }
+
+// TempPath returns the temporary name the stream is written under.
+func (z *ZstdWriter) TempPath() string { return z.file.TempPath() }
 
 // Commit finishes the stream and renames the file into place.
 func (z *ZstdWriter) Commit() error {

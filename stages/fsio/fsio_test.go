@@ -45,7 +45,7 @@ func TestAtomicFile(t *testing.T) {
 func TestZstdWriterDeterministic(t *testing.T) {
 	var data bytes.Buffer
 	for i := 0; i < 200000; i++ {
-		fmt.Fprintf(&data, `{"doc":"d%d","rule":"min_words","value":%d}`+"\n", i, i%97)
+		fmt.Fprintf(&data, `{"doc":"d%d","rule":"fewest_words","value":%d}`+"\n", i, i%97)
 	}
 	dir := t.TempDir()
 	var digests []string
@@ -89,7 +89,7 @@ func TestZstdWriterDeterministic(t *testing.T) {
 // without interruption, whatever was written after the checkpoint.
 func TestZstdCheckpointResume(t *testing.T) {
 	dir := t.TempDir()
-	a := bytes.Repeat([]byte(`{"doc":"a","rule":"min_words"}`+"\n"), 5000)
+	a := bytes.Repeat([]byte(`{"doc":"a","rule":"fewest_words"}`+"\n"), 5000)
 	b := bytes.Repeat([]byte(`{"doc":"b","rule":"near_duplicate"}`+"\n"), 7000)
 	whole, _ := CreateZstd(filepath.Join(dir, "whole.zst"))
 	whole.Write(a)

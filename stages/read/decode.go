@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"bytes"
 	"compress/gzip"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
@@ -27,10 +28,17 @@ var (
 	magicZstd = []byte{0x28, 0xb5, 0x2f, 0xfd}
 )
 
+// isZstdSkippable reports whether head starts with a zstd skippable frame
+// (RFC 8878 section 3.1.2: magic 0x184D2A50 to 0x184D2A5F, little-endian),
+// which parallel writers such as pzstd put before the data frames.
+func isZstdSkippable(head []byte) bool {
+	return len(head) >= 4 && head[0]&0xf0 == 0x50 && head[1] == 0x2a && head[2] == 0x4d && head[3] == 0x18
+}
+
 // sniffCodec reports the codec whose magic bytes start head.
 func sniffCodec(head []byte) Codec {
 	switch {
-	case bytes.HasPrefix(head, magicZstd):
+	case bytes.HasPrefix(head, magicZstd), isZstdSkippable(head):
 		return CodecZstd
 	case bytes.HasPrefix(head, magicGzip):
 		return CodecGzip
@@ -73,6 +81,16 @@ type Decoded struct {
 	Codec Codec
 	Raw   *RawCounter
 	close func()
+	warn  []string
+}
+
+// Warnings returns what the decoder tolerated (zero padding after the
+// last compressed stream), one sentence each; complete once the reader
+// has returned io.EOF.
+func (d *Decoded) Warnings() []string { return d.warn }
+
+func (d *Decoded) warnf(format string, args ...any) {
+	d.warn = append(d.warn, fmt.Sprintf(format, args...))
 }
 
 // Close releases decoder resources (not the underlying file).
@@ -101,10 +119,12 @@ func Decode(r io.Reader) (*Decoded, error) {
 		if err != nil {
 			return nil, &DecodeError{Codec: d.Codec, Offset: raw.N(), Err: err}
 		}
-		d.Reader = &errWrap{r: zr, codec: d.Codec, raw: raw}
+		zr.Multistream(false)
+		d.Reader = &errWrap{r: &gzipMembers{br: br, zr: zr, d: d}, codec: d.Codec, raw: raw}
 		d.close = func() { zr.Close() }
 	case CodecZstd:
-		zr, err := zstd.NewReader(br, zstd.WithDecoderConcurrency(1), zstd.WithDecoderMaxMemory(1<<31))
+		fr := &zstdFramer{br: br, d: d}
+		zr, err := zstd.NewReader(fr, zstd.WithDecoderConcurrency(1), zstd.WithDecoderMaxMemory(1<<31))
 		if err != nil {
 			return nil, &DecodeError{Codec: d.Codec, Offset: raw.N(), Err: err}
 		}
@@ -147,4 +167,177 @@ func (w *errWrap) Read(p []byte) (int, error) {
 		return n, &DecodeError{Codec: w.codec, Offset: w.raw.N(), Decoded: w.out, Err: err}
 	}
 	return n, err
+}
+
+// skipZeros consumes a run of zero bytes from br and returns its length
+// and whether the stream ended right after it.
+func skipZeros(br *bufio.Reader) (n int64, atEOF bool) {
+	for {
+		if br.Buffered() == 0 {
+			if _, err := br.Peek(1); err != nil {
+				return n, true
+			}
+		}
+		b, _ := br.Peek(br.Buffered())
+		i := 0
+		for i < len(b) && b[i] == 0 {
+			i++
+		}
+		br.Discard(i)
+		n += int64(i)
+		if i < len(b) {
+			return n, false
+		}
+	}
+}
+
+// gzipMembers reads a gzip file member by member (RFC 1952 section 2.2:
+// a file is a series of members), so that what follows the last member can
+// be judged: zero bytes (the padding some tape and block writers add, which
+// gzip -d also ignores) are reported as a warning; anything else that is
+// not a member is an error, as before.
+type gzipMembers struct {
+	br  *bufio.Reader
+	zr  *gzip.Reader
+	d   *Decoded
+	off int64 // compressed bytes before the current member's end
+}
+
+func (g *gzipMembers) Read(p []byte) (int, error) {
+	for {
+		n, err := g.zr.Read(p)
+		if err != io.EOF {
+			return n, err
+		}
+		b, _ := g.br.Peek(2)
+		switch {
+		case len(b) == 0:
+			return n, io.EOF
+		case b[0] == 0:
+			z, eof := skipZeros(g.br)
+			if eof {
+				g.d.warnf("%d zero bytes of padding after the last gzip member ignored", z)
+				return n, io.EOF
+			}
+			return n, fmt.Errorf("%d zero bytes followed by data that is not a gzip member: %w", z, gzip.ErrHeader)
+		case bytes.HasPrefix(b, magicGzip):
+			if err := g.zr.Reset(g.br); err != nil {
+				return n, err
+			}
+			g.zr.Multistream(false)
+			if n > 0 {
+				return n, nil
+			}
+		default:
+			return n, fmt.Errorf("data after a gzip member is not a gzip member: %w", gzip.ErrHeader)
+		}
+	}
+}
+
+// zstdFramer passes a zstd stream through to the decoder while following
+// its frame layout (RFC 8878 section 3.1: frame header, blocks with 3-byte
+// headers, optional checksum; skippable frames with a 4-byte size), so it
+// knows where each frame ends. Zero bytes where the next frame should
+// start and running to the end of the file are padding: they are dropped
+// with a warning instead of failing as a bad magic number. Anything it does
+// not recognise is passed through untouched for the decoder to judge.
+type zstdFramer struct {
+	br       *bufio.Reader
+	d        *Decoded
+	left     int64 // bytes of the current section still to pass through
+	state    int
+	checksum bool
+	frames   int
+}
+
+const (
+	zfBoundary    = iota // next: a frame (or the end)
+	zfBlock              // next: a block header
+	zfChecksum           // next: the frame's optional checksum
+	zfPassthrough        // layout not followed any more
+)
+
+func (z *zstdFramer) Read(p []byte) (int, error) {
+	for z.left == 0 && z.state != zfPassthrough {
+		if !z.next() {
+			return 0, io.EOF
+		}
+	}
+	if z.state == zfPassthrough {
+		return z.br.Read(p)
+	}
+	if int64(len(p)) > z.left {
+		p = p[:z.left]
+	}
+	n, err := z.br.Read(p)
+	z.left -= int64(n)
+	return n, err
+}
+
+// next sets up the next section; false means the stream ends here.
+func (z *zstdFramer) next() bool {
+	switch z.state {
+	case zfBoundary:
+		h, _ := z.br.Peek(8)
+		if len(h) == 0 {
+			return false
+		}
+		if z.frames > 0 && h[0] == 0 {
+			n, eof := skipZeros(z.br)
+			if eof {
+				z.d.warnf("%d zero bytes of padding after the last zstd frame ignored", n)
+				return false
+			}
+			z.state = zfPassthrough // data after zeros: let the decoder report it
+			return true
+		}
+		switch {
+		case len(h) >= 5 && bytes.HasPrefix(h, magicZstd):
+			fhd := h[4]
+			size := int64(5)
+			single := fhd&0x20 != 0
+			if !single {
+				size++ // window descriptor
+			}
+			size += [4]int64{0, 1, 2, 4}[fhd&3] // dictionary id
+			fcs := [4]int64{0, 2, 4, 8}[fhd>>6]
+			if fcs == 0 && single {
+				fcs = 1
+			}
+			z.left = size + fcs
+			z.checksum = fhd&4 != 0
+			z.state = zfBlock
+		case len(h) == 8 && isZstdSkippable(h):
+			z.left = 8 + int64(binary.LittleEndian.Uint32(h[4:]))
+			z.frames++
+		default:
+			z.state = zfPassthrough
+		}
+	case zfBlock:
+		h, _ := z.br.Peek(3)
+		if len(h) < 3 {
+			z.state = zfPassthrough
+			return true
+		}
+		v := uint32(h[0]) | uint32(h[1])<<8 | uint32(h[2])<<16
+		size := int64(v >> 3)
+		switch (v >> 1) & 3 {
+		case 1: // RLE block: one byte repeated size times
+			size = 1
+		case 3: // reserved
+			z.state = zfPassthrough
+			return true
+		}
+		z.left = 3 + size
+		if v&1 != 0 {
+			z.state = zfChecksum
+		}
+	case zfChecksum:
+		if z.checksum {
+			z.left = 4
+		}
+		z.state = zfBoundary
+		z.frames++
+	}
+	return true
 }

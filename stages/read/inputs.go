@@ -8,6 +8,7 @@ import (
 	"path/filepath"
 	"sort"
 	"strings"
+	"time"
 )
 
 // InputFile is one resolved input file of a run.
@@ -212,4 +213,58 @@ func matchDoubleStar(pattern, path string) bool {
 		return ok && rec(i+1, j+1)
 	}
 	return rec(0, 0)
+}
+
+// InputStamp is what an input file looked like when it was opened: its
+// size and modification time. A file that is appended to, truncated or
+// rewritten while it is read yields documents that belong to no single
+// version of it, so such a read must not count as complete.
+type InputStamp struct {
+	Size    int64
+	ModTime time.Time
+	ok      bool
+}
+
+// StampFile records f's size and modification time (nothing for stdin or
+// a pipe, whose size means nothing).
+func StampFile(f *os.File) InputStamp {
+	st, err := f.Stat()
+	if err != nil || !st.Mode().IsRegular() {
+		return InputStamp{}
+	}
+	return InputStamp{Size: st.Size(), ModTime: st.ModTime(), ok: true}
+}
+
+// ErrInputChanged marks an input that changed while it was read.
+var ErrInputChanged = errors.New("input changed while it was read")
+
+// Check compares the file at the end of reading with the stamp taken at
+// open: the open file's size and time, the file now at path (which may
+// have been replaced by a rename), and read, the bytes actually read (-1
+// when unknown). The error names the file and what differs.
+func (s InputStamp) Check(path string, f *os.File, read int64) error {
+	if !s.ok {
+		return nil
+	}
+	var diffs []string
+	if st, err := f.Stat(); err == nil {
+		if st.Size() != s.Size {
+			diffs = append(diffs, fmt.Sprintf("size %d bytes at open, %d at the end", s.Size, st.Size()))
+		}
+		if !st.ModTime().Equal(s.ModTime) {
+			diffs = append(diffs, fmt.Sprintf("modified at %s after being opened (%s)", st.ModTime().UTC().Format(time.RFC3339Nano), s.ModTime.UTC().Format(time.RFC3339Nano)))
+		}
+	}
+	if read >= 0 && read != s.Size {
+		diffs = append(diffs, fmt.Sprintf("%d bytes read of %d", read, s.Size))
+	}
+	if st, err := os.Stat(path); err != nil {
+		diffs = append(diffs, fmt.Sprintf("gone at the end of reading (%v)", err))
+	} else if pf, err := f.Stat(); err == nil && !os.SameFile(st, pf) {
+		diffs = append(diffs, "replaced by another file while being read")
+	}
+	if len(diffs) == 0 {
+		return nil
+	}
+	return fmt.Errorf("%s: %w: %s; its documents may be cut or mixed, read it again when it is stable", path, ErrInputChanged, strings.Join(diffs, "; "))
 }

@@ -46,8 +46,9 @@ func (s *jsonObjectScanner) ws() {
 	}
 }
 
-// eachField calls fn with every top-level key (raw, unescaped when simple)
-// and the byte range of its value.
+// eachField calls fn with every top-level key, unescaped (so "te\u0078t"
+// is the key text, as encoding/json reads it), and the byte range of its
+// value. key is only valid during the call.
 func (s *jsonObjectScanner) eachField(fn func(key []byte, val []byte)) error {
 	s.ws()
 	if s.i >= len(s.b) || s.b[s.i] != '{' {
@@ -68,6 +69,10 @@ func (s *jsonObjectScanner) eachField(fn func(key []byte, val []byte)) error {
 			return s.err
 		}
 		key := s.b[ks+1 : s.i-1]
+		if bytes.IndexByte(key, '\\') >= 0 || !utf8.Valid(key) {
+			k, _ := decodeJSONString(s.b[ks:s.i])
+			key = []byte(k)
+		}
 		s.ws()
 		if s.i >= len(s.b) || s.b[s.i] != ':' {
 			s.fail("want ':'")
@@ -194,6 +199,8 @@ func (s *jsonObjectScanner) skipValue(depth int) {
 		s.literal("null")
 	case c == '-' || (c >= '0' && c <= '9'):
 		s.skipNumber()
+	case c == 0:
+		s.fail("raw NUL byte")
 	default:
 		s.fail(fmt.Sprintf("unexpected %q", c))
 	}
@@ -220,8 +227,15 @@ func (s *jsonObjectScanner) skipNumber() {
 		}
 		return n
 	}
+	first := s.i
 	if digits() == 0 {
 		s.fail("bad number")
+		return
+	}
+	if s.b[first] == '0' && s.i-first > 1 {
+		// RFC 8259 section 6: "Leading zeros are not allowed."
+		s.i = first
+		s.fail("number with a leading zero")
 		return
 	}
 	if s.i < len(s.b) && s.b[s.i] == '.' {
@@ -284,8 +298,11 @@ func (s *jsonObjectScanner) skipString() {
 				s.fail("bad escape")
 				return
 			}
+		case c == 0:
+			s.fail("raw NUL byte in string (JSON allows it only as \\u0000)")
+			return
 		case c < 0x20:
-			s.fail("control character in string")
+			s.fail(fmt.Sprintf("raw control character %#04x in string", c))
 			return
 		default:
 			s.i++

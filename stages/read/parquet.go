@@ -1,13 +1,15 @@
 package read
 
 import (
+	"bytes"
 	"fmt"
 	"io"
 	"os"
-	"sort"
 	"strconv"
+	"strings"
 
 	"github.com/parquet-go/parquet-go"
+	"github.com/parquet-go/parquet-go/format"
 )
 
 // parquetReader reads a Parquet file row group by row group, so memory is
@@ -39,6 +41,9 @@ func NewParquetReader(f *os.File, file string, input int, opt ReadOptions) (*par
 	if err != nil {
 		return nil, err
 	}
+	if err := checkParquetHead(f); err != nil {
+		return nil, err
+	}
 	pf, err := parquet.OpenFile(f, st.Size())
 	if err != nil {
 		return nil, fmt.Errorf("parquet: %w", err)
@@ -50,6 +55,11 @@ func NewParquetReader(f *os.File, file string, input int, opt ReadOptions) (*par
 	var names []string
 	for _, fld := range pf.Schema().Fields() {
 		names = append(names, fld.Name())
+		if fld.Name() == opt.TextField {
+			if why := notStringColumn(fld); why != "" {
+				return nil, fmt.Errorf("parquet: column %q %s, so it cannot be the text column (text_field); the text must be a top-level string (BYTE_ARRAY) column", fld.Name(), why)
+			}
+		}
 		leaf, ok := pf.Schema().Lookup(fld.Name())
 		if !ok || !fld.Leaf() {
 			continue
@@ -64,8 +74,7 @@ func NewParquetReader(f *os.File, file string, input int, opt ReadOptions) (*par
 		}
 	}
 	if r.textCol < 0 {
-		sort.Strings(names)
-		return nil, fmt.Errorf("parquet: no top-level column %q (columns: %v)", opt.TextField, names)
+		return nil, fmt.Errorf("parquet: no top-level column %q (columns: %s); set text_field to the column that holds the text", opt.TextField, strings.Join(names, ", "))
 	}
 	return r, nil
 }
@@ -129,13 +138,7 @@ func (r *parquetReader) Next() (Record, error) {
 	if !hasText {
 		return Record{Issue: &ReadIssue{File: r.file, Line: ln, Rule: RuleMissingText, Msg: fmt.Sprintf("row has no string %q", r.opt.TextField), DocID: r.defaultID(ln)}}, nil
 	}
-	s, bad := repairUTF8(text)
-	d := r.newDoc(s, id, ln)
-	d.Meta = meta
-	if bad {
-		return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}, nil
-	}
-	return Record{Doc: d}, nil
+	return r.textRecord(text, false, id, ln, meta), nil
 }
 
 func parquetValue(v parquet.Value) any {
@@ -151,4 +154,52 @@ func parquetValue(v parquet.Value) any {
 		return s
 	}
 	return strconv.Quote(v.String())
+}
+
+// checkParquetHead refuses, with a message that says what the file is, a
+// file that is not Parquet: a compressed Parquet file (Parquet compresses
+// its pages itself and needs random access to its footer, so it is read
+// uncompressed) or anything without the "PAR1" magic (Apache Parquet
+// format specification, "File format": the file starts and ends with it).
+func checkParquetHead(f *os.File) error {
+	head := make([]byte, 4)
+	n, _ := f.ReadAt(head, 0)
+	head = head[:n]
+	switch c := sniffCodec(head); {
+	case c != CodecNone:
+		return fmt.Errorf("parquet: the file is %s-compressed; Parquet compresses its pages itself and must be read uncompressed (decompress it first, e.g. %s -d)", c, c)
+	case !bytes.Equal(head, []byte("PAR1")):
+		return fmt.Errorf("parquet: not a Parquet file: it does not start with the magic bytes PAR1 (starts with %q)", head)
+	}
+	return nil
+}
+
+// notStringColumn says why a top-level field cannot hold the documents'
+// text ("" when it can): a struct, list or map column, a repeated column,
+// or a leaf of another physical type.
+func notStringColumn(fld parquet.Field) string {
+	if !fld.Leaf() {
+		if lt := fld.Type().LogicalType(); lt != nil && lt.Value != nil {
+			switch lt.Value.(type) {
+			case *format.ListType:
+				return "is a list"
+			case *format.MapType:
+				return "is a map"
+			}
+		}
+		var sub []string
+		for _, f := range fld.Fields() {
+			sub = append(sub, f.Name())
+		}
+		return fmt.Sprintf("is a struct (fields: %s)", strings.Join(sub, ", "))
+	}
+	if fld.Repeated() {
+		return "is a repeated column (a list)"
+	}
+	switch k := fld.Type().Kind(); k {
+	case parquet.ByteArray, parquet.FixedLenByteArray:
+		return ""
+	default:
+		return fmt.Sprintf("holds %s values, not strings", k)
+	}
 }

@@ -53,6 +53,12 @@ const (
 	RuleOversize    = "oversize"
 	RuleMissingText = "missing_text"
 	RuleInvalidUTF8 = "invalid_utf8"
+	// RuleNULByte records a document whose text held U+0000 (a raw NUL
+	// byte, or JSON's \u0000): NUL is not text and breaks C-string
+	// consumers downstream, so it is replaced with U+FFFD and the document
+	// kept, as for invalid UTF-8. (In JSONL a raw NUL byte is not JSON at
+	// all, so that line is a malformed_record.)
+	RuleNULByte = "nul_byte"
 	// RuleBrokenInput records an input that could not be read to its end
 	// (a corrupt or truncated stream, an unreadable file); the documents
 	// before the damage are kept.
@@ -77,6 +83,10 @@ type ReadIssue struct {
 	// Fatal is set when the rest of the file could not be read.
 	Fatal bool
 }
+
+// Repair reports whether the issue is an edit of a document that is kept
+// (invalid UTF-8 or NUL replaced), not the loss of a record.
+func (i *ReadIssue) Repair() bool { return i.Rule == RuleInvalidUTF8 || i.Rule == RuleNULByte }
 
 func (i *ReadIssue) Error() string {
 	return fmt.Sprintf("%s:%d: %s: %s", i.File, i.Line, i.Rule, i.Msg)
@@ -111,6 +121,14 @@ var ErrBinary = errors.New("binary data: not text, gzip or zstd (wrong format or
 func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (RecordReader, Format, error) {
 	br := bufio.NewReaderSize(r, 256<<10)
 	head, _ := br.Peek(4096)
+	// A UTF-8 byte-order mark (Unicode 15.0 section 23.8: U+FEFF at the
+	// start of a stream is a signature, not content) would otherwise glue
+	// itself to the first record, making the first JSON line malformed.
+	skip := 0
+	if bytes.HasPrefix(head, utf8BOM) {
+		skip, _ = br.Discard(len(utf8BOM))
+		head, _ = br.Peek(4096)
+	}
 	format := opt.Format
 	if format == "" || format == FormatAuto {
 		format = GuessFormat(file, head)
@@ -124,15 +142,17 @@ func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (Reco
 		if looksBinary(head) {
 			return nil, format, ErrBinary
 		}
+		lr := newLineReader(br, opt.MaxDocBytes)
+		lr.off = int64(skip)
 		if format == FormatJSONL {
-			return &jsonlReader{baseReader: base, lr: newLineReader(br, opt.MaxDocBytes)}, format, nil
+			return &jsonlReader{baseReader: base, lr: lr}, format, nil
 		}
-		return &textReader{baseReader: base, lr: newLineReader(br, opt.MaxDocBytes)}, format, nil
+		return &textReader{baseReader: base, lr: lr}, format, nil
 	case FormatWARC:
 		if len(head) > 0 && !bytes.HasPrefix(head, []byte("WARC/")) {
 			return nil, format, fmt.Errorf("not a WARC file: does not start with \"WARC/\"")
 		}
-		return &warcReader{baseReader: base, br: br}, format, nil
+		return &warcReader{baseReader: base, src: r, br: br}, format, nil
 	case FormatParquet:
 		return nil, format, fmt.Errorf("parquet must be read from a seekable, uncompressed file")
 	}
@@ -170,14 +190,15 @@ func GuessFormat(file string, head []byte) Format {
 	return FormatText
 }
 
+var utf8BOM = []byte{0xef, 0xbb, 0xbf}
+
 // looksBinary reports whether the first bytes of a stream are not text:
-// a NUL byte, or mostly invalid UTF-8 and control characters.
+// mostly invalid UTF-8 and control characters. A stray NUL byte is not
+// enough: it is judged per record (see RuleNULByte), so a NUL in the first
+// 4 KiB and one further on get the same treatment.
 func looksBinary(head []byte) bool {
 	if len(head) == 0 {
 		return false
-	}
-	if bytes.IndexByte(head, 0) >= 0 {
-		return true
 	}
 	bad := 0
 	for i := 0; i < len(head); {
@@ -228,8 +249,42 @@ func repairUTF8(s string) (string, bool) {
 	return string(jsonl.AppendValidUTF8(make([]byte, 0, len(s)+8), []byte(s))), true
 }
 
-func utf8Issue(b *baseReader, d *Doc) *ReadIssue {
-	return &ReadIssue{File: b.file, Line: d.Line, Rule: RuleInvalidUTF8, Msg: "invalid UTF-8 replaced with U+FFFD", DocID: d.ID, Bytes: int64(len(d.Text))}
+// repairText makes a document's text valid, NUL-free UTF-8: invalid bytes
+// and U+0000 each become U+FFFD. It is the one rule for every format, so a
+// NUL costs no document wherever it appears in a file.
+func repairText(s string, alreadyBad bool) (out string, bad bool, nuls int) {
+	out, bad = repairUTF8(s)
+	bad = bad || alreadyBad
+	if nuls = strings.Count(out, "\x00"); nuls > 0 {
+		out = strings.ReplaceAll(out, "\x00", "\uFFFD")
+	}
+	return out, bad, nuls
+}
+
+// repairIssue is the record of a repairText edit (nil when none).
+func repairIssue(b *baseReader, d *Doc, bad bool, nuls int) *ReadIssue {
+	if !bad && nuls == 0 {
+		return nil
+	}
+	iss := &ReadIssue{File: b.file, Line: d.Line, Rule: RuleInvalidUTF8, Msg: "invalid UTF-8 replaced with U+FFFD", DocID: d.ID, Bytes: int64(len(d.Text))}
+	switch {
+	case bad && nuls > 0:
+		iss.Msg = fmt.Sprintf("invalid UTF-8 and %d NUL character(s) replaced with U+FFFD", nuls)
+	case nuls > 0:
+		iss.Rule, iss.Msg = RuleNULByte, fmt.Sprintf("%d NUL character(s) replaced with U+FFFD", nuls)
+	}
+	return iss
+}
+
+// textRecord builds the record of a document whose text is raw (not yet
+// repaired); alreadyBad says the decoder already replaced invalid UTF-8.
+func (b *baseReader) textRecord(text string, alreadyBad bool, id string, line int64, meta map[string]any) Record {
+	s, bad, nuls := repairText(text, alreadyBad)
+	d := b.newDoc(s, id, line)
+	if meta != nil {
+		d.Meta = meta
+	}
+	return Record{Doc: d, Issue: repairIssue(b, d, bad, nuls)}
 }
 
 type jsonlReader struct {
@@ -306,12 +361,7 @@ func (r *jsonlReader) parse(line []byte, ln, off int64) Record {
 			ids = string(id)
 		}
 	}
-	d := r.newDoc(s, ids, ln)
-	d.Meta = meta
-	if bad {
-		return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}
-	}
-	return Record{Doc: d}
+	return r.textRecord(s, bad, ids, ln, meta)
 }
 
 type textReader struct {
@@ -375,12 +425,7 @@ func (r *textReader) Next() (Record, error) {
 		return Record{Issue: &ReadIssue{File: r.file, Line: start, Offset: startOff, Rule: RuleOversize, Bytes: size,
 			Msg: fmt.Sprintf("document of %d bytes exceeds max_doc_bytes %d", size, r.opt.MaxDocBytes), DocID: r.defaultID(start)}}, nil
 	}
-	s, bad := repairUTF8(string(buf))
-	d := r.newDoc(s, "", start)
-	if bad {
-		return Record{Doc: d, Issue: utf8Issue(&r.baseReader, d)}, nil
-	}
-	return Record{Doc: d}, nil
+	return r.textRecord(string(buf), false, "", start, nil), nil
 }
 
 // OpenFile opens path for reading; "-" is standard input.

@@ -239,8 +239,8 @@ func TestHugeLineOversize(t *testing.T) {
 		}
 		if r.Issue != nil {
 			got = append(got, r.Issue.Rule)
-			if r.Issue.Bytes < 100<<20 {
-				t.Errorf("oversize bytes %d", r.Issue.Bytes)
+			if r.Issue.Bytes < 100<<20 || r.Issue.Line != 2 || !strings.Contains(r.Issue.Msg, "exceeds max_doc_bytes 8388608") {
+				t.Errorf("oversize issue %+v", r.Issue)
 			}
 		}
 		if err == io.EOF {

@@ -112,6 +112,25 @@ func (s *streamSet) abort() {
 	}
 }
 
+// Detach stops every file and leaves its temp file for a resume.
+func (s *streamSet) Detach() {
+	for _, n := range s.order {
+		s.files[n].Detach()
+	}
+}
+
+// Retarget returns states with each file's current temp name: after a
+// resume the prefix lives in the new temp files.
+func (s *streamSet) Retarget(states []StreamState) []StreamState {
+	out := append([]StreamState(nil), states...)
+	for i := range out {
+		if w, ok := s.files[out[i].Name]; ok {
+			out[i].Temp = w.TempPath()
+		}
+	}
+	return out
+}
+
 // StreamState is where one file of a set stood at a checkpoint.
 type StreamState struct {
 	Name  string `json:"name"`
@@ -210,7 +229,7 @@ func (l *Ledger) Abort() { l.abort() }
 // read the files directly:
 //
 //	{"doc":ID,"source":S,"order":N,"bytes":B,"action":"keep|drop|edit",
-//	 "rule":R,"dropped_by":STAGE,<metric>:<value>...}
+//	 "rule":R,"dropped_by":STAGE,<label>:"text"...,<metric>:<value>...}
 //
 // "dropped_by" is present when an earlier stage already removed the
 // document: the runner still measures it (shadow measurement) so what-if
@@ -235,8 +254,10 @@ type MetricRow struct {
 	Action    stages.Action
 	Rule      string
 	DroppedBy string
-	Names     []string
-	Values    []float64
+	// Labels are text values written after the fixed fields, by key.
+	Labels map[string]string
+	Names  []string
+	Values []float64
 }
 
 // Add writes one row for stage.
@@ -257,6 +278,16 @@ func (m *Metrics) Add(stage string, r *MetricRow) error {
 	}
 	if r.DroppedBy != "" {
 		j.Str("dropped_by", r.DroppedBy)
+	}
+	if len(r.Labels) > 0 {
+		keys := make([]string, 0, len(r.Labels))
+		for k := range r.Labels {
+			keys = append(keys, k)
+		}
+		sort.Strings(keys)
+		for _, k := range keys {
+			j.Str(k, r.Labels[k])
+		}
 	}
 	for i, n := range r.Names {
 		if i < len(r.Values) {

@@ -222,6 +222,31 @@ type shardSink struct {
 	d shard.Doc
 }
 
+// RuleMixLeftOut is the ledger rule of a document that passed every
+// stage but that the output mix (or a shuffled output's budget_tokens)
+// placed in no shard.
+const RuleMixLeftOut = "mix_left_out"
+
+// LeftOutRecorder is a sink that can report, while it closes, each
+// document its mix leaves out, as a ledger record.
+type LeftOutRecorder interface {
+	OnLeftOut(fn func(*LedgerRecord) error)
+}
+
+// OnLeftOut makes Close call fn for each document the mix (or a shuffled
+// output's budget) leaves out.
+func (s *shardSink) OnLeftOut(fn func(*LedgerRecord) error) {
+	s.b.SetLeftOut(func(l shard.LeftOut) error {
+		why := l.Reason
+		if why == "" {
+			why = "its source had more tokens than its mix share needed"
+		}
+		return fn(&LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
+			Rule: RuleMixLeftOut, Action: "drop", Value: l.Tokens,
+			Extra: map[string]any{"reason": why}})
+	})
+}
+
 // Add hands one surviving document to the builder.
 func (s *shardSink) Add(d *stages.Doc) error {
 	s.d = shard.Doc{ID: d.ID, Text: d.Text, Source: d.Source, File: d.File, Line: d.Line, Tokens: d.Tokens, Meta: d.Meta}

@@ -10,7 +10,8 @@ import (
 // runner.
 func buildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *record.Manifest {
 	m := &record.Manifest{ToolVersion: version, Name: s.Name, Config: s.Config, ConfigHash: s.ConfigHash, Seed: s.Seed,
-		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, Interrupted: r.Interrupted, Seconds: seconds}
+		Inputs: r.InputSums, Errors: r.Errors, ErrorCount: r.ErrCount, InternalErrors: r.InternalErrors,
+		DuplicateIDs: r.DuplicateIDs, DuplicateCheckStopped: r.DupCheckStopped, Interrupted: r.Interrupted, Seconds: seconds}
 	if m.Inputs == nil {
 		m.Inputs = []record.InputSummary{}
 	}

@@ -7,11 +7,13 @@ package run
 import (
 	"context"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"runtime"
 	"time"
 
+	"winnow/shard"
 	"winnow/stages"
 	"winnow/stages/record"
 	"winnow/stages/spec"
@@ -38,6 +40,8 @@ type RunOptions struct {
 	Resume bool
 	// stopAfter cancels after that many segments (tests).
 	stopAfter int
+	// afterCheckpoint is called after each checkpoint (tests).
+	afterCheckpoint func()
 }
 
 // RunResult is a finished run.
@@ -66,6 +70,14 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 	if out == "" {
 		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
 	}
+	if err := record.CheckOutNotInput(out, inputs); err != nil {
+		return nil, err
+	}
+	release, err := record.LockRunDir(out, opt.Log)
+	if err != nil {
+		return nil, err
+	}
+	defer release()
 	tmp, err := record.PrepareRunDir(out, s.ConfigHash, inputs, opt.Force, opt.Resume)
 	if err != nil {
 		return nil, err
@@ -99,17 +111,30 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 		workers = runtime.NumCPU()
 	}
 	r := &Runner{Spec: s, Steps: steps, Inputs: inputs, Sink: sink, Env: env, Workers: workers,
-		OnProgress: opt.OnProgress, Log: opt.Log, Resume: opt.Resume, stopAfter: opt.stopAfter}
+		OnProgress: opt.OnProgress, Log: opt.Log, Resume: opt.Resume, stopAfter: opt.stopAfter,
+		afterCheckpoint: opt.afterCheckpoint}
 	t0 := time.Now()
 	runErr := r.Run(ctx)
 	if errors.Is(runErr, context.Canceled) {
 		// The work directory (spills, checkpoint) stays for --resume.
 		r.Interrupted = true
 	} else if runErr != nil {
-		return nil, runErr
+		if !r.started {
+			return nil, runErr
+		}
+		if ok, from := r.CanResume(); ok {
+			return nil, fmt.Errorf("%w\nthe run stopped; once the cause is fixed, `winnow run %s --out %s --resume` continues from %s", runErr, s.File, out, from)
+		} else {
+			return nil, fmt.Errorf("%w\nthe run stopped; --resume is not possible: %s", runErr, from)
+		}
 	} else {
 		os.RemoveAll(tmp)
 		removeStaleTemps(abs)
+	}
+	if r.Output != nil {
+		if mr, ok := r.Output.Mix.(*shard.MixReport); ok && len(mr.Missing) > 0 {
+			r.logf("warning: mix: %s", mr.Note)
+		}
 	}
 	m := buildManifest(opt.Version, s, r, time.Since(t0).Seconds())
 	if err := record.WriteManifest(abs, m); err != nil {

@@ -11,6 +11,7 @@ import (
 	"regexp"
 	"strings"
 	"testing"
+	"winnow/stages/record"
 
 	"github.com/klauspost/compress/zstd"
 
@@ -306,5 +307,45 @@ func TestSetOverrideRecordedInConfig(t *testing.T) {
 	led := readZstd(t, filepath.Join(dir, "out", "ledger", "length.jsonl.zst"))
 	if !strings.Contains(led, `"limit":40`) {
 		t.Errorf("override not applied: %.200s", led)
+	}
+}
+
+// When every document is removed and the output mixes sources, the run
+// still ends with its manifest (an empty mix) and says which stage let
+// nothing through.
+func TestAllRemovedWithMixWritesManifest(t *testing.T) {
+	dir := writeCorpus(t, 30)
+	s := writeSpec(t, dir, `name: none
+inputs:
+  - source: yard
+    paths: ["raw/part-0.jsonl.zst"]
+  - source: shop
+    paths: ["raw/part-1.jsonl.zst"]
+stages:
+  - kind: normalize
+  - kind: length
+    min_chars: 100000
+output:
+  dir: out
+  tokenizer: cl100k_base
+  mix: {yard: 0.5, shop: 0.5}
+`)
+	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out"), Workers: 2})
+	if err != nil {
+		t.Fatalf("run: %v", err)
+	}
+	m, err := record.ReadManifest(res.Dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Totals.DocsIn != 30 || m.Totals.DocsOut != 0 || len(m.Outputs) != 0 {
+		t.Errorf("totals %+v, outputs %v", m.Totals, m.Outputs)
+	}
+	why := m.EmptyReason()
+	if want := "no document reached the output: all 30 documents read were removed; stage length let none through (length removed 30)"; !strings.HasPrefix(why, want) {
+		t.Errorf("reason %q\nwant %q", why, want)
+	}
+	if mix, _ := json.Marshal(m.Mix); !strings.Contains(string(mix), `"mode":"empty"`) {
+		t.Errorf("mix %s", mix)
 	}
 }

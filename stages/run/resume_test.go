@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -67,4 +68,62 @@ func keys(m map[string]string) []string {
 		out = append(out, k)
 	}
 	return out
+}
+
+// --resume refuses, naming the files, when an input changed after the
+// checkpoint: grown, same size with other bytes, new, or gone.
+func TestResumeRefusesChangedInputs(t *testing.T) {
+	p := defaultSpecFixture(t, 400, 4)
+	dir := filepath.Dir(p)
+	load := func() *spec.Spec {
+		s, err := spec.LoadSpec(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return s
+	}
+	out := filepath.Join(dir, "out")
+	stop := func() {
+		if _, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Force: true, stopAfter: 1}); !errors.Is(err, context.Canceled) {
+			t.Fatalf("stop: %v", err)
+		}
+	}
+	files, _ := filepath.Glob(filepath.Join(dir, "raw", "*", "*.zst"))
+	if len(files) < 2 {
+		files, _ = filepath.Glob(filepath.Join(dir, "raw", "*.zst"))
+	}
+	if len(files) < 2 {
+		t.Fatalf("fixture inputs: %v", files)
+	}
+	rel := func(f string) string { r, _ := filepath.Rel(dir, f); return filepath.ToSlash(r) }
+	orig, _ := os.ReadFile(files[0])
+	for _, c := range []struct {
+		name   string
+		change func()
+		want   string
+	}{
+		{"grown", func() { os.WriteFile(files[0], append(append([]byte{}, orig...), 0), 0o644) }, rel(files[0]) + fmt.Sprintf(" (%d bytes, was %d)", len(orig)+1, len(orig))},
+		{"same size", func() {
+			b := append([]byte{}, orig...)
+			b[len(b)/2] ^= 0xff
+			os.WriteFile(files[0], b, 0o644)
+		}, rel(files[0]) + " (same size, other content: xxh3 "},
+		{"new", func() { os.WriteFile(files[0]+".extra.jsonl", []byte(`{"text":"new hull"}`+"\n"), 0o644) }, " (new since the checkpoint)"},
+	} {
+		os.WriteFile(files[0], orig, 0o644)
+		os.Remove(files[0] + ".extra.jsonl")
+		stop()
+		c.change()
+		_, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Resume: true})
+		if err == nil || !strings.Contains(err.Error(), "cannot resume: the inputs changed since the checkpoint") || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: %v\nwant %s", c.name, err, c.want)
+		}
+	}
+	// Unchanged inputs resume.
+	os.WriteFile(files[0], orig, 0o644)
+	os.Remove(files[0] + ".extra.jsonl")
+	stop()
+	if _, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Resume: true}); err != nil {
+		t.Errorf("unchanged inputs: %v", err)
+	}
 }

@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -63,6 +64,14 @@ type Runner struct {
 	// stopAfter, when > 0, cancels the run after that many segments
 	// (tests of resuming).
 	stopAfter int
+	// checkpointSeg is the segment after which the last checkpoint was
+	// written (or restored from); -1 before any.
+	checkpointSeg int
+	// started is set once the run got past opening and restoring.
+	started bool
+	// afterCheckpoint, when set, is called after each checkpoint (tests of
+	// interruption).
+	afterCheckpoint func()
 
 	ledger  *record.Ledger
 	metrics *record.Metrics
@@ -79,10 +88,52 @@ type Runner struct {
 	Interrupted bool
 	// FatalInputs counts inputs that could not be read to their end.
 	FatalInputs int
+	// InternalErrors counts documents a stage panicked on.
+	InternalErrors int64
+	// DuplicateIDs counts documents whose id an earlier document had;
+	// DupCheckStopped, when > 0, is the number of ids after which the
+	// check stopped (memory).
+	DuplicateIDs    int64
+	DupCheckStopped int64
+	ids             *idSet
+	dupExamples     []string
 
 	prog struct {
 		docs, raw, text atomic.Int64
 		seg             atomic.Int64
+	}
+	// wanted lists, per step, the metrics a later stage reads at scan
+	// time (stages.MetricUser): index into the step's metrics and name.
+	wanted [][]wantedMetric
+}
+
+type wantedMetric struct {
+	j    int
+	name string
+}
+
+// wantMetrics fills r.wanted from the MetricUser stages. The spec checked
+// that every name is measured by an earlier stage.
+func (r *Runner) wantMetrics() {
+	r.wanted = make([][]wantedMetric, len(r.Steps))
+	for _, s := range r.Steps {
+		mu, ok := stageOf(s).(stages.MetricUser)
+		if !ok {
+			continue
+		}
+		for _, name := range mu.UsesMetrics() {
+			stage, metric, _ := strings.Cut(name, ".")
+			for i, e := range r.Steps {
+				if e.Name != stage || e.Stage == nil {
+					continue
+				}
+				for j, m := range e.Stage.MetricNames() {
+					if m == metric {
+						r.wanted[i] = append(r.wanted[i], wantedMetric{j, name})
+					}
+				}
+			}
+		}
 	}
 }
 
@@ -108,9 +159,14 @@ type stepResult struct {
 	step     int
 	dec      stages.Decision
 	shadow   bool
+	skipped  bool // outside the step's `only:` scope: not measured
 	bytesIn  int
 	bytesOut int
 	dropBy   string
+	// ie is set when the stage panicked on the document; scan when that
+	// happened in a global stage's Scan.
+	ie   *internalError
+	scan bool
 }
 
 type docOutcome struct {
@@ -161,6 +217,7 @@ func (r *Runner) Run(ctx context.Context) error {
 	if err := r.ledger.Open("read"); err != nil {
 		return err
 	}
+	r.wantMetrics()
 	r.Counters = nil
 	for _, s := range r.Steps {
 		kind := ""
@@ -169,12 +226,17 @@ func (r *Runner) Run(ctx context.Context) error {
 		} else {
 			kind = s.Global.Kind()
 		}
-		r.Counters = append(r.Counters, &record.Counters{Name: s.Name, Kind: kind})
+		c := &record.Counters{Name: s.Name, Kind: kind, Global: s.Stage == nil}
+		if fw, ok := s.Stage.(stages.FileWriter); ok {
+			c.Files = fw.StageFiles()
+		}
+		r.Counters = append(r.Counters, c)
 		if err := r.ledger.Open(s.Name); err != nil {
 			return err
 		}
 	}
 	r.Write = record.Counters{Name: "write", Kind: "write"}
+	r.checkpointSeg = -1
 	start := time.Now()
 	stopProg := r.startProgress(start)
 	defer stopProg()
@@ -186,15 +248,26 @@ func (r *Runner) Run(ctx context.Context) error {
 			r.ledger.Abort()
 			return err
 		}
+		if err := inputsUnchanged(cp.Inputs, r.Inputs); err != nil {
+			r.ledger.Abort()
+			return err
+		}
 		if err := r.restore(cp, r.segments()); err != nil {
 			r.ledger.Abort()
 			r.metrics.Abort()
 			return err
 		}
 	}
+	r.started = true
 	err := r.runSegments(ctx, cp)
 	if err == nil || errors.Is(err, context.Canceled) {
 		if r.Output == nil && r.Sink != nil {
+			if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
+				lo.OnLeftOut(func(rec *record.LedgerRecord) error {
+					r.Write.Dropped++
+					return r.ledger.Add(rec)
+				})
+			}
 			out, cerr := r.Sink.Close()
 			if cerr != nil && err == nil {
 				err = cerr
@@ -223,8 +296,15 @@ func (r *Runner) Run(ctx context.Context) error {
 		if r.Sink != nil {
 			r.Sink.Abort()
 		}
-		r.ledger.Abort()
-		r.metrics.Abort()
+		if ok, _ := r.CanResume(); ok {
+			// Keep the ledger and metrics up to the checkpoint for
+			// --resume (a failure such as a full disk can be fixed).
+			r.ledger.Detach()
+			r.metrics.Detach()
+		} else {
+			r.ledger.Abort()
+			r.metrics.Abort()
+		}
 	}
 	for _, c := range r.Counters {
 		c.Seconds = float64(c.Nanos()) / 1e9
@@ -303,6 +383,10 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			produce = func(ctx context.Context, out chan<- *batch) error { return r.produceSpill(ctx, sp, out) }
 		}
 		err := r.runSegment(ctx, seg, produce, next)
+		if si == 0 {
+			r.reportDuplicates()
+			r.ids = nil // free the table: later segments read no new ids
+		}
 		if next != nil {
 			if cerr := next.close(); cerr != nil && err == nil {
 				err = cerr
@@ -314,6 +398,9 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 		if err != nil {
 			if next != nil {
 				os.Remove(next.path)
+				if !errors.Is(err, context.Canceled) {
+					err = fmt.Errorf("%w (the unfinished spill of segment %d was removed)", err, si+1)
+				}
 			}
 			return err
 		}
@@ -329,6 +416,10 @@ func (r *Runner) runSegments(ctx context.Context, cp *checkpoint) error {
 			// bytes of every file) are the same whether or not it resumes.
 			if err := r.writeCheckpoint(si, spillPath); err != nil {
 				return fmt.Errorf("checkpoint: %w", err)
+			}
+			r.checkpointSeg = si
+			if r.afterCheckpoint != nil {
+				r.afterCheckpoint()
 			}
 		}
 		if done != "" {
@@ -426,10 +517,13 @@ func (r *Runner) work(seg segment, b *batch) {
 		dropBy := ""
 		if seg.apply >= 0 {
 			t0 := nanotime()
-			dec := r.Steps[seg.apply].Global.Apply(d)
+			dec, ie := safeApply(r.Steps[seg.apply].Global, d)
 			r.Counters[seg.apply].AddNanos(nanotime() - t0)
-			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text)}
-			if dec.Action == stages.Drop {
+			res := stepResult{step: seg.apply, dec: dec, bytesIn: len(d.Text), ie: ie}
+			if ie != nil {
+				res.dec = internalDrop(ie)
+			}
+			if res.dec.Action == stages.Drop {
 				out.results = append(out.results, res)
 				out.dropped = true
 				continue
@@ -440,10 +534,35 @@ func (r *Runner) work(seg segment, b *batch) {
 		}
 		for _, si := range seg.steps {
 			st := r.Steps[si].Stage
+			if !r.Steps[si].Only.Match(d) {
+				out.results = append(out.results, stepResult{step: si, skipped: true, shadow: dropBy != "",
+					bytesIn: len(d.Text), bytesOut: len(d.Text), dropBy: dropBy})
+				continue
+			}
 			t0 := nanotime()
-			dec := st.Process(d)
+			dec, ie := safeProcess(st, d)
 			r.Counters[si].AddNanos(nanotime() - t0)
+			if ie == nil {
+				for _, w := range r.wanted[si] {
+					if w.j < len(dec.Metrics) {
+						d.SetMeasured(w.name, dec.Metrics[w.j])
+					}
+				}
+			}
 			res := stepResult{step: si, dec: dec, shadow: dropBy != "", bytesIn: len(d.Text), dropBy: dropBy}
+			if ie != nil {
+				// The document goes no further, not even as a shadow.
+				res.ie = ie
+				if dropBy == "" {
+					res.dec = internalDrop(ie)
+					dropBy = r.Steps[si].Name
+				} else {
+					res.dec = stages.Decision{}
+				}
+				res.bytesOut = res.bytesIn
+				out.results = append(out.results, res)
+				break
+			}
 			if dropBy == "" && dec.Action == stages.Drop {
 				dropBy = r.Steps[si].Name
 			}
@@ -454,6 +573,13 @@ func (r *Runner) work(seg segment, b *batch) {
 			}
 			if !res.shadow && dec.Action != stages.Drop {
 				mergeMeta(d, &dec)
+			} else {
+				// A removed document still carries what the stage found
+				// (its language, say) to the stages that measure it in
+				// the shadow, so they measure it as they would a kept one.
+				for k, v := range dec.Meta {
+					d.SetMeta(k, v)
+				}
 			}
 			res.bytesOut = len(d.Text)
 			res.dec.Text = "" // the text now lives in d; keep the batch small
@@ -462,8 +588,14 @@ func (r *Runner) work(seg segment, b *batch) {
 		out.dropped = dropBy != ""
 		if !out.dropped && seg.scan >= 0 {
 			t0 := nanotime()
-			out.keys = r.Steps[seg.scan].Global.Scan(d)
+			keys, ie := safeScan(r.Steps[seg.scan].Global, d)
 			r.Counters[seg.scan].AddNanos(nanotime() - t0)
+			if ie != nil {
+				out.results = append(out.results, stepResult{step: seg.scan, dec: internalDrop(ie), bytesIn: len(d.Text), ie: ie, scan: true})
+				out.dropped = true
+				continue
+			}
+			out.keys = keys
 		}
 	}
 }
@@ -506,6 +638,7 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		if seg.apply < 0 {
 			r.Read.DocsOut++
 			r.Read.BytesOut += int64(it.readBytes)
+			r.noteID(d)
 		}
 		for _, res := range out.results {
 			if err := r.recordResult(d, res); err != nil {
@@ -542,24 +675,39 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	st := r.Steps[res.step]
 	c := r.Counters[res.step]
+	if res.skipped {
+		if !res.shadow {
+			c.DocsIn++
+			c.DocsOut++
+			c.BytesIn += int64(res.bytesIn)
+			c.BytesOut += int64(res.bytesIn)
+			c.Skipped++
+		}
+		return nil
+	}
 	dec := &res.dec
 	var names []string
 	if st.Stage != nil {
 		names = st.Stage.MetricNames()
+	} else if m, ok := st.Global.(interface{ MetricNames() []string }); ok {
+		names = m.MetricNames() // a global stage that measures (domain with keep_fraction)
 	}
 	if len(names) > 0 && len(dec.Metrics) > 0 {
 		row := record.MetricRow{Doc: d.ID, Source: d.Source, Order: d.Order, Bytes: res.bytesIn, Action: dec.Action,
-			Rule: dec.Rule, DroppedBy: res.dropBy, Names: names, Values: dec.Metrics}
+			Rule: dec.Rule, DroppedBy: res.dropBy, Labels: dec.Labels, Names: names, Values: dec.Metrics}
 		if err := r.metrics.Add(st.Name, &row); err != nil {
 			return err
 		}
+	}
+	if res.ie != nil {
+		r.recordInternal(d, st.Name, res.ie, res.shadow)
 	}
 	if res.shadow {
 		return nil
 	}
 	// A global stage's docs_in is counted at scan time; per-document
-	// stages count here.
-	if st.Stage != nil {
+	// stages count here (and so does a scan that panicked).
+	if st.Stage != nil || res.scan {
 		c.DocsIn++
 		c.BytesIn += int64(res.bytesIn)
 	}
@@ -574,12 +722,12 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 		c.DocsOut++
 		c.BytesOut += int64(res.bytesIn)
 	}
-	if st.Stage != nil {
-		if o, ok := st.Stage.(stages.Observer); ok {
-			o.Observe(d, dec)
+	if o, ok := stageOf(st).(stages.Observer); ok {
+		// A report that fails on one document leaves that document out
+		// of the report; the run goes on and counts the internal error.
+		if ie := safeObserve(o, d, dec); ie != nil {
+			r.recordInternal(d, st.Name+" (report)", ie, false)
 		}
-	} else if o, ok := st.Global.(stages.Observer); ok {
-		o.Observe(d, dec)
 	}
 	if dec.Action == stages.Keep && dec.Rule == "" {
 		return nil // a flag (keep with a rule) is still recorded
@@ -605,7 +753,7 @@ func (r *Runner) recordIssue(iss *read.ReadIssue) error {
 		r.FatalInputs++
 		r.ErrCount++
 		r.Errors = append(r.Errors, record.RunError{File: iss.File, Offset: iss.Offset, Rule: iss.Rule, Message: iss.Msg, Fatal: true})
-	case iss.Rule == read.RuleInvalidUTF8:
+	case iss.Repair():
 		action = "edit"
 	default:
 		r.Read.Dropped++
@@ -726,12 +874,16 @@ func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *record.I
 		return err
 	}
 	defer f.Close()
+	var stamp read.InputStamp
+	osf, _ := f.(*os.File)
+	if osf != nil && in.Path != "-" {
+		stamp = read.StampFile(osf)
+	}
 	opt := *in.Options
 	var rr read.RecordReader
 	var raw *read.RawCounter
 	if opt.Format == read.FormatParquet || (opt.Format == read.FormatAuto && read.GuessFormat(in.Path, nil) == read.FormatParquet) {
-		osf, ok := f.(*os.File)
-		if !ok || in.Path == "-" {
+		if osf == nil || in.Path == "-" {
 			return fmt.Errorf("parquet cannot be read from standard input")
 		}
 		pr, err := read.NewParquetReader(osf, in.Display, in.Index, opt)
@@ -750,6 +902,12 @@ func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *record.I
 			return err
 		}
 		defer dec.Close()
+		defer func() {
+			for _, w := range dec.Warnings() {
+				sum.Warnings = append(sum.Warnings, w)
+				r.logf("%s: %s", in.Display, w)
+			}
+		}()
 		raw = dec.Raw
 		sum.Codec = dec.Codec
 		rr, sum.Format, err = read.NewRecordReader(dec, in.Display, in.Index, opt)
@@ -790,10 +948,12 @@ func (r *Runner) readInput(ctx context.Context, in read.InputFile, sum *record.I
 	if wr, ok := rr.(read.Skipper); ok {
 		sum.Skipped = wr.SkippedRecords()
 	}
+	nread := int64(-1)
 	if raw != nil {
 		sum.Bytes, sum.XXH3 = raw.Drain()
+		nread = sum.Bytes
 	}
-	return nil
+	return stamp.Check(in.Path, osf, nread)
 }
 
 // produceSpill re-reads the previous segment's spill in order.

@@ -6,7 +6,9 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
+	"slices"
 
 	"winnow/stages/jsonl"
 
@@ -19,7 +21,9 @@ import (
 // segment of the pipeline can re-read them after the global decision
 // without re-reading (and re-filtering) the inputs. Records are
 // length-prefixed binary fields in a zstd stream (fastest level): order,
-// id, text, source, file, line, tokens, meta as JSON.
+// id, text, source, file, line, tokens, meta as JSON, then the measured
+// values later stages asked for (uvarint count; name, float64 bits LE;
+// sorted by name).
 type docSpill struct {
 	path string
 	f    *os.File
@@ -56,6 +60,18 @@ func (s *docSpill) add(d *stages.Doc) error {
 		b = appendField(b, string(s.jb.B))
 	} else {
 		b = appendField(b, "")
+	}
+	if len(d.Measured) > 0 {
+		names := make([]string, 0, len(d.Measured))
+		for k := range d.Measured {
+			names = append(names, k)
+		}
+		slices.Sort(names)
+		b = binary.AppendUvarint(b, uint64(len(names)))
+		for _, k := range names {
+			b = appendField(b, k)
+			b = binary.LittleEndian.AppendUint64(b, math.Float64bits(d.Measured[k]))
+		}
 	}
 	var hdr [binary.MaxVarintLen64]byte
 	n := binary.PutUvarint(hdr[:], uint64(len(b)))
@@ -139,8 +155,22 @@ func (r *spillReader) next() (*stages.Doc, error) {
 	}
 	d.Tokens = int(u)
 	var meta string
-	if meta, _, ok = takeField(b); !ok {
+	if meta, b, ok = takeField(b); !ok {
 		return nil, errSpill
+	}
+	if len(b) > 0 {
+		if u, b, ok = takeUvarint(b); !ok || u > uint64(len(b)) {
+			return nil, errSpill
+		}
+		d.Measured = make(map[string]float64, u)
+		for i := uint64(0); i < u; i++ {
+			var name string
+			if name, b, ok = takeField(b); !ok || len(b) < 8 {
+				return nil, errSpill
+			}
+			d.Measured[name] = math.Float64frombits(binary.LittleEndian.Uint64(b))
+			b = b[8:]
+		}
 	}
 	if meta != "" {
 		d.Meta = map[string]any{}

@@ -6,14 +6,17 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"sort"
 	"strings"
 
 	"github.com/zeebo/xxh3"
 	"gopkg.in/yaml.v3"
 
+	"winnow/filters/langid"
 	"winnow/stages"
 	"winnow/stages/read"
 	"winnow/stages/suggest"
@@ -52,6 +55,8 @@ type StageSpec struct {
 	Kind   string
 	Name   string
 	Params *stages.Params
+	// Only is the stage's `only:` scope (nil: every document).
+	Only *stages.Scope
 }
 
 // formatNames are the choices of an input's "format" key.
@@ -93,8 +98,8 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	s := &Spec{File: path, Dir: filepath.Dir(abs)}
 	p := stages.NewParams(path, "spec", root)
 	s.Name = p.String("name", "winnow")
-	if s.Name == "" || strings.ContainsAny(s.Name, "/\\ \t") {
-		p.Errorf("name", "want a non-empty name without slashes or spaces")
+	if err := checkName(s.Name); err != nil {
+		p.Errorf("name", "%v", err)
 	}
 	s.Seed = uint64(p.Int("seed", 0, 0, 1<<62))
 	s.Memory = p.Size("memory", 1<<30, 1<<10, 1<<44)
@@ -148,6 +153,16 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 			continue
 		}
 		st.Name = sp.String("name", st.Kind)
+		if err := checkName(st.Name); err != nil {
+			sp.Errorf("name", "%v", err)
+			errs = append(errs, sp.TakeErrs()...)
+			continue
+		}
+		if reservedNames[st.Name] {
+			sp.Errorf("name", "%q is reserved for the runner's own records (read, write, output): choose another name", st.Name)
+			errs = append(errs, sp.TakeErrs()...)
+			continue
+		}
 		names[st.Name]++
 		if names[st.Name] > 1 {
 			if sp.Has("name") {
@@ -157,6 +172,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 			}
 		}
 		sp.SetStageName(st.Name)
+		st.Only, errs = parseOnly(sp, s.Inputs, s.Stages, errs)
 		s.Stages = append(s.Stages, st)
 	}
 	s.Output = p.Sub("output")
@@ -167,7 +183,9 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	if s.OutputDir != "" && !filepath.IsAbs(s.OutputDir) {
 		s.OutputDir = filepath.Join(s.Dir, s.OutputDir)
 	}
-	if mix := s.Output.FloatMap("mix"); len(mix) > 0 {
+	mix := s.Output.FloatMap("mix")
+	errs = append(errs, s.Output.TakeErrs()...)
+	if len(mix) > 0 {
 		known := map[string]bool{}
 		var srcs []string
 		for _, in := range s.Inputs {
@@ -195,6 +213,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	if err := p.Done(); err != nil {
 		errs = append([]error{err}, errs...)
 	}
+	errs = append(errs, unreported(errs, nonFinite(path, "spec", root))...)
 	if err := errors.Join(errs...); err != nil {
 		return nil, err
 	}
@@ -207,6 +226,101 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	return s, nil
+}
+
+// maxNameLen bounds spec and stage names: they become file names
+// (ledger/NAME.jsonl.zst, shards/NAME-00000.jsonl.zst) with room to spare
+// under the usual 255-byte limit of a file name.
+const maxNameLen = 64
+
+// reservedNames are the ledger and manifest names of the runner's own
+// steps; a stage may not take them.
+var reservedNames = map[string]bool{"read": true, "write": true, "output": true}
+
+// checkName accepts a plain file name: ASCII letters, digits, '_', '-' and
+// '.', not starting with '.', at most maxNameLen bytes. Names become file
+// names inside the run directory, so a slash, "..", an absolute path, a NUL
+// or a control character could place files elsewhere or break them.
+func checkName(name string) error {
+	if name == "" {
+		return errors.New("want a non-empty name")
+	}
+	if len(name) > maxNameLen {
+		return fmt.Errorf("name is %d bytes long, at most %d allowed (it becomes a file name)", len(name), maxNameLen)
+	}
+	for i := 0; i < len(name); i++ {
+		c := name[i]
+		ok := c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c >= '0' && c <= '9' || c == '_' || c == '-' || c == '.'
+		if !ok {
+			what := fmt.Sprintf("%q", string(rune(c)))
+			switch {
+			case c == '/' || c == '\\':
+				what = "a path separator"
+			case c == 0:
+				what = "a NUL byte"
+			case c < 0x20 || c == 0x7f:
+				what = "a control character"
+			case c >= 0x80:
+				what = "a non-ASCII character"
+			}
+			return fmt.Errorf("%q must be a plain file name (letters, digits, '_', '-', '.'), it has %s at byte %d", name, what, i)
+		}
+	}
+	if name[0] == '.' {
+		return fmt.Errorf("%q must not start with '.' (it becomes a file name; \".\" and \"..\" name directories)", name)
+	}
+	return nil
+}
+
+// nonFinite reports every number in the spec that is NaN or infinite
+// (".nan", ".inf", "NaN", "-Inf"): no setting takes one, and the config
+// could not be written to the manifest.
+func nonFinite(file, at string, n *yaml.Node) []error {
+	var errs []error
+	switch n.Kind {
+	case yaml.ScalarNode:
+		var f float64
+		if n.Tag == "!!float" && n.Decode(&f) == nil && (math.IsNaN(f) || math.IsInf(f, 0)) {
+			errs = append(errs, &stages.SpecError{File: file, Line: n.Line, Column: n.Column, Key: at,
+				Msg: fmt.Sprintf("want a finite number, got %q", n.Value)})
+		}
+	case yaml.MappingNode:
+		for i := 0; i+1 < len(n.Content); i += 2 {
+			errs = append(errs, nonFinite(file, at+"."+n.Content[i].Value, n.Content[i+1])...)
+		}
+	case yaml.SequenceNode:
+		for i, c := range n.Content {
+			errs = append(errs, nonFinite(file, fmt.Sprintf("%s[%d]", at, i), c)...)
+		}
+	}
+	return errs
+}
+
+// unreported returns the errors of more that are not at a position errs
+// already names.
+func unreported(errs, more []error) []error {
+	seen := map[[2]int]bool{}
+	var walk func(err error)
+	walk = func(err error) {
+		var se *stages.SpecError
+		if j, ok := err.(interface{ Unwrap() []error }); ok {
+			for _, e := range j.Unwrap() {
+				walk(e)
+			}
+		} else if errors.As(err, &se) {
+			seen[[2]int{se.Line, se.Column}] = true
+		}
+	}
+	for _, e := range errs {
+		walk(e)
+	}
+	var out []error
+	for _, e := range more {
+		if se := e.(*stages.SpecError); !seen[[2]int{se.Line, se.Column}] {
+			out = append(out, e)
+		}
+	}
+	return out
 }
 
 // hashConfig sets ConfigHash to the xxh3 of the config's canonical JSON
@@ -283,14 +397,69 @@ func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 				}
 			}
 		}
+		if err == nil {
+			err = checkMetricUses(st.Params, step, steps)
+		}
 		if err != nil {
 			errs = append(errs, err)
 			continue
 		}
+		if st.Only != nil && step.Global != nil {
+			st.Params.Errorf("only", "only: applies to per-document stages; %s compares documents with each other here", st.Kind)
+			errs = append(errs, st.Params.TakeErrs()...)
+			continue
+		}
+		if ts, ok := step.Stage.(stages.ThresholdStage); ok {
+			if err := checkRuleOrder(st.Params, ts.Rules()); err != nil {
+				errs = append(errs, err)
+				continue
+			}
+		}
 		step.Name = st.Name
+		step.Only = st.Only
 		steps = append(steps, step)
 	}
 	return steps, errors.Join(errs...)
+}
+
+// checkMetricUses checks that every metric a stage reads at scan time
+// (stages.MetricUser, e.g. a dedup keep rule) is measured by an earlier
+// per-document stage; the error points at the stage's keep key.
+func checkMetricUses(p *stages.Params, step Step, earlier []Step) error {
+	var mu stages.MetricUser
+	if step.Global != nil {
+		mu, _ = step.Global.(stages.MetricUser)
+	} else {
+		mu, _ = step.Stage.(stages.MetricUser)
+	}
+	if mu == nil {
+		return nil
+	}
+	for _, name := range mu.UsesMetrics() {
+		stage, metric, _ := strings.Cut(name, ".")
+		var known []string
+		found := false
+		for _, e := range earlier {
+			if e.Stage == nil {
+				continue
+			}
+			for _, m := range e.Stage.MetricNames() {
+				known = append(known, e.Name+"."+m)
+				found = found || e.Name == stage && m == metric
+			}
+		}
+		if !found {
+			msg := fmt.Sprintf("metric %q is not measured by an earlier stage", name)
+			if s := suggest.Nearest(name, known); s != "" {
+				msg += fmt.Sprintf(" (did you mean %q?)", s)
+			} else if len(known) == 0 {
+				msg += " (no earlier stage measures anything)"
+			}
+			p.Errorf("keep", "%s", msg)
+			return p.Done()
+		}
+	}
+	return nil
 }
 
 // Step is one built stage of a pipeline: exactly one of Stage and Global.
@@ -298,4 +467,85 @@ type Step struct {
 	Name   string
 	Stage  stages.Stage
 	Global stages.GlobalStage
+	// Only scopes a per-document stage (nil: every document).
+	Only *stages.Scope
+}
+
+// parseOnly reads a stage's `only:` mapping, `sources: [...]` and/or
+// `languages: [...]`: sources must be input sources, languages ISO 639-1
+// codes the language detector knows, and a stage scoped by language needs
+// a langid stage before it (the language is its meta "lang"). BuildStages
+// refuses a scope on a global stage (dedup compares documents with each
+// other).
+func parseOnly(sp *stages.Params, inputs []InputSpec, before []StageSpec, errs []error) (*stages.Scope, []error) {
+	o := sp.Sub("only")
+	if o == nil {
+		return nil, errs
+	}
+	sc := &stages.Scope{Sources: o.Strings("sources", nil), Languages: o.Strings("languages", nil)}
+	if len(sc.Sources) == 0 && len(sc.Languages) == 0 {
+		o.Errorf("", "want sources: [...] and/or languages: [...]")
+	}
+	var srcs []string
+	known := map[string]bool{}
+	for _, in := range inputs {
+		if !known[in.Source] {
+			srcs = append(srcs, in.Source)
+		}
+		known[in.Source] = true
+	}
+	for _, src := range sc.Sources {
+		if !known[src] {
+			msg := fmt.Sprintf("source %q is not an input source (sources: %s)", src, strings.Join(srcs, ", "))
+			if n := suggest.Nearest(src, srcs); n != "" {
+				msg += fmt.Sprintf(" (did you mean %q?)", n)
+			}
+			o.Errorf("sources", "%s", msg)
+		}
+	}
+	for i, l := range sc.Languages {
+		code, err := langid.CanonicalCode(l)
+		if err != nil {
+			o.Errorf("languages", "%v", err)
+			continue
+		}
+		sc.Languages[i] = code
+	}
+	if len(sc.Languages) > 0 && !slices.ContainsFunc(before, func(st StageSpec) bool { return st.Kind == "langid" }) {
+		o.Errorf("languages", "needs a langid stage before this one (the language is the one it detects)")
+	}
+	if err := o.Done(); err != nil {
+		errs = append(errs, err)
+	}
+	return sc, errs
+}
+
+// checkRuleOrder reports a minimum above a maximum of the same metric
+// (min_chars: 500 with max_chars: 100): no document could pass both, so
+// the stage would drop everything. The error is at the minimum's key.
+func checkRuleOrder(p *stages.Params, rules []stages.Rule) error {
+	for _, lo := range rules {
+		if !lo.Enabled || (lo.Cmp != stages.AtLeast && lo.Cmp != stages.Above) {
+			continue
+		}
+		for _, hi := range rules {
+			if !hi.Enabled || hi.Metric != lo.Metric || (hi.Cmp != stages.AtMost && hi.Cmp != stages.Below) {
+				continue
+			}
+			bad := lo.Limit > hi.Limit
+			if lo.Cmp == stages.Above || hi.Cmp == stages.Below {
+				bad = lo.Limit >= hi.Limit
+			}
+			if !bad {
+				continue
+			}
+			key := lo.Key
+			if !p.Has(key) {
+				key = hi.Key
+			}
+			p.Errorf(key, "%s %v is above %s %v: no document could keep both (%s %s %v and %s %v), so the stage would drop everything",
+				lo.Key, lo.Limit, hi.Key, hi.Limit, lo.Metric, lo.Cmp, lo.Limit, hi.Cmp, hi.Limit)
+		}
+	}
+	return errors.Join(p.TakeErrs()...)
 }

@@ -69,9 +69,9 @@ func TestApplySets(t *testing.T) {
 		t.Errorf("min_chars read as %d", got)
 	}
 	for set, want := range map[string]string{
-		"quality.min_words=3": `the spec has no stage "quality"`,
-		"length=40":           "want STAGE.KEY=VALUE",
-		"length.min_chars":    "want STAGE.KEY=VALUE",
+		"quality.fewest_words=3": `the spec has no stage "quality"`,
+		"length=40":              "want STAGE.KEY=VALUE",
+		"length.min_chars":       "want STAGE.KEY=VALUE",
 	} {
 		if err := ApplySets(s, []string{set}); err == nil || !strings.Contains(err.Error(), want) {
 			t.Errorf("--set %s: error %v, want %q", set, err, want)

@@ -1,6 +1,6 @@
 // Package suggest finds the likely intended name for a misspelt one, for
-// error messages such as `unknown key "min_wrods" (did you mean
-// "min_words"?)`.
+// error messages such as `unknown key "fewest_wrods" (did you mean
+// "fewest_words"?)`.
 package suggest
 
 // Nearest returns the candidate closest to s in edit distance when it is

@@ -13,10 +13,10 @@ func TestEditDistance(t *testing.T) {
 			t.Errorf("%q %q: %d, want %d", c.a, c.b, got, c.d)
 		}
 	}
-	if got := Nearest("min_wrods", []string{"max_words", "min_words", "min_stopwords"}); got != "min_words" {
+	if got := Nearest("fewest_wrods", []string{"most_words", "fewest_words", "fewest_stop_words"}); got != "fewest_words" {
 		t.Errorf("Nearest = %q", got)
 	}
-	if got := Nearest("zzzz", []string{"min_words"}); got != "" {
+	if got := Nearest("zzzz", []string{"fewest_words"}); got != "" {
 		t.Errorf("far name suggested %q", got)
 	}
 }

@@ -68,7 +68,7 @@ type TruthDoc struct {
 	// near_copy.
 	Kind string `json:"kind"`
 	// Detail refines Kind: the spam kind (keywords, repeated_lines,
-	// symbols, bullets, ellipsis, lorem_ipsum, code), or for copies the
+	// symbols, bullets, ellipsis, placeholder_text, code), or for copies the
 	// Kind of the original.
 	Detail string `json:"detail,omitempty"`
 	// CopyOf is the id of the original for exact_copy and near_copy.

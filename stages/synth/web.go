@@ -14,7 +14,7 @@ const (
 	SpamSymbols  = "symbols"
 	SpamBullets  = "bullets"
 	SpamEllipsis = "ellipsis"
-	SpamLorem    = "lorem_ipsum"
+	SpamLorem    = "placeholder_text"
 	SpamCode     = "code"
 )
 

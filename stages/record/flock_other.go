@@ -1,0 +1,8 @@
+//go:build !unix
+
+package record
+
+import "os"
+
+// flockNB is not available here: the lock file's content is all there is.
+func flockNB(f *os.File) error { return nil }

@@ -1,0 +1,14 @@
+//go:build unix
+
+package record
+
+import (
+	"os"
+	"syscall"
+)
+
+// flockNB takes an exclusive flock on f without waiting. The kernel drops
+// it when the process ends, however it ends.
+func flockNB(f *os.File) error {
+	return syscall.Flock(int(f.Fd()), syscall.LOCK_EX|syscall.LOCK_NB)
+}
