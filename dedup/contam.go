@@ -194,16 +194,49 @@ func contamPrefix(pre []uint64, hashes []uint64) []uint64 {
 // from 0 in Add order) and its number of normalized words. An item with
 // no words is numbered but can never match; callers should report it.
 func (b *ContamBuilder) Add(text string) (item int, words int, err error) {
+	item, words, _, err = b.AddParts([]string{text}, 1)
+	return item, words, err
+}
+
+// AddParts indexes one eval item made of several texts (a question and
+// each of its answer choices, say). Each part is indexed on its own, so no
+// n-gram spans two parts, and its match unit is decided by its length in
+// normalized words: a part of n words or more contributes its n-grams, a
+// part of minWords to n-1 words must occur whole (one key of all its
+// words), and a shorter part is not indexed at all (too short to tell a
+// quotation from a common phrase). words is the length of the longest
+// indexed part (0: nothing of the item is indexed, so it can never match)
+// and keys the number of n-grams and whole parts added (before keys
+// shared with other items are merged).
+func (b *ContamBuilder) AddParts(parts []string, minWords int) (item, words, keys int, err error) {
 	if len(b.items) >= maxContamItems {
-		return 0, 0, fmt.Errorf("contamination index: more than %d items", maxContamItems)
+		return 0, 0, 0, fmt.Errorf("contamination index: more than %d items", maxContamItems)
+	}
+	if minWords < 1 {
+		minWords = 1
 	}
 	item = len(b.items)
+	for _, text := range parts {
+		w, k, err := b.addPart(item, text, minWords)
+		if err != nil {
+			return 0, 0, 0, err
+		}
+		words, keys = max(words, w), keys+k
+	}
+	b.items = append(b.items, contamItem{words: int32(words)})
+	return item, words, keys, nil
+}
+
+// addPart indexes one part of item; it returns the part's words and keys
+// (0, 0 when the part is shorter than minWords).
+func (b *ContamBuilder) addPart(item int, text string, minWords int) (words, keys int, err error) {
 	b.tok.tokenize(text)
 	w := len(b.tok.words)
+	if w < minWords {
+		return 0, 0, nil
+	}
 	b.pre = contamPrefix(b.pre, b.tok.hashes)
-	switch {
-	case w == 0:
-	case w < b.n:
+	if w < b.n {
 		h := contamWindowHash(b.pre[w], w)
 		b.short[w] = append(b.short[w], contamPair{h, uint32(item)})
 		norm := string(b.tok.norm[:len(b.tok.norm)-1])
@@ -211,15 +244,14 @@ func (b *ContamBuilder) Add(text string) (item int, words int, err error) {
 			return 0, 0, fmt.Errorf("contamination index: 64-bit hash collision between %q and %q", old, norm)
 		}
 		b.texts[h] = norm
-	default:
-		pn := b.pow[b.n]
-		for i := 0; i+b.n <= w; i++ {
-			h := contamWindowHash(b.pre[i+b.n]-b.pre[i]*pn, b.n)
-			b.pairs = append(b.pairs, contamPair{h, uint32(item)})
-		}
+		return w, 1, nil
 	}
-	b.items = append(b.items, contamItem{words: int32(w)})
-	return item, w, nil
+	pn := b.pow[b.n]
+	for i := 0; i+b.n <= w; i++ {
+		h := contamWindowHash(b.pre[i+b.n]-b.pre[i]*pn, b.n)
+		b.pairs = append(b.pairs, contamPair{h, uint32(item)})
+	}
+	return w, w - b.n + 1, nil
 }
 
 // Build sorts the collected n-grams into an index. The builder must not

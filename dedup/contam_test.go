@@ -400,3 +400,35 @@ func TestScanAllocs(t *testing.T) {
 		t.Errorf("Scan allocates %.0f times per document", a)
 	}
 }
+
+// TestIndexParts: an item's parts are indexed apart (no n-gram spans two
+// parts), parts shorter than minWords are left out, and an item with no
+// part left is reported by words 0.
+func TestIndexParts(t *testing.T) {
+	b := NewContamBuilder(4)
+	q := "which rig has one mast" // 5 words: its 4-grams
+	it, words, keys, err := b.AddParts([]string{q, "sloop", "gaff cutter", "bermuda rigged sloop"}, 3)
+	if err != nil || it != 0 || words != 5 || keys != 2+1 {
+		t.Fatalf("AddParts = %d, %d, %d, %v", it, words, keys, err)
+	}
+	if _, words, keys, _ := b.AddParts([]string{"ketch", "yawl rig"}, 3); words != 0 || keys != 0 {
+		t.Errorf("all parts too short: words %d keys %d", words, keys)
+	}
+	x := b.Build()
+	s := x.NewScanner()
+	for _, c := range []struct {
+		doc  string
+		hits int
+	}{
+		{"so which rig has one mast then", 2},
+		{"a bermuda rigged sloop", 1},        // a 3-word part, whole
+		{"one mast sloop gaff cutter", 0},    // parts glued in the document are not the item's n-grams
+		{"the gaff cutter and the ketch", 0}, // 2-word parts are not indexed
+		{"has one mast sloop gaff", 0},       // no n-gram across the question and a choice
+		{"bermuda rigged sloop yawl rig", 1},
+	} {
+		if got := len(s.Scan(c.doc, nil)); got != c.hits {
+			t.Errorf("%q: %d hits, want %d", c.doc, got, c.hits)
+		}
+	}
+}

@@ -46,6 +46,11 @@ type Options struct {
 	// Mix gives target token shares by source (nil: input order, all
 	// sources).
 	Mix map[string]float64
+	// Shuffle orders the documents of an unmixed output by a keyed hash
+	// of their ids (with Seed) instead of input order, so every shard
+	// holds every source; pieces of a split document stay together.
+	// Needs a tokenizer (ignored with a mix, which already interleaves).
+	Shuffle bool
 	// BudgetTokens caps the total output (0: no cap).
 	BudgetTokens int64
 	// MaxEpochs bounds up-sampling by repetition (default 1: none).
@@ -107,11 +112,15 @@ type LeftOut struct {
 	Doc, Source, File string
 	Line              int64
 	Tokens            int
+	// Reason is why its source lost documents, in words (the mix
+	// report's left_out_reason, or the budget of a shuffled output).
+	Reason string
 }
 
 // SetLeftOut makes Close call fn, in input order, for each document the
-// mix leaves out, so the run can record it (bounded memory: nothing is
-// kept). It has no effect without a mix.
+// mix (or a shuffled output's token budget) leaves out, so the run can
+// record it (bounded memory: nothing is kept). It has no effect on an
+// output written in input order.
 func (b *Builder) SetLeftOut(fn func(LeftOut) error) { b.leftOut = fn }
 
 // Builder writes a run's output shards. Without a tokenizer it streams
@@ -132,6 +141,7 @@ type Builder struct {
 	srcNames []string
 	splits   []Split
 	leftOut  func(LeftOut) error
+	leftWhy  map[string]string // source -> reason its documents are left out
 	line     []byte
 	closed   bool
 }
@@ -150,8 +160,8 @@ func NewBuilder(opt Options) (*Builder, error) {
 	if opt.MemoryBudget <= 0 {
 		opt.MemoryBudget = defaultMemory
 	}
-	if opt.Tokenizer == nil && (opt.Mix != nil || opt.BudgetTokens > 0 || opt.TokenFiles) {
-		return nil, errors.New("mix, budget_tokens and token_files need output.tokenizer")
+	if opt.Tokenizer == nil && (opt.Mix != nil || opt.BudgetTokens > 0 || opt.TokenFiles || opt.Shuffle) {
+		return nil, errors.New("mix, shuffle, budget_tokens and token_files need output.tokenizer")
 	}
 	if opt.SplitTokens <= 0 {
 		opt.SplitTokens = opt.ShardTokens
@@ -180,10 +190,10 @@ func NewBuilder(opt Options) (*Builder, error) {
 	if b.tok != nil {
 		b.asm = &assembler{b: b, tol: int(opt.ShardTokens / cutTolerance)}
 	}
-	if b.tok != nil && opt.Mix == nil {
+	if b.tok != nil && opt.Mix == nil && !opt.Shuffle {
 		b.stream = &streamCutter{shardTokens: opt.ShardTokens, budget: opt.BudgetTokens}
 	}
-	if b.tok != nil && opt.Mix != nil {
+	if b.tok != nil && (opt.Mix != nil || opt.Shuffle) {
 		tmp := opt.TempDir
 		if tmp == "" {
 			tmp = filepath.Join(filepath.Dir(opt.Dir), ".work")
@@ -297,18 +307,38 @@ func (b *Builder) Close() (*Report, error) {
 	}
 	if len(b.units) == 0 {
 		// Every document was removed before the output: there is nothing
-		// to mix, and no shard to write. The run still ends with its
-		// manifest, which says where the documents went.
+		// to mix or shuffle, and no shard to write. The run still ends
+		// with its manifest, which says where the documents went.
 		if err := b.w.finish(); err != nil {
 			return nil, err
+		}
+		if b.opt.Mix == nil {
+			return b.report(nil), nil
 		}
 		mix := &MixReport{Mode: "empty", Note: "no document reached the output: nothing to mix", MaxEpochs: b.opt.MaxEpochs,
 			BudgetTokens: b.opt.BudgetTokens, Sources: []MixSource{}}
 		return b.report(mix), nil
 	}
-	order, mix, err := planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
-	if err != nil {
-		return nil, fmt.Errorf("output: %w", err)
+	var order []slot
+	var mix *MixReport
+	var err error
+	if b.opt.Mix != nil {
+		order, mix, err = planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
+		if err != nil {
+			return nil, fmt.Errorf("output: %w", err)
+		}
+	} else {
+		order = planShuffle(b.units, b.opt.BudgetTokens)
+	}
+	b.leftWhy = map[string]string{}
+	if mix != nil {
+		for _, s := range mix.Sources {
+			b.leftWhy[s.Source] = s.LeftOutWhy
+		}
+	} else if b.opt.BudgetTokens > 0 {
+		for _, src := range b.srcNames {
+			b.leftWhy[src] = fmt.Sprintf("total capped at budget_tokens %d", b.opt.BudgetTokens)
+		}
 	}
 	tokens := make([]int64, len(order))
 	for i, s := range order {
@@ -444,7 +474,7 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 			if err := flushDoc(); err != nil {
 				return err
 			}
-			cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line}
+			cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line, Reason: b.leftWhy[rec.source]}
 			curUsed, curOpen = false, true
 		}
 		cur.Tokens += rec.tokens

@@ -534,6 +534,106 @@ func TestPlanCuts(t *testing.T) {
 	}
 }
 
+// Nothing is left out without a word: a source absent from the mix and a
+// source with share 0 are left out whole, the capped sources lose what
+// the scarcest one cannot balance, and for every source used + left out
+// is what was available.
+func TestMixLeftOut(t *testing.T) {
+	tok := mustLoad(t, "cl100k_base")
+	docs := corpus(21, tok)
+	shares := map[string]float64{"manuals": 0.5, "forum": 0.5, "dealer": 0}
+	var srcs []string
+	for _, d := range docs {
+		if !slices.Contains(srcs, d.Source) {
+			srcs = append(srcs, d.Source)
+		}
+	}
+	rep, _ := build(t, append(docs, Doc{ID: "extra-1", Text: "An extra source.", Source: "mail", Tokens: 4}), Options{Tokenizer: tok, ShardTokens: 8000, Mix: shares, Seed: 1})
+	lines := rep.Mix.LeftOutLines()
+	why := map[string]string{}
+	for _, s := range rep.Mix.Sources {
+		if s.Used+s.LeftOut != s.Available {
+			t.Errorf("%s: used %d + left out %d != available %d", s.Source, s.Used, s.LeftOut, s.Available)
+		}
+		why[s.Source] = s.LeftOutWhy
+	}
+	if why["mail"] != "not in mix (add it with a share to use it)" || why["dealer"] != "share 0 in mix" {
+		t.Errorf("reasons %q", why)
+	}
+	capped := 0
+	for _, src := range []string{"manuals", "forum"} {
+		if strings.HasPrefix(why[src], "total capped at ") {
+			capped++
+		}
+	}
+	if capped != 1 || len(lines) < 3 {
+		t.Errorf("want one capped source and one scarcest: %q\n%s", why, strings.Join(lines, "\n"))
+	}
+}
+
+// shuffle: without a mix, documents arriving source by source are spread
+// over the shards by a keyed hash of their ids: every document once, the
+// first shard holds more than one source, the bytes do not depend on the
+// order documents arrive in (so not on workers), and the seed changes
+// the order.
+func TestShuffleWithoutMix(t *testing.T) {
+	tok := mustLoad(t, "cl100k_base")
+	docs := corpus(5, tok)
+	slices.SortStableFunc(docs, func(a, b Doc) int { return strings.Compare(a.Source, b.Source) })
+	sources := func(rep *Report, run string, i int) map[string]bool {
+		out := map[string]bool{}
+		for _, l := range readShard(t, filepath.Join(run, rep.Files[i].Path)) {
+			out[l.Source] = true
+		}
+		return out
+	}
+	plain, runP := build(t, docs, Options{Tokenizer: tok, ShardTokens: 4000})
+	if n := len(sources(plain, runP, 0)); n != 1 {
+		t.Fatalf("input order: first shard has %d sources, want 1 (docs sorted by source)", n)
+	}
+	opt := Options{Tokenizer: tok, ShardTokens: 4000, Shuffle: true, Seed: 7}
+	rep, run := build(t, docs, opt)
+	if n := len(sources(rep, run, 0)); n < 2 {
+		t.Errorf("shuffled: first shard has %d source(s)", n)
+	}
+	seen := map[string]int{}
+	text := map[string]string{}
+	for _, f := range rep.Files {
+		for _, l := range readShard(t, filepath.Join(run, f.Path)) {
+			id, piece, _ := strings.Cut(l.ID, "~") // cut at a shard boundary: ID~1, ID~2
+			if piece == "" || piece == "1" {
+				seen[id]++
+			}
+			text[id] += l.Text
+		}
+	}
+	for _, d := range docs {
+		if seen[d.ID] != 1 || strings.Join(strings.Fields(text[d.ID]), " ") != strings.Join(strings.Fields(d.Text), " ") {
+			t.Fatalf("document %s written %d times, or not whole", d.ID, seen[d.ID])
+		}
+	}
+	if len(seen) != len(docs) || rep.Mix != nil {
+		t.Errorf("%d of %d documents; mix report %v", len(seen), len(docs), rep.Mix)
+	}
+	rev := slices.Clone(docs)
+	slices.Reverse(rev)
+	rep2, run2 := build(t, rev, opt)
+	a, b := shardBytes(t, run, rep), shardBytes(t, run2, rep2)
+	if len(a) != len(b) {
+		t.Fatalf("%d vs %d shards", len(a), len(b))
+	}
+	for i := range a {
+		if !bytes.Equal(a[i], b[i]) {
+			t.Fatalf("shard %d depends on arrival order", i)
+		}
+	}
+	opt.Seed = 8
+	rep3, run3 := build(t, docs, opt)
+	if bytes.Equal(a[0], shardBytes(t, run3, rep3)[0]) {
+		t.Error("another seed gives the same first shard")
+	}
+}
+
 // Every document the mix places nowhere is reported once, in input order,
 // and the reported and the written documents are all the documents, split
 // ones counted once (whatever mix of long and short documents).
@@ -586,5 +686,49 @@ func TestMixReportsLeftOut(t *testing.T) {
 	}
 	if len(left) == 0 || len(left)+len(written) != len(docs) {
 		t.Errorf("%d left out + %d written != %d documents", len(left), len(written), len(docs))
+	}
+}
+
+// A shuffled output cut by budget_tokens reports each document it leaves
+// out, with the budget as the reason, and a mix reports its source's
+// left_out_reason: the ledger's record says why, not only that.
+func TestLeftOutReason(t *testing.T) {
+	tok := mustLoad(t, "cl100k_base")
+	docs := corpus(3, tok)
+	for _, opt := range []Options{
+		{Tokenizer: tok, ShardTokens: 2000, Shuffle: true, Seed: 3, BudgetTokens: 3000},
+		{Tokenizer: tok, ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}},
+	} {
+		run := t.TempDir()
+		opt.Dir, opt.TempDir, opt.Name = filepath.Join(run, "shards"), run, "why"
+		b, err := NewBuilder(opt)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var left []LeftOut
+		b.SetLeftOut(func(l LeftOut) error { left = append(left, l); return nil })
+		for i := range docs {
+			b.Add(&docs[i])
+		}
+		rep, err := b.Close()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(left) == 0 {
+			t.Fatalf("shuffle %v: nothing left out", opt.Shuffle)
+		}
+		for _, l := range left {
+			want := "total capped at budget_tokens 3000"
+			if rep.Mix != nil {
+				for _, s := range rep.Mix.Sources {
+					if s.Source == l.Source {
+						want = s.LeftOutWhy
+					}
+				}
+			}
+			if l.Reason == "" || l.Reason != want {
+				t.Errorf("shuffle %v: %s left out with reason %q, want %q", opt.Shuffle, l.Doc, l.Reason, want)
+			}
+		}
 	}
 }

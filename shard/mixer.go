@@ -65,6 +65,27 @@ type MixSource struct {
 	DocsUsed int64 `json:"docs_used"`
 	// ShareUsed is the source's actual share of the output.
 	ShareUsed float64 `json:"share_used"`
+	// LeftOut is the source's surviving tokens not written (Available −
+	// Used, 0 when up-sampled) and LeftOutWhy says why, in words.
+	LeftOut    int64  `json:"tokens_left_out"`
+	LeftOutWhy string `json:"left_out_reason,omitempty"`
+}
+
+// LeftOutLines returns one line per source whose surviving tokens were
+// not all written, saying how many and why (nil when nothing was left
+// out).
+func (r *MixReport) LeftOutLines() []string {
+	if r == nil {
+		return nil
+	}
+	var out []string
+	for _, s := range r.Sources {
+		if s.LeftOut > 0 {
+			out = append(out, fmt.Sprintf("%s: %d of %d tokens left out (%.1f%%): %s", s.Source, s.LeftOut, s.Available,
+				100*float64(s.LeftOut)/float64(s.Available), s.LeftOutWhy))
+		}
+	}
+	return out
 }
 
 // MixReport is the manifest's mix section.
@@ -185,6 +206,15 @@ func planMix(units []unit, srcNames []string, shares map[string]float64, budget 
 		rep.Note = fmt.Sprintf("no budget: the total is the largest that source %s supplies without repetition", limiting)
 	}
 	rep.TargetTokens = int64(total)
+	var capWhy string
+	switch {
+	case rep.Mode == "budget":
+		capWhy = fmt.Sprintf("budget_tokens %d reached with a share of %%.3g", budget)
+	case budget > 0:
+		capWhy = fmt.Sprintf("total capped at %d tokens (budget %d not reachable): source %s supplies only %d tokens at max_epochs %d for its share %.3g", int64(total), budget, limiting, int64(epochs*float64(avail[present[limiting]])), maxEpochs, w[present[limiting]])
+	default:
+		capWhy = fmt.Sprintf("total capped at %d tokens: source %s has only %d tokens for its share %.3g (no budget_tokens, no repetition)", int64(total), limiting, avail[present[limiting]], w[present[limiting]])
+	}
 
 	lists := make([][]slot, k)
 	used := make([]int64, k)
@@ -240,6 +270,21 @@ func planMix(units []unit, srcNames []string, shares map[string]float64, budget 
 		if avail[i] > 0 {
 			ms.Epochs = math.Round(float64(used[i])/float64(avail[i])*1000) / 1000
 		}
+		if ms.LeftOut = max(avail[i]-used[i], 0); ms.LeftOut > 0 {
+			v, listed := shares[name]
+			switch {
+			case !listed:
+				ms.LeftOutWhy = "not in mix (add it with a share to use it)"
+			case v == 0:
+				ms.LeftOutWhy = "share 0 in mix"
+			case rep.Mode == "budget":
+				ms.LeftOutWhy = fmt.Sprintf(capWhy, w[i])
+			case name == limiting && used[i] < avail[i]:
+				ms.LeftOutWhy = "the scarcest source: its last documents would overshoot its share"
+			default:
+				ms.LeftOutWhy = capWhy
+			}
+		}
 		rep.Sources = append(rep.Sources, ms)
 	}
 	rep.TokensUsed = all
@@ -249,6 +294,38 @@ func planMix(units []unit, srcNames []string, shares map[string]float64, budget 
 		}
 	}
 	return order, rep, nil
+}
+
+// planShuffle orders every unit by its keyed hash (the pieces of one
+// document adjacent, in order), ending at the unit that brings the total
+// closest to budget when budget > 0.
+func planShuffle(units []unit, budget int64) []slot {
+	order := make([]slot, len(units))
+	for i := range units {
+		order[i] = slot{unit: uint32(i)}
+	}
+	sort.Slice(order, func(a, b int) bool {
+		ua, ub := &units[order[a].unit], &units[order[b].unit]
+		if ua.hash != ub.hash {
+			return ua.hash < ub.hash
+		}
+		if ua.piece != ub.piece {
+			return ua.piece < ub.piece
+		}
+		return order[a].unit < order[b].unit
+	})
+	if budget <= 0 {
+		return order
+	}
+	var used int64
+	for i, s := range order {
+		t := int64(units[s.unit].tokens)
+		if 2*(budget-used) <= t {
+			return order[:i]
+		}
+		used += t
+	}
+	return order
 }
 
 // interleave merges the per-source lists by position key (c+t/2)/U.

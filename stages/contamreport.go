@@ -13,14 +13,15 @@ import (
 // ContamReport is the content of OUT/contamination.json:
 //
 //	{
-//	  "stage": "decontaminate", "ngram": 13, "action": "drop",
+//	  "stage": "decontaminate", "ngram": 13, "min_item_words": 8, "action": "drop",
 //	  "max_doc_frequency": 0, "ignored_ngrams": 0,
 //	  "index_ngrams": 61234, "index_bytes_per_ngram": 15.2,
 //	  "docs_scanned": 10000, "docs_affected": 41,
 //	  "docs_dropped": 41, "docs_edited": 0, "docs_flagged": 0,
 //	  "evals": [{
 //	    "name": "hull-qa", "files": ["evals/hull-qa.jsonl"],
-//	    "items": 200, "short_items": 0,
+//	    "items": 200, "short_items": 0, "items_too_short": 1,
+//	    "too_short_to_check": ["hq-0150"],
 //	    "items_contaminated": 12, "percent_contaminated": 6,
 //	    "docs_affected": 41, "items_sharing_only": 3,
 //	    "contaminated": [{
@@ -38,10 +39,15 @@ import (
 // its n-grams that no better-matching item in the same document explains
 // (dedup.SummarizeHits); "items_sharing_only" counts the items that shared
 // n-grams with documents only through other items (e.g. eval items written
-// from one template) and are not counted as contaminated.
+// from one template) and are not counted as contaminated. "short_items"
+// counts the items matched only whole (their longest part is shorter than
+// ngram words); "too_short_to_check" lists the items with no part of
+// min_item_words words, which were not matched at all, and
+// "percent_contaminated" is over the items checked.
 type ContamReport struct {
 	Stage           string           `json:"stage"`
 	Ngram           int              `json:"ngram"`
+	MinItemWords    int              `json:"min_item_words"`
 	Action          string           `json:"action"`
 	MaxDocFrequency int              `json:"max_doc_frequency"`
 	IgnoredNgrams   int              `json:"ignored_ngrams"`
@@ -61,6 +67,8 @@ type ContamEvalStat struct {
 	Files             []string           `json:"files"`
 	Items             int                `json:"items"`
 	ShortItems        int                `json:"short_items"`
+	ItemsTooShort     int                `json:"items_too_short"`
+	TooShort          []string           `json:"too_short_to_check"`
 	ItemsContaminated int                `json:"items_contaminated"`
 	Percent           float64            `json:"percent_contaminated"`
 	DocsAffected      int64              `json:"docs_affected"`
@@ -86,9 +94,9 @@ func (r *ContamReport) WriteTable(w io.Writer) error { return r.WriteTableN(w, 0
 // per eval set (0: all) and at most contamTableDocs document ids per item.
 func (r *ContamReport) WriteTableN(w io.Writer, maxItems int) error {
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "eval set\titems\tcontaminated\t%%\tdocs affected\t\n")
+	fmt.Fprintf(tw, "eval set\titems\ttoo short to check\tcontaminated\t%%\tdocs affected\t\n")
 	for _, e := range r.Evals {
-		fmt.Fprintf(tw, "%s\t%d\t%d\t%.1f%%\t%d\t\n", e.Name, e.Items, e.ItemsContaminated, e.Percent, e.DocsAffected)
+		fmt.Fprintf(tw, "%s\t%d\t%d\t%d\t%.1f%%\t%d\t\n", e.Name, e.Items, e.ItemsTooShort, e.ItemsContaminated, e.Percent, e.DocsAffected)
 	}
 	if err := tw.Flush(); err != nil {
 		return err
@@ -99,6 +107,16 @@ func (r *ContamReport) WriteTableN(w io.Writer, maxItems int) error {
 		fmt.Fprintf(w, "; %d n-grams found in more than %d documents ignored", r.IgnoredNgrams, r.MaxDocFrequency)
 	}
 	fmt.Fprintln(w)
+	for _, e := range r.Evals {
+		if e.ItemsTooShort > 0 {
+			ids := e.TooShort[:min(len(e.TooShort), contamTableDocs)]
+			fmt.Fprintf(w, "%s: %d item(s) too short to check (fewer than %d words in every part): %s", e.Name, e.ItemsTooShort, r.MinItemWords, strings.Join(ids, ", "))
+			if more := e.ItemsTooShort - len(ids); more > 0 {
+				fmt.Fprintf(w, " (+%d more in contamination.json)", more)
+			}
+			fmt.Fprintln(w)
+		}
+	}
 	for _, e := range r.Evals {
 		if len(e.Contaminated) == 0 {
 			continue

@@ -80,7 +80,12 @@ type PerDocumenter interface {
 
 // DecontamConfig holds the decontaminate stage's parameters.
 type DecontamConfig struct {
-	Ngram           int
+	Ngram int
+	// MinItemWords: an item part (question, choice) of fewer normalized
+	// words is not matched; an item with no part that long is listed in
+	// the report as too short to check (0: DefaultMinItemWords, capped at
+	// Ngram).
+	MinItemWords    int
 	Action          string // flag | drop | cut
 	MaxDocFrequency int
 	CutMargin       int
@@ -88,20 +93,38 @@ type DecontamConfig struct {
 	MaxPieces       int
 }
 
-// DefaultDecontamConfig returns the published defaults: 13-grams and the
-// cut rule of Brown et al. 2020 (200 characters, 200 characters, 10
-// pieces).
+// DefaultMinItemWords is the default of min_item_words. Brown et al. 2020
+// (appendix C) matched each benchmark with N-grams of N words, N being
+// the benchmark's 5th-percentile example length, capped at 13 and — from
+// memory — never below 8 "due to spurious collisions at lower values".
+// Here a part of 13 words or more is matched by its 13-grams, a part of
+// 8 to 12 words must occur whole (an N-gram with N its length, inside
+// their range), and a shorter part is not matched at all.
+const DefaultMinItemWords = 8
+
+// DefaultDecontamConfig returns the published defaults: 13-grams, items
+// of at least 8 words, and the cut rule of Brown et al. 2020 (200
+// characters, 200 characters, 10 pieces).
 func DefaultDecontamConfig() DecontamConfig {
-	return DecontamConfig{Ngram: 13, Action: "drop", CutMargin: 200, MinPieceChars: 200, MaxPieces: 10}
+	return DecontamConfig{Ngram: 13, MinItemWords: DefaultMinItemWords, Action: "drop", CutMargin: 200, MinPieceChars: 200, MaxPieces: 10}
+}
+
+// minItemWords is the effective min_item_words of cfg.
+func (cfg DecontamConfig) minItemWords() int {
+	if cfg.MinItemWords <= 0 {
+		return min(DefaultMinItemWords, cfg.Ngram)
+	}
+	return cfg.MinItemWords
 }
 
 // Decontaminate is the decontaminate stage. It implements Stage (when
 // MaxDocFrequency is 0), GlobalStage, Observer and Finisher.
 type Decontaminate struct {
-	name string
-	cfg  DecontamConfig
-	idx  *dedup.ContamIndex
-	sets []*EvalSet
+	name     string
+	cfg      DecontamConfig
+	idx      *dedup.ContamIndex
+	sets     []*EvalSet
+	setStats []evalIndexStat
 	// per index item: its set and its position in the set
 	itemSet []int32
 	itemPos []int32
@@ -118,6 +141,12 @@ type Decontaminate struct {
 	npend   atomic.Int64
 }
 
+// evalIndexStat is what indexing found about one eval set.
+type evalIndexStat struct {
+	tooShort []string // ids of the items with no part of MinItemWords words
+	ngrams   int      // n-grams and whole parts indexed
+}
+
 // contamDocMatch is what Process found in one document, kept until
 // Observe records it in the report.
 type contamDocMatch struct {
@@ -130,6 +159,7 @@ type contamDocMatch struct {
 func newDecontaminateKind(p *Params, env Env) (GlobalStage, error) {
 	cfg := DefaultDecontamConfig()
 	cfg.Ngram = int(p.Int("ngram", int64(cfg.Ngram), 1, 64))
+	cfg.MinItemWords = int(p.Int("min_item_words", int64(min(cfg.MinItemWords, cfg.Ngram)), 1, 1<<20))
 	cfg.Action = p.String("action", cfg.Action, "drop", "cut", "flag")
 	cfg.MaxDocFrequency = int(p.Int("max_doc_frequency", 0, 0, 1<<40))
 	cfg.CutMargin = int(p.Int("cut_margin", int64(cfg.CutMargin), 0, 1<<20))
@@ -195,13 +225,23 @@ func NewDecontaminate(name string, cfg DecontamConfig, sets []*EvalSet) (*Decont
 	if cfg.Ngram < 1 {
 		return nil, fmt.Errorf("ngram %d: want at least 1", cfg.Ngram)
 	}
-	d := &Decontaminate{name: name, cfg: cfg, sets: sets}
+	d := &Decontaminate{name: name, cfg: cfg, sets: sets, setStats: make([]evalIndexStat, len(sets))}
 	b := dedup.NewContamBuilder(cfg.Ngram)
 	for si, set := range sets {
+		st := &d.setStats[si]
 		for pos, it := range set.Items {
-			if _, _, err := b.Add(it.Text); err != nil {
+			parts := it.Parts
+			if parts == nil {
+				parts = []string{it.Text}
+			}
+			_, words, keys, err := b.AddParts(parts, cfg.minItemWords())
+			if err != nil {
 				return nil, fmt.Errorf("eval set %q item %q: %w", set.Name, it.ID, err)
 			}
+			if words == 0 {
+				st.tooShort = append(st.tooShort, it.ID)
+			}
+			st.ngrams += keys
 			d.itemSet = append(d.itemSet, int32(si))
 			d.itemPos = append(d.itemPos, int32(pos))
 		}
@@ -233,18 +273,45 @@ func (d *Decontaminate) PerDocument() Stage {
 	return d
 }
 
-// Describe summarizes the index for `winnow check`.
+// Describe summarizes the index for `winnow check`: one line per eval
+// set (items, fields, items too short to check, n-grams indexed), a
+// warning for the sets with items too short, and the index.
 func (d *Decontaminate) Describe() string {
 	var sb strings.Builder
+	for si, set := range d.sets {
+		st := d.setStats[si]
+		fields := "every field but the id"
+		if set.Fields != nil {
+			fields = strings.Join(set.Fields, ", ")
+		}
+		fmt.Fprintf(&sb, "eval set %s (%s, %s): %d items; fields %s; %d too short to check (< %d words); %d n-grams indexed\n",
+			set.Name, strings.Join(set.Files, ", "), strings.Join(slices.Compact(slices.Clone(set.Formats)), "+"),
+			len(set.Items), fields, len(st.tooShort), d.cfg.minItemWords(), st.ngrams)
+	}
+	for si, set := range d.sets {
+		if n := len(d.setStats[si].tooShort); n > 0 {
+			fmt.Fprintf(&sb, "warning: eval set %s: %d of %d items have no part of %d words or more and will not be checked (min_item_words); "+
+				"they are listed in contamination.json as too_short_to_check\n", set.Name, n, len(set.Items), d.cfg.minItemWords())
+		}
+	}
 	fmt.Fprintf(&sb, "%d-gram index of %d items in %d eval sets: %d n-grams, %.1f MB (%.1f bytes/n-gram)",
 		d.cfg.Ngram, d.idx.Items(), len(d.sets), d.idx.KeyCount(), float64(d.idx.Bytes())/1e6, d.idx.BytesPerNgram())
 	if l := d.idx.ShortLengths(); len(l) > 0 {
-		fmt.Fprintf(&sb, "; items shorter than %d words matched whole (lengths %v)", d.cfg.Ngram, l)
+		fmt.Fprintf(&sb, "; parts shorter than %d words matched whole (lengths %v)", d.cfg.Ngram, l)
 	}
 	if d.cfg.MaxDocFrequency > 0 {
 		fmt.Fprintf(&sb, "; n-grams in more than %d documents ignored (global counting pass)", d.cfg.MaxDocFrequency)
 	}
 	return sb.String()
+}
+
+// TooShort returns, per eval set, the ids of the items too short to check.
+func (d *Decontaminate) TooShort() [][]string {
+	out := make([][]string, len(d.sets))
+	for i, st := range d.setStats {
+		out[i] = st.tooShort
+	}
+	return out
 }
 
 // MetricNames lists the per-document measurements.
@@ -386,6 +453,7 @@ func (d *Decontaminate) decide(doc *Doc, ignore []uint64) Decision {
 			dec.Changes = map[string]int{"pieces": 0, "chars_removed": r.Removed}
 		default:
 			dec = EditDoc("contaminated", strings.Join(r.Pieces, "\n\n"), map[string]int{"pieces": len(r.Pieces), "chars_removed": r.Removed})
+			dec.Value = windows // as for the drop and the flag of the same rule
 		}
 	}
 	dec.Extra = extra
@@ -529,7 +597,7 @@ func (r *contamReportState) add(doc *Doc, dec *Decision, m *contamDocMatch) {
 func (d *Decontaminate) Report() *ContamReport {
 	r := &d.rep
 	out := &ContamReport{
-		Stage: d.name, Ngram: d.cfg.Ngram, Action: d.cfg.Action,
+		Stage: d.name, Ngram: d.cfg.Ngram, MinItemWords: d.cfg.minItemWords(), Action: d.cfg.Action,
 		MaxDocFrequency: d.cfg.MaxDocFrequency, IgnoredNgrams: d.ignored,
 		IndexNgrams: d.idx.KeyCount(), IndexBytesPer: roundMetric(d.idx.BytesPerNgram()),
 		DocsScanned: r.docs, DocsAffected: r.affected,
@@ -543,9 +611,10 @@ func (d *Decontaminate) Report() *ContamReport {
 	item := uint32(0)
 	for si, set := range d.sets {
 		st := ContamEvalStat{Name: set.Name, Files: set.Files, Items: len(set.Items), DocsAffected: r.setDocs[si],
-			Contaminated: []ContamItemReport{}}
+			Contaminated: []ContamItemReport{}, TooShort: append([]string{}, d.setStats[si].tooShort...)}
+		st.ItemsTooShort = len(st.TooShort)
 		for range set.Items {
-			if d.idx.ItemWords(int(item)) < d.cfg.Ngram {
+			if w := d.idx.ItemWords(int(item)); w > 0 && w < d.cfg.Ngram {
 				st.ShortItems++
 			}
 			if r.shared[item] && r.items[item] == nil {
@@ -559,8 +628,8 @@ func (d *Decontaminate) Report() *ContamReport {
 			}
 		}
 		st.ItemsContaminated = len(st.Contaminated)
-		if st.Items > 0 {
-			st.Percent = roundMetric(100 * float64(st.ItemsContaminated) / float64(st.Items))
+		if checked := st.Items - st.ItemsTooShort; checked > 0 {
+			st.Percent = roundMetric(100 * float64(st.ItemsContaminated) / float64(checked))
 		}
 		out.Evals = append(out.Evals, st)
 	}

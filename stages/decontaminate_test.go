@@ -42,7 +42,7 @@ func contamJSONL(t *testing.T) []byte {
 	for _, rec := range []map[string]any{
 		{"id": "hq-1", "question": contamQ1, "answer": contamA1},
 		{"id": "hq-2", "question": contamQ2, "answer": "To confirm the first reading."},
-		{"id": 3, "question": "Which sealant suits teak decks?", "answer": "polysulphide"},
+		{"id": 3, "question": "Which sealant suits the teak decks of a Larkspur ketch?", "answer": "polysulphide"},
 	} {
 		if err := enc.Encode(rec); err != nil {
 			t.Fatal(err)
@@ -102,13 +102,20 @@ func TestLoadEvalSetFormats(t *testing.T) {
 	if err != nil || len(set.Items) != 3 || set.Items[1].ID != "lines.txt:3" {
 		t.Errorf("lines: %+v %v", set, err)
 	}
-	set, err = LoadEvalSet(EvalSpec{Name: "b", Paths: []string{"blocks.txt"}, Dir: dir})
+	set, err = LoadEvalSet(EvalSpec{Name: "b", Paths: []string{"blocks.txt"}, Dir: dir, Format: "blocks"})
 	if err != nil || len(set.Items) != 2 || set.Items[0].Text != "block one\ncontinues" || set.Items[1].ID != "blocks.txt:4" {
-		t.Errorf("blocks (auto): %+v %v", set, err)
+		t.Errorf("blocks: %+v %v", set, err)
 	}
-	set, err = LoadEvalSet(EvalSpec{Name: "g", Paths: []string{"*.txt"}, Dir: dir})
+	set, err = LoadEvalSet(EvalSpec{Name: "g", Paths: []string{"*.txt"}, Dir: dir, Format: "lines"})
 	if err != nil || len(set.Files) != 2 || set.Files[0] != "blocks.txt" {
 		t.Errorf("glob: %+v %v", set, err)
+	}
+	// Plain text is never guessed: a text file read as items by accident
+	// was how one CSV set became one item.
+	_, err = LoadEvalSet(EvalSpec{Name: "b", Paths: []string{"blocks.txt"}, Dir: dir})
+	if err == nil || !strings.Contains(err.Error(), "blocks.txt: cannot read as an eval set: plain text") ||
+		!strings.Contains(err.Error(), "format: lines or blocks") {
+		t.Errorf("auto on plain text: %v", err)
 	}
 }
 
@@ -119,6 +126,12 @@ func TestLoadEvalSetErrors(t *testing.T) {
 	contamWriteFile(t, filepath.Join(dir, "nofield.jsonl"), []byte(`{"id":"a","prompt":"one"}`+"\n"))
 	contamWriteFile(t, filepath.Join(dir, "noid.jsonl"), []byte(`{"key":"a","question":"one"}`+"\n"))
 	contamWriteFile(t, filepath.Join(dir, "empty.jsonl"), []byte(`{"id":"a","question":"?!"}`+"\n"))
+	contamWriteFile(t, filepath.Join(dir, "mc.jsonl"), []byte(`{"id":"a","question":"one two","choices":["x","y"],"label":1}`+"\n"+
+		`{"id":"b","question":"one two","choices":["x","y"],"label":"E"}`+"\n"))
+	contamWriteFile(t, filepath.Join(dir, "ragged.csv"), []byte("id,question\na,one two\nb,three,four\n"))
+	contamWriteFile(t, filepath.Join(dir, "arr.json"), []byte(`[{"id":"a","question":"one"}]`))
+	contamWriteFile(t, filepath.Join(dir, "bin.dat"), []byte("\x00\x01\x02PK"))
+	contamWriteFile(t, filepath.Join(dir, "fake.parquet"), []byte(`{"id":"a","question":"one"}`+"\n"))
 	contamWriteFile(t, filepath.Join(dir, "numfield.jsonl"), []byte(`{"id":"a","question":"Which cleat?","answer":"horn"}`+"\n"+`{"id":"b","question":"How many bolts?","answer":12}`+"\n"))
 	contamWriteFile(t, filepath.Join(dir, "emptyfield.jsonl"), []byte(`{"id":"a","question":"Which cleat?","answer":"horn"}`+"\n"+`{"id":"b","question":"","answer":"twelve"}`+"\n"))
 	contamWriteFile(t, filepath.Join(dir, "allnum.jsonl"), []byte(`{"id":"a","label":3,"score":0.5}`+"\n"))
@@ -133,6 +146,12 @@ func TestLoadEvalSetErrors(t *testing.T) {
 		{EvalSpec{Paths: []string{"noid.jsonl"}, IDField: "id", IDExplicit: true}, `noid.jsonl:1: no id field "id"`},
 		{EvalSpec{Paths: []string{"empty.jsonl"}}, `empty.jsonl:1: item "a" has no words`},
 		{EvalSpec{Paths: []string{"missing.jsonl"}}, `path "missing.jsonl"`},
+		{EvalSpec{Paths: []string{"mc.jsonl"}, Fields: []string{"choices[label]"}}, `mc.jsonl:2: item "b": field choices[label]: label "E" is out of range for 2 elements`},
+		{EvalSpec{Paths: []string{"mc.jsonl"}, Fields: []string{"question[label]"}}, `mc.jsonl:1: item "a": field question[label]: "question" is not a list`},
+		{EvalSpec{Paths: []string{"ragged.csv"}}, `ragged.csv: record on line 3: wrong number of fields`},
+		{EvalSpec{Paths: []string{"arr.json"}}, `arr.json: cannot read as an eval set: a JSON array, not JSON lines`},
+		{EvalSpec{Paths: []string{"bin.dat"}}, `bin.dat: cannot read as an eval set: binary data`},
+		{EvalSpec{Paths: []string{"fake.parquet"}, Format: "parquet"}, `fake.parquet: not a Parquet file`},
 		// A field of the wrong type or an empty one is named with its line,
 		// not counted as a short item.
 		{EvalSpec{Paths: []string{"numfield.jsonl"}, Fields: []string{"question", "answer"}}, `numfield.jsonl:2: item "b": field "answer" is a number (12), want text`},
@@ -264,13 +283,18 @@ func TestDecontaminateActions(t *testing.T) {
 		t.Errorf("flag: %+v", dec)
 	}
 
-	// The short item (< 13 words) is matched as an exact word sequence.
-	shortItem := &Doc{ID: "forum/6", Text: "Q: which sealant suits teak decks, polysulphide! Thanks.", Order: MakeOrderKey(0, 6)}
+	// The short question (10 words: between min_item_words and ngram) is
+	// matched as an exact word sequence; its one-word answer is too short
+	// to be matched at all, so it neither matches nor glues onto the
+	// question.
+	shortItem := &Doc{ID: "forum/6", Text: "Q: which sealant suits the teak decks of a Larkspur ketch? Thanks.", Order: MakeOrderKey(0, 6)}
 	if dec := drop.Process(shortItem); dec.Action != Drop || dec.Extra["item"] != "3" {
 		t.Errorf("short item: %+v", dec)
 	}
-	if dec := drop.Process(&Doc{ID: "x", Text: "which sealant suits teak decks"}); dec.Action != Keep {
-		t.Errorf("part of a short item matched: %+v", dec)
+	for _, text := range []string{"which sealant suits the teak decks", "we used polysulphide on deck"} {
+		if dec := drop.Process(&Doc{ID: "x", Text: text}); dec.Action != Keep {
+			t.Errorf("part of a short item matched %q: %+v", text, dec)
+		}
 	}
 }
 

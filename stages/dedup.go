@@ -254,7 +254,9 @@ func (s *exactDedupStage) Apply(d *Doc) Decision {
 			dec.Changes = map[string]int{"paragraphs_removed": n}
 			return dec
 		}
-		return EditDoc("repeated_paragraph", text, map[string]int{"paragraphs_removed": n})
+		dec := EditDoc("repeated_paragraph", text, map[string]int{"paragraphs_removed": n})
+		dec.Value, dec.Limit = n, s.maxRepeats // the same value type as the drop of the same rule
+		return dec
 	}
 	m, ok := s.idx.Lookup(uint64(d.Order))
 	if !ok {

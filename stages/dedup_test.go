@@ -166,7 +166,7 @@ func TestParagraphScopeStage(t *testing.T) {
 	edits, drops := 0, 0
 	for _, s := range got {
 		switch {
-		case strings.HasPrefix(s, "edit repeated_paragraph <nil> map[paragraphs_removed:1]"):
+		case strings.HasPrefix(s, "edit repeated_paragraph 1 map[paragraphs_removed:1]"): // value: paragraphs removed, as for the drop
 			edits++
 		case strings.HasPrefix(s, "drop repeated_paragraph 1 map[paragraphs_removed:1]"):
 			drops++

@@ -2,39 +2,59 @@ package stages
 
 // Eval sets for contamination checks.
 //
-// An eval set is a named list of items loaded from one or more files:
+// An eval set is a named list of items loaded from one or more files. The
+// format of each file is found from its content, as for inputs: Parquet by
+// its magic bytes, then (after gzip or zstd, also found by magic bytes)
+// JSON lines when the first non-blank byte is "{", CSV or TSV when the
+// name says so (.csv, .tsv, .tab) and the first line is a header of two or
+// more columns. Anything else is refused with a message naming the file:
+// plain text is read only when format says lines (one item per non-blank
+// line) or blocks (one item per blank-line-separated block).
 //
-//   - JSONL (one object per line), optionally gzip- or zstd-compressed
-//     (detected by magic bytes, not by file name). The item text is made
-//     of the configured fields, in the configured order, joined by new
-//     lines. A field is a key or a dotted path ("question.stem"); a path
-//     through a list visits every element ("choices.text"); a list of
-//     strings contributes every string; an object contributes every
-//     string inside it, in file order; numbers contribute their literal.
-//     With no fields configured, every top-level value except the id
-//     field makes up the text, in the record's key order.
-//   - plain text, one item per non-blank line ("lines") or one item per
-//     blank-line-separated block ("blocks"). "auto" picks JSONL for
-//     .jsonl/.json/.ndjson names or content starting with "{", else
-//     blocks when the file has a block of several lines, else lines.
+// Records (a JSON object, a Parquet row, a CSV/TSV row keyed by the header)
+// become items through the configured fields, in order:
+//
+//   - "question": a string, a number's literal, or every string inside a
+//     list or an object, in file order;
+//   - "question.stem": a nested field (a list on the way is visited element
+//     by element; a key that itself contains dots, like a CSV column
+//     "meta.title", is matched whole first);
+//   - "choices[label]": the element of the list choices chosen by the
+//     field label, an integer counted from 0 or a letter (A is the first);
+//     the gold answer of a multiple-choice item.
+//
+// Every string found is a separate part of the item: a list of choices is
+// four texts, not one glued text, so no n-gram spans two choices and a
+// short choice is judged on its own length (see
+// dedup.ContamBuilder.AddParts). With no fields configured, every
+// top-level value except the id field makes up the item. In CSV and TSV a
+// cell holding a JSON array or object (as a database's to_json writes a
+// list or a struct) is read as that value; an empty cell is no value.
 //
 // Item ids come from id_field (default "id"; strings or numbers). A record
-// without it gets "<file name>:<line>", unless id_field was set
-// explicitly, which makes a missing id an error. Ids must be unique within
-// a set. A malformed line, a record with none of the fields, or an item
-// with no words is an error naming the file and line: a contamination
-// report that silently skipped items would prove nothing.
+// without it gets "<file name>:<line>" (the row number for Parquet),
+// unless id_field was set explicitly, which makes a missing id an error.
+// Ids must be unique within a set. A malformed record, a record with none
+// of the fields, an index out of range or an item with no words is an
+// error naming the file and line: a contamination report that silently
+// skipped items would prove nothing.
 
 import (
 	"bufio"
 	"bytes"
+	"encoding/csv"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"os"
 	"path/filepath"
+	"slices"
+	"sort"
 	"strconv"
 	"strings"
+
+	"github.com/parquet-go/parquet-go"
 
 	"winnow/dedup"
 	"winnow/stages/read"
@@ -61,26 +81,32 @@ type EvalSpec struct {
 	// a record without it is an error.
 	IDField    string
 	IDExplicit bool
-	// Format is auto, jsonl, lines or blocks.
+	// Format is one of EvalFormats.
 	Format string
 }
 
-// EvalFormats lists the accepted eval-set formats.
-var EvalFormats = []string{"auto", "jsonl", "lines", "blocks"}
+// EvalFormats lists the accepted eval-set formats ("auto" sniffs jsonl,
+// parquet, csv or tsv; lines and blocks are plain text, never guessed).
+var EvalFormats = []string{"auto", "jsonl", "parquet", "csv", "tsv", "lines", "blocks"}
 
 // EvalItem is one loaded eval item.
 type EvalItem struct {
-	ID   string
-	Text string
-	File string
-	Line int64
+	ID string
+	// Parts are the item's texts, one per string found (a question, each
+	// choice); Text is them joined by new lines, for display.
+	Parts []string
+	Text  string
+	File  string
+	Line  int64
 }
 
 // EvalSet is a loaded eval set.
 type EvalSet struct {
-	Name  string
-	Files []string // as displayed (relative to the spec directory when inside it)
-	Items []EvalItem
+	Name    string
+	Files   []string // as displayed (relative to the spec directory when inside it)
+	Formats []string // per file, the format read
+	Fields  []string // the configured fields (nil: every field but the id)
+	Items   []EvalItem
 }
 
 // LoadEvalSet reads every file of spec, in path order (globs sorted).
@@ -91,7 +117,7 @@ func LoadEvalSet(spec EvalSpec) (*EvalSet, error) {
 	if spec.Format == "" {
 		spec.Format = "auto"
 	}
-	set := &EvalSet{Name: spec.Name}
+	set := &EvalSet{Name: spec.Name, Fields: spec.Fields}
 	seen := map[string]string{} // id -> file:line
 	if len(spec.Paths) == 0 {
 		return nil, fmt.Errorf("eval set %q: no paths", spec.Name)
@@ -113,10 +139,11 @@ func LoadEvalSet(spec EvalSpec) (*EvalSet, error) {
 				}
 			}
 			set.Files = append(set.Files, disp)
-			items, err := readEvalFile(f, disp, spec)
+			items, format, err := readEvalFile(f, disp, spec)
 			if err != nil {
 				return nil, fmt.Errorf("eval set %q: %w", spec.Name, err)
 			}
+			set.Formats = append(set.Formats, format)
 			for _, it := range items {
 				if prev, dup := seen[it.ID]; dup {
 					return nil, fmt.Errorf("eval set %q: %s:%d: duplicate item id %q (first at %s)", spec.Name, disp, it.Line, it.ID, prev)
@@ -132,31 +159,120 @@ func LoadEvalSet(spec EvalSpec) (*EvalSet, error) {
 	return set, nil
 }
 
-func readEvalFile(path, disp string, spec EvalSpec) ([]EvalItem, error) {
+// readEvalFile reads the items of one file and says which format it read.
+func readEvalFile(path, disp string, spec EvalSpec) ([]EvalItem, string, error) {
+	format := spec.Format
+	if format == "" || format == "auto" || format == "parquet" {
+		isPQ, err := isParquetFile(path)
+		if err != nil {
+			return nil, "", err
+		}
+		switch {
+		case isPQ:
+			items, err := readEvalParquet(path, disp, spec)
+			return items, "parquet", err
+		case format == "parquet":
+			return nil, "", fmt.Errorf("%s: not a Parquet file (no PAR1 magic bytes)", disp)
+		}
+	}
 	f, err := read.OpenFile(path)
 	if err != nil {
-		return nil, err
+		return nil, "", err
 	}
 	defer f.Close()
 	dec, err := read.Decode(f)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %w", disp, err)
+		return nil, "", fmt.Errorf("%s: %w", disp, err)
 	}
 	defer dec.Close()
-	items, err := parseEvalItems(dec, disp, spec)
-	if err != nil {
-		return nil, err
+	br := bufio.NewReaderSize(dec, 256<<10)
+	if format == "" || format == "auto" {
+		if format, err = sniffEvalFormat(disp, br); err != nil {
+			return nil, "", err
+		}
 	}
-	return items, nil
+	var items []EvalItem
+	switch format {
+	case "csv", "tsv":
+		items, err = readEvalCSV(br, disp, format, spec)
+	default:
+		spec.Format = format
+		items, err = parseEvalItems(br, disp, spec)
+	}
+	return items, format, err
 }
 
-// parseEvalItems reads items from decompressed bytes r; disp names the
-// file in ids and errors.
+// isParquetFile reports whether the file at path starts and ends with the
+// Parquet magic bytes.
+func isParquetFile(path string) (bool, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return false, err
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil || !st.Mode().IsRegular() || st.Size() < 12 {
+		return false, err
+	}
+	var head, tail [4]byte
+	if _, err := f.ReadAt(head[:], 0); err != nil {
+		return false, err
+	}
+	if _, err := f.ReadAt(tail[:], st.Size()-4); err != nil {
+		return false, err
+	}
+	return string(head[:]) == "PAR1" && string(tail[:]) == "PAR1", nil
+}
+
+// sniffEvalFormat tells jsonl, csv or tsv from the decompressed content
+// and the name, or refuses the file.
+func sniffEvalFormat(disp string, br *bufio.Reader) (string, error) {
+	head, _ := br.Peek(64 << 10)
+	t := bytes.TrimLeft(bytes.TrimPrefix(head, []byte("\ufeff")), " \t\r\n")
+	if len(t) > 0 && t[0] == '{' {
+		return "jsonl", nil
+	}
+	name := strings.ToLower(disp)
+	for _, suf := range []string{".gz", ".gzip", ".zst", ".zstd"} {
+		name = strings.TrimSuffix(name, suf)
+	}
+	first, _, _ := bytes.Cut(t, []byte("\n"))
+	first = bytes.TrimRight(first, "\r")
+	switch ext := filepath.Ext(name); {
+	case ext == ".csv" && bytes.Contains(first, []byte(",")):
+		return "csv", nil
+	case (ext == ".tsv" || ext == ".tab") && bytes.Contains(first, []byte("\t")):
+		return "tsv", nil
+	}
+	what := "plain text"
+	switch {
+	case len(t) == 0:
+		what = "empty"
+	case bytes.IndexByte(head, 0) >= 0:
+		what = "binary data"
+	case t[0] == '[':
+		what = "a JSON array, not JSON lines"
+	}
+	return "", fmt.Errorf("%s: cannot read as an eval set: %s; eval files are JSON lines, Parquet, or CSV/TSV with a header row "+
+		"(named .csv, .tsv), optionally gzip or zstd; for plain text set format: lines or blocks", disp, what)
+}
+
+// parseEvalItems reads items from decompressed bytes r in spec.Format
+// (jsonl, lines or blocks); disp names the file in ids and errors.
 func parseEvalItems(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error) {
-	br := bufio.NewReaderSize(r, 256<<10)
+	br, ok := r.(*bufio.Reader)
+	if !ok {
+		br = bufio.NewReaderSize(r, 256<<10)
+	}
 	format := spec.Format
 	if format == "auto" || format == "" {
-		format = guessEvalFormat(disp, br)
+		var err error
+		if format, err = sniffEvalFormat(disp, br); err != nil {
+			return nil, err
+		}
+		if format != "jsonl" {
+			return readEvalCSV(br, disp, format, spec)
+		}
 	}
 	var lines []evalLine
 	var items []EvalItem
@@ -193,7 +309,7 @@ func parseEvalItems(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error)
 	case "lines":
 		for _, l := range lines {
 			if strings.TrimSpace(l.text) != "" {
-				items = append(items, EvalItem{ID: fmt.Sprintf("%s:%d", base, l.n), Text: l.text, File: disp, Line: l.n})
+				items = append(items, EvalItem{ID: fmt.Sprintf("%s:%d", base, l.n), Text: l.text, Parts: []string{l.text}, File: disp, Line: l.n})
 			}
 		}
 	case "blocks":
@@ -202,12 +318,20 @@ func parseEvalItems(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error)
 	default:
 		return nil, fmt.Errorf("%s: unknown eval format %q (want %s)", disp, format, strings.Join(EvalFormats, " | "))
 	}
-	for _, it := range items {
-		if dedup.NormalizeWords(it.Text) == "" {
-			return nil, fmt.Errorf("%s:%d: item %q has no words", disp, it.Line, it.ID)
-		}
+	if err := checkEvalWords(items, disp); err != nil {
+		return nil, err
 	}
 	return items, nil
+}
+
+// checkEvalWords refuses an item with no words at all.
+func checkEvalWords(items []EvalItem, disp string) error {
+	for _, it := range items {
+		if dedup.NormalizeWords(it.Text) == "" {
+			return fmt.Errorf("%s:%d: item %q has no words", disp, it.Line, it.ID)
+		}
+	}
+	return nil
 }
 
 type evalLine struct {
@@ -221,7 +345,8 @@ func evalBlocks(lines []evalLine, base, disp string) []EvalItem {
 	var first int64
 	flush := func() {
 		if len(cur) > 0 {
-			items = append(items, EvalItem{ID: fmt.Sprintf("%s:%d", base, first), Text: strings.Join(cur, "\n"), File: disp, Line: first})
+			text := strings.Join(cur, "\n")
+			items = append(items, EvalItem{ID: fmt.Sprintf("%s:%d", base, first), Text: text, Parts: []string{text}, File: disp, Line: first})
 		}
 		cur = cur[:0]
 	}
@@ -266,33 +391,6 @@ func readEvalLine(br *bufio.Reader) ([]byte, error) {
 			return nil, err
 		}
 	}
-}
-
-// guessEvalFormat picks jsonl, blocks or lines from the name and content.
-func guessEvalFormat(disp string, br *bufio.Reader) string {
-	name := strings.ToLower(disp)
-	for _, suf := range []string{".gz", ".zst", ".zstd", ".gzip"} {
-		name = strings.TrimSuffix(name, suf)
-	}
-	for _, suf := range []string{".jsonl", ".json", ".ndjson"} {
-		if strings.HasSuffix(name, suf) {
-			return "jsonl"
-		}
-	}
-	head, _ := br.Peek(1 << 20)
-	if t := bytes.TrimLeft(head, " \t\r\n\ufeff"); len(t) > 0 && t[0] == '{' {
-		return "jsonl"
-	}
-	// Blocks when some block has two or more lines, else one item per line.
-	prevText := false
-	for _, l := range bytes.Split(head, []byte("\n")) {
-		isText := len(bytes.TrimSpace(l)) > 0
-		if isText && prevText {
-			return "blocks"
-		}
-		prevText = isText
-	}
-	return "lines"
 }
 
 // jsonNode is a JSON value that keeps object keys in file order.
@@ -417,18 +515,33 @@ func (n *jsonNode) texts(out []string) []string {
 }
 
 func parseEvalJSON(line []byte, base string, ln int64, spec EvalSpec) (EvalItem, error) {
-	dec := json.NewDecoder(bytes.NewReader(line))
-	dec.UseNumber()
-	root, err := decodeJSONNode(dec, 0)
+	root, err := decodeEvalJSON(line)
 	if err != nil {
-		return EvalItem{}, fmt.Errorf("invalid JSON: %v", err)
-	}
-	if _, err := dec.Token(); err != io.EOF {
-		return EvalItem{}, errors.New("invalid JSON: data after the object")
+		return EvalItem{}, err
 	}
 	if root.kind != 'o' {
 		return EvalItem{}, errors.New("want a JSON object")
 	}
+	return evalItemFromNode(root, base, ln, spec)
+}
+
+// decodeEvalJSON decodes one complete JSON value.
+func decodeEvalJSON(b []byte) (*jsonNode, error) {
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.UseNumber()
+	root, err := decodeJSONNode(dec, 0)
+	if err != nil {
+		return nil, fmt.Errorf("invalid JSON: %v", err)
+	}
+	if _, err := dec.Token(); err != io.EOF {
+		return nil, errors.New("invalid JSON: data after the value")
+	}
+	return root, nil
+}
+
+// evalItemFromNode makes an item of one record (an object node), whatever
+// file format it came from.
+func evalItemFromNode(root *jsonNode, base string, ln int64, spec EvalSpec) (EvalItem, error) {
 	it := EvalItem{Line: ln}
 	switch idv := root.get(spec.IDField); {
 	case idv != nil && (idv.kind == 's' || idv.kind == 'n') && idv.str != "":
@@ -479,7 +592,11 @@ func parseEvalJSON(line []byte, base string, ln int64, spec EvalSpec) (EvalItem,
 	} else {
 		var nodes []*jsonNode
 		for _, f := range spec.Fields {
-			nodes = root.resolve(f, nodes[:0])
+			var err error
+			nodes, err = resolveEvalField(root, f, nodes[:0])
+			if err != nil {
+				return it, fmt.Errorf("item %q: %w", it.ID, err)
+			}
 			for _, v := range nodes {
 				switch {
 				case v.kind == 'n':
@@ -501,6 +618,247 @@ func parseEvalJSON(line []byte, base string, ln int64, spec EvalSpec) (EvalItem,
 		}
 		return it, fmt.Errorf("item %q has none of the fields %s (set fields:)", it.ID, strings.Join(spec.Fields, ", "))
 	}
+	it.Parts = parts
 	it.Text = strings.Join(parts, "\n")
 	return it, nil
+}
+
+// resolveEvalField appends the nodes of one configured field: a dotted
+// path, or "list[index]" choosing one element of a list by the value of
+// another field (an integer from 0 or a letter, A being the first).
+func resolveEvalField(root *jsonNode, field string, out []*jsonNode) ([]*jsonNode, error) {
+	listPath, idxPath, ok := splitIndexedField(field)
+	if !ok {
+		return root.resolve(field, out), nil
+	}
+	idxs := root.resolve(idxPath, nil)
+	if len(idxs) == 0 || idxs[0].kind == 'z' {
+		return out, nil // no answer given: the field contributes nothing
+	}
+	if len(idxs) > 1 || (idxs[0].kind != 'n' && idxs[0].kind != 's') {
+		return out, fmt.Errorf("field %s: %q is not one integer or letter", field, idxPath)
+	}
+	lists := root.resolve(listPath, nil)
+	if len(lists) != 1 || lists[0].kind != 'a' {
+		return out, fmt.Errorf("field %s: %q is not a list", field, listPath)
+	}
+	list := lists[0]
+	i, err := evalChoiceIndex(idxs[0].str)
+	if err != nil {
+		return out, fmt.Errorf("field %s: %s %w", field, idxPath, err)
+	}
+	if i >= len(list.vals) {
+		return out, fmt.Errorf("field %s: %s %q is out of range for %d elements", field, idxPath, idxs[0].str, len(list.vals))
+	}
+	return append(out, list.vals[i]), nil
+}
+
+// splitIndexedField splits "choices[label]" into "choices" and "label".
+func splitIndexedField(field string) (list, index string, ok bool) {
+	if !strings.HasSuffix(field, "]") {
+		return "", "", false
+	}
+	i := strings.LastIndexByte(field, '[')
+	if i <= 0 || i+2 >= len(field) {
+		return "", "", false
+	}
+	return field[:i], field[i+1 : len(field)-1], true
+}
+
+// evalChoiceIndex reads an answer index: "2" is 2, "C" or "c" is 2.
+func evalChoiceIndex(s string) (int, error) {
+	s = strings.TrimSpace(s)
+	if n, err := strconv.Atoi(s); err == nil {
+		if n < 0 {
+			return 0, fmt.Errorf("%q is negative", s)
+		}
+		return n, nil
+	}
+	if len(s) == 1 {
+		switch c := s[0]; {
+		case c >= 'A' && c <= 'Z':
+			return int(c - 'A'), nil
+		case c >= 'a' && c <= 'z':
+			return int(c - 'a'), nil
+		}
+	}
+	return 0, fmt.Errorf("%q is not an integer or a letter A-Z", s)
+}
+
+// readEvalCSV reads a CSV or TSV file with a header row: every row is a
+// record keyed by the header.
+func readEvalCSV(r io.Reader, disp, format string, spec EvalSpec) ([]EvalItem, error) {
+	cr := csv.NewReader(r)
+	if format == "tsv" {
+		cr.Comma = '\t'
+	}
+	cr.ReuseRecord = true
+	header, err := cr.Read()
+	if err != nil {
+		if err == io.EOF {
+			return nil, fmt.Errorf("%s: empty %s file (want a header row)", disp, strings.ToUpper(format))
+		}
+		return nil, fmt.Errorf("%s: %w", disp, err)
+	}
+	header = slices.Clone(header)
+	header[0] = strings.TrimPrefix(header[0], "\ufeff")
+	seen := map[string]bool{}
+	for i, h := range header {
+		if h == "" || seen[h] {
+			return nil, fmt.Errorf("%s:1: header column %d is empty or repeated (%q)", disp, i+1, h)
+		}
+		seen[h] = true
+	}
+	base := filepath.Base(disp)
+	var items []EvalItem
+	for {
+		row, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, fmt.Errorf("%s: %w", disp, err) // csv.ParseError names the line
+		}
+		ln, _ := cr.FieldPos(0)
+		root := &jsonNode{kind: 'o'}
+		for i, cell := range row {
+			root.keys = append(root.keys, header[i])
+			root.vals = append(root.vals, evalCellNode(cell))
+		}
+		it, err := evalItemFromNode(root, base, int64(ln), spec)
+		if err != nil {
+			return nil, fmt.Errorf("%s:%d: %w", disp, ln, err)
+		}
+		it.File = disp
+		items = append(items, it)
+	}
+	if err := checkEvalWords(items, disp); err != nil {
+		return nil, err
+	}
+	return items, nil
+}
+
+// evalCellNode reads one CSV cell: a JSON array or object when it holds
+// one, no value when empty, else a string.
+func evalCellNode(cell string) *jsonNode {
+	t := strings.TrimSpace(cell)
+	if t == "" {
+		return &jsonNode{kind: 'z'}
+	}
+	if t[0] == '[' || t[0] == '{' {
+		if n, err := decodeEvalJSON([]byte(t)); err == nil {
+			return n
+		}
+	}
+	return &jsonNode{kind: 's', str: cell}
+}
+
+// readEvalParquet reads a Parquet file row by row (one batch in memory);
+// the row number is the item's line.
+func readEvalParquet(path, disp string, spec EvalSpec) ([]EvalItem, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, err
+	}
+	pf, err := parquet.OpenFile(f, st.Size())
+	if err != nil {
+		return nil, fmt.Errorf("%s: parquet: %w", disp, err)
+	}
+	r := parquet.NewGenericReader[any](pf)
+	defer r.Close()
+	base := filepath.Base(disp)
+	schema := pf.Schema()
+	buf := make([]any, 64)
+	var items []EvalItem
+	var ln int64
+	for {
+		n, err := r.Read(buf)
+		for _, v := range buf[:n] {
+			ln++
+			root := parquetNode(v, schema)
+			if root.kind != 'o' {
+				return nil, fmt.Errorf("%s: row %d: not a record", disp, ln)
+			}
+			it, err := evalItemFromNode(root, base, ln, spec)
+			if err != nil {
+				return nil, fmt.Errorf("%s: row %d: %w", disp, ln, err)
+			}
+			it.File = disp
+			items = append(items, it)
+		}
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, fmt.Errorf("%s: row %d: parquet: %w", disp, ln+1, err)
+		}
+	}
+	if err := checkEvalWords(items, disp); err != nil {
+		return nil, err
+	}
+	return items, nil
+}
+
+// parquetNode converts one decoded Parquet value to a node; the fields of
+// a record keep the schema's order (node describes v; nil when unknown).
+func parquetNode(v any, node parquet.Node) *jsonNode {
+	switch x := v.(type) {
+	case nil:
+		return &jsonNode{kind: 'z'}
+	case string:
+		return &jsonNode{kind: 's', str: x}
+	case []byte:
+		return &jsonNode{kind: 's', str: string(x)}
+	case bool:
+		return &jsonNode{kind: 'b', str: strconv.FormatBool(x)}
+	case map[string]any:
+		n := &jsonNode{kind: 'o'}
+		var order []string
+		children := map[string]parquet.Node{}
+		if node != nil && !node.Leaf() {
+			for _, f := range node.Fields() {
+				order = append(order, f.Name())
+				children[f.Name()] = f
+			}
+		}
+		var rest []string
+		for k := range x {
+			if _, ok := children[k]; !ok {
+				rest = append(rest, k)
+			}
+		}
+		sort.Strings(rest)
+		for _, k := range append(order, rest...) {
+			if val, ok := x[k]; ok {
+				n.keys = append(n.keys, k)
+				n.vals = append(n.vals, parquetNode(val, children[k]))
+			}
+		}
+		return n
+	case []any:
+		elem := parquetListElement(node)
+		n := &jsonNode{kind: 'a'}
+		for _, e := range x {
+			n.vals = append(n.vals, parquetNode(e, elem))
+		}
+		return n
+	case float32, float64:
+		return &jsonNode{kind: 'n', str: fmt.Sprint(x)}
+	default:
+		return &jsonNode{kind: 'n', str: fmt.Sprint(x)}
+	}
+}
+
+// parquetListElement returns the element node of a LIST group
+// (group (LIST) { repeated group list { element } }), or nil.
+func parquetListElement(node parquet.Node) parquet.Node {
+	for node != nil && !node.Leaf() && len(node.Fields()) == 1 {
+		node = node.Fields()[0]
+	}
+	return node
 }

@@ -158,7 +158,9 @@ func (s *langidStage) Rules() []Rule         { return s.rules }
 func (s *langidStage) Process(d *Doc) Decision {
 	det, err := s.detector()
 	if err != nil { // unreachable: New built the detector (outside `check`)
-		return DropDoc("detector_error", err.Error(), nil)
+		dec := DropDoc("detector_error", nil, nil) // the message goes in extra: value stays numeric in this ledger
+		dec.Extra = map[string]any{"error": err.Error()}
+		return dec
 	}
 	r := det.Detect(d.Text)
 	conf := langidRound(r.Confidence)

@@ -21,6 +21,8 @@ import (
 	"github.com/chromedp/cdproto/network"
 	"github.com/chromedp/cdproto/runtime"
 	"github.com/chromedp/chromedp"
+
+	"winnow/stages/record"
 )
 
 // runCLI runs one winnow command in-process and returns its standard
@@ -663,5 +665,41 @@ func TestDemoReportScreenshot(t *testing.T) {
 	}
 	if p := os.Getenv("WINNOW_SCREENSHOT_PHONE"); p != "" {
 		shot(390, 844, true, p, true)
+	}
+}
+
+// The demo's mix is capped by its scarcest source: audit's headline says,
+// per source, how many tokens the output left out and why, with the
+// numbers of the manifest's mix section (used + left out = available).
+func TestAuditHeadlineLeftOut(t *testing.T) {
+	run := demoRunDir(t)
+	out, err := runCLI(t, "audit", run)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := record.ReadManifest(run)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rep := m.MixReport()
+	if rep == nil {
+		t.Fatal("demo run has no mix section")
+	}
+	lines := 0
+	for _, s := range rep.Sources {
+		if s.Used+s.LeftOut != s.Available && s.Used <= s.Available {
+			t.Errorf("%s: used %d + left out %d != available %d", s.Source, s.Used, s.LeftOut, s.Available)
+		}
+		if s.LeftOut == 0 {
+			continue
+		}
+		lines++
+		want := fmt.Sprintf("left out of the output: %s: %d of %d tokens left out", s.Source, s.LeftOut, s.Available)
+		if !strings.Contains(out, want) || !strings.Contains(out, s.LeftOutWhy) {
+			t.Errorf("audit headline lacks %q (%s):\n%s", want, s.LeftOutWhy, out[:min(len(out), 1500)])
+		}
+	}
+	if lines == 0 {
+		t.Errorf("the capped demo mix left nothing out: %+v", rep.Sources)
 	}
 }

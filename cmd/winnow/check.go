@@ -4,7 +4,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"os"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
@@ -43,7 +42,7 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 		if _, err := record.OpenSink(sp.Output, stages.Env{Checking: true}, sp.Name); err != nil {
 			return err
 		}
-		w := termOut(os.Stdout)
+		w := termOut(cmd.OutOrStdout())
 		defer w.Flush()
 		if checkJSON {
 			return printPlanJSON(w, sp, inputs, steps)
@@ -93,6 +92,20 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 			}
 		}
 		tw.Flush()
+		var srcs []string
+		for _, in := range sp.Inputs {
+			srcs = append(srcs, in.Source)
+		}
+		left, err := record.PredictLeftOut(sp.Output, stages.Env{Checking: true}, srcs)
+		if err != nil {
+			return err
+		}
+		if len(left) > 0 {
+			fmt.Fprintln(w, "output (mix):")
+			for _, l := range left {
+				fmt.Fprintln(w, "  "+l)
+			}
+		}
 		fmt.Fprintln(w, "ok")
 		return nil
 	},

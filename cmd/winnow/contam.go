@@ -25,6 +25,7 @@ type contamFlags struct {
 	idField    string
 	evalFormat string
 	ngram      int
+	minWords   int
 	maxDF      int
 	source     string
 	format     string
@@ -43,19 +44,24 @@ var contamCmd = &cobra.Command{
 	Short: "Report which eval-set items occur in a corpus, without a full run",
 	Long: `Contam checks corpus files against held-out eval sets the way the
 decontaminate stage does (word 13-gram overlap after Unicode NFKC, case
-folding and punctuation removal; items shorter than 13 words must occur
-as a whole) and prints, per eval set, the items checked, the items found
-and the documents affected, then every contaminated item with its
-documents and the matched text. Nothing is removed.
+folding and punctuation removal; texts of 8 to 12 words must occur as a
+whole, shorter ones are too short to check) and prints, per eval set, the
+items checked, the items too short, the items found and the documents
+affected, then every contaminated item with its documents and the
+matched text. Nothing is removed.
 
-An eval set is a JSONL file (optionally .gz or .zst) or plain text (one
-item per line, or per blank-line block). --eval NAME=FILE names the set;
-otherwise it is named after the file. Inputs are read like "run" inputs:
+An eval set is JSON lines or Parquet (optionally .gz or .zst), or CSV/TSV
+with a header row, found from the content; plain text only with
+--eval-format lines or blocks. Fields: keys, nested paths (meta.title),
+lists (choices: each element a separate text) and the gold answer by an
+index field (choices[label], label 0-based or a letter A-D).
+--eval NAME=FILE names the set; otherwise it is named after the file. Inputs are read like "run" inputs:
 files, globs, directories or "-"; jsonl, text, warc or parquet; gzip or
 zstd by magic bytes.
 
 With --out DIR, contamination.json and the ledger are kept in DIR.`,
 	Example: `  winnow contam --eval evals/hull-qa.jsonl --fields question,answer raw/forum/*.jsonl.zst
+  winnow contam --eval mc=evals/rigging-mc.parquet --fields 'question,choices[label]' corpus/
   winnow contam --eval qa=evals/a.jsonl.gz --eval evals/b.txt corpus/ --json`,
 	Args: cobra.MinimumNArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
@@ -73,6 +79,7 @@ func init() {
 	fl.StringVar(&f.idField, "id-field", "id", "eval item id field")
 	fl.StringVar(&f.evalFormat, "eval-format", "auto", "eval file format: "+strings.Join(stages.EvalFormats, " | "))
 	fl.IntVar(&f.ngram, "ngram", 13, "n-gram length in words")
+	fl.IntVar(&f.minWords, "min-item-words", stages.DefaultMinItemWords, "texts of an item with fewer words are not matched (items with none longer are listed as too short to check)")
 	fl.IntVar(&f.maxDF, "max-doc-frequency", 0, "ignore n-grams found in more than this many documents (0: none; needs a second pass)")
 	fl.StringVar(&f.source, "source", "input", "source label of the inputs (used in default document ids)")
 	fl.StringVar(&f.format, "format", "auto", "input format: auto | jsonl | text | warc | parquet")
@@ -116,6 +123,9 @@ func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) e
 	if f.ngram < 1 || f.ngram > 64 {
 		return fmt.Errorf("--ngram %d: want 1..64", f.ngram)
 	}
+	if f.minWords < 1 {
+		return fmt.Errorf("--min-item-words %d: want 1 or more", f.minWords)
+	}
 	if f.maxDF < 0 {
 		return fmt.Errorf("--max-doc-frequency %d: want 0 or more", f.maxDF)
 	}
@@ -139,6 +149,7 @@ func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) e
 	}
 	cfg := stages.DefaultDecontamConfig()
 	cfg.Ngram, cfg.Action, cfg.MaxDocFrequency = f.ngram, "flag", f.maxDF
+	cfg.MinItemWords = min(f.minWords, f.ngram)
 	d, err := stages.NewDecontaminate("decontaminate", cfg, sets)
 	if err != nil {
 		return err

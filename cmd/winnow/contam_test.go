@@ -4,7 +4,9 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"os"
 	"path/filepath"
+	"slices"
 	"testing"
 
 	"winnow/stages"
@@ -34,7 +36,7 @@ func TestContamCommandOnSynthCorpus(t *testing.T) {
 		t.Fatal(err)
 	}
 	f := contamFlags{evals: []string{truth.EvalPath}, fields: []string{"question", "answer"}, idField: "id",
-		evalFormat: "auto", ngram: 13, source: "synth", format: "auto", textField: "text", docID: "id",
+		evalFormat: "auto", ngram: 13, minWords: 8, source: "synth", format: "auto", textField: "text", docID: "id",
 		workers: 2, asJSON: true, quiet: true, out: filepath.Join(dir, "out")}
 	var out bytes.Buffer
 	if err := runContam(context.Background(), f, []string{filepath.Join(dir, "forum"), filepath.Join(dir, "web")}, &out); err != nil {
@@ -69,5 +71,35 @@ func TestContamCommandOnSynthCorpus(t *testing.T) {
 	var table bytes.Buffer
 	if err := stages.PrintContamination(&table, filepath.Join(dir, "out"), false); err != nil || !bytes.Contains(table.Bytes(), []byte("hull-qa")) {
 		t.Errorf("table from --out: %v\n%s", err, table.String())
+	}
+}
+
+// `winnow contam` over the multiple-choice set DuckDB wrote as Parquet
+// (testdata/evalsets, questions from the npm package's docs), with the gold
+// answer chosen by choices[label]: a document quoting a 15-word question is
+// reported, a 6-word question is listed as too short, not matched.
+func TestContamCommandParquetChoices(t *testing.T) {
+	dir := t.TempDir()
+	docs := `{"id":"d1","text":"From the manual: Create a new user in the specified registry, and save the credentials to the .npmrc file. Done."}
+{"id":"d2","text":"Enables tab-completion in all npm commands."}
+`
+	if err := os.WriteFile(filepath.Join(dir, "docs.jsonl"), []byte(docs), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	f := contamFlags{evals: []string{"npm=../../testdata/evalsets/npm-mc.parquet"}, fields: []string{"question", "choices[label]"},
+		idField: "id", evalFormat: "auto", ngram: 13, minWords: 8, source: "t", format: "auto", textField: "text", docID: "id",
+		workers: 1, asJSON: true, quiet: true}
+	var out bytes.Buffer
+	if err := runContam(context.Background(), f, []string{filepath.Join(dir, "docs.jsonl")}, &out); err != nil {
+		t.Fatal(err)
+	}
+	var r stages.ContamReport
+	if err := json.Unmarshal(out.Bytes(), &r); err != nil {
+		t.Fatalf("%v: %s", err, out.String())
+	}
+	e := r.Evals[0]
+	if e.Items != 48 || len(e.Contaminated) != 1 || e.Contaminated[0].Item != "npm-q02" ||
+		!slices.Equal(e.Contaminated[0].Docs, []string{"d1"}) || !slices.Contains(e.TooShort, "npm-q08") || e.ItemsTooShort != len(e.TooShort) {
+		t.Errorf("report %+v", e)
 	}
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bufio"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -26,6 +27,7 @@ var countOpts struct {
 	textField string
 	textMode  string
 	workers   int
+	perDoc    bool
 }
 
 var countCmd = &cobra.Command{
@@ -39,10 +41,13 @@ byte-level BPE tokenizer.json. Counts equal those of the reference library
 github.com/tiktoken-go/tokenizer.
 
 It prints a table per file and, when documents carry a "source" field (as
-winnow's output shards do), per source with its share of the tokens.`,
+winnow's output shards do), per source with its share of the tokens. With
+--per-doc it prints {"id","tokens"} per document instead (JSON lines, in
+input order, whatever --workers), ready for pandas or DuckDB.`,
 	Example: `  winnow count out/shards/*.jsonl.zst
   winnow count --tokenizer o200k_base --json raw/forum/*.jsonl.gz
-  winnow count --tokenizer ./my-tokenizer.json notes.txt`,
+  winnow count --tokenizer ./my-tokenizer.json notes.txt
+  winnow count --per-doc out/shards/*.jsonl.zst > tokens.jsonl`,
 	Args: cobra.MinimumNArgs(1),
 	RunE: runCount,
 }
@@ -55,6 +60,7 @@ func init() {
 	f.StringVar(&countOpts.textField, "text-field", "text", "JSONL field holding the text")
 	f.StringVar(&countOpts.textMode, "text-mode", "file", "plain text: file (one document per file) | blocks (per blank-line block)")
 	f.IntVar(&countOpts.workers, "workers", 0, "counting goroutines (default: number of CPUs)")
+	f.BoolVar(&countOpts.perDoc, "per-doc", false, `print one {"id","tokens"} JSON line per document, in input order, instead of the table`)
 	rootCmd.AddCommand(countCmd)
 }
 
@@ -86,8 +92,26 @@ func runCount(cmd *cobra.Command, args []string) error {
 	}
 	res := countResult{Tokenizer: tok.Name(), Total: countRow{Name: "total"}}
 	bySource := map[string]*countRow{}
+	// Everything printed goes through the terminal escaper: ids and source
+	// names come from the input (the --per-doc lines stay valid JSON).
+	out := termOut(cmd.OutOrStdout())
+	defer out.Flush()
+	var perDoc *bufio.Writer
+	var perDocW io.Writer // nil unless --per-doc (not a nil *bufio.Writer)
+	if countOpts.perDoc {
+		perDoc = bufio.NewWriterSize(out, 64<<10)
+		perDocW = perDoc
+	}
 	for i, path := range args {
-		row, src, skipped, err := countFile(tok, path, i, workers)
+		row, src, skipped, err := countFile(tok, path, i, workers, perDocW)
+		if perDoc != nil {
+			if ferr := perDoc.Flush(); err == nil {
+				err = ferr
+			}
+			if ferr := out.Flush(); err == nil {
+				err = ferr
+			}
+		}
 		if err != nil {
 			return fmt.Errorf("%s: %w", path, err)
 		}
@@ -119,9 +143,9 @@ func runCount(cmd *cobra.Command, args []string) error {
 		}
 		res.Sources = append(res.Sources, r)
 	}
-	out := termOut(cmd.OutOrStdout())
-	defer out.Flush()
-	if countOpts.jsonOut {
+	if perDoc != nil {
+		// The lines are the output.
+	} else if countOpts.jsonOut {
 		enc := json.NewEncoder(out)
 		enc.SetIndent("", "  ")
 		if err := enc.Encode(res); err != nil {
@@ -175,11 +199,25 @@ const maxIssueLines = 5
 const countBatch = 256
 
 type countDoc struct {
-	text, source string
+	text, source, id string
 }
 
-// countFile counts one file's documents on workers goroutines.
-func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow, map[string]countRow, int64, error) {
+// countBatchJob is a batch of documents with its place in the file.
+type countBatchJob struct {
+	seq  int
+	docs []countDoc
+}
+
+// countDocLine is one line of --per-doc.
+type countDocLine struct {
+	ID     string `json:"id"`
+	Tokens int    `json:"tokens"`
+}
+
+// countFile counts one file's documents on workers goroutines. With
+// perDoc, every document's {"id","tokens"} line is written to it in input
+// order (batches finished out of order wait for the earlier ones).
+func countFile(tok *shard.Tokenizer, path string, input, workers int, perDoc io.Writer) (countRow, map[string]countRow, int64, error) {
 	row := countRow{Name: path}
 	f, err := read.OpenFile(path)
 	if err != nil {
@@ -196,10 +234,45 @@ func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow,
 	if err != nil {
 		return row, nil, 0, err
 	}
-	batches := make(chan []countDoc, workers*2)
+	batches := make(chan countBatchJob, workers*2)
 	type partial struct {
 		tokens int64
 		src    map[string]int64
+	}
+	type done struct {
+		seq    int
+		ids    []string
+		counts []int
+	}
+	var doneCh chan done
+	var printed sync.WaitGroup
+	var writeErr error
+	if perDoc != nil {
+		doneCh = make(chan done, workers*2)
+		printed.Add(1)
+		go func() { // restores input order
+			defer printed.Done()
+			pending := map[int]done{}
+			next := 0
+			var line []byte
+			for d := range doneCh {
+				pending[d.seq] = d
+				for {
+					b, ok := pending[next]
+					if !ok {
+						break
+					}
+					delete(pending, next)
+					next++
+					for i, id := range b.ids {
+						line, _ = json.Marshal(countDocLine{ID: id, Tokens: b.counts[i]})
+						if _, err := perDoc.Write(append(line, '\n')); err != nil && writeErr == nil {
+							writeErr = err
+						}
+					}
+				}
+			}
+		}()
 	}
 	results := make([]partial, workers)
 	var wg sync.WaitGroup
@@ -209,12 +282,22 @@ func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow,
 			defer wg.Done()
 			p := partial{src: map[string]int64{}}
 			for b := range batches {
-				for _, d := range b {
-					n := int64(tok.Count(d.text))
-					p.tokens += n
+				var dn done
+				if doneCh != nil {
+					dn = done{seq: b.seq, ids: make([]string, len(b.docs)), counts: make([]int, len(b.docs))}
+				}
+				for i, d := range b.docs {
+					n := tok.Count(d.text)
+					p.tokens += int64(n)
 					if d.source != "" {
-						p.src[d.source] += n
+						p.src[d.source] += int64(n)
 					}
+					if doneCh != nil {
+						dn.ids[i], dn.counts[i] = d.id, n
+					}
+				}
+				if doneCh != nil {
+					doneCh <- dn
 				}
 			}
 			results[w] = p
@@ -223,6 +306,7 @@ func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow,
 	src := map[string]countRow{}
 	var skipped int64
 	batch := make([]countDoc, 0, countBatch)
+	seq := 0
 	var readErr error
 	issues := 0
 	for {
@@ -255,17 +339,25 @@ func countFile(tok *shard.Tokenizer, path string, input, workers int) (countRow,
 			r.Name, r.Docs, r.Bytes = s, r.Docs+1, r.Bytes+int64(len(d.Text))
 			src[s] = r
 		}
-		batch = append(batch, countDoc{text: d.Text, source: s})
+		batch = append(batch, countDoc{text: d.Text, source: s, id: d.ID})
 		if len(batch) == countBatch {
-			batches <- batch
+			batches <- countBatchJob{seq: seq, docs: batch}
+			seq++
 			batch = make([]countDoc, 0, countBatch)
 		}
 	}
 	if len(batch) > 0 {
-		batches <- batch
+		batches <- countBatchJob{seq: seq, docs: batch}
 	}
 	close(batches)
 	wg.Wait()
+	if doneCh != nil {
+		close(doneCh)
+		printed.Wait()
+		if writeErr != nil && readErr == nil {
+			readErr = writeErr
+		}
+	}
 	if issues > maxIssueLines {
 		fmt.Fprintf(os.Stderr, "winnow count: %s: %d more unreadable records not shown\n", path, issues-maxIssueLines)
 	}

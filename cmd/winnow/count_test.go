@@ -3,8 +3,10 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/klauspost/compress/zstd"
@@ -51,7 +53,7 @@ func TestCountCommand(t *testing.T) {
 	var out bytes.Buffer
 	rootCmd.SetOut(&out)
 	rootCmd.SetArgs([]string{"count", "--json", "--tokenizer", "cl100k_base", shardPath, txtPath})
-	defer rootCmd.SetArgs(nil)
+	defer func() { rootCmd.SetArgs(nil); rootCmd.SetOut(nil) }()
 	if err := rootCmd.Execute(); err != nil {
 		t.Fatal(err)
 	}
@@ -68,5 +70,52 @@ func TestCountCommand(t *testing.T) {
 	}
 	if got["manuals"] != want["manuals"] || got["forum"] != want["forum"] {
 		t.Errorf("sources %v, want %v", got, want)
+	}
+}
+
+// Outside check: `count --per-doc` prints {"id","tokens"} per document in
+// input order (several batches over three workers), each count equal to
+// the reference library github.com/tiktoken-go/tokenizer's.
+func TestCountPerDoc(t *testing.T) {
+	dir := t.TempDir()
+	var raw bytes.Buffer
+	var texts []string
+	for i := 0; i < 700; i++ {
+		text := fmt.Sprintf("Work order %d: re-bed the stanchion base %d and check the deck core.", i, i%13)
+		if i%50 == 0 {
+			text = strings.Repeat("Larkspur Marine Works ", i/10+1)
+		}
+		texts = append(texts, text)
+		line, _ := json.Marshal(map[string]any{"id": fmt.Sprint("wo-", i), "text": text})
+		raw.Write(append(line, '\n'))
+	}
+	path := filepath.Join(dir, "orders.jsonl")
+	if err := os.WriteFile(path, raw.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var out bytes.Buffer
+	rootCmd.SetOut(&out)
+	rootCmd.SetArgs([]string{"count", "--per-doc", "--workers", "3", path})
+	defer func() { rootCmd.SetArgs(nil); rootCmd.SetOut(nil); countOpts.perDoc = false; countOpts.workers = 0 }()
+	if err := rootCmd.Execute(); err != nil {
+		t.Fatal(err)
+	}
+	ref, _ := tokenizer.Get(tokenizer.Cl100kBase)
+	lines := strings.Split(strings.TrimSpace(out.String()), "\n")
+	if len(lines) != len(texts) {
+		t.Fatalf("%d lines, want %d", len(lines), len(texts))
+	}
+	for i, l := range lines {
+		var got struct {
+			ID     string `json:"id"`
+			Tokens int    `json:"tokens"`
+		}
+		if err := json.Unmarshal([]byte(l), &got); err != nil {
+			t.Fatalf("line %d %q: %v", i, l, err)
+		}
+		want, _ := ref.Count(texts[i])
+		if got.ID != fmt.Sprint("wo-", i) || got.Tokens != want {
+			t.Fatalf("line %d: %+v, want wo-%d with %d tokens", i, got, i, want)
+		}
 	}
 }

@@ -16,6 +16,7 @@ import (
 	"winnow/stages/fsio"
 	"winnow/stages/run"
 	"winnow/stages/spec"
+	"winnow/stages/termtext"
 )
 
 type runFlags struct {
@@ -155,8 +156,15 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 	}
 	m := res.Manifest
 	fatal := res.Runner.FatalInputs
-	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%d tokens) in %d shards to %s\n",
-		m.Totals.DocsOut, m.Totals.TokensOut, len(m.Outputs), res.Dir)
+	toks := "tokens not counted: no output.tokenizer"
+	if m.TokensCounted() {
+		toks = fmt.Sprintf("%d tokens", m.Totals.TokensOut)
+	}
+	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%s) in %d shards to %s\n",
+		m.Totals.DocsOut, toks, len(m.Outputs), res.Dir)
+	for _, l := range m.LeftOut() {
+		fmt.Fprintln(os.Stderr, "winnow: left out of the output:", termtext.Escape(l))
+	}
 	if line := skipLine(m.ReadSkips); line != "" {
 		fmt.Fprintln(os.Stderr, "winnow:", line)
 	}

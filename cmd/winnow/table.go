@@ -46,13 +46,18 @@ func printShardTable(w io.Writer, m *record.Manifest) {
 	}
 	fmt.Fprintln(w)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	counted := m.TokensCounted()
 	fmt.Fprint(tw, "shard\tdocs\ttokens\t")
 	for _, s := range sources {
 		fmt.Fprintf(tw, "%s\t", s)
 	}
 	fmt.Fprintln(tw)
 	for _, o := range m.Outputs {
-		fmt.Fprintf(tw, "%s\t%s\t%s\t", o.Path, audit.Group(o.Docs), audit.Group(o.Tokens))
+		toks := "not counted"
+		if counted {
+			toks = audit.Group(o.Tokens)
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t", o.Path, audit.Group(o.Docs), toks)
 		for _, s := range sources {
 			if o.Tokens > 0 {
 				fmt.Fprintf(tw, "%.1f%%\t", 100*float64(o.Source[s])/float64(o.Tokens))

@@ -187,6 +187,8 @@ func (rep *Report) WriteHTML(out io.Writer) error {
 	h.w(`<div class="kpi"><b>%s</b><span>documents in the shards</span></div>`, num("totals.docs_out", s.Totals.DocsOut))
 	if s.TokenStage != "" {
 		h.w(`<div class="kpi"><b>%s</b><span>tokens in the shards</span></div>`, num("totals.tokens_out", s.Totals.TokensOut))
+	} else {
+		h.s(`<div class="kpi"><b>not counted</b><span>tokens (no output.tokenizer)</span></div>`)
 	}
 	share := 0.0
 	if s.Totals.DocsIn > 0 {
@@ -201,7 +203,11 @@ func (rep *Report) WriteHTML(out io.Writer) error {
 		}
 		h.w(`<div class="kpi"><b>%s</b><span>eval items found in the corpus</span></div>`, num("contam.items_contaminated", int64(items)))
 	}
-	h.s(`</div></header>`)
+	h.s(`</div>`)
+	for _, l := range s.LeftOut {
+		h.w(`<p class="note warn">Left out of the output: %s</p>`, esc(l))
+	}
+	h.s(`</header>`)
 	h.w(`<nav><a href="#flow">Flow</a><a href="#rules">Removals by rule</a><a href="#sources">By source</a><a href="#metrics">Metrics</a>%s<a href="#whatif">What-if</a><a href="#contamination">Contamination</a><a href="#samples">Removed documents</a><a href="#inputs">Inputs &amp; errors</a></nav>`, rep.domainNav())
 
 	rep.flowSection(h)
@@ -434,13 +440,20 @@ func (rep *Report) contamSection(h *htmlw) {
 	}
 	h.w(`<p class="note">Word %d-gram overlap with the eval sets; action %s. %s documents scanned, %s affected (%s dropped, %s cut, %s flagged).</p>`,
 		c.Ngram, esc(c.Action), Group(c.DocsScanned), num("contam.docs_affected", c.DocsAffected), Group(c.DocsDropped), Group(c.DocsEdited), Group(c.DocsFlagged))
-	h.s(`<div class="scroll"><table><thead><tr><th>eval set</th><th class="r">items</th><th class="r">contaminated</th><th class="r">%</th><th class="r">docs affected</th></tr></thead><tbody>`)
+	h.s(`<div class="scroll"><table><thead><tr><th>eval set</th><th class="r">items</th><th class="r">too short to check</th><th class="r">contaminated</th><th class="r">% of checked</th><th class="r">docs affected</th></tr></thead><tbody>`)
 	for _, e := range c.Evals {
-		h.w(`<tr><td>%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%.1f%%</td><td class="r">%s</td></tr>`, esc(e.Name),
-			num("contam."+e.Name+".items", int64(e.Items)), num("contam."+e.Name+".items_contaminated", int64(e.ItemsContaminated)), e.Percent,
+		h.w(`<tr><td>%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%.1f%%</td><td class="r">%s</td></tr>`, esc(e.Name),
+			num("contam."+e.Name+".items", int64(e.Items)), num("contam."+e.Name+".items_too_short", int64(e.ItemsTooShort)),
+			num("contam."+e.Name+".items_contaminated", int64(e.ItemsContaminated)), e.Percent,
 			num("contam."+e.Name+".docs_affected", e.DocsAffected))
 	}
 	h.s(`</tbody></table></div>`)
+	for _, e := range c.Evals {
+		if len(e.TooShort) > 0 {
+			h.w(`<details><summary>%s: %d item(s) too short to check (no text of %d words)</summary><div class="body ids">%s</div></details>`,
+				esc(e.Name), len(e.TooShort), c.MinItemWords, esc(strings.Join(e.TooShort, ", ")))
+		}
+	}
 	for _, e := range c.Evals {
 		if len(e.Contaminated) == 0 {
 			continue

@@ -27,6 +27,10 @@ type Summary struct {
 	Flow       []FlowRow   `json:"flow"`
 	Rules      []RuleRow   `json:"rules"`
 	Sources    []SourceRow `json:"sources"`
+	// LeftOut says, per source, which surviving tokens the output left
+	// out and why (the mix cap, a source absent from the mix or with
+	// share 0); empty when nothing was.
+	LeftOut []string `json:"left_out"`
 	// Contamination is OUT/contamination.json when the run has one.
 	Contamination *stages.ContamReport `json:"contamination,omitempty"`
 	Inputs        []InputRow           `json:"inputs"`
@@ -170,7 +174,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 	m := r.Manifest
 	s := &Summary{Run: r.Dir, Name: m.Name, ToolVersion: m.ToolVersion, ConfigHash: m.ConfigHash,
 		Interrupted: m.Interrupted, Totals: m.Totals, Errors: m.Errors, ErrorCount: m.ErrorCount,
-		Contamination: r.Contam, Notes: append([]string(nil), r.Notes...)}
+		Contamination: r.Contam, Notes: append([]string(nil), r.Notes...), LeftOut: append([]string{}, m.LeftOut()...)}
 	if s.Errors == nil {
 		s.Errors = []record.RunError{}
 	}

@@ -93,7 +93,7 @@ func (r *RuleRow) TokensCell() string {
 func (f *FlowRow) TokensCell(v int64) string {
 	switch {
 	case !f.TokensKnown:
-		return "n/a"
+		return "not counted"
 	case !f.TokensExact:
 		return "≥" + Group(v)
 	}
@@ -110,8 +110,13 @@ func (s *Summary) WriteText(w io.Writer) error {
 		s.Totals.InputFiles, HumanBytes(s.Totals.InputBytes), Group(s.Totals.DocsOut))
 	if s.TokenStage != "" {
 		fmt.Fprintf(w, ", %s tokens", Group(s.Totals.TokensOut))
+	} else {
+		fmt.Fprint(w, ", tokens not counted (no output.tokenizer)")
 	}
 	fmt.Fprintln(w)
+	for _, l := range s.LeftOut {
+		fmt.Fprintf(w, "left out of the output: %s\n", l)
+	}
 	s.writeDomainHeadline(w)
 
 	fmt.Fprintln(w, "\nflow")

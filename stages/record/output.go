@@ -58,6 +58,7 @@ type outputConfig struct {
 	shardBytes  int64
 	splitTokens int64
 	mix         map[string]float64
+	shuffle     bool
 	budget      int64
 	maxEpochs   int64
 	tokenFiles  bool
@@ -96,6 +97,8 @@ func OutputStage(p *stages.Params, env stages.Env) (stages.Stage, error) {
 //	               boundaries before mixing (default shard_tokens/100 with
 //	               a mix, shard_tokens without)
 //	mix            {source: share} target token shares (normalized)
+//	shuffle        without a mix: order documents by a keyed hash of their
+//	               ids (the seed) instead of input order (default false)
 //	budget_tokens  total output tokens (default: as many as the mix allows)
 //	max_epochs     up-sampling limit by whole-document repetition (default 1)
 //	token_files    also write flat token-id files per shard (default false)
@@ -107,6 +110,7 @@ func parseOutput(p *stages.Params, env stages.Env) (*outputConfig, error) {
 	c.shardBytes = p.Int("shard_bytes", shard.DefaultShardBytes, 1<<10, 1<<40)
 	c.splitTokens = p.Int("split_tokens", 0, 0, 1<<40)
 	c.mix = p.FloatMap("mix")
+	c.shuffle = p.Bool("shuffle", false)
 	c.budget = p.Int("budget_tokens", 0, 0, 1<<50)
 	c.maxEpochs = p.Int("max_epochs", 1, 1, 1000)
 	c.tokenFiles = p.Bool("token_files", false)
@@ -126,7 +130,7 @@ func parseOutput(p *stages.Params, env stages.Env) (*outputConfig, error) {
 			p.Errorf("shard_bytes", "applies only without output.tokenizer (shards are cut by shard_tokens)")
 		}
 	} else {
-		for _, k := range []string{"shard_tokens", "mix", "budget_tokens", "token_files", "split_tokens", "max_epochs"} {
+		for _, k := range []string{"shard_tokens", "mix", "shuffle", "budget_tokens", "token_files", "split_tokens", "max_epochs"} {
 			if p.Has(k) {
 				p.Errorf(k, "needs output.tokenizer")
 			}
@@ -143,6 +147,9 @@ func parseOutput(p *stages.Params, env stages.Env) (*outputConfig, error) {
 		if sum <= 0 {
 			p.Errorf("mix", "shares sum to %v: want a positive total", sum)
 		}
+	}
+	if c.shuffle && c.mix != nil {
+		p.Errorf("shuffle", "has no effect with mix (a mix already interleaves sources by a keyed hash): remove one")
 	}
 	if c.splitTokens > c.shardTokens {
 		p.Errorf("split_tokens", "%d is larger than shard_tokens %d", c.splitTokens, c.shardTokens)
@@ -187,6 +194,7 @@ func OpenSink(p *stages.Params, env stages.Env, name string) (Sink, error) {
 		ShardBytes:   c.shardBytes,
 		SplitTokens:  c.splitTokens,
 		Mix:          c.mix,
+		Shuffle:      c.shuffle,
 		BudgetTokens: c.budget,
 		MaxEpochs:    int(c.maxEpochs),
 		TokenFiles:   c.tokenFiles,
@@ -215,7 +223,8 @@ type shardSink struct {
 }
 
 // RuleMixLeftOut is the ledger rule of a document that passed every
-// stage but that the output mix placed in no shard.
+// stage but that the output mix (or a shuffled output's budget_tokens)
+// placed in no shard.
 const RuleMixLeftOut = "mix_left_out"
 
 // LeftOutRecorder is a sink that can report, while it closes, each
@@ -224,12 +233,17 @@ type LeftOutRecorder interface {
 	OnLeftOut(fn func(*LedgerRecord) error)
 }
 
-// OnLeftOut makes Close call fn for each document the mix leaves out.
+// OnLeftOut makes Close call fn for each document the mix (or a shuffled
+// output's budget) leaves out.
 func (s *shardSink) OnLeftOut(fn func(*LedgerRecord) error) {
 	s.b.SetLeftOut(func(l shard.LeftOut) error {
+		why := l.Reason
+		if why == "" {
+			why = "its source had more tokens than its mix share needed"
+		}
 		return fn(&LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
 			Rule: RuleMixLeftOut, Action: "drop", Value: l.Tokens,
-			Extra: map[string]any{"reason": "its source had more tokens than its mix share needed"}})
+			Extra: map[string]any{"reason": why}})
 	})
 }
 
