@@ -136,3 +136,35 @@ func (s *Summary) writeStageShares(w io.Writer) error {
 	}
 	return tw.Flush()
 }
+
+// pct is a share in the HTML report, marked with its JSON key (data-p)
+// so the browser test can compare it with `audit --json`; "not counted"
+// when v is nil, "~" in front when not exact.
+func pct(key string, v *float64, exact bool) string {
+	if v == nil {
+		return "not counted"
+	}
+	pre := ""
+	if !exact {
+		pre = "~"
+	}
+	return fmt.Sprintf(`%s<span class="p" data-p="%s">%s</span>`, pre, esc(key), esc(Percent(*v)))
+}
+
+// stageSharesTable is the report's table of what each stage removed, as
+// shares of what it took in.
+func (rep *Report) stageSharesTable(h *htmlw) {
+	s := rep.Summary
+	if len(s.Flow) < 3 {
+		return
+	}
+	h.s(`<h3>Removed, as shares of each stage's input</h3><div class="scroll"><table><thead><tr><th>stage</th><th class="r">docs dropped</th><th class="r">share of docs</th><th class="r">bytes removed (drops and edits)</th><th class="r">share of bytes</th><th class="r">share of tokens (drops)</th></tr></thead><tbody>`)
+	for i := 1; i < len(s.Flow)-1; i++ {
+		f := &s.Flow[i]
+		k := "flow." + f.Stage
+		h.w(`<tr><td>%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td></tr>`,
+			esc(f.Stage), num(k+".dropped", f.Dropped), pct(k+".dropped_share", &f.DroppedShare, true), num(k+".bytes_removed", f.BytesRemoved),
+			pct(k+".bytes_share", &f.BytesShare, true), pct(k+".tokens_share", f.TokensShare, true))
+	}
+	h.s(`</tbody></table></div>`)
+}
