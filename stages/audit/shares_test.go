@@ -2,12 +2,18 @@ package audit_test
 
 import (
 	"bytes"
+	"context"
+	"encoding/json"
+	"fmt"
 	"math"
+	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 
 	"winnow/stages/audit"
+	"winnow/stages/run"
+	"winnow/stages/spec"
 )
 
 // shareStages has no stage that edits before the lines stage, so every
@@ -188,4 +194,62 @@ func hasNote(notes []string, label string) bool {
 		}
 	}
 	return false
+}
+
+// TestHeavyRuleNoted: one page of ten is dropped for a curly brace but
+// holds most of the text; the audit's share of bytes says so (recounted
+// from the input lines) and a note names the rule. No tokenizer: every
+// token share is "not counted".
+func TestHeavyRuleNoted(t *testing.T) {
+	dir := t.TempDir()
+	prose := strings.Repeat("The yard hauled the boat out for the winter. ", 6)
+	code := strings.Repeat("The bilge pump script reads the float switch. ", 150) + "\nif (level > 3) { pump(); }\n"
+	var in bytes.Buffer
+	var total int64
+	for i := 0; i < 10; i++ {
+		text := prose
+		if i == 4 {
+			text = code
+		}
+		total += int64(len(text))
+		b, _ := json.Marshal(map[string]string{"id": fmt.Sprintf("d%d", i), "text": text})
+		in.Write(append(b, '\n'))
+	}
+	if err := os.WriteFile(filepath.Join(dir, "in.jsonl"), in.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	specYAML := "name: heavy\ninputs:\n  - source: yard\n    paths: [in.jsonl]\nstages:\n  - kind: lines\n"
+	p := filepath.Join(dir, "spec.yaml")
+	os.WriteFile(p, []byte(specYAML), 0o644)
+	sp, err := spec.LoadSpec(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(dir, "run")
+	if _, err := run.RunSpec(context.Background(), sp, run.RunOptions{Out: out, Workers: 1}); err != nil {
+		t.Fatal(err)
+	}
+	s, _, err := audit.Summarize(openRun(t, out, audit.OpenOptions{}), audit.SummaryOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var braces *audit.RuleRow
+	for i := range s.Rules {
+		if s.Rules[i].Rule == "has_braces" {
+			braces = &s.Rules[i]
+		}
+		if s.Rules[i].TokensShareCell() != "not counted" {
+			t.Errorf("%s: tokens share %q in a run that counted no tokens", s.Rules[i].Label(), s.Rules[i].TokensShareCell())
+		}
+	}
+	if braces == nil {
+		t.Fatalf("no has_braces row: %+v", s.Rules)
+	}
+	want := float64(len(code)) / float64(total)
+	if braces.Share != 0.1 || braces.BytesShare == nil || math.Abs(*braces.BytesShare-want) > 1e-12 {
+		t.Errorf("has_braces: %v of docs, %v of bytes; want 0.1 and %v", braces.Share, braces.BytesShare, want)
+	}
+	if !hasNote(s.Notes, "lines/has_braces") {
+		t.Errorf("no note names lines/has_braces: %q", s.Notes)
+	}
 }
