@@ -100,3 +100,31 @@ func (s *linesStage) Process(d *Doc) Decision {
 	dec.Metrics = m
 	return dec
 }
+
+// StructureSensitive is a stage some of whose enabled rules are known to
+// remove structural text (code, option lists, synopses, the hard-wrapped
+// lines of formatted manuals) when run on technical sources; `winnow
+// check` warns when such a stage applies to a source that looks technical.
+type StructureSensitive interface {
+	// StructuralKeys names the enabled spec keys of those rules.
+	StructuralKeys() []string
+}
+
+// StructuralKeys: a curly brace drops the page; lines without terminal
+// punctuation and lines of few words (a closing brace, an option name)
+// are cut.
+func (s *linesStage) StructuralKeys() []string {
+	var keys []string
+	for _, r := range s.rules {
+		if r.Enabled && r.Key == "reject_pages_with_braces" {
+			keys = append(keys, r.Key)
+		}
+	}
+	if s.opt.RemoveUnpunctuated {
+		keys = append(keys, "remove_unpunctuated_lines")
+	}
+	if s.opt.FewestWords > 1 {
+		keys = append(keys, "fewest_words_per_line")
+	}
+	return keys
+}

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"image/png"
 	"io"
+	"math"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -256,6 +257,7 @@ func (e *eventLog) add(ev any) {
 // pageData is what the test reads from the rendered page.
 type pageData struct {
 	Numbers [][2]string `json:"numbers"`
+	Shares  [][2]string `json:"shares"`
 	Charts  []struct {
 		Chart      string `json:"chart"`
 		Parts      int    `json:"parts"`
@@ -272,6 +274,7 @@ type pageData struct {
 
 const pageScript = `JSON.stringify({
   numbers: [...document.querySelectorAll('[data-k]')].map(e => [e.dataset.k, e.textContent]),
+  shares: [...document.querySelectorAll('[data-p]')].map(e => [e.dataset.p, e.textContent]),
   charts: [...document.querySelectorAll('svg[data-chart]')].map(s => ({
     chart: s.dataset.chart,
     parts: s.querySelectorAll('rect.kept, rect.removed, rect.other, rect.edited, rect[class^="s"]').length,
@@ -343,6 +346,8 @@ func TestAuditReportInBrowser(t *testing.T) {
 			t.Errorf("%s: page shows %q, JSON %d", n[0], n[1], want)
 		}
 	}
+
+	checkShares(t, js, pd.Shares)
 
 	// Every chart of the JSON is drawn, with its parts.
 	charts := map[string]int{}
@@ -702,4 +707,58 @@ func TestAuditHeadlineLeftOut(t *testing.T) {
 	if lines == 0 {
 		t.Errorf("the capped demo mix left nothing out: %+v", rep.Sources)
 	}
+}
+
+// checkShares compares every share the page shows (data-p: docs, bytes
+// and tokens as shares of a stage's input) with the JSON value, to the
+// decimals shown.
+func checkShares(t *testing.T, js map[string]any, shares [][2]string) {
+	t.Helper()
+	kinds := map[string]int{}
+	for _, sh := range shares {
+		want, ok := lookupShare(js, sh[0])
+		if !ok {
+			t.Errorf("share %q: no such value in the JSON", sh[0])
+			continue
+		}
+		text := strings.TrimSuffix(sh[1], "%")
+		got, err := strconv.ParseFloat(text, 64)
+		decimals := 0
+		if i := strings.IndexByte(text, '.'); i >= 0 {
+			decimals = len(text) - i - 1
+		}
+		if err != nil || math.Abs(got-100*want) > 0.5*math.Pow(10, -float64(decimals))+1e-9 {
+			t.Errorf("%s: page shows %q, JSON %v", sh[0], sh[1], want)
+		}
+		kinds[sh[0][strings.LastIndex(sh[0], ".")+1:]]++
+	}
+	t.Logf("%d shares checked: %v", len(shares), kinds)
+	for _, k := range []string{"share", "bytes_share", "dropped_share"} {
+		if kinds[k] == 0 {
+			t.Errorf("the page shows no %s (shares shown: %v)", k, kinds)
+		}
+	}
+}
+
+// lookupShare finds a share in the audit JSON: flow.STAGE.FIELD or
+// rule.STAGE/RULE/ACTION.FIELD.
+func lookupShare(js map[string]any, key string) (float64, bool) {
+	kind, rest, _ := strings.Cut(key, ".")
+	i := strings.LastIndex(rest, ".")
+	if i < 0 {
+		return 0, false
+	}
+	label, f := rest[:i], rest[i+1:]
+	for _, e := range js[map[string]string{"flow": "flow", "rule": "rules"}[kind]].([]any) {
+		m := e.(map[string]any)
+		l := m["stage"].(string)
+		if kind == "rule" {
+			l += "/" + m["rule"].(string) + "/" + m["action"].(string)
+		}
+		if l == label {
+			v, ok := m[f].(float64)
+			return v, ok
+		}
+	}
+	return 0, false
 }

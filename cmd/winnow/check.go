@@ -11,6 +11,7 @@ import (
 	"winnow/stages"
 	"winnow/stages/read"
 	"winnow/stages/record"
+	"winnow/stages/run"
 	"winnow/stages/spec"
 )
 
@@ -42,10 +43,14 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 		if _, err := record.OpenSink(sp.Output, stages.Env{Checking: true}, sp.Name); err != nil {
 			return err
 		}
+		warnings, err := run.CheckStructure(inputs, steps)
+		if err != nil {
+			return err
+		}
 		w := termOut(cmd.OutOrStdout())
 		defer w.Flush()
 		if checkJSON {
-			return printPlanJSON(w, sp, inputs, steps)
+			return printPlanJSON(w, sp, inputs, steps, warnings)
 		}
 		var total int64
 		bySource := map[string]int{}
@@ -106,6 +111,7 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 				fmt.Fprintln(w, "  "+l)
 			}
 		}
+		printStructureWarnings(w, warnings)
 		fmt.Fprintln(w, "ok")
 		return nil
 	},
@@ -145,7 +151,7 @@ type planRule struct {
 }
 
 // printPlanJSON prints what `check` found as JSON.
-func printPlanJSON(w io.Writer, sp *spec.Spec, inputs []read.InputFile, steps []spec.Step) error {
+func printPlanJSON(w io.Writer, sp *spec.Spec, inputs []read.InputFile, steps []spec.Step, warnings []run.StructureWarning) error {
 	type planInput struct {
 		Path   string `json:"path"`
 		Source string `json:"source"`
@@ -158,7 +164,12 @@ func printPlanJSON(w io.Writer, sp *spec.Spec, inputs []read.InputFile, steps []
 		ConfigHash string      `json:"config_hash"`
 		Inputs     []planInput `json:"inputs"`
 		Stages     []planStage `json:"stages"`
-	}{Spec: sp.File, Name: sp.Name, Seed: sp.Seed, ConfigHash: sp.ConfigHash}
+		// Warnings are the line rules applied to technical sources.
+		Warnings []run.StructureWarning `json:"warnings"`
+	}{Spec: sp.File, Name: sp.Name, Seed: sp.Seed, ConfigHash: sp.ConfigHash, Warnings: warnings}
+	if plan.Warnings == nil {
+		plan.Warnings = []run.StructureWarning{}
+	}
 	for _, in := range inputs {
 		plan.Inputs = append(plan.Inputs, planInput{Path: in.Display, Source: in.Options.Source, Bytes: in.Size})
 	}
@@ -190,4 +201,17 @@ func printPlanJSON(w io.Writer, sp *spec.Spec, inputs []read.InputFile, steps []
 func init() {
 	checkCmd.Flags().BoolVar(&checkJSON, "json", false, "print the plan as JSON")
 	rootCmd.AddCommand(checkCmd)
+}
+
+// printStructureWarnings prints the warnings of run.CheckStructure: a
+// stage whose rules remove structural text applies to a source whose
+// first documents look technical.
+func printStructureWarnings(w io.Writer, warnings []run.StructureWarning) {
+	if len(warnings) == 0 {
+		return
+	}
+	fmt.Fprintln(w, "warnings:")
+	for _, wn := range warnings {
+		fmt.Fprintf(w, "  warning: %s\n", wn.Message)
+	}
 }

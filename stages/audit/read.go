@@ -20,17 +20,22 @@ import (
 // Keys other than the fixed ones are in Extra ("of", "similarity",
 // "eval", "item", "matches", "message"...).
 type Record struct {
-	Doc     string           `json:"doc"`
-	Source  string           `json:"source"`
-	File    string           `json:"file"`
-	Line    int64            `json:"line"`
-	Stage   string           `json:"stage"`
-	Rule    string           `json:"rule"`
-	Action  string           `json:"action"`
-	Value   any              `json:"value,omitempty"`
-	Limit   any              `json:"limit,omitempty"`
-	Changes map[string]int64 `json:"changes,omitempty"`
-	Extra   map[string]any   `json:"extra,omitempty"`
+	Doc    string `json:"doc"`
+	Source string `json:"source"`
+	File   string `json:"file"`
+	Line   int64  `json:"line"`
+	Stage  string `json:"stage"`
+	Rule   string `json:"rule"`
+	Action string `json:"action"`
+	Value  any    `json:"value,omitempty"`
+	Limit  any    `json:"limit,omitempty"`
+	// Bytes is what the decision took out of the text (drops and edits
+	// of stages; runs written before the key existed have none: HasBytes
+	// is then false).
+	Bytes    int64            `json:"bytes,omitempty"`
+	HasBytes bool             `json:"-"`
+	Changes  map[string]int64 `json:"changes,omitempty"`
+	Extra    map[string]any   `json:"extra,omitempty"`
 }
 
 // ExtraString returns Extra[key] as a string ("" when absent).
@@ -172,6 +177,11 @@ func parseRecord(b []byte) (Record, error) {
 			r.Value = v
 		case "limit":
 			r.Limit = v
+		case "bytes":
+			if kind != 'n' || num != math.Trunc(num) {
+				perr = fmt.Errorf("bytes: want an integer")
+			}
+			r.Bytes, r.HasBytes = int64(num), true
 		default:
 			if r.Extra == nil {
 				r.Extra = map[string]any{}

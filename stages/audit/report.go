@@ -253,6 +253,7 @@ func (rep *Report) flowSection(h *htmlw) {
 			esc(HumanBytes(f.BytesIn)), esc(HumanBytes(f.BytesOut)), rep.tokCell(&f, "tokens_in", f.TokensIn), rep.tokCell(&f, "tokens_out", f.TokensOut))
 	}
 	h.s(`</tbody></table></div>`)
+	rep.stageSharesTable(h)
 	for _, f := range s.Flow {
 		if f.Skipped > 0 {
 			h.w(`<p class="note">%s: %s of its %s documents in were outside its <code>only:</code> scope (passed untouched, not measured).</p>`,
@@ -294,7 +295,7 @@ func (rep *Report) rulesSection(h *htmlw) {
 			num(ruleKey(r)+".docs", r.Docs), esc(Percent(r.Share)))
 	}
 	h.s(`</div>`)
-	h.s(`<div class="scroll"><table><thead><tr><th>stage</th><th>rule</th><th>action</th><th class="r">docs</th><th class="r">share of stage input</th><th class="r">bytes</th><th class="r">tokens</th><th>sample ids</th></tr></thead><tbody>`)
+	h.s(`<div class="scroll"><table><thead><tr><th>stage</th><th>rule</th><th>action</th><th class="r">docs</th><th class="r">share of stage docs</th><th class="r">bytes</th><th class="r">share of stage bytes</th><th class="r">tokens</th><th class="r">share of stage tokens</th><th>sample ids</th></tr></thead><tbody>`)
 	for i := range s.Rules {
 		r := &s.Rules[i]
 		tok := esc(r.TokensCell())
@@ -305,10 +306,11 @@ func (rep *Report) rulesSection(h *htmlw) {
 		if ch := changesText(r.Changes); ch != "" && r.Action == "edit" {
 			ids = esc(ch) + "<br>" + ids
 		}
-		h.w(`<tr><td>%s</td><td>%s</td><td>%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="ids">%s</td></tr>`,
-			esc(r.Stage), esc(r.Rule), esc(r.Action), num(ruleKey(r)+".docs", r.Docs), esc(Percent(r.Share)), esc(r.BytesCell()), tok, ids)
+		h.w(`<tr><td>%s</td><td>%s</td><td>%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="r">%s</td><td class="ids">%s</td></tr>`,
+			esc(r.Stage), esc(r.Rule), esc(r.Action), num(ruleKey(r)+".docs", r.Docs), pct(ruleKey(r)+".share", &r.Share, true), esc(r.BytesCell()),
+			pct(ruleKey(r)+".bytes_share", r.BytesShare, r.BytesExact), tok, pct(ruleKey(r)+".tokens_share", r.TokensShare, true), ids)
 	}
-	h.s(`</tbody></table></div><p class="note">Bytes marked ~ are estimated from an earlier stage's measurement; tokens marked ≥ leave out removed documents the token stage never measured.</p></section>`)
+	h.s(`</tbody></table></div><p class="note">Shares are of what the stage took in. Bytes marked ~ are estimated from an earlier stage's measurement; tokens marked ≥ leave out removed documents the token stage never measured; the text an edit cuts is never tokenized (not counted).</p></section>`)
 }
 
 func actionTag(a string) string {

@@ -74,6 +74,13 @@ type FlowRow struct {
 	TokensExact   bool  `json:"tokens_exact"`
 	// TokensKnown is false when the run counted no tokens.
 	TokensKnown bool `json:"tokens_known"`
+	// Shares of what the stage took in that it removed (see shares.go):
+	// documents dropped, bytes dropped or cut by edits, tokens of the
+	// dropped documents (null when not counted or not exact).
+	DroppedShare float64  `json:"dropped_share"`
+	BytesRemoved int64    `json:"bytes_removed"`
+	BytesShare   float64  `json:"bytes_share"`
+	TokensShare  *float64 `json:"tokens_share"`
 }
 
 // RuleRow is one (stage, rule, action) of the audit table.
@@ -95,14 +102,22 @@ type RuleRow struct {
 	Tokens     int64 `json:"tokens"`
 	TokensDocs int64 `json:"tokens_docs"`
 	// Share is Docs over the stage's documents in.
-	Share   float64          `json:"share"`
-	Changes map[string]int64 `json:"changes,omitempty"`
-	Samples []string         `json:"samples"`
+	Share float64 `json:"share"`
+	// BytesShare is Bytes over the bytes the stage took in (null when the
+	// bytes are not known); TokensShare is Tokens over the tokens of the
+	// documents the stage took in, null ("not counted") unless the run
+	// counted tokens and every removed document had a count: always for
+	// edits, whose removed text is never tokenized. See shares.go.
+	BytesShare  *float64         `json:"bytes_share"`
+	TokensShare *float64         `json:"tokens_share"`
+	Changes     map[string]int64 `json:"changes,omitempty"`
+	Samples     []string         `json:"samples"`
 	// BySource counts Docs per source.
 	BySource map[string]int64 `json:"by_source"`
 
 	bytesEst int64 // documents whose bytes were estimated or unknown
 	bytesUnk int64
+	bytesRec int64 // documents whose ledger record says its bytes
 	step     int
 }
 
@@ -283,7 +298,10 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 					}
 					rr.Changes[k] += v
 				}
-				if rc.Action == "drop" {
+				if rc.HasBytes && (rc.Action == "drop" || rc.Action == "edit") {
+					rr.Bytes += rc.Bytes
+					rr.bytesRec++
+				} else if rc.Action == "drop" {
 					if b, exact := t.BytesAt(i); b > 0 || exact {
 						rr.Bytes += b
 						if !exact {
@@ -292,6 +310,8 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 					} else {
 						rr.bytesUnk++
 					}
+				}
+				if rc.Action == "drop" {
 					if tokOK {
 						rr.Tokens += toks
 						rr.TokensDocs++
@@ -464,6 +484,7 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 	} else if !firstExact {
 		s.Notes = append(s.Notes, "some removed documents were removed before a global stage and never reached the token stage: token figures marked ≥ are lower bounds")
 	}
+	s.fillShares(r)
 	if hs != nil {
 		s.Histograms = hs.finish()
 	}
@@ -485,8 +506,8 @@ func (s *Summary) fixBytes(r *Run) {
 	for i := range s.Rules {
 		rr := &s.Rules[i]
 		byStep[rr.step] = append(byStep[rr.step], rr)
-		rr.BytesExact = rr.bytesEst == 0 && rr.bytesUnk == 0 && rr.Action == "drop"
-		rr.BytesKnown = rr.bytesUnk < rr.Docs && rr.Action == "drop"
+		rr.BytesExact = rr.bytesEst == 0 && rr.bytesUnk == 0 && (rr.Action == "drop" || rr.bytesRec == rr.Docs)
+		rr.BytesKnown = rr.bytesUnk < rr.Docs && rr.Action == "drop" || rr.bytesRec == rr.Docs
 		if rr.step == -1 {
 			rr.BytesExact = rr.bytesUnk == 0
 			rr.BytesKnown = rr.bytesUnk < rr.Docs

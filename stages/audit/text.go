@@ -82,7 +82,7 @@ func (r *RuleRow) BytesCell() string {
 func (r *RuleRow) TokensCell() string {
 	switch {
 	case r.Action != "drop" || r.TokensDocs == 0:
-		return "n/a"
+		return "not counted"
 	case r.TokensDocs < r.Docs:
 		return "≥" + Group(r.Tokens)
 	}
@@ -136,12 +136,16 @@ func (s *Summary) WriteText(w io.Writer) error {
 		}
 	}
 
-	fmt.Fprintln(w, "\nremoved or edited, by stage and rule (share of the stage's documents in)")
+	if err := s.writeStageShares(w); err != nil {
+		return err
+	}
+
+	fmt.Fprintln(w, "\nremoved or edited, by stage and rule (shares of the stage's documents, bytes and tokens in)")
 	if len(s.Rules) == 0 {
 		fmt.Fprintln(w, "  nothing was removed or edited")
 	} else {
 		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-		fmt.Fprintln(tw, "stage\trule\taction\tdocs\tshare\tbytes\ttokens\tsample ids")
+		fmt.Fprintln(tw, "stage\trule\taction\tdocs\tdocs %\tbytes\tbytes %\ttokens\ttokens %\tsample ids")
 		for i := range s.Rules {
 			r := &s.Rules[i]
 			ids := make([]string, len(r.Samples))
@@ -152,8 +156,8 @@ func (s *Summary) WriteText(w io.Writer) error {
 			if ch := changesText(r.Changes); ch != "" && r.Action == "edit" {
 				samples = ch + "; " + samples
 			}
-			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n", r.Stage, r.Rule, r.Action, Group(r.Docs), Percent(r.Share),
-				r.BytesCell(), r.TokensCell(), samples)
+			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n", r.Stage, r.Rule, r.Action, Group(r.Docs), Percent(r.Share),
+				r.BytesCell(), r.BytesShareCell(), r.TokensCell(), r.TokensShareCell(), samples)
 		}
 		if err := tw.Flush(); err != nil {
 			return err

@@ -17,7 +17,7 @@ import (
 // names are a contract (see README "Run directory"):
 //
 //	{"doc","source","file","line","stage","rule","action","value","limit",
-//	 ...extra keys such as "of","similarity","eval","item","matches",
+//	 "bytes", ...extra keys such as "of","similarity","eval","item","matches",
 //	 "changes"}
 type LedgerRecord struct {
 	Doc    string
@@ -29,6 +29,12 @@ type LedgerRecord struct {
 	Action string
 	Value  any
 	Limit  any
+	// Bytes is what the decision took out of the text, written as "bytes"
+	// when HasBytes: for a drop the document's size as it entered the
+	// stage, for an edit its size before minus after (negative when the
+	// edit added text).
+	Bytes    int64
+	HasBytes bool
 	// Changes counts what an edit changed.
 	Changes map[string]int
 	// Extra keys are written after the fixed ones, sorted by name.
@@ -51,6 +57,9 @@ func (r *LedgerRecord) AppendJSON(b []byte) []byte {
 	}
 	if r.Limit != nil {
 		j.Val("limit", r.Limit)
+	}
+	if r.HasBytes {
+		j.Int("bytes", r.Bytes)
 	}
 	if len(r.Changes) > 0 {
 		j.Val("changes", r.Changes)

@@ -149,7 +149,7 @@ func TestRunDeterministicAcrossWorkers(t *testing.T) {
 	if n := strings.Count(led, `"rule":"min_chars"`); n != 3000/7+1 {
 		t.Errorf("%d min_chars records", n)
 	}
-	if !strings.Contains(led, `{"doc":"doc-0","source":"yard","file":"raw/part-0.jsonl.zst","line":1,"stage":"length","rule":"min_chars","action":"drop","value":1,"limit":5}`) {
+	if !strings.Contains(led, `{"doc":"doc-0","source":"yard","file":"raw/part-0.jsonl.zst","line":1,"stage":"length","rule":"min_chars","action":"drop","value":1,"limit":5,"bytes":1}`) {
 		t.Errorf("ledger record shape: %s", strings.SplitN(led, "\n", 2)[0])
 	}
 }

@@ -739,6 +739,12 @@ func (r *Runner) recordResult(d *stages.Doc, res stepResult) error {
 	rec := record.LedgerRecord{Doc: d.ID, Source: d.Source, File: d.File, Line: d.Line, Stage: st.Name,
 		Rule: dec.Rule, Action: action, Value: dec.Value, Limit: dec.Limit,
 		Changes: dec.Changes, Extra: dec.Extra}
+	switch dec.Action {
+	case stages.Drop:
+		rec.Bytes, rec.HasBytes = int64(res.bytesIn), true
+	case stages.Edit:
+		rec.Bytes, rec.HasBytes = int64(res.bytesIn-res.bytesOut), true
+	}
 	return r.ledger.Add(&rec)
 }
 
