@@ -27,7 +27,7 @@ func TestCheckWarnsLineRulesOnTechnicalSource(t *testing.T) {
 	checkJSON = false
 	defer func() { checkJSON = false }()
 	p := write("")
-	out, err := captureStdout(t, func() error { _, err := runCLI(t, "check", p); return err })
+	out, err := runCLI(t, "check", p)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -35,7 +35,7 @@ func TestCheckWarnsLineRulesOnTechnicalSource(t *testing.T) {
 		strings.Contains(out, "source prose,") {
 		t.Errorf("check output:\n%s", out)
 	}
-	out, err = captureStdout(t, func() error { _, err := runCLI(t, "check", p, "--json"); return err })
+	out, err = runCLI(t, "check", p, "--json")
 	checkJSON = false
 	if err != nil {
 		t.Fatal(err)
@@ -56,7 +56,7 @@ func TestCheckWarnsLineRulesOnTechnicalSource(t *testing.T) {
 		t.Errorf("warnings %+v", plan.Warnings)
 	}
 	p = write("    only: {sources: [prose]}\n")
-	out, err = captureStdout(t, func() error { _, err := runCLI(t, "check", p, "--json"); return err })
+	out, err = runCLI(t, "check", p, "--json")
 	checkJSON = false
 	if err != nil {
 		t.Fatal(err)
