@@ -2,12 +2,12 @@ package run
 
 import (
 	"context"
+	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
 
 	"winnow/configs"
-	"winnow/stages/spec"
 	"winnow/stages/synth"
 )
 
@@ -41,10 +41,7 @@ func TestDefaultSpecDeterministic(t *testing.T) {
 		workers int
 		memory  int64
 	}{{1, 0}, {4, 0}, {2, 4 << 10}} {
-		s, err := spec.LoadSpec(p)
-		if err != nil {
-			t.Fatal(err)
-		}
+		s := loadSpec(t, p)
 		out := filepath.Join(dir, "out")
 		res, err := RunSpec(context.Background(), s, RunOptions{Out: out, Workers: c.workers, Memory: c.memory, Force: true, Version: "test"})
 		if err != nil {
@@ -59,13 +56,6 @@ func TestDefaultSpecDeterministic(t *testing.T) {
 			first = got
 			continue
 		}
-		if len(got) != len(first) {
-			t.Errorf("workers %d memory %d: %d files, want %d", c.workers, c.memory, len(got), len(first))
-		}
-		for k, v := range first {
-			if got[k] != v {
-				t.Errorf("workers %d memory %d: %s differs", c.workers, c.memory, k)
-			}
-		}
+		sameRunDir(t, fmt.Sprintf("workers %d memory %d", c.workers, c.memory), got, first)
 	}
 }

@@ -9,8 +9,6 @@ import (
 	"testing"
 
 	"github.com/klauspost/compress/zstd"
-
-	"winnow/stages/spec"
 )
 
 // The ledger's "value" column has one JSON type per (stage, rule) — a
@@ -21,10 +19,7 @@ import (
 // decontaminate.action=cut (which edits and drops under one rule).
 func TestLedgerValueOneTypePerRule(t *testing.T) {
 	p := defaultSpecFixture(t, 900, 5)
-	s, err := spec.LoadSpec(p)
-	if err != nil {
-		t.Fatal(err)
-	}
+	s := loadSpec(t, p)
 	out := filepath.Join(filepath.Dir(p), "out")
 	if _, err := RunSpec(context.Background(), s, RunOptions{Out: out, Workers: 2, Force: true, Version: "test",
 		Sets: []string{"decontaminate.action=cut"}}); err != nil {

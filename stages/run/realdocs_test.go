@@ -15,7 +15,6 @@ import (
 
 	"winnow/configs"
 	"winnow/stages/record"
-	"winnow/stages/spec"
 )
 
 // copyInto copies the files matching pattern into dir.
@@ -86,10 +85,7 @@ func TestDefaultSpecOnRealDocs(t *testing.T) {
 	sp, _ := configs.FS.ReadFile("default.yaml")
 	p := filepath.Join(dir, "default.yaml")
 	os.WriteFile(p, sp, 0o644)
-	s, err := spec.LoadSpec(p)
-	if err != nil {
-		t.Fatal(err)
-	}
+	s := loadSpec(t, p)
 	res, err := RunSpec(context.Background(), s, RunOptions{Workers: 2, Version: "t"})
 	if err != nil {
 		t.Fatalf("run: %v", err)
