@@ -286,15 +286,7 @@ output:
 		t.Fatal(err)
 	}
 	checkDomainReport(t, tab, js)
-	ev.mu.Lock()
-	reqs, problems := append([]string(nil), ev.requests...), append([]string(nil), ev.problems...)
-	ev.mu.Unlock()
-	if len(reqs) != 1 || reqs[0] != url {
-		t.Errorf("requests %q: want only the report itself", reqs)
-	}
-	if len(problems) > 0 {
-		t.Errorf("console/log problems: %q", problems)
-	}
+	ev.checkOnlyPage(t, url)
 
 	// At phone width the domain section stays one column wide: nothing
 	// in it but the scrolling source table reaches past the screen (the
