@@ -20,8 +20,16 @@ func defaultSpecFixture(t *testing.T, docs int, seed uint64) string {
 	if _, err := synth.Generate(synth.Options{Dir: filepath.Join(dir, "raw"), Docs: docs, Seed: seed}); err != nil {
 		t.Fatal(err)
 	}
+	return writeDefaultSpec(t, dir, filepath.Join(dir, "raw", "evals", "hull-qa.jsonl"))
+}
+
+// writeDefaultSpec copies the eval set evalFile to dir/evals/hull-qa.jsonl
+// (the eval set configs/default.yaml names) and that spec to
+// dir/default.yaml, and returns the spec's path.
+func writeDefaultSpec(t *testing.T, dir, evalFile string) string {
+	t.Helper()
 	os.MkdirAll(filepath.Join(dir, "evals"), 0o755)
-	ev, _ := os.ReadFile(filepath.Join(dir, "raw", "evals", "hull-qa.jsonl"))
+	ev, _ := os.ReadFile(evalFile)
 	os.WriteFile(filepath.Join(dir, "evals", "hull-qa.jsonl"), ev, 0o644)
 	spec, _ := configs.FS.ReadFile("default.yaml")
 	p := filepath.Join(dir, "default.yaml")

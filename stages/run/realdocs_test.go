@@ -13,7 +13,6 @@ import (
 
 	"github.com/klauspost/compress/zstd"
 
-	"winnow/configs"
 	"winnow/stages/record"
 )
 
@@ -79,12 +78,7 @@ func TestDefaultSpecOnRealDocs(t *testing.T) {
 	nText += copyInto(t, filepath.Join(real, "realdocs", "html", "*.html"), filepath.Join(dir, "raw", "web"))
 	copyInto(t, filepath.Join(real, "realdocs", "man", "pages.jsonl.zst"), filepath.Join(dir, "raw", "manuals"))
 	nJSONL := len(zstdLines(t, filepath.Join(dir, "raw", "manuals", "pages.jsonl.zst")))
-	os.MkdirAll(filepath.Join(dir, "evals"), 0o755)
-	ev, _ := os.ReadFile(filepath.Join(real, "realdocs", "evals", "manual-qa.jsonl"))
-	os.WriteFile(filepath.Join(dir, "evals", "hull-qa.jsonl"), ev, 0o644)
-	sp, _ := configs.FS.ReadFile("default.yaml")
-	p := filepath.Join(dir, "default.yaml")
-	os.WriteFile(p, sp, 0o644)
+	p := writeDefaultSpec(t, dir, filepath.Join(real, "realdocs", "evals", "manual-qa.jsonl"))
 	s := loadSpec(t, p)
 	res, err := RunSpec(context.Background(), s, RunOptions{Workers: 2, Version: "t"})
 	if err != nil {
