@@ -82,6 +82,7 @@ package dedup
 
 import (
 	"bufio"
+	"cmp"
 	"encoding/binary"
 	"errors"
 	"fmt"
@@ -374,7 +375,7 @@ func (x *NearIndex) Reduce() (err error) {
 		rms[i].doc, rms[i].kept = x.indexOf(rms[i].doc), x.indexOf(rms[i].kept)
 	}
 	x.perm = nil
-	slices.SortFunc(rms, func(a, b rmRank) int { return int64cmp(int64(a.doc), int64(b.doc)) })
+	slices.SortFunc(rms, func(a, b rmRank) int { return cmp.Compare(a.doc, b.doc) })
 	repOf := map[uint32]int32{}
 	seqs := make([]uint32, 0, len(rms))
 	for _, r := range rms {
@@ -397,16 +398,6 @@ func (x *NearIndex) Reduce() (err error) {
 	// sort anyway to guard Lookup's binary search.
 	x.rm.sort()
 	return nil
-}
-
-func int64cmp(a, b int64) int {
-	switch {
-	case a < b:
-		return -1
-	case a > b:
-		return 1
-	}
-	return 0
 }
 
 func (x *NearIndex) budget() int64 {

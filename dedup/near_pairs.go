@@ -36,6 +36,7 @@ package dedup
 // times; only the first counts.
 
 import (
+	"cmp"
 	"encoding/binary"
 	"math"
 	"slices"
@@ -57,13 +58,10 @@ var prioCodec = Codec[prioRec]{
 		return prioRec{binary.LittleEndian.Uint64(b), binary.LittleEndian.Uint32(b[8:])}
 	},
 	Compare: func(a, b prioRec) int {
-		if a.prio != b.prio {
-			if a.prio < b.prio {
-				return -1
-			}
-			return 1
+		if c := cmp.Compare(a.prio, b.prio); c != 0 {
+			return c
 		}
-		return int64cmp(int64(a.idx), int64(b.idx))
+		return cmp.Compare(a.idx, b.idx)
 	},
 }
 
@@ -84,13 +82,10 @@ var pairCodec = Codec[pairRec]{
 		return pairRec{binary.LittleEndian.Uint64(b), binary.LittleEndian.Uint16(b[8:])}
 	},
 	Compare: func(a, b pairRec) int {
-		if a.key != b.key {
-			if a.key < b.key {
-				return -1
-			}
-			return 1
+		if c := cmp.Compare(a.key, b.key); c != 0 {
+			return c
 		}
-		return int64cmp(int64(a.sim), int64(b.sim))
+		return cmp.Compare(a.sim, b.sim)
 	},
 }
 

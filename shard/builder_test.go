@@ -103,6 +103,22 @@ func readShard(t *testing.T, path string) []line {
 
 func build(t *testing.T, docs []Doc, opt Options) (*Report, string) {
 	t.Helper()
+	return buildTo(t, docs, opt, nil)
+}
+
+// buildLeftOut is build that also returns the documents the builder
+// reported left out, in the order reported.
+func buildLeftOut(t *testing.T, docs []Doc, opt Options) (*Report, string, []LeftOut) {
+	t.Helper()
+	var left []LeftOut
+	rep, run := buildTo(t, docs, opt, func(l LeftOut) error { left = append(left, l); return nil })
+	return rep, run, left
+}
+
+// buildTo builds docs with opt under a fresh run directory, giving the
+// builder leftOut (when not nil) as its left-out callback.
+func buildTo(t *testing.T, docs []Doc, opt Options, leftOut func(LeftOut) error) (*Report, string) {
+	t.Helper()
 	run := t.TempDir()
 	opt.Dir = filepath.Join(run, "shards")
 	opt.TempDir = filepath.Join(run, "tmp")
@@ -112,6 +128,9 @@ func build(t *testing.T, docs []Doc, opt Options) (*Report, string) {
 	b, err := NewBuilder(opt)
 	if err != nil {
 		t.Fatal(err)
+	}
+	if leftOut != nil {
+		b.SetLeftOut(leftOut)
 	}
 	for i := range docs {
 		if err := b.Add(&docs[i]); err != nil {
@@ -640,21 +659,8 @@ func TestShuffleWithoutMix(t *testing.T) {
 func TestMixReportsLeftOut(t *testing.T) {
 	tok := mustLoad(t, "cl100k_base")
 	docs := corpus(3, tok)
-	run := t.TempDir()
-	b, err := NewBuilder(Options{Dir: filepath.Join(run, "shards"), TempDir: run, Tokenizer: tok, Name: "lo",
+	rep, run, left := buildLeftOut(t, docs, Options{Tokenizer: tok, Name: "lo",
 		ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}})
-	if err != nil {
-		t.Fatal(err)
-	}
-	var left []LeftOut
-	b.SetLeftOut(func(l LeftOut) error { left = append(left, l); return nil })
-	for i := range docs {
-		b.Add(&docs[i])
-	}
-	rep, err := b.Close()
-	if err != nil {
-		t.Fatal(err)
-	}
 	written := map[string]bool{}
 	for _, f := range rep.Files {
 		for _, l := range readShard(t, filepath.Join(run, f.Path)) {
@@ -699,21 +705,8 @@ func TestLeftOutReason(t *testing.T) {
 		{Tokenizer: tok, ShardTokens: 2000, Shuffle: true, Seed: 3, BudgetTokens: 3000},
 		{Tokenizer: tok, ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}},
 	} {
-		run := t.TempDir()
-		opt.Dir, opt.TempDir, opt.Name = filepath.Join(run, "shards"), run, "why"
-		b, err := NewBuilder(opt)
-		if err != nil {
-			t.Fatal(err)
-		}
-		var left []LeftOut
-		b.SetLeftOut(func(l LeftOut) error { left = append(left, l); return nil })
-		for i := range docs {
-			b.Add(&docs[i])
-		}
-		rep, err := b.Close()
-		if err != nil {
-			t.Fatal(err)
-		}
+		opt.Name = "why"
+		rep, _, left := buildLeftOut(t, docs, opt)
 		if len(left) == 0 {
 			t.Fatalf("shuffle %v: nothing left out", opt.Shuffle)
 		}

@@ -51,9 +51,3 @@ func (s *normalizeStage) Process(d *Doc) Decision {
 	}
 	return EditDoc("normalized", text, changes)
 }
-
-// NormalizeText is filters.NormalizeText, the text function of this
-// stage.
-func NormalizeText(text string, form norm.Form, collapseSpaces bool, maxBlank int) (string, map[string]int) {
-	return filters.NormalizeText(text, form, collapseSpaces, maxBlank)
-}

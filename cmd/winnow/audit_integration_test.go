@@ -254,6 +254,23 @@ func (e *eventLog) add(ev any) {
 	}
 }
 
+// checkOnlyPage reports a request for anything but the page at url (a
+// report loads nothing but itself) and every console or log problem seen,
+// and returns the requests.
+func (e *eventLog) checkOnlyPage(t *testing.T, url string) []string {
+	t.Helper()
+	e.mu.Lock()
+	reqs, problems := append([]string(nil), e.requests...), append([]string(nil), e.problems...)
+	e.mu.Unlock()
+	if len(reqs) != 1 || reqs[0] != url {
+		t.Errorf("requests %q: want only the report itself", reqs)
+	}
+	if len(problems) > 0 {
+		t.Errorf("console/log problems: %q", problems)
+	}
+	return reqs
+}
+
 // pageData is what the test reads from the rendered page.
 type pageData struct {
 	Numbers [][2]string `json:"numbers"`
@@ -317,15 +334,7 @@ func TestAuditReportInBrowser(t *testing.T) {
 	if err := json.Unmarshal([]byte(raw), &pd); err != nil {
 		t.Fatal(err)
 	}
-	ev.mu.Lock()
-	reqs, problems := append([]string(nil), ev.requests...), append([]string(nil), ev.problems...)
-	ev.mu.Unlock()
-	if len(reqs) != 1 || reqs[0] != url {
-		t.Errorf("requests %q: want only the report itself", reqs)
-	}
-	if len(problems) > 0 {
-		t.Errorf("console/log problems: %q", problems)
-	}
+	reqs := ev.checkOnlyPage(t, url)
 	if pd.Scroll > pd.Width {
 		t.Errorf("the page scrolls sideways at 1280 px (%d > %d)", pd.Scroll, pd.Width)
 	}

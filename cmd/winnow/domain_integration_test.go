@@ -48,10 +48,7 @@ func captureStdout(t *testing.T, fn func() error) (string, error) {
 // hash in the manifest, explain shows the score, and what-if moves
 // min_score from the stored metrics alone.
 func TestDomainStageEndToEnd(t *testing.T) {
-	data, err := filepath.Abs("../../testdata/domaindocs")
-	if err != nil {
-		t.Fatal(err)
-	}
+	data := domainDocs(t)
 	dir := t.TempDir()
 	spec := filepath.Join(dir, "spec.yaml")
 	body := `name: docs
@@ -136,30 +133,15 @@ output:
 		t.Fatal("no domain stage in the manifest")
 	}
 	// domain_score for every document, in [0, 1].
-	f, err := os.Open(filepath.Join(run, "metrics", "domain.jsonl.zst"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	zr, _ := zstd.NewReader(f)
-	defer zr.Close()
-	rows := 0
-	dec := json.NewDecoder(zr)
-	for {
-		var row map[string]any
-		if err := dec.Decode(&row); err == io.EOF {
-			break
-		} else if err != nil {
-			t.Fatal(err)
-		}
+	rows := readZstdJSON(t, filepath.Join(run, "metrics", "domain.jsonl.zst"))
+	for _, row := range rows {
 		s, ok := row["domain_score"].(float64)
 		if !ok || s < 0 || s > 1 {
 			t.Fatalf("metrics row %v", row)
 		}
-		rows++
 	}
-	if rows != 563+716 {
-		t.Fatalf("%d metric rows", rows)
+	if len(rows) != 563+716 {
+		t.Fatalf("%d metric rows", len(rows))
 	}
 
 	out, err = runCLI(t, "explain", run, "manpages:man2/open.2/0")
@@ -241,6 +223,18 @@ func TestDemoDomainSelectsRepairText(t *testing.T) {
 	}
 }
 
+// domainDocs returns the absolute path of testdata/domaindocs, the real
+// documents the domain tests score (README.md there names the sources).
+func domainDocs(t *testing.T) string {
+	t.Helper()
+	data, err := filepath.Abs("../../testdata/domaindocs")
+	if err != nil {
+		t.Fatal(err)
+	}
+	return data
+}
+
+// readZstdJSON returns the rows of a zstd JSON Lines file.
 func readZstdJSON(t *testing.T, path string) []map[string]any {
 	t.Helper()
 	f, err := os.Open(path)
@@ -271,10 +265,7 @@ func readZstdJSON(t *testing.T, path string) []map[string]any {
 // domain_score for every document, and gives byte-identical shards with 1
 // and 2 workers (the Gumbel noise comes from the seed and the document id).
 func TestDomainKeepFractionRun(t *testing.T) {
-	data, err := filepath.Abs("../../testdata/domaindocs")
-	if err != nil {
-		t.Fatal(err)
-	}
+	data := domainDocs(t)
 	dir := t.TempDir()
 	spec := filepath.Join(dir, "spec.yaml")
 	body := `name: docs

@@ -11,7 +11,6 @@ import (
 	"testing"
 
 	"github.com/chromedp/chromedp"
-	"github.com/klauspost/compress/zstd"
 )
 
 // markupManPages writes to out, as JSON Lines with ids prefixed
@@ -20,29 +19,16 @@ import (
 // how many.
 func markupManPages(t *testing.T, in, out string) int {
 	t.Helper()
-	f, err := os.Open(in)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	zr, err := zstd.NewReader(f)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer zr.Close()
 	var b strings.Builder
 	n := 0
-	dec := json.NewDecoder(zr)
-	for dec.More() {
-		var doc struct{ ID, Text string }
-		if err := dec.Decode(&doc); err != nil {
-			t.Fatal(err)
-		}
-		start := []rune(strings.Join(strings.Fields(doc.Text), " "))
+	for _, doc := range readZstdJSON(t, in) {
+		id, _ := doc["id"].(string)
+		text, _ := doc["text"].(string)
+		start := []rune(strings.Join(strings.Fields(text), " "))
 		if !strings.ContainsAny(string(start[:min(len(start), 200)]), "<>&") {
 			continue
 		}
-		line, _ := json.Marshal(map[string]string{"id": "headers:" + doc.ID, "text": doc.Text})
+		line, _ := json.Marshal(map[string]string{"id": "headers:" + id, "text": text})
 		b.Write(line)
 		b.WriteByte('\n')
 		n++
@@ -229,10 +215,7 @@ func checkDomainReport(t *testing.T, tab context.Context, js map[string]any) {
 // page, and the domain section agrees with `audit --json` (checkDomainReport).
 // The text audit's headline gives the share kept per source.
 func TestDomainReportInBrowser(t *testing.T) {
-	data, err := filepath.Abs("../../testdata/domaindocs")
-	if err != nil {
-		t.Fatal(err)
-	}
+	data := domainDocs(t)
 	dir := t.TempDir()
 	// The man pages whose start shows C headers (<signal.h>) and
 	// operators (&&) make a source of their own, so the lowest scoring
@@ -303,15 +286,7 @@ output:
 		t.Fatal(err)
 	}
 	checkDomainReport(t, tab, js)
-	ev.mu.Lock()
-	reqs, problems := append([]string(nil), ev.requests...), append([]string(nil), ev.problems...)
-	ev.mu.Unlock()
-	if len(reqs) != 1 || reqs[0] != url {
-		t.Errorf("requests %q: want only the report itself", reqs)
-	}
-	if len(problems) > 0 {
-		t.Errorf("console/log problems: %q", problems)
-	}
+	ev.checkOnlyPage(t, url)
 
 	// At phone width the domain section stays one column wide: nothing
 	// in it but the scrolling source table reaches past the screen (the

@@ -5,7 +5,6 @@ import (
 	"bytes"
 	"compress/gzip"
 	"encoding/json"
-	"io"
 	"os"
 	"path/filepath"
 	"strings"
@@ -27,19 +26,7 @@ func readParquet(t testing.TB, path string, opt ReadOptions) ([]Record, error) {
 	if err != nil {
 		return nil, err
 	}
-	var recs []Record
-	for {
-		rec, err := r.Next()
-		if rec.Doc != nil || rec.Issue != nil {
-			recs = append(recs, rec)
-		}
-		if err == io.EOF {
-			return recs, nil
-		}
-		if err != nil {
-			return recs, err
-		}
-	}
+	return drainRecords(r)
 }
 
 // A Parquet file written by DuckDB (an independent writer; see

@@ -69,6 +69,12 @@ func readAll(t *testing.T, path string, opt ReadOptions) ([]Record, error) {
 	if err != nil {
 		return nil, err
 	}
+	return drainRecords(rr)
+}
+
+// drainRecords reads rr to its end and returns every record that holds a
+// document or an issue, and the error that ended it (nil at io.EOF).
+func drainRecords(rr RecordReader) ([]Record, error) {
 	var recs []Record
 	for {
 		r, err := rr.Next()

@@ -3,9 +3,10 @@
 package record
 
 import (
+	"maps"
 	"os"
 	"path/filepath"
-	"sort"
+	"slices"
 
 	"winnow/stages/jsonl"
 
@@ -65,12 +66,7 @@ func (r *LedgerRecord) AppendJSON(b []byte) []byte {
 		j.Val("changes", r.Changes)
 	}
 	if len(r.Extra) > 0 {
-		keys := make([]string, 0, len(r.Extra))
-		for k := range r.Extra {
-			keys = append(keys, k)
-		}
-		sort.Strings(keys)
-		for _, k := range keys {
+		for _, k := range slices.Sorted(maps.Keys(r.Extra)) {
 			j.Val(k, r.Extra[k])
 		}
 	}
@@ -289,12 +285,7 @@ func (m *Metrics) Add(stage string, r *MetricRow) error {
 		j.Str("dropped_by", r.DroppedBy)
 	}
 	if len(r.Labels) > 0 {
-		keys := make([]string, 0, len(r.Labels))
-		for k := range r.Labels {
-			keys = append(keys, k)
-		}
-		sort.Strings(keys)
-		for _, k := range keys {
+		for _, k := range slices.Sorted(maps.Keys(r.Labels)) {
 			j.Str(k, r.Labels[k])
 		}
 	}

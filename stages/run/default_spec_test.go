@@ -2,12 +2,12 @@ package run
 
 import (
 	"context"
+	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
 
 	"winnow/configs"
-	"winnow/stages/spec"
 	"winnow/stages/synth"
 )
 
@@ -20,8 +20,16 @@ func defaultSpecFixture(t *testing.T, docs int, seed uint64) string {
 	if _, err := synth.Generate(synth.Options{Dir: filepath.Join(dir, "raw"), Docs: docs, Seed: seed}); err != nil {
 		t.Fatal(err)
 	}
+	return writeDefaultSpec(t, dir, filepath.Join(dir, "raw", "evals", "hull-qa.jsonl"))
+}
+
+// writeDefaultSpec copies the eval set evalFile to dir/evals/hull-qa.jsonl
+// (the eval set configs/default.yaml names) and that spec to
+// dir/default.yaml, and returns the spec's path.
+func writeDefaultSpec(t *testing.T, dir, evalFile string) string {
+	t.Helper()
 	os.MkdirAll(filepath.Join(dir, "evals"), 0o755)
-	ev, _ := os.ReadFile(filepath.Join(dir, "raw", "evals", "hull-qa.jsonl"))
+	ev, _ := os.ReadFile(evalFile)
 	os.WriteFile(filepath.Join(dir, "evals", "hull-qa.jsonl"), ev, 0o644)
 	spec, _ := configs.FS.ReadFile("default.yaml")
 	p := filepath.Join(dir, "default.yaml")
@@ -41,10 +49,7 @@ func TestDefaultSpecDeterministic(t *testing.T) {
 		workers int
 		memory  int64
 	}{{1, 0}, {4, 0}, {2, 4 << 10}} {
-		s, err := spec.LoadSpec(p)
-		if err != nil {
-			t.Fatal(err)
-		}
+		s := loadSpec(t, p)
 		out := filepath.Join(dir, "out")
 		res, err := RunSpec(context.Background(), s, RunOptions{Out: out, Workers: c.workers, Memory: c.memory, Force: true, Version: "test"})
 		if err != nil {
@@ -59,13 +64,6 @@ func TestDefaultSpecDeterministic(t *testing.T) {
 			first = got
 			continue
 		}
-		if len(got) != len(first) {
-			t.Errorf("workers %d memory %d: %d files, want %d", c.workers, c.memory, len(got), len(first))
-		}
-		for k, v := range first {
-			if got[k] != v {
-				t.Errorf("workers %d memory %d: %s differs", c.workers, c.memory, k)
-			}
-		}
+		sameRunDir(t, fmt.Sprintf("workers %d memory %d", c.workers, c.memory), got, first)
 	}
 }

@@ -1,9 +1,12 @@
 package run
 
 import (
+	"context"
 	"os"
 	"path/filepath"
 	"testing"
+
+	"winnow/stages/spec"
 )
 
 func writeFile(t *testing.T, dir, name, content string) string {
@@ -16,4 +19,26 @@ func writeFile(t *testing.T, dir, name, content string) string {
 		t.Fatal(err)
 	}
 	return p
+}
+
+// loadSpec loads the spec file at p, failing the test on an error.
+func loadSpec(t *testing.T, p string) *spec.Spec {
+	t.Helper()
+	s, err := spec.LoadSpec(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+// wholeRun runs the spec file at p to the end, never stopped, into
+// whole beside it, and returns that run directory and its digest: what a
+// stopped and resumed run must reproduce.
+func wholeRun(t *testing.T, p string) (string, map[string]string) {
+	t.Helper()
+	whole := filepath.Join(filepath.Dir(p), "whole")
+	if _, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: whole, Workers: 2, Version: "t"}); err != nil {
+		t.Fatal(err)
+	}
+	return whole, runDirDigest(t, whole)
 }

@@ -10,7 +10,6 @@ import (
 	"testing"
 	"winnow/stages"
 	"winnow/stages/record"
-	"winnow/stages/spec"
 )
 
 // A Ctrl-C that arrives right after a checkpoint stops the run there: the
@@ -19,23 +18,12 @@ import (
 func TestInterruptJustAfterCheckpoint(t *testing.T) {
 	p := defaultSpecFixture(t, 600, 9)
 	dir := filepath.Dir(p)
-	load := func() *spec.Spec {
-		s, err := spec.LoadSpec(p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		return s
-	}
-	whole := filepath.Join(dir, "whole")
-	if _, err := RunSpec(context.Background(), load(), RunOptions{Out: whole, Workers: 2, Version: "t"}); err != nil {
-		t.Fatal(err)
-	}
-	want := runDirDigest(t, whole)
+	_, want := wholeRun(t, p)
 	for _, at := range []int{1, 2} {
 		ctx, cancel := context.WithCancel(context.Background())
 		n := 0
 		out := filepath.Join(dir, "stopped")
-		res, err := RunSpec(ctx, load(), RunOptions{Out: out, Workers: 2, Version: "t", Force: true, afterCheckpoint: func() {
+		res, err := RunSpec(ctx, loadSpec(t, p), RunOptions{Out: out, Workers: 2, Version: "t", Force: true, afterCheckpoint: func() {
 			if n++; n == at {
 				cancel()
 			}
@@ -44,15 +32,10 @@ func TestInterruptJustAfterCheckpoint(t *testing.T) {
 		if !errors.Is(err, context.Canceled) || res == nil || !res.Manifest.Interrupted {
 			t.Fatalf("cancel after checkpoint %d: err %v", at, err)
 		}
-		if _, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Workers: 1, Version: "t", Resume: true}); err != nil {
+		if _, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: out, Workers: 1, Version: "t", Resume: true}); err != nil {
 			t.Fatalf("resume: %v", err)
 		}
-		got := runDirDigest(t, out)
-		for k, v := range want {
-			if got[k] != v {
-				t.Errorf("cancel after checkpoint %d: %s differs", at, k)
-			}
-		}
+		sameRunDir(t, fmt.Sprintf("cancel after checkpoint %d", at), runDirDigest(t, out), want)
 	}
 }
 
@@ -120,15 +103,7 @@ output:
 	if _, err := RunSpec(context.Background(), writeSpec(t, dir, body), RunOptions{Out: out, Workers: 1, Resume: true}); err != nil {
 		t.Fatalf("resume after the failure: %v", err)
 	}
-	got := runDirDigest(t, out)
-	for k, v := range want {
-		if got[k] != v {
-			t.Errorf("%s differs from the run that never failed", k)
-		}
-	}
-	if len(got) != len(want) {
-		t.Errorf("%d files, want %d", len(got), len(want))
-	}
+	sameRunDir(t, "resumed after the failure", runDirDigest(t, out), want)
 
 	// Stopped before the first checkpoint: no promise.
 	ctx, cancel := context.WithCancel(context.Background())

@@ -1,16 +1,10 @@
 package run
 
 import (
-	"bufio"
 	"context"
 	"encoding/json"
-	"os"
 	"path/filepath"
 	"testing"
-
-	"github.com/klauspost/compress/zstd"
-
-	"winnow/stages/spec"
 )
 
 // The ledger's "value" column has one JSON type per (stage, rule) — a
@@ -21,10 +15,7 @@ import (
 // decontaminate.action=cut (which edits and drops under one rule).
 func TestLedgerValueOneTypePerRule(t *testing.T) {
 	p := defaultSpecFixture(t, 900, 5)
-	s, err := spec.LoadSpec(p)
-	if err != nil {
-		t.Fatal(err)
-	}
+	s := loadSpec(t, p)
 	out := filepath.Join(filepath.Dir(p), "out")
 	if _, err := RunSpec(context.Background(), s, RunOptions{Out: out, Workers: 2, Force: true, Version: "test",
 		Sets: []string{"decontaminate.action=cut"}}); err != nil {
@@ -36,19 +27,9 @@ func TestLedgerValueOneTypePerRule(t *testing.T) {
 	}
 	kinds := map[string]map[string]int{} // stage/rule -> JSON kind -> records
 	for _, f := range files {
-		fh, err := os.Open(f)
-		if err != nil {
-			t.Fatal(err)
-		}
-		zr, err := zstd.NewReader(fh)
-		if err != nil {
-			t.Fatal(err)
-		}
-		sc := bufio.NewScanner(zr)
-		sc.Buffer(nil, 1<<24)
-		for sc.Scan() {
+		for _, line := range zstdLines(t, f) {
 			var rec map[string]any
-			if err := json.Unmarshal(sc.Bytes(), &rec); err != nil {
+			if err := json.Unmarshal(line, &rec); err != nil {
 				t.Fatalf("%s: %v", f, err)
 			}
 			kind := "absent"
@@ -72,8 +53,6 @@ func TestLedgerValueOneTypePerRule(t *testing.T) {
 			}
 			kinds[key][kind]++
 		}
-		zr.Close()
-		fh.Close()
 	}
 	for key, k := range kinds {
 		if len(k) != 1 {

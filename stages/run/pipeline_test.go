@@ -6,9 +6,11 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"maps"
 	"os"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"strings"
 	"testing"
 	"winnow/stages/record"
@@ -44,12 +46,7 @@ func writeCorpus(t *testing.T, n int) string {
 
 func writeSpec(t *testing.T, dir, body string) *spec.Spec {
 	t.Helper()
-	p := writeFile(t, dir, "spec.yaml", body)
-	s, err := spec.LoadSpec(p)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return s
+	return loadSpec(t, writeFile(t, dir, "spec.yaml", body))
 }
 
 const basicSpec = `name: basic
@@ -103,6 +100,21 @@ func runDirDigest(t *testing.T, dir string) map[string]string {
 	return out
 }
 
+// sameRunDir reports, each line prefixed by what, how the run directory
+// digest got differs from want: the number of files, and each file of
+// want whose bytes differ.
+func sameRunDir(t *testing.T, what string, got, want map[string]string) {
+	t.Helper()
+	if len(got) != len(want) {
+		t.Errorf("%s: %d files, want %d (%v)", what, len(got), len(want), slices.Sorted(maps.Keys(got)))
+	}
+	for k, v := range want {
+		if got[k] != v {
+			t.Errorf("%s: %s differs", what, k)
+		}
+	}
+}
+
 // Same inputs, spec and seed give byte-identical run directories, whatever
 // the number of workers.
 func TestRunDeterministicAcrossWorkers(t *testing.T) {
@@ -123,14 +135,7 @@ func TestRunDeterministicAcrossWorkers(t *testing.T) {
 			first = got
 			continue
 		}
-		if len(got) != len(first) {
-			t.Fatalf("workers %d: %d files, want %d", w, len(got), len(first))
-		}
-		for k, v := range first {
-			if got[k] != v {
-				t.Errorf("workers %d: %s differs", w, k)
-			}
-		}
+		sameRunDir(t, fmt.Sprintf("workers %d", w), got, first)
 	}
 	// Output order is input order: file 0's documents, then file 1's.
 	shard := readZstd(t, filepath.Join(dir, "out-1", "shards", "basic-00000.jsonl.zst"))

@@ -13,9 +13,7 @@ import (
 
 	"github.com/klauspost/compress/zstd"
 
-	"winnow/configs"
 	"winnow/stages/record"
-	"winnow/stages/spec"
 )
 
 // copyInto copies the files matching pattern into dir.
@@ -80,16 +78,8 @@ func TestDefaultSpecOnRealDocs(t *testing.T) {
 	nText += copyInto(t, filepath.Join(real, "realdocs", "html", "*.html"), filepath.Join(dir, "raw", "web"))
 	copyInto(t, filepath.Join(real, "realdocs", "man", "pages.jsonl.zst"), filepath.Join(dir, "raw", "manuals"))
 	nJSONL := len(zstdLines(t, filepath.Join(dir, "raw", "manuals", "pages.jsonl.zst")))
-	os.MkdirAll(filepath.Join(dir, "evals"), 0o755)
-	ev, _ := os.ReadFile(filepath.Join(real, "realdocs", "evals", "manual-qa.jsonl"))
-	os.WriteFile(filepath.Join(dir, "evals", "hull-qa.jsonl"), ev, 0o644)
-	sp, _ := configs.FS.ReadFile("default.yaml")
-	p := filepath.Join(dir, "default.yaml")
-	os.WriteFile(p, sp, 0o644)
-	s, err := spec.LoadSpec(p)
-	if err != nil {
-		t.Fatal(err)
-	}
+	p := writeDefaultSpec(t, dir, filepath.Join(real, "realdocs", "evals", "manual-qa.jsonl"))
+	s := loadSpec(t, p)
 	res, err := RunSpec(context.Background(), s, RunOptions{Workers: 2, Version: "t"})
 	if err != nil {
 		t.Fatalf("run: %v", err)

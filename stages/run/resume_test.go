@@ -10,7 +10,6 @@ import (
 	"testing"
 
 	"winnow/stages/record"
-	"winnow/stages/spec"
 )
 
 // A run stopped after a checkpoint and resumed writes a run directory
@@ -20,54 +19,27 @@ import (
 func TestResumeMatchesUninterruptedRun(t *testing.T) {
 	p := defaultSpecFixture(t, 1200, 5)
 	dir := filepath.Dir(p)
-	load := func() *spec.Spec {
-		s, err := spec.LoadSpec(p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		return s
-	}
-	whole := filepath.Join(dir, "whole")
-	if _, err := RunSpec(context.Background(), load(), RunOptions{Out: whole, Workers: 2, Version: "t"}); err != nil {
-		t.Fatal(err)
-	}
-	want := runDirDigest(t, whole)
+	whole, want := wholeRun(t, p)
 	for _, stop := range []int{1, 2} {
 		out := filepath.Join(dir, "stopped")
-		res, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Workers: 2, Version: "t", Force: true, stopAfter: stop})
+		res, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: out, Workers: 2, Version: "t", Force: true, stopAfter: stop})
 		if !errors.Is(err, context.Canceled) || !res.Manifest.Interrupted {
 			t.Fatalf("stop after %d: %v", stop, err)
 		}
 		var logged []string
 		logf := func(f string, a ...any) { logged = append(logged, fmt.Sprintf(f, a...)) }
-		if _, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Workers: 1, Version: "t", Resume: true, Log: logf}); err != nil {
+		if _, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: out, Workers: 1, Version: "t", Resume: true, Log: logf}); err != nil {
 			t.Fatalf("resume after %d: %v", stop, err)
 		}
 		if len(logged) == 0 || !strings.Contains(logged[0], fmt.Sprintf("resumed after segment %d of 3", stop)) {
 			t.Errorf("resume log: %q", logged)
 		}
-		got := runDirDigest(t, out)
-		if len(got) != len(want) {
-			t.Errorf("stop after %d: %d files, want %d (%v)", stop, len(got), len(want), keys(got))
-		}
-		for k, v := range want {
-			if got[k] != v {
-				t.Errorf("stop after %d: %s differs", stop, k)
-			}
-		}
+		sameRunDir(t, fmt.Sprintf("stop after %d", stop), runDirDigest(t, out), want)
 	}
 	// Nothing to resume: a finished run (its checkpoint is gone).
-	if _, err := RunSpec(context.Background(), load(), RunOptions{Out: whole, Resume: true}); !errors.Is(err, record.ErrNoCheckpoint) {
+	if _, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: whole, Resume: true}); !errors.Is(err, record.ErrNoCheckpoint) {
 		t.Errorf("resume of a finished run: %v", err)
 	}
-}
-
-func keys(m map[string]string) []string {
-	var out []string
-	for k := range m {
-		out = append(out, k)
-	}
-	return out
 }
 
 // --resume refuses, naming the files, when an input changed after the
@@ -75,16 +47,9 @@ func keys(m map[string]string) []string {
 func TestResumeRefusesChangedInputs(t *testing.T) {
 	p := defaultSpecFixture(t, 400, 4)
 	dir := filepath.Dir(p)
-	load := func() *spec.Spec {
-		s, err := spec.LoadSpec(p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		return s
-	}
 	out := filepath.Join(dir, "out")
 	stop := func() {
-		if _, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Force: true, stopAfter: 1}); !errors.Is(err, context.Canceled) {
+		if _, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: out, Force: true, stopAfter: 1}); !errors.Is(err, context.Canceled) {
 			t.Fatalf("stop: %v", err)
 		}
 	}
@@ -114,7 +79,7 @@ func TestResumeRefusesChangedInputs(t *testing.T) {
 		os.Remove(files[0] + ".extra.jsonl")
 		stop()
 		c.change()
-		_, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Resume: true})
+		_, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: out, Resume: true})
 		if err == nil || !strings.Contains(err.Error(), "cannot resume: the inputs changed since the checkpoint") || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("%s: %v\nwant %s", c.name, err, c.want)
 		}
@@ -123,7 +88,7 @@ func TestResumeRefusesChangedInputs(t *testing.T) {
 	os.WriteFile(files[0], orig, 0o644)
 	os.Remove(files[0] + ".extra.jsonl")
 	stop()
-	if _, err := RunSpec(context.Background(), load(), RunOptions{Out: out, Resume: true}); err != nil {
+	if _, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: out, Resume: true}); err != nil {
 		t.Errorf("unchanged inputs: %v", err)
 	}
 }

@@ -272,17 +272,9 @@ func TestCrawlMainTextF1(t *testing.T) {
 func TestCrawlRecordsByRule(t *testing.T) {
 	got := map[string]int{}
 	for _, rec := range readWARC(t, crawlWARC) {
-		var rule string
-		var err error
-		switch {
-		case rec.typ == "warcinfo" || rec.typ == "request":
+		_, rule, doc, err := rec.page()
+		if !doc {
 			continue
-		case IsCrawlerRecord(rec.typ, rec.uri):
-			rule = RuleCrawlerRecord
-		case rec.typ == "response":
-			_, rule, err = FromWARCResponse(rec.block, rec.uri, rec.date, Options{})
-		default:
-			t.Fatalf("unexpected %s record %s", rec.typ, rec.uri)
 		}
 		if err != nil {
 			t.Fatalf("%s: %v", rec.uri, err)

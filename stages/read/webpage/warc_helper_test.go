@@ -3,6 +3,7 @@ package webpage
 import (
 	"bufio"
 	"bytes"
+	"fmt"
 	"io"
 	"os"
 	"strconv"
@@ -79,6 +80,25 @@ func readWARC(t testing.TB, path string) []warcRecord {
 		}
 		out = append(out, r)
 	}
+}
+
+// page turns a test WARC record into its page, or the rule that skips it,
+// with this package's functions; doc is false for warcinfo and request
+// records, which hold no document. Another record type is an error.
+func (r warcRecord) page() (p Page, rule string, doc bool, err error) {
+	switch {
+	case r.typ == "warcinfo" || r.typ == "request":
+		return Page{}, "", false, nil
+	case IsCrawlerRecord(r.typ, r.uri):
+		rule = RuleCrawlerRecord
+	case r.typ == "response":
+		p, rule, err = FromWARCResponse(r.block, r.uri, r.date, Options{})
+	case r.typ == "resource":
+		p, rule, err = FromWARCResource(r.block, r.ctype, r.uri, r.date, Options{})
+	default:
+		err = fmt.Errorf("unexpected %s record", r.typ)
+	}
+	return p, rule, true, err
 }
 
 // pageBody returns the raw HTML body of a response record from the wget

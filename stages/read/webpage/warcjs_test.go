@@ -67,18 +67,9 @@ func TestWarcioPages(t *testing.T) {
 	rules := map[string]int{}
 	pages := 0
 	for _, rec := range readWARC(t, warcjsWARC) {
-		var page Page
-		var rule string
-		var err error
-		switch {
-		case rec.typ == "warcinfo" || rec.typ == "request":
+		page, rule, doc, err := rec.page()
+		if !doc {
 			continue
-		case IsCrawlerRecord(rec.typ, rec.uri):
-			rule = RuleCrawlerRecord
-		case rec.typ == "response":
-			page, rule, err = FromWARCResponse(rec.block, rec.uri, rec.date, Options{})
-		case rec.typ == "resource":
-			page, rule, err = FromWARCResource(rec.block, rec.ctype, rec.uri, rec.date, Options{})
 		}
 		if err != nil {
 			t.Errorf("%s: %v", rec.uri, err)
