@@ -57,19 +57,22 @@ func loadLangeval(t testing.TB) []evalText {
 // the closely related pairs lingua's models cannot always tell apart.
 // Every other language the models cover must reach 97%.
 var longFloor = map[string]float64{
-	"bs": 0.25, // read as Croatian: lingua's bs and hr models are of one language's two standards
+	"bs": 0.20, // read as Croatian: lingua's bs and hr models are two standards of one language
+	"hr": 0.85, // read as Bosnian (catalogue texts; the UDHR ones are 100%)
 	"id": 0.60, // read as Malay (lingua alone reads 55% of the UDHR id paragraphs as ms)
-	"ms": 0.95, // read as Indonesian
-	"sr": 0.75, // Cyrillic 100%; Latin script read as Croatian or Bosnian half the time
-	"tn": 0.95, // one text read as Sotho, its close relative
+	"sr": 0.80, // Cyrillic 100%; Latin script read as Croatian or Bosnian a third of the time
+	"tn": 0.90, // one UDHR text of 15 read as Sotho, its close relative
+	// One text of 20-30 below 97%, each a real quirk of the data:
+	"be": 0.95, // a catalogue text full of English release names, read as en
+	"mr": 0.95, // one catalogue text read as Hindi (same script, shared vocabulary)
+	"ro": 0.95, // one glib catalogue text read as Spanish
 	"zu": 0.95, // one text read as Xhosa, its close relative
 }
 
 // shortFloor is the measured short-text (5-20 words) accuracy per
-// language, rounded down to 5%; languages not listed must reach
-// shortDefaultFloor.
+// language, rounded down to 5%, where it is below shortDefaultFloor.
 var shortFloor = map[string]float64{
-	"bs": 0.35, "hr": 0.65, "id": 0.55, "ro": 0.75, "sr": 0.70,
+	"bs": 0.40, "hr": 0.60, "id": 0.60, "sr": 0.65,
 }
 
 const (
@@ -98,8 +101,18 @@ func TestLangEvalAccuracy(t *testing.T) {
 	type key struct{ code, kind, source string }
 	tallies := map[key]tally{}
 	confused := map[key]map[string]int{}
+	variants := map[key]tally{} // key.source holds the variant
 	for _, e := range texts {
 		r := d.Detect(e.text)
+		if e.variant != e.code {
+			k := key{e.code, e.kind, e.variant}
+			tl := variants[k]
+			tl.n++
+			if r.Lang == e.code {
+				tl.ok++
+			}
+			variants[k] = tl
+		}
 		for _, src := range []string{e.source, "all"} {
 			k := key{e.code, e.kind, src}
 			tl := tallies[k]
@@ -150,10 +163,28 @@ func TestLangEvalAccuracy(t *testing.T) {
 			t.Errorf("%s short: %.1f%% < %.0f%% (%v)", code, 100*a, 100*sf, confused[sl])
 		}
 	}
+	fmt.Fprintf(&b, "\nBy variant (script or standard), both sources:\n\n| variant | long | short |\n| --- | --- | --- |\n")
+	var vs []key
+	for k := range variants {
+		if k.kind == "long" {
+			vs = append(vs, k)
+		}
+	}
+	sort.Slice(vs, func(i, j int) bool { return vs[i].source < vs[j].source })
+	for _, k := range vs {
+		fmt.Fprintf(&b, "| %s | %s | %s |\n", k.source, fmtTally(variants[k]), fmtTally(variants[key{k.code, "short", k.source}]))
+	}
 	t.Log("\n" + b.String())
 	if *writeAccuracy {
 		writeAccuracyFile(t, b.String(), len(texts))
 	}
+}
+
+func fmtTally(tl tally) string {
+	if tl.n == 0 {
+		return "–"
+	}
+	return fmt.Sprintf("%.1f%% (%d)", 100*tl.acc(), tl.n)
 }
 
 func fmtConfused(m map[string]int) string {

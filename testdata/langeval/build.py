@@ -43,6 +43,7 @@ UDHR = {
  'pt': [('pt-PT', 'por_PT'), ('pt-BR', 'por_BR')], 'pa': [('pa', 'pan')], 'ro': [('ro', 'ron_2006')],
  'ru': [('ru', 'rus')], 'sr': [('sr-Cyrl', 'srp_cyrl'), ('sr-Latn', 'srp_latn')], 'sn': [('sn', 'sna')],
  'so': [('so', 'som')], 'st': [('st', 'sot')], 'es': [('es', 'spa')], 'sw': [('sw', 'swh')],
+ 'sk': [('sk', 'slk')], 'sl': [('sl', 'slv')], 'sq': [('sq', 'als')],
  'sv': [('sv', 'swe')], 'tl': [('tl', 'tgl')], 'ta': [('ta', 'tam')], 'te': [('te', 'tel')],
  'th': [('th', 'tha')], 'ts': [('ts', 'tso_MZ')], 'tn': [('tn', 'tsn')], 'tr': [('tr', 'tur')],
  'uk': [('uk', 'ukr')], 'ur': [('ur', 'urd')], 'vi': [('vi', 'vie')], 'cy': [('cy', 'cym')],
@@ -179,6 +180,7 @@ def main():
     ap.add_argument('--udhr', required=True)
     ap.add_argument('--locale', default='/usr/share/locale')
     ap.add_argument('--out', default=os.path.dirname(os.path.abspath(__file__)))
+    ap.add_argument('--udhr-only', action='store_true', help='rebuild udhr.tsv only')
     a = ap.parse_args()
 
     with open(os.path.join(a.out, 'udhr.tsv'), 'w', encoding='utf-8') as f:
@@ -190,6 +192,8 @@ def main():
                     for t in spread(items, cap):
                         f.write('\t'.join((code, variant, kind, stem, t)) + '\n')
 
+    if a.udhr_only:
+        return
     used = collections.OrderedDict()
     cjk = {}
     with open(os.path.join(a.out, 'mo.tsv'), 'w', encoding='utf-8') as f:
@@ -244,11 +248,20 @@ def main():
             return '?'
         m = re.search(r'^License:\s*(\S.*)$', txt, re.M)
         return m.group(1).strip() if m else 'see /usr/share/doc/%s/copyright' % pkg
+    # One line per catalogue domain (the same file name in every language).
+    domains = collections.OrderedDict()
+    for path in paths:
+        dom = os.path.basename(path)
+        pkg = owner.get(path, '?')
+        e = domains.setdefault(dom, [set(), 0])
+        e[0].add(pkg)
+        e[1] += 1
     with open(os.path.join(a.out, 'SOURCES.tsv'), 'w', encoding='utf-8') as f:
-        f.write('catalogue\tdebian_package\tlicence\n')
-        for path in paths:
-            pkg = owner.get(path, '?')
-            f.write('%s\t%s\t%s\n' % (path, pkg, licence(pkg)))
+        f.write('catalogue\tlocales_used\tdebian_package\tlicence\n')
+        for dom in sorted(domains):
+            pkgs, n = domains[dom]
+            f.write('%s\t%d\t%s\t%s\n' % (dom, n, ','.join(sorted(pkgs)),
+                                            '; '.join(licence(p) for p in sorted(pkgs))))
 
 if __name__ == '__main__':
     main()
