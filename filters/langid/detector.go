@@ -66,6 +66,10 @@ const (
 	// high-accuracy mode is a guess (and the langid stage drops such text
 	// as no_language by default), so its models are not loaded for it.
 	highAccuracyMinLetters = 30
+	// minBigramLetters: a sample without any trigram is scored on its
+	// bigrams from this many word letters on (about three Devanagari
+	// words; a stray letter or two names nothing).
+	minBigramLetters = 10
 	// linguaPrecision: lingua's confidence values are used to 1e-9.
 	linguaPrecision = 1e9
 	// snapBytes is how far a sample boundary moves to reach a space, so
@@ -545,11 +549,12 @@ func (d *Detector) scoreSamples(g *ngramGroup, text string, st textStats, res *R
 			sample = norm.NFC.String(sample)
 		}
 		hits, letters := d.scoreSample(g.model, sample, sc, 3)
-		if hits == 0 && letters > 0 {
+		if hits == 0 && letters >= minBigramLetters {
 			// Words of one or two letters only (Devanagari text splits
 			// at every vowel sign, which is a mark, not a letter, for
 			// lingua too): score bigrams, backing off to letters, as
-			// lingua's high-accuracy mode adds them for short text.
+			// lingua's high-accuracy mode adds them for short text;
+			// below minBigramLetters letters nothing is named.
 			hits, letters = d.scoreSample(g.model, sample, sc, 2)
 		}
 		if hits == 0 {
