@@ -99,9 +99,19 @@
 // pages of 2-5 KB (UDHR paragraphs with markup, an English block and
 // foreign quotes), 31 candidates, one core: about 30 MB/s against lingua's
 // 0.2 MB/s, naming the page's main language on 100% of the pages against
-// lingua's 97-98%.
+// lingua's 97-98%. With every language a candidate (75, the default) the
+// same pages cost about 3 times as much: about 14 MB/s of CPU time per
+// core (from a CPU profile of BenchmarkDetect: the 2-core machine ran at a
+// load of 7-20 when measured, so its wall-clock MB/s, 3-24, mostly
+// measures waiting), below the 20 MB/s aimed at. Each trigram row holds 49
+// Latin-script languages instead of 25, and close calls (id/ms, hr/bs...)
+// are more frequent; samples of 120+ letters go to lingua only when their
+// two best languages are within 2 nats (longAmbiguityNats), which cut the
+// time by 4.
 //
-// The packed tables of the default candidates take 15 MB; with lingua's
+// The packed tables of all 75 languages take 37 MB (build: about 7 s with
+// lingua's trigram models preloaded, 360 MB peak RSS in the test); those
+// of the 31 common web languages 15 MB; with lingua's
 // preloaded trigram models the detector holds about 40 MB and builds in
 // about 0.5 s on first use. Lingua's high-accuracy models of a confusable
 // language (~20 MB each) load on first need: 153 MB for all seven such
