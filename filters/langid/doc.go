@@ -99,9 +99,8 @@
 // pages of 2-5 KB (UDHR paragraphs with markup, an English block and
 // foreign quotes), 31 candidates, one core: about 30 MB/s against lingua's
 // 0.2 MB/s, naming the page's main language on 100% of the pages against
-// lingua's 97-98%. With every language a candidate (75, the default) the
-// same pages cost about 3 times as much: about 14 MB/s of CPU time per
-// core (from a CPU profile of BenchmarkDetect: the 2-core machine ran at a
+// lingua's 97-98%. With every language a candidate (75, the default):
+// about 14 MB/s of CPU time per core (from a CPU profile of BenchmarkDetect: the 2-core machine ran at a
 // load of 7-20 when measured, so its wall-clock MB/s, 3-24, mostly
 // measures waiting), below the 20 MB/s aimed at. Each trigram row holds 49
 // Latin-script languages instead of 25, and close calls (id/ms, hr/bs...)
