@@ -180,7 +180,9 @@ func newDomain(p *Params, env Env) (*domainStage, error) {
 	if s.modelPath == "" && len(s.background) == 0 {
 		s.sampleBg = true
 		s.inputs, s.upstream = env.Inputs, env.Upstream
-		if s.inputs == nil {
+		if s.inputs == nil && !env.Checking {
+			// Checking (check, what-if) does not train here; Describe
+			// says it when asked.
 			p.Errorf("background", "no run inputs to sample a background from here: give background documents (or model: PATH)")
 		}
 	}
@@ -254,6 +256,9 @@ func (s *domainStage) readTraining() (ex, bg []string, err error) {
 		return nil, nil, fmt.Errorf("%s: examples: %w", s.name, err)
 	}
 	if s.sampleBg {
+		if s.inputs == nil {
+			return nil, nil, fmt.Errorf("%s: no run inputs to sample a background from here: give background documents (or model: PATH)", s.name)
+		}
 		inputs, err := s.inputs()
 		if err != nil {
 			return nil, nil, fmt.Errorf("%s: background from the run's inputs: %w", s.name, err)

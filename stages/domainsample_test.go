@@ -112,7 +112,8 @@ func TestSampleBackgroundLowestHashes(t *testing.T) {
 
 // TestDomainStageDefaultBackground: a domain stage with examples and no
 // background trains on the sample of Env.Inputs; without inputs to sample
-// it asks for background, naming the key.
+// it asks for background, naming the key (under checking, when Describe
+// trains).
 func TestDomainStageDefaultBackground(t *testing.T) {
 	dir := t.TempDir()
 	ex, bg := writeDomainSets(t, dir)
@@ -132,5 +133,14 @@ func TestDomainStageDefaultBackground(t *testing.T) {
 	_, err = newDomainForTest(t, map[string]any{"examples": []any{ex}}, Env{SpecDir: dir})
 	if err == nil || !strings.Contains(err.Error(), "background") {
 		t.Fatalf("no inputs: %v", err)
+	}
+	// Checking (what-if rebuilds the stage this way) does not train:
+	// the stage builds, and Describe says what is missing.
+	c, err := newDomainForTest(t, map[string]any{"examples": []any{ex}}, Env{SpecDir: dir, Checking: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d := c.Describe(); !strings.Contains(d, "error:") || !strings.Contains(d, "no run inputs") {
+		t.Fatalf("describe: %s", d)
 	}
 }

@@ -437,6 +437,14 @@ output:
 		if drops != upstream {
 			t.Errorf("workers %s: the length stage dropped %d man/prose documents in the run, %d from the sample", workers, drops, upstream)
 		}
+		// What-if moves min_score from the stored metrics (it rebuilds
+		// the stage without training it).
+		if workers == "1" {
+			wi, err := runCLI(t, "whatif", run, "--set", "domain.min_score=0.99")
+			if err != nil || !strings.Contains(wi, "domain.min_score=0.99") || !strings.Contains(wi, "all reproduced") {
+				t.Fatalf("whatif: %v\n%s", err, wi)
+			}
+		}
 	}
 	if len(files[0]["keys/domain.model"]) == 0 || len(files[0]) != len(files[1]) {
 		t.Fatalf("run files: %d and %d", len(files[0]), len(files[1]))
