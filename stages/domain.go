@@ -45,9 +45,19 @@ import (
 // bytes per document in memory. domain_score is written to metrics as in
 // min_score mode; what-if does not recompute a global stage.
 //
-// Not done: a default background sampled from the documents reaching the
-// stage (the model is trained before the run, so background, or model, is
-// required).
+// Without `background` (and without `model`), the background is a
+// deterministic sample of the documents reaching the stage, drawn before
+// the run from the run's own inputs (Env.Inputs): the input files that are
+// not among `examples` (and, with `sources`, only those sources' files)
+// are read, and the K documents with the lowest xxh3 of their id under
+// the run seed are kept (K = max(number of examples, 1000), at most K in
+// memory; ties go to the earlier document). Each drawn document passes
+// through the per-document stages before this one (Env.Upstream: edits
+// applied, drops left out, `only:` scopes respected), so the sample
+// resembles what reaches the stage; global stages before it (dedup,
+// decontamination) are not applied. A drawn document whose text equals an
+// example's is left out. The sample is the same for any number of
+// workers; `winnow check` prints its size and where it came from.
 type domainStage struct {
 	name   string
 	rules  []Rule
@@ -60,6 +70,11 @@ type domainStage struct {
 	examples, background []string
 	modelPath            string
 	trainedOn            [2]int
+	// sampleBg: no background given, sample the run's inputs.
+	sampleBg bool
+	inputs   func() ([]read.InputFile, error)
+	upstream func(*Doc) bool
+	bgInfo   bgSample
 	// sources limits scoring to documents of these input sources (nil:
 	// all); the others get a null domain_score, which never removes.
 	sources map[string]bool
@@ -159,12 +174,17 @@ func newDomain(p *Params, env Env) (*domainStage, error) {
 		}
 		s.seed = env.Seed
 	}
-	if s.modelPath == "" && (len(s.examples) == 0 || len(s.background) == 0) {
-		key := "examples"
-		if len(s.examples) > 0 {
-			key = "background"
+	if s.modelPath == "" && len(s.examples) == 0 {
+		p.Errorf("examples", "the domain stage needs examples to train on (or model: PATH)")
+	}
+	if s.modelPath == "" && len(s.background) == 0 {
+		s.sampleBg = true
+		s.inputs, s.upstream = env.Inputs, env.Upstream
+		if s.inputs == nil && !env.Checking {
+			// Checking (check, what-if) does not train here; Describe
+			// says it when asked.
+			p.Errorf("background", "no run inputs to sample a background from here: give background documents (or model: PATH)")
 		}
-		p.Errorf(key, "the domain stage needs examples and background documents to train on (or model: PATH)")
 	}
 	if err := p.Done(); err != nil {
 		return nil, err
@@ -234,6 +254,24 @@ func (s *domainStage) load() error {
 func (s *domainStage) readTraining() (ex, bg []string, err error) {
 	if ex, err = readTexts(s.examples, maxDomainTrainDocs); err != nil {
 		return nil, nil, fmt.Errorf("%s: examples: %w", s.name, err)
+	}
+	if s.sampleBg {
+		if s.inputs == nil {
+			return nil, nil, fmt.Errorf("%s: no run inputs to sample a background from here: give background documents (or model: PATH)", s.name)
+		}
+		inputs, err := s.inputs()
+		if err != nil {
+			return nil, nil, fmt.Errorf("%s: background from the run's inputs: %w", s.name, err)
+		}
+		k := max(len(ex), minDomainSample)
+		bg, s.bgInfo, err = sampleBackground(inputs, s.examples, ex, s.sources, s.opt.Seed, k, s.upstream)
+		if err != nil {
+			return nil, nil, fmt.Errorf("%s: examples: %w", s.name, err)
+		}
+		if len(bg) == 0 {
+			return nil, nil, fmt.Errorf("%s: the sample of the run's inputs holds no background document (every input is an example, or earlier stages drop them all): give background", s.name)
+		}
+		return ex, bg, nil
 	}
 	if bg, err = readTexts(s.background, maxDomainTrainDocs); err != nil {
 		return nil, nil, fmt.Errorf("%s: background: %w", s.name, err)
@@ -351,6 +389,7 @@ func (s *domainStage) Describe() string {
 		}
 		fmt.Fprintf(&b, "model %s (%s, %d buckets, %d bytes, xxh3 %s)", s.modelPath, s.model.Method, s.model.Buckets(), s.model.SizeBytes(), s.hash)
 		if len(s.examples) == 0 || len(s.background) == 0 {
+			// Cross-validation needs both sets given.
 			return b.String()
 		}
 		b.WriteString("\n")
@@ -372,6 +411,11 @@ func (s *domainStage) Describe() string {
 		}
 	}
 	fmt.Fprintf(&b, "%s on %d examples and %d background documents, %d buckets (model %d bytes)\n", s.method, len(ex), len(bg), buckets, 4*buckets)
+	if s.sampleBg {
+		fmt.Fprintf(&b, "%s\n", s.bgInfo)
+	} else {
+		fmt.Fprintf(&b, "background: %d documents from %s\n", len(bg), strings.Join(s.background, ", "))
+	}
 	fmt.Fprintf(&b, "%d-fold cross-validation: accuracy %.3f, AUC %.3f", cv.Folds, cv.Accuracy, cv.AUC)
 	if s.keepFraction > 0 {
 		how := "the highest domain_score"

@@ -165,7 +165,6 @@ func TestDomainStageCheck(t *testing.T) {
 		p    map[string]any
 		want string
 	}{
-		{map[string]any{"examples": ex}, "background"},
 		{map[string]any{"background": bg}, "examples"},
 		{map[string]any{"examples": "seed/missing.jsonl", "background": bg}, "missing.jsonl"},
 		{map[string]any{"examples": ex, "background": bg, "method": "fasttext"}, "method"},

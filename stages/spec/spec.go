@@ -388,12 +388,16 @@ func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 	if globals > 1 {
 		env.MemoryBudget /= globals
 	}
+	if env.Inputs == nil {
+		env.Inputs = func() ([]read.InputFile, error) { return ResolveInputs(s) }
+	}
 	var steps []Step
 	var errs []error
 	for _, st := range s.Stages {
 		k, _ := stages.LookupKind(st.Kind)
 		var step Step
 		var err error
+		env.Upstream = upstream(steps[:len(steps):len(steps)])
 		if k.New != nil {
 			step.Stage, err = k.New(st.Params, env)
 		} else {
@@ -429,6 +433,43 @@ func (s *Spec) BuildStages(env stages.Env) ([]Step, error) {
 		steps = append(steps, step)
 	}
 	return steps, errors.Join(errs...)
+}
+
+// upstream returns the function that passes a document through the
+// per-document steps built so far (stages.Env.Upstream): each applies
+// within its `only:` scope; an edit replaces the text, meta and tokens
+// are merged, a drop (or a panicking stage) ends it with false. Global
+// steps are skipped: they compare documents with each other.
+func upstream(earlier []Step) func(d *stages.Doc) bool {
+	if len(earlier) == 0 {
+		return nil
+	}
+	return func(d *stages.Doc) (kept bool) {
+		defer func() {
+			if recover() != nil {
+				kept = false
+			}
+		}()
+		for _, st := range earlier {
+			if st.Stage == nil || !st.Only.Match(d) {
+				continue
+			}
+			dec := st.Stage.Process(d)
+			switch dec.Action {
+			case stages.Drop:
+				return false
+			case stages.Edit:
+				d.Text = dec.Text
+			}
+			for k, v := range dec.Meta {
+				d.SetMeta(k, v)
+			}
+			if dec.Tokens > 0 {
+				d.Tokens = dec.Tokens
+			}
+		}
+		return true
+	}
 }
 
 // checkMetricUses checks that every metric a stage reads at scan time
