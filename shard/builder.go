@@ -101,17 +101,32 @@ type Report struct {
 	Files  []File
 	Mix    *MixReport
 	Splits []Split
+	// Docs counts the lines written (records: a split or repeated
+	// document is several).
 	Docs   int64
 	Tokens int64
+	// DocsWritten counts the documents Add took of which at least one
+	// piece was written; TextBytes sums the text bytes of the written
+	// lines.
+	DocsWritten int64
+	TextBytes   int64
+	// BudgetLeftOut counts the documents an output written in input order
+	// left out once budget_tokens was reached (they get no LeftOut call).
+	BudgetLeftOut int64
 }
 
 // LeftOut is a document that passed every stage but that the mix placed
-// nowhere (none of its pieces): its source had more tokens than its share
-// needed. Tokens are its (pieces') tokens.
+// nowhere (none of its pieces), or, when Pieces is set, only in part: its
+// source had more tokens than its share needed. Tokens and Bytes are those
+// of the pieces left out.
 type LeftOut struct {
 	Doc, Source, File string
 	Line              int64
 	Tokens            int
+	Bytes             int
+	// Pieces are the ids of the pieces left out of a document of which
+	// other pieces were written; nil when the whole document is left out.
+	Pieces []string
 	// Reason is why its source lost documents, in words (the mix
 	// report's left_out_reason, or the budget of a shuffled output).
 	Reason string
@@ -144,6 +159,10 @@ type Builder struct {
 	leftWhy  map[string]string // source -> reason its documents are left out
 	line     []byte
 	closed   bool
+
+	docsOut    int64 // documents with at least one piece written
+	budgetLeft int64 // documents the in-order budget left out
+	pieceOut   bool  // a piece of the current document was written (in-order mode)
 }
 
 // NewBuilder validates opt and prepares the output directory.
@@ -219,6 +238,7 @@ func (b *Builder) Add(d *Doc) error {
 		if err := b.w.write(b.line, d.ID, d.Source, d.Text, d.Tokens); err != nil {
 			return err
 		}
+		b.docsOut++
 		if b.w.rawBytes() >= b.opt.ShardBytes {
 			return b.w.finish()
 		}
@@ -239,6 +259,16 @@ func (b *Builder) Add(d *Doc) error {
 	}
 	h := xxh3.HashStringSeed(d.ID, b.opt.Seed)
 	rec := record{file: d.File, line: d.Line, id: d.ID, source: d.Source, text: d.Text, meta: meta, tokens: tokens}
+	b.pieceOut = false
+	if b.stream != nil {
+		defer func() {
+			if b.pieceOut {
+				b.docsOut++
+			} else {
+				b.budgetLeft++
+			}
+		}()
+	}
 	if int64(tokens) <= b.opt.SplitTokens {
 		return b.put(&rec, h, si, 0)
 	}
@@ -263,7 +293,11 @@ func (b *Builder) Add(d *Doc) error {
 
 func (b *Builder) put(r *record, h uint64, si uint16, piece int) error {
 	if b.stream != nil {
-		return b.stream.add(b.asm, r)
+		err := b.stream.add(b.asm, r)
+		if !b.stream.full {
+			b.pieceOut = true
+		}
+		return err
 	}
 	if r.tokens >= 1<<32 {
 		return fmt.Errorf("output: document %s has %d tokens", r.id, r.tokens)
@@ -357,7 +391,8 @@ func (b *Builder) Close() (*Report, error) {
 }
 
 func (b *Builder) report(mix *MixReport) *Report {
-	r := &Report{Files: b.w.files, Mix: mix, Splits: b.splits}
+	r := &Report{Files: b.w.files, Mix: mix, Splits: b.splits, DocsWritten: b.docsOut, TextBytes: b.w.textBytes,
+		BudgetLeftOut: b.budgetLeft}
 	for _, f := range r.Files {
 		r.Docs += f.Docs
 		r.Tokens += f.Tokens
@@ -450,12 +485,22 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 	}
 	var rec record
 	// A document's units (its pieces) are consecutive in the spill; it is
-	// left out when none of them has a position.
-	var cur LeftOut
+	// left out when none of them has a position, and partly left out when
+	// some of its pieces have none.
+	var cur, part LeftOut
 	curUsed, curOpen := false, false
 	flushDoc := func() error {
-		if curOpen && !curUsed && b.leftOut != nil {
+		if curOpen && curUsed {
+			b.docsOut++
+		}
+		switch {
+		case !curOpen || b.leftOut == nil:
+		case !curUsed:
 			if err := b.leftOut(cur); err != nil {
+				return err
+			}
+		case len(part.Pieces) > 0:
+			if err := b.leftOut(part); err != nil {
 				return err
 			}
 		}
@@ -475,11 +520,17 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 				return err
 			}
 			cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line, Reason: b.leftWhy[rec.source]}
+			part = cur
 			curUsed, curOpen = false, true
 		}
 		cur.Tokens += rec.tokens
+		cur.Bytes += len(rec.text)
 		if start[ui+1] > start[ui] {
 			curUsed = true
+		} else if rec.original != "" {
+			part.Tokens += rec.tokens
+			part.Bytes += len(rec.text)
+			part.Pieces = append(part.Pieces, rec.id)
 		}
 		for _, p := range pos[start[ui]:start[ui+1]] {
 			rec.pos = uint64(p)

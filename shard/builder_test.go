@@ -406,6 +406,12 @@ func TestInOrderShardsAndSplits(t *testing.T) {
 	if math.Abs(float64(rep2.Tokens-5000)) > 300 {
 		t.Errorf("budget 5000: wrote %d tokens", rep2.Tokens)
 	}
+	if rep2.BudgetLeftOut == 0 || rep2.DocsWritten+rep2.BudgetLeftOut != int64(len(docs)) {
+		t.Errorf("budget 5000: %d documents written + %d left out != %d", rep2.DocsWritten, rep2.BudgetLeftOut, len(docs))
+	}
+	if rep.DocsWritten != int64(len(docs)) || rep.Docs <= rep.DocsWritten {
+		t.Errorf("no budget: %d documents written as %d lines, want %d documents as more lines (splits)", rep.DocsWritten, rep.Docs, len(docs))
+	}
 	first := readShard(t, filepath.Join(run2, rep2.Files[0].Path))
 	if first[0].ID != docs[0].ID && !strings.HasPrefix(first[0].ID, docs[0].ID+"#") {
 		t.Errorf("budget output starts with %s", first[0].ID)
@@ -655,17 +661,62 @@ func TestShuffleWithoutMix(t *testing.T) {
 
 // Every document the mix places nowhere is reported once, in input order,
 // and the reported and the written documents are all the documents, split
-// ones counted once (whatever mix of long and short documents).
+// ones counted once (whatever mix of long and short documents). A split
+// document the mix wrote only in part is reported with the pieces left
+// out: its written text plus the left-out bytes is its whole text, so no
+// byte vanishes unrecorded. The report's counts agree with the shards:
+// DocsWritten documents, Docs lines, TextBytes bytes of text.
 func TestMixReportsLeftOut(t *testing.T) {
 	tok := mustLoad(t, "cl100k_base")
 	docs := corpus(3, tok)
-	rep, run, left := buildLeftOut(t, docs, Options{Tokenizer: tok, Name: "lo",
-		ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}})
+	partial := 0
+	// split_tokens 10 splits nearly every document, so a source's
+	// selection ends inside one (a partly written document).
+	for _, split := range []int64{0, 10} {
+		partial += checkLeftOut(t, docs, Options{Tokenizer: tok, Name: "lo", SplitTokens: split,
+			ShardTokens: 2000, Mix: map[string]float64{"manuals": 0.2, "forum": 0.6, "dealer": 0.2}})
+	}
+	if partial == 0 {
+		t.Error("no document partly left out: the case is not exercised")
+	}
+}
+
+// checkLeftOut builds docs with opt, checks the left-out reports against
+// the shards and returns how many documents were partly left out.
+func checkLeftOut(t *testing.T, docs []Doc, opt Options) int {
+	t.Helper()
+	rep, run, all := buildLeftOut(t, docs, opt)
 	written := map[string]bool{}
+	writtenBytes := map[string]int{}
+	var lines, textBytes int64
 	for _, f := range rep.Files {
 		for _, l := range readShard(t, filepath.Join(run, f.Path)) {
 			id, _, _ := strings.Cut(l.ID, "#")
+			id, _, _ = strings.Cut(id, "~")
 			written[id] = true
+			writtenBytes[id] += len(l.Text)
+			lines++
+			textBytes += int64(len(l.Text))
+		}
+	}
+	if rep.DocsWritten != int64(len(written)) || rep.Docs != lines || rep.TextBytes != textBytes {
+		t.Errorf("report: %d documents, %d lines, %d bytes; shards: %d, %d, %d",
+			rep.DocsWritten, rep.Docs, rep.TextBytes, len(written), lines, textBytes)
+	}
+	var left []LeftOut
+	partial := 0
+	for _, l := range all {
+		if l.Pieces == nil {
+			left = append(left, l)
+			continue
+		}
+		partial++
+		d := docs[slices.IndexFunc(docs, func(d Doc) bool { return d.ID == l.Doc })]
+		if !written[l.Doc] {
+			t.Errorf("%s partly left out but not written", l.Doc)
+		}
+		if got := writtenBytes[l.Doc] + l.Bytes; got != len(d.Text) {
+			t.Errorf("%s: %d bytes written + %d left out != %d", l.Doc, writtenBytes[l.Doc], l.Bytes, len(d.Text))
 		}
 	}
 	byID := map[string]Doc{}
@@ -693,6 +744,7 @@ func TestMixReportsLeftOut(t *testing.T) {
 	if len(left) == 0 || len(left)+len(written) != len(docs) {
 		t.Errorf("%d left out + %d written != %d documents", len(left), len(written), len(docs))
 	}
+	return partial
 }
 
 // A shuffled output cut by budget_tokens reports each document it leaves

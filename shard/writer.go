@@ -83,14 +83,16 @@ type shardWriter struct {
 	tokens    bool // also write token files
 	wide      bool // uint32 ids
 
-	cur     *fsio.ZstdWriter
-	bin     *fsio.AtomicFile
-	file    File
-	ids     []string
-	offsets []int64
-	idBuf   []uint32
-	binBuf  []byte
-	files   []File
+	cur *fsio.ZstdWriter
+	// textBytes sums the text bytes of every line written.
+	textBytes int64
+	bin       *fsio.AtomicFile
+	file      File
+	ids       []string
+	offsets   []int64
+	idBuf     []uint32
+	binBuf    []byte
+	files     []File
 }
 
 func newShardWriter(dir, name string, tok *Tokenizer, tokenFiles bool) *shardWriter {
@@ -144,6 +146,7 @@ func (w *shardWriter) write(line []byte, id, source, text string, tokens int) er
 		return fmt.Errorf("output shard %s: %w", w.cur.Path(), err)
 	}
 	w.file.Docs++
+	w.textBytes += int64(len(text))
 	w.file.Tokens += int64(tokens)
 	w.file.SourceTokens[source] += int64(tokens)
 	w.file.SourceDocs[source]++

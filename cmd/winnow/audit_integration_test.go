@@ -716,6 +716,29 @@ func TestAuditHeadlineLeftOut(t *testing.T) {
 	if lines == 0 {
 		t.Errorf("the capped demo mix left nothing out: %+v", rep.Sources)
 	}
+	// The audit's write row shows the manifest's: documents in, left out
+	// entirely (dropped), written in part (edited), with a piece written.
+	js, err := runCLI(t, "audit", run, "--json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var sum struct {
+		Flow []struct {
+			Stage   string `json:"stage"`
+			DocsIn  int64  `json:"docs_in"`
+			DocsOut int64  `json:"docs_out"`
+			Dropped int64  `json:"dropped"`
+			Edited  int64  `json:"edited"`
+		} `json:"flow"`
+	}
+	if err := json.Unmarshal([]byte(js), &sum); err != nil {
+		t.Fatal(err)
+	}
+	w, mw := sum.Flow[len(sum.Flow)-1], m.Stages[len(m.Stages)-1]
+	if w.Stage != "write" || w.DocsIn != mw.DocsIn || w.DocsOut != mw.DocsOut || w.Dropped != mw.Dropped || w.Edited != mw.Edited ||
+		w.Dropped == 0 || w.DocsIn-w.Dropped != w.DocsOut {
+		t.Errorf("audit write row %+v, manifest %+v", w, mw)
+	}
 }
 
 // checkShares compares every share the page shows (data-p: docs, bytes

@@ -160,8 +160,12 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 	if m.TokensCounted() {
 		toks = fmt.Sprintf("%d tokens", m.Totals.TokensOut)
 	}
-	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents (%s) in %d shards to %s\n",
-		m.Totals.DocsOut, toks, len(m.Outputs), res.Dir)
+	recs := ""
+	if m.Totals.RecordsOut != m.Totals.DocsOut {
+		recs = fmt.Sprintf(" as %d records", m.Totals.RecordsOut)
+	}
+	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents%s (%s) in %d shards to %s\n",
+		m.Totals.DocsOut, recs, toks, len(m.Outputs), res.Dir)
 	for _, l := range m.LeftOut() {
 		fmt.Fprintln(os.Stderr, "winnow: left out of the output:", termtext.Escape(l))
 	}

@@ -425,7 +425,8 @@ func Summarize(r *Run, opt SummaryOptions) (*Summary, map[string][]*Trail, error
 			TokensRemoved: stepTokRemoved[i], TokensUnknown: stepTokUnknown[i], TokensExact: exactAfter[i], TokensKnown: known})
 	}
 	wTokOut := wr.TokensOut
-	s.Flow = append(s.Flow, FlowRow{Stage: "write", Kind: "write", DocsIn: wr.DocsIn, DocsOut: wr.DocsOut, BytesIn: wr.BytesIn,
+	s.Flow = append(s.Flow, FlowRow{Stage: "write", Kind: "write", DocsIn: wr.DocsIn, DocsOut: wr.DocsOut, Dropped: wr.Dropped,
+		Edited: wr.Edited, BytesIn: wr.BytesIn,
 		BytesOut: wr.BytesOut, TokensIn: sinkTokens, TokensOut: wTokOut, TokensExact: true, TokensKnown: known})
 
 	// Sources in input order of first appearance.

@@ -306,15 +306,29 @@ const contamShownItems = 5
 // writeContam prints the per-eval-set summary and the first items.
 func writeContam(w io.Writer, c *stages.ContamReport) error {
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "eval set\titems checked\tcontaminated\t%\tdocs affected\t")
+	// Items too short to check are not checked: the percentage is over
+	// the items checked (items minus too short), as in contamination.json.
+	fmt.Fprintln(tw, "eval set\titems\ttoo short\titems checked\tcontaminated\t% of checked\tdocs affected\t")
 	for _, e := range c.Evals {
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%.1f%%\t%s\t\n", e.Name, Group(int64(e.Items)), Group(int64(e.ItemsContaminated)), e.Percent, Group(e.DocsAffected))
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%.1f%%\t%s\t\n", e.Name, Group(int64(e.Items)), Group(int64(e.ItemsTooShort)),
+			Group(int64(e.Items-e.ItemsTooShort)), Group(int64(e.ItemsContaminated)), e.Percent, Group(e.DocsAffected))
 	}
 	if err := tw.Flush(); err != nil {
 		return err
 	}
 	fmt.Fprintf(w, "%d-gram overlap, action %s: %s documents scanned, %s affected (%s dropped, %s cut, %s flagged)\n", c.Ngram, c.Action,
 		Group(c.DocsScanned), Group(c.DocsAffected), Group(c.DocsDropped), Group(c.DocsEdited), Group(c.DocsFlagged))
+	for _, e := range c.Evals {
+		if e.ItemsTooShort > 0 {
+			ids := e.TooShort[:min(len(e.TooShort), contamShownItems)]
+			more := ""
+			if n := e.ItemsTooShort - len(ids); n > 0 {
+				more = fmt.Sprintf(" (+%d more in contamination.json)", n)
+			}
+			fmt.Fprintf(w, "  %s: %s item(s) too short to check (fewer than %d words in every part): %s%s\n", e.Name, Group(int64(e.ItemsTooShort)),
+				c.MinItemWords, strings.Join(ids, ", "), more)
+		}
+	}
 	for _, e := range c.Evals {
 		for i, it := range e.Contaminated {
 			if i == contamShownItems {

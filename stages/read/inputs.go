@@ -16,7 +16,8 @@ type InputFile struct {
 	// Path is the file to open ("-" for standard input).
 	Path string
 	// Display is the path shown in ids, ledger and manifest: relative to
-	// the spec directory when inside it.
+	// the spec directory when inside it, else absolute (default ids drop
+	// its leading "/").
 	Display string
 	// Index is the file's position in the run (the high part of order keys).
 	Index int

@@ -252,8 +252,11 @@ type baseReader struct {
 	rec   int64
 }
 
+// defaultID is "<source>/<file>:<line>". A file outside the spec's
+// directory has an absolute Display; its leading "/" is dropped so that
+// source and path are joined by one slash ("docs/srv/x.html:1").
 func (b *baseReader) defaultID(line int64) string {
-	return b.opt.Source + "/" + b.file + ":" + strconv.FormatInt(line, 10)
+	return b.opt.Source + "/" + strings.TrimPrefix(b.file, "/") + ":" + strconv.FormatInt(line, 10)
 }
 
 func (b *baseReader) newDoc(text, id string, line int64) *Doc {

@@ -366,3 +366,45 @@ func TestSniffIgnoresExtension(t *testing.T) {
 		t.Errorf("got %q", out)
 	}
 }
+
+// A file outside the spec's directory keeps its absolute path as its
+// Display (manifest, ledger), and its default ids join source and path
+// with one "/" (no "docs//abs/path:1"); a file inside keeps its relative
+// path. Both stay distinct and the same on every run.
+func TestDefaultIDOutsideSpecDir(t *testing.T) {
+	specDir := t.TempDir()
+	writeFile(t, specDir, "raw/a.txt", "Inside the yard.")
+	outside := writeFile(t, t.TempDir(), "b.txt", "Outside the yard.")
+	opt := &ReadOptions{Source: "docs", Format: FormatText, TextMode: "file"}
+	files, err := ResolveInputs("spec.yaml", specDir, []Group{{Options: opt, Paths: []string{"raw/a.txt", outside}}})
+	if err != nil || len(files) != 2 {
+		t.Fatalf("%v %v", files, err)
+	}
+	want := []string{"docs/raw/a.txt:1", "docs/" + strings.TrimPrefix(filepath.ToSlash(outside), "/") + ":1"}
+	for i, f := range files {
+		if i == 1 && f.Display != outside {
+			t.Errorf("display %q, want the absolute path %q", f.Display, outside)
+		}
+		in, err := os.Open(f.Path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		dec, err := Decode(in)
+		if err != nil {
+			t.Fatal(err)
+		}
+		rr, _, err := NewRecordReader(dec, f.Display, 0, *opt)
+		if err != nil {
+			t.Fatal(err)
+		}
+		recs, err := drainRecords(rr)
+		dec.Close()
+		in.Close()
+		if err != nil || len(recs) != 1 || recs[0].Doc == nil {
+			t.Fatalf("%s: %v %v", f.Path, recs, err)
+		}
+		if id := recs[0].Doc.ID; id != want[i] || strings.Contains(id, "//") {
+			t.Errorf("%s: id %q, want %q", f.Path, id, want[i])
+		}
+	}
+}

@@ -54,7 +54,11 @@ type Totals struct {
 	InputFiles int64 `json:"input_files"`
 	InputBytes int64 `json:"input_bytes"`
 	DocsIn     int64 `json:"docs_in"`
+	// DocsOut counts the documents of which at least one piece is in the
+	// shards; RecordsOut the shard lines (a document split into pieces, or
+	// repeated by max_epochs, is several lines).
 	DocsOut    int64 `json:"docs_out"`
+	RecordsOut int64 `json:"records_out"`
 	BytesOut   int64 `json:"bytes_out"`
 	TokensOut  int64 `json:"tokens_out"`
 }
@@ -68,8 +72,11 @@ type Counters struct {
 	BytesIn   int64  `json:"bytes_in"`
 	BytesOut  int64  `json:"bytes_out"`
 	TokensOut int64  `json:"tokens_out,omitempty"`
-	Dropped   int64  `json:"dropped"`
-	Edited    int64  `json:"edited"`
+	// RecordsOut (write stage only) counts the shard lines written: pieces
+	// of split documents and repeats each count (docs_out counts documents).
+	RecordsOut int64 `json:"records_out,omitempty"`
+	Dropped    int64 `json:"dropped"`
+	Edited     int64 `json:"edited"`
 	// Skipped counts the documents outside the stage's `only:` scope:
 	// they passed it untouched (they are in DocsIn and DocsOut) and it
 	// did not measure them.
@@ -87,7 +94,7 @@ type Counters struct {
 // Snapshot copies the counts (not the running time) of c.
 func (c *Counters) Snapshot() *Counters {
 	return &Counters{Name: c.Name, Kind: c.Kind, DocsIn: c.DocsIn, DocsOut: c.DocsOut, BytesIn: c.BytesIn,
-		BytesOut: c.BytesOut, TokensOut: c.TokensOut, Dropped: c.Dropped, Edited: c.Edited, Skipped: c.Skipped, Seconds: c.Seconds, Files: c.Files, Global: c.Global}
+		BytesOut: c.BytesOut, TokensOut: c.TokensOut, RecordsOut: c.RecordsOut, Dropped: c.Dropped, Edited: c.Edited, Skipped: c.Skipped, Seconds: c.Seconds, Files: c.Files, Global: c.Global}
 }
 
 // RunError is an input problem recorded in the manifest.
@@ -138,6 +145,7 @@ func (c *Counters) Nanos() int64 { return c.nanos.Load() }
 func (c *Counters) SetFrom(o *Counters) {
 	c.DocsIn, c.DocsOut, c.BytesIn, c.BytesOut = o.DocsIn, o.DocsOut, o.BytesIn, o.BytesOut
 	c.TokensOut, c.Dropped, c.Edited, c.Skipped, c.Seconds = o.TokensOut, o.Dropped, o.Edited, o.Skipped, o.Seconds
+	c.RecordsOut = o.RecordsOut
 	c.nanos.Store(int64(o.Seconds * 1e9))
 }
 

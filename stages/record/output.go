@@ -34,6 +34,15 @@ type OutputReport struct {
 	Mix any `json:"mix,omitempty"`
 	// Edits are ledger records the sink produced (e.g. split documents).
 	Edits []LedgerRecord `json:"-"`
+	// Docs counts the documents of which at least one piece was written,
+	// Records the lines written (a split or repeated document is several)
+	// and TextBytes the text bytes of those lines.
+	Docs      int64 `json:"-"`
+	Records   int64 `json:"-"`
+	TextBytes int64 `json:"-"`
+	// BudgetLeftOut counts the documents an output in input order left
+	// out once budget_tokens was reached (not in the ledger).
+	BudgetLeftOut int64 `json:"-"`
 }
 
 // Sink receives the documents that survived every stage, in input order,
@@ -227,6 +236,11 @@ type shardSink struct {
 // placed in no shard.
 const RuleMixLeftOut = "mix_left_out"
 
+// RuleMixLeftOutPieces is the ledger rule of a document split into pieces
+// of which the mix wrote some and left the others out (an edit: value is
+// the tokens left out, extra keys name the pieces and their text bytes).
+const RuleMixLeftOutPieces = "mix_left_out_pieces"
+
 // LeftOutRecorder is a sink that can report, while it closes, each
 // document its mix leaves out, as a ledger record.
 type LeftOutRecorder interface {
@@ -240,6 +254,11 @@ func (s *shardSink) OnLeftOut(fn func(*LedgerRecord) error) {
 		why := l.Reason
 		if why == "" {
 			why = "its source had more tokens than its mix share needed"
+		}
+		if len(l.Pieces) > 0 {
+			return fn(&LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
+				Rule: RuleMixLeftOutPieces, Action: "edit", Value: l.Tokens, Changes: map[string]int{"pieces_left_out": len(l.Pieces)},
+				Extra: map[string]any{"reason": why, "pieces": l.Pieces, "bytes": l.Bytes}})
 		}
 		return fn(&LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
 			Rule: RuleMixLeftOut, Action: "drop", Value: l.Tokens,
@@ -268,6 +287,7 @@ func (s *shardSink) Close() (*OutputReport, error) {
 	if rep.Mix != nil {
 		out.Mix = rep.Mix
 	}
+	out.Docs, out.Records, out.TextBytes, out.BudgetLeftOut = rep.DocsWritten, rep.Docs, rep.TextBytes, rep.BudgetLeftOut
 	for _, sp := range rep.Splits {
 		out.Edits = append(out.Edits, LedgerRecord{
 			Doc: sp.Doc, Source: sp.Source, File: sp.File, Line: sp.Line, Stage: OutputLedgerStage,

@@ -32,13 +32,14 @@ func buildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *re
 	if r.Output != nil {
 		m.Outputs = r.Output.Files
 		m.Mix = r.Output.Mix
-		var docs, bytes, toks int64
+		var toks int64
 		for _, f := range r.Output.Files {
-			docs += f.Docs
 			toks += f.Tokens
 		}
-		bytes = w.BytesIn
-		w.DocsOut, w.BytesOut, w.TokensOut = docs, bytes, toks
+		// docs_out counts documents with at least one piece written (docs_in
+		// minus the documents left out entirely); records_out the lines
+		// (pieces); bytes_out the text bytes of the lines written.
+		w.DocsOut, w.RecordsOut, w.BytesOut, w.TokensOut = r.Output.Docs, r.Output.Records, r.Output.TextBytes, toks
 	}
 	m.Stages = append(m.Stages, w)
 	if m.Outputs == nil {
@@ -50,6 +51,7 @@ func buildManifest(version string, s *spec.Spec, r *Runner, seconds float64) *re
 	}
 	m.Totals.DocsIn = r.Read.DocsIn
 	m.Totals.DocsOut = w.DocsOut
+	m.Totals.RecordsOut = w.RecordsOut
 	m.Totals.BytesOut = w.BytesOut
 	m.Totals.TokensOut = w.TokensOut
 	return m

@@ -103,6 +103,7 @@ func TestDefaultSpecOnRealDocs(t *testing.T) {
 
 	// Documents in the shards (pieces of a split document count once).
 	kept := map[string]bool{}
+	var lines, textBytes int64
 	for _, o := range m.Outputs {
 		for _, line := range zstdLines(t, filepath.Join(res.Dir, o.Path)) {
 			var d struct{ ID, Text string }
@@ -110,7 +111,10 @@ func TestDefaultSpecOnRealDocs(t *testing.T) {
 				t.Fatalf("%s: %v", o.Path, err)
 			}
 			id, _, _ := strings.Cut(d.ID, "#")
+			id, _, _ = strings.Cut(id, "~")
 			kept[id] = true
+			lines++
+			textBytes += int64(len(d.Text))
 			if a := emailRE.FindString(d.Text); a != "" {
 				t.Errorf("%s: e-mail address %q left in the shards", d.ID, a)
 			}
@@ -147,6 +151,17 @@ func TestDefaultSpecOnRealDocs(t *testing.T) {
 	}
 	if int64(len(kept))+int64(len(removed)) != m.Totals.DocsIn {
 		t.Errorf("accounting: %d in the shards + %d removed with a rule != %d read", len(kept), len(removed), m.Totals.DocsIn)
+	}
+	// The write row counts one unit per column: documents in, documents
+	// left out entirely, documents with a piece in the shards (in minus
+	// left out), shard lines apart, and the text bytes actually written.
+	w := m.Stages[len(m.Stages)-1]
+	if w.Name != "write" || w.DocsOut != int64(len(kept)) || w.DocsIn-w.Dropped != w.DocsOut || m.Totals.DocsOut != w.DocsOut {
+		t.Errorf("write row: in %d, dropped %d, out %d; %d documents in the shards (totals %d)", w.DocsIn, w.Dropped, w.DocsOut, len(kept), m.Totals.DocsOut)
+	}
+	if w.RecordsOut != lines || m.Totals.RecordsOut != lines || w.BytesOut != textBytes || m.Totals.BytesOut != textBytes {
+		t.Errorf("write row: %d records, %d bytes out (totals %d, %d); shards hold %d lines, %d text bytes",
+			w.RecordsOut, w.BytesOut, m.Totals.RecordsOut, m.Totals.BytesOut, lines, textBytes)
 	}
 	if skipped != skips {
 		t.Errorf("%d skip records in the ledger, the manifest counts %d", skipped, skips)

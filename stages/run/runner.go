@@ -264,7 +264,11 @@ func (r *Runner) Run(ctx context.Context) error {
 		if r.Output == nil && r.Sink != nil {
 			if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
 				lo.OnLeftOut(func(rec *record.LedgerRecord) error {
-					r.Write.Dropped++
+					if rec.Action == "drop" {
+						r.Write.Dropped++
+					} else {
+						r.Write.Edited++ // some pieces written, others left out
+					}
 					return r.ledger.Add(rec)
 				})
 			}
@@ -273,6 +277,9 @@ func (r *Runner) Run(ctx context.Context) error {
 				err = cerr
 			}
 			r.Output = out
+			if out != nil {
+				r.Write.Dropped += out.BudgetLeftOut
+			}
 		}
 		if r.Output != nil {
 			for i := range r.Output.Edits {
