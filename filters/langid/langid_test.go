@@ -234,3 +234,52 @@ func TestLangLinguaText(t *testing.T) {
 		}
 	}
 }
+
+// TestLangQuantisation: the packed tables hold every log-probability of
+// the default candidates' models without clamping (qScale leaves room
+// down to -32 nats), and a stored value reads back within half a step of
+// lingua's own probability.
+func TestLangQuantisation(t *testing.T) {
+	d := defaultDetector(t)
+	for _, r := range d.byScript {
+		if r.group == nil {
+			continue
+		}
+		m := r.group.model
+		if m.clamped != 0 {
+			t.Errorf("%s: %d log-probabilities below -%.0f nats clamped", scriptNames[r.group.script], m.clamped, maxQuantNats)
+		}
+		// The first language's own trigrams read back as lingua's.
+		probs, err := decodeModel(m.langs[0], 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, e := range probs[:min(len(probs), 2000)] {
+			row, ok := m.tri.lookup(e.key)
+			if e.p <= 0 {
+				continue // lingua backs off from it
+			}
+			if !ok {
+				t.Fatalf("%v: trigram %x missing", m.langs[0], e.key)
+			}
+			if got, want := m.logProb(row, 0), math.Log(e.p); math.Abs(got-want) > 0.5/qScale+1e-12 {
+				t.Errorf("%v: trigram %x: %g, lingua %g", m.langs[0], e.key, got, want)
+			}
+		}
+	}
+	for _, lp := range []float64{-1e-9, -0.5, -3.14159, -17.25, -31.99} {
+		q, clamped := quantise(lp)
+		if clamped || q == 0 {
+			t.Errorf("quantise(%g) = %d, clamped %v", lp, q, clamped)
+		}
+		if got := -float64(q) / qScale; math.Abs(got-lp) > 0.5/qScale && q != 1 {
+			t.Errorf("quantise(%g) reads back as %g", lp, got)
+		}
+	}
+	if q, clamped := quantise(-40); q != 65535 || !clamped {
+		t.Errorf("quantise(-40) = %d, clamped %v", q, clamped)
+	}
+	if q, _ := quantise(0); q != 0 {
+		t.Errorf("quantise(0) = %d, want 0 (p = 1 adds nothing, as in lingua)", q)
+	}
+}

@@ -33,12 +33,11 @@ func linguaModelData(language lingua.Language, ngramLength int) []byte
 // packedTable maps an n-gram key to a row of per-language log-probabilities.
 // It is an open-addressing hash table with linear probing at load <= 1/2;
 // the key and its row index share one slot so a probe touches one cache
-// line, and the row (k float32s) is one or two more.
+// line. Rows live in the model's shared row array (see ngramModel).
 type packedTable struct {
 	shift uint
 	mask  uint64
 	slots []tableSlot
-	rows  []float32 // len = rowCount * k
 }
 
 type tableSlot struct {
@@ -91,10 +90,46 @@ func (t *packedTable) lookup(key uint64) (uint32, bool) {
 // nothing (0) when none is known — exactly lingua's
 // computeSumOfNgramProbabilities. One lookup thus yields the scores of all
 // languages at once.
+//
+// The log-probabilities are stored negated and quantised to 1/qScale nat
+// in 16 bits (0 = adds nothing), four languages to a uint64, so a row of
+// the 49 Latin-script languages takes two cache lines instead of four
+// float32 ones, and a row is summed four languages at a time in integer
+// lanes (see addRow). Rounding moves a log-probability by at most
+// 1/(2·qScale) ≈ 0.00024 nat, a sample of 500 trigrams by a few
+// thousandths of a nat in practice: far below the 2 nats under which a
+// sample is handed to lingua anyway.
 type ngramModel struct {
 	langs         []lingua.Language
+	words         int      // uint64 words per row: ceil(len(langs)/4), padded to fill cache lines
+	rows          []uint64 // every table's rows, row r at rows[r*words:]
 	tri, bi, uni  packedTable
 	bytesResident int64
+	clamped       int // log-probabilities below -maxQuantNats, stored as the lowest value
+}
+
+// qScale is the quantisation step of the packed log-probabilities: 1/2048
+// nat. 16 bits then hold log-probabilities down to -32 nats (p ≈ 1.3e-14);
+// lingua's smallest are far above that (TestLangQuantisation).
+const qScale = 2048
+
+// maxQuantNats is the largest negated log-probability a row holds.
+const maxQuantNats = 65535.0 / qScale
+
+// quantise returns the stored value of log-probability lp (<= 0): its
+// negation in steps of 1/qScale, at least 1 for any p < 1 so that a known
+// n-gram never reads as unknown, clamped to 16 bits.
+func quantise(lp float64) (q uint16, clamped bool) {
+	v := math.Round(-lp * qScale)
+	switch {
+	case v >= 65535:
+		return 65535, v > 65535
+	case v < 1 && lp < 0:
+		return 1, false
+	case v < 1:
+		return 0, false
+	}
+	return uint16(v), false
 }
 
 // ngramProb is one n-gram of a lingua model.
@@ -161,7 +196,16 @@ func buildModel(langs []lingua.Language) (*ngramModel, error) {
 		}
 	}
 	m := &ngramModel{langs: langs}
+	// Rows of more than one cache line are padded to whole lines (and,
+	// the row array being page-aligned, start on a line), so a row
+	// touches as few lines as it can.
+	m.words = (k + 3) / 4
+	if m.words > 8 {
+		m.words = (m.words + 7) &^ 7
+	}
 	tables := [3]*packedTable{&m.uni, &m.bi, &m.tri}
+	var keysBy [3][]uint64
+	total := 0
 	for n := 1; n <= 3; n++ {
 		var keys []uint64
 		for j := range langs {
@@ -170,54 +214,83 @@ func buildModel(langs []lingua.Language) (*ngramModel, error) {
 			}
 		}
 		slices.Sort(keys)
-		keys = slices.Compact(keys)
+		keysBy[n-1] = slices.Compact(keys)
+		total += len(keysBy[n-1])
+	}
+	m.rows = make([]uint64, (total+1)*m.words) // row 0: unused, all zero
+	next := uint32(1)
+	for n := 1; n <= 3; n++ {
+		keys := keysBy[n-1]
 		t := newPackedTable(len(keys))
-		t.rows = make([]float32, len(keys)*k)
-		for row, key := range keys {
-			t.insert(key, uint32(row))
-			var from []float32 // the back-off row
+		for _, key := range keys {
+			row := next
+			next++
+			t.insert(key, row)
+			var from uint32 // the back-off row
+			ok := false
 			switch n {
 			case 3:
-				if from = m.bi.rowOf(key>>21, k); from == nil {
-					from = m.uni.rowOf(key>>42, k)
+				if from, ok = m.bi.lookup(key >> 21); !ok {
+					from, ok = m.uni.lookup(key >> 42)
 				}
 			case 2:
-				from = m.uni.rowOf(key>>21, k)
+				from, ok = m.uni.lookup(key >> 21)
 			}
-			copy(t.rows[row*k:row*k+k], from)
+			if ok {
+				copy(m.rowWords(row), m.rowWords(from))
+			}
 		}
+		*tables[n-1] = t
 		for j := range langs {
 			for _, e := range probs[j][n-1] {
 				if e.p > 0 { // lingua backs off from a zero probability
 					row, _ := t.lookup(e.key)
-					t.rows[int(row)*k+j] = float32(math.Log(e.p))
+					q, clamped := quantise(math.Log(e.p))
+					if clamped {
+						m.clamped++
+					}
+					w := &m.rowWords(row)[j/4]
+					shift := 16 * uint(j%4)
+					*w = *w&^(0xffff<<shift) | uint64(q)<<shift
 				}
 			}
 		}
-		*tables[n-1] = t
-		m.bytesResident += int64(len(t.slots))*16 + int64(len(t.rows))*4
+		m.bytesResident += int64(len(t.slots)) * 16
 	}
+	m.bytesResident += int64(len(m.rows)) * 8
 	return m, nil
 }
 
-// rowOf returns the row of key (k columns), or nil when absent.
-func (t *packedTable) rowOf(key uint64, k int) []float32 {
-	r, ok := t.lookup(key)
-	if !ok {
-		return nil
-	}
-	return t.rows[int(r)*k : int(r)*k+k]
+// rowWords returns row r's words.
+func (m *ngramModel) rowWords(r uint32) []uint64 {
+	return m.rows[int(r)*m.words : int(r)*m.words+m.words]
 }
 
-// row returns the per-language log-probabilities lingua adds for the
-// trigram key, or nil when no language knows even its first letter.
-func (m *ngramModel) row(key uint64) []float32 {
-	k := len(m.langs)
-	if r := m.tri.rowOf(key, k); r != nil {
+// logProb returns the log-probability column j of row r holds (0: adds
+// nothing).
+func (m *ngramModel) logProb(r uint32, j int) float64 {
+	return -float64(m.rowWords(r)[j/4]>>(16*uint(j%4))&0xffff) / qScale
+}
+
+// triRow returns the row lingua's scoring adds for the trigram key, backing
+// off to its bigram prefix and first letter, or 0 when no language knows
+// even its first letter.
+func (m *ngramModel) triRow(key uint64) uint32 {
+	if r, ok := m.tri.lookup(key); ok {
 		return r
 	}
-	if r := m.bi.rowOf(key>>21, k); r != nil {
+	if r, ok := m.bi.lookup(key >> 21); ok {
 		return r
 	}
-	return m.uni.rowOf(key>>42, k)
+	r, _ := m.uni.lookup(key >> 42)
+	return r
+}
+
+// biRow is triRow for a bigram key (order-2 scoring).
+func (m *ngramModel) biRow(key uint64) uint32 {
+	if r, ok := m.bi.lookup(key); ok {
+		return r
+	}
+	r, _ := m.uni.lookup(key >> 21)
+	return r
 }
