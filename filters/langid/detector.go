@@ -550,7 +550,7 @@ func (d *Detector) scoreSamples(g *ngramGroup, text string, st textStats, res *R
 	wb := max(1, int(float64(d.windowChars)*float64(n)/float64(st.runes)))
 	total, top := 0.0, 0
 	score := func(sample string) {
-		if st.marks > 0 {
+		if st.marks > 0 && !belowU0300(sample) {
 			// Decomposed accents ("e" + U+0301) would split words at
 			// every mark; lingua's models are of composed text.
 			sample = norm.NFC.String(sample)
@@ -633,6 +633,22 @@ func (d *Detector) scoreSamples(g *ngramGroup, text string, st textStats, res *R
 		return -1, 0
 	}
 	return g.ids[top], mix[top] / total
+}
+
+// belowU0300 reports whether every rune of s is below U+0300 (its UTF-8
+// lead bytes are below 0xCC), so s is in NFC already: the first code point
+// that NFC may change or compose with, U+0300 COMBINING GRAVE ACCENT,
+// starts the Combining Diacritical Marks block (Unicode Standard Annex
+// #15, the NFC_Quick_Check property of the Unicode Character Database is
+// Yes for every code point below it). It spares the normaliser's scan of
+// Latin samples of a page that holds decomposed accents elsewhere.
+func belowU0300(s string) bool {
+	for i := 0; i < len(s); i++ {
+		if s[i] >= 0xcc {
+			return false
+		}
+	}
+	return true
 }
 
 // sampleFrac is the relative position of the i-th sample of a long text:
@@ -725,7 +741,7 @@ func (d *Detector) scoreSample(m *ngramModel, s string, sc *scratch, order int) 
 			i++
 		} else {
 			var size int
-			r, size = utf8.DecodeRuneInString(s[i:])
+			r, size = decodeRune(s, i)
 			i += size
 			c := runeClass(t, r)
 			if c&classWord == 0 {

@@ -6,6 +6,8 @@ import (
 	"sync"
 	"testing"
 	"unicode/utf8"
+
+	"golang.org/x/text/unicode/norm"
 )
 
 // TestLangEdgeCases: degenerate inputs get defined results and no panic.
@@ -282,4 +284,39 @@ func TestLangQuantisation(t *testing.T) {
 	if q, _ := quantise(0); q != 0 {
 		t.Errorf("quantise(0) = %d, want 0 (p = 1 adds nothing, as in lingua)", q)
 	}
+}
+
+// TestLangBelowU0300: every code point below U+0300 is NFC_Quick_Check=Yes
+// (checked against golang.org/x/text/unicode/norm, an implementation of
+// Unicode Standard Annex #15), so a sample of them needs no normalising,
+// and the byte test agrees with decoding.
+func TestLangBelowU0300(t *testing.T) {
+	for r := rune(0); r < 0x300; r++ {
+		s := "a" + string(r) + "b"
+		if !norm.NFC.IsNormalString(s) || !belowU0300(s) {
+			t.Errorf("U+%04X: normal %v, below %v", r, norm.NFC.IsNormalString(s), belowU0300(s))
+		}
+	}
+	for _, s := range []string{"e\u0301", "\u0300", "ж", "\u1ea1", "\U0001F600"} {
+		if belowU0300(s) {
+			t.Errorf("%q reported below U+0300", s)
+		}
+	}
+}
+
+// FuzzLangDecodeRune: decodeRune agrees with unicode/utf8 at every offset,
+// invalid and truncated sequences included.
+func FuzzLangDecodeRune(f *testing.F) {
+	for _, s := range []string{"", "a", "é", "\xc3", "\xc3(", "\xc0\x80", "\xdf\xbf", "жñ€😀", "\xe2\x82", "\xc2\xa0x"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		for i := 0; i < len(s); i++ {
+			r, n := decodeRune(s, i)
+			wr, wn := utf8.DecodeRuneInString(s[i:])
+			if r != wr || n != wn {
+				t.Fatalf("%q at %d: %U/%d, utf8 %U/%d", s, i, r, n, wr, wn)
+			}
+		}
+	})
 }
