@@ -817,7 +817,7 @@ func (m *ngramModel) sumRows(rows []uint32, sc *scratch) int {
 		if r == 0 {
 			continue
 		}
-		row := m.rows[int(r)*m.words:]
+		row := m.rows[int(r)*m.words+1:]
 		row = row[:len(lo)]
 		for w, x := range row {
 			lo[w] += x & lanes

@@ -31,23 +31,25 @@ func linguaModelData(language lingua.Language, ngramLength int) []byte
 // letter key>>42. Keys are exact: no two n-grams share one.
 
 // packedTable maps an n-gram key to a row of per-language log-probabilities.
-// It is an open-addressing hash table with linear probing at load <= 1/2;
-// the key and its row index share one slot so a probe touches one cache
-// line. Rows live in the model's shared row array (see ngramModel).
+// It is an open-addressing hash table with linear probing at load <= 1/2
+// whose slots hold only a row index and an 8-bit fingerprint of the key's
+// hash (4 bytes, so the slots of the largest table stay small enough to be
+// mostly cached); the key itself is the first word of its row, which the
+// scoring reads anyway. Rows live in the model's shared row array.
 type packedTable struct {
 	shift uint
 	mask  uint64
-	slots []tableSlot
+	slots []uint32 // row<<8 | fingerprint; 0 = empty (row 0 is never used)
+	rows  []uint64 // the model's rows; row r's key at rows[r*words]
+	words int
 }
 
-type tableSlot struct {
-	key uint64 // 0 = empty (no n-gram key is 0: letters are never U+0000)
-	row uint32
-}
+// maxRows bounds the rows of a model: a slot holds a row index in 24 bits.
+const maxRows = 1 << 24
 
 const hashMul = 0x9E3779B97F4A7C15 // Fibonacci hashing multiplier (2^64 / golden ratio)
 
-func newPackedTable(n int) packedTable {
+func newPackedTable(n int, rows []uint64, words int) packedTable {
 	size := 16
 	for size < 2*n {
 		size <<= 1
@@ -56,27 +58,35 @@ func newPackedTable(n int) packedTable {
 	for 1<<bits < size {
 		bits++
 	}
-	return packedTable{shift: 64 - bits, mask: uint64(size - 1), slots: make([]tableSlot, size)}
+	return packedTable{shift: 64 - bits, mask: uint64(size - 1), slots: make([]uint32, size), rows: rows, words: words}
+}
+
+// probe returns key's first slot and fingerprint: the hash's top bits
+// index the table, the 8 bits below them are the fingerprint.
+func (t *packedTable) probe(key uint64) (uint64, uint32) {
+	h := key * hashMul
+	return h >> t.shift, uint32(h>>(t.shift-8)) & 0xff
 }
 
 func (t *packedTable) insert(key uint64, row uint32) {
-	i := (key * hashMul) >> t.shift
-	for t.slots[i].key != 0 {
+	i, fp := t.probe(key)
+	for t.slots[i] != 0 {
 		i = (i + 1) & t.mask
 	}
-	t.slots[i] = tableSlot{key: key, row: row}
+	t.slots[i] = row<<8 | fp
+	t.rows[int(row)*t.words] = key
 }
 
 // lookup returns the row index of key and whether it is present.
 func (t *packedTable) lookup(key uint64) (uint32, bool) {
-	i := (key * hashMul) >> t.shift
+	i, fp := t.probe(key)
 	for {
-		s := &t.slots[i]
-		if s.key == key {
-			return s.row, true
-		}
-		if s.key == 0 {
+		s := t.slots[i]
+		if s == 0 {
 			return 0, false
+		}
+		if s&0xff == fp && t.rows[int(s>>8)*t.words] == key {
+			return s >> 8, true
 		}
 		i = (i + 1) & t.mask
 	}
@@ -101,7 +111,7 @@ func (t *packedTable) lookup(key uint64) (uint32, bool) {
 // sample is handed to lingua anyway.
 type ngramModel struct {
 	langs         []lingua.Language
-	words         int      // uint64 words per row: ceil(len(langs)/4), padded to fill cache lines
+	words         int      // uint64 words per row: the key, then ceil(len(langs)/4), padded to fill cache lines
 	rows          []uint64 // every table's rows, row r at rows[r*words:]
 	tri, bi, uni  packedTable
 	bytesResident int64
@@ -199,7 +209,7 @@ func buildModel(langs []lingua.Language) (*ngramModel, error) {
 	// Rows of more than one cache line are padded to whole lines (and,
 	// the row array being page-aligned, start on a line), so a row
 	// touches as few lines as it can.
-	m.words = (k + 3) / 4
+	m.words = 1 + (k+3)/4
 	if m.words > 8 {
 		m.words = (m.words + 7) &^ 7
 	}
@@ -217,11 +227,14 @@ func buildModel(langs []lingua.Language) (*ngramModel, error) {
 		keysBy[n-1] = slices.Compact(keys)
 		total += len(keysBy[n-1])
 	}
+	if total+1 > maxRows {
+		return nil, fmt.Errorf("langid: %d n-grams exceed the packed tables' %d rows", total, maxRows-1)
+	}
 	m.rows = make([]uint64, (total+1)*m.words) // row 0: unused, all zero
 	next := uint32(1)
 	for n := 1; n <= 3; n++ {
 		keys := keysBy[n-1]
-		t := newPackedTable(len(keys))
+		t := newPackedTable(len(keys), m.rows, m.words)
 		for _, key := range keys {
 			row := next
 			next++
@@ -255,15 +268,16 @@ func buildModel(langs []lingua.Language) (*ngramModel, error) {
 				}
 			}
 		}
-		m.bytesResident += int64(len(t.slots)) * 16
+		m.bytesResident += int64(len(t.slots)) * 4
 	}
 	m.bytesResident += int64(len(m.rows)) * 8
 	return m, nil
 }
 
-// rowWords returns row r's words.
+// rowWords returns row r's words of log-probabilities (after its key).
 func (m *ngramModel) rowWords(r uint32) []uint64 {
-	return m.rows[int(r)*m.words : int(r)*m.words+m.words]
+	at := int(r)*m.words + 1
+	return m.rows[at : at+(len(m.langs)+3)/4]
 }
 
 // logProb returns the log-probability column j of row r holds (0: adds
