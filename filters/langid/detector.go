@@ -401,6 +401,10 @@ type scratch struct {
 	setGen  []uint32
 	gen     uint32
 	used    int
+	keys    []uint64 // the sample's distinct n-gram keys, in text order
+	rows    []uint32 // their rows
+	lo, hi  []uint64 // per-row-word lane sums (see addRow)
+	sums    []uint64 // per-language sums of quantised log-probabilities
 	scores  []float64
 	dist    []float64
 	mix     []float64
@@ -409,8 +413,11 @@ type scratch struct {
 func (d *Detector) newScratch() *scratch {
 	n := 1 << d.setBits
 	k := max(d.maxK, 1)
+	w := 4 * ((k+3)/4 + 8) // room for any group's padded row
 	return &scratch{
 		setKeys: make([]uint64, n), setGen: make([]uint32, n),
+		keys: make([]uint64, 0, n/2), rows: make([]uint32, n/2),
+		lo: make([]uint64, w/4), hi: make([]uint64, w/4), sums: make([]uint64, w),
 		scores: make([]float64, k), dist: make([]float64, k), mix: make([]float64, k),
 	}
 }
@@ -543,7 +550,7 @@ func (d *Detector) scoreSamples(g *ngramGroup, text string, st textStats, res *R
 	wb := max(1, int(float64(d.windowChars)*float64(n)/float64(st.runes)))
 	total, top := 0.0, 0
 	score := func(sample string) {
-		if st.marks > 0 {
+		if st.marks > 0 && !belowU0300(sample) {
 			// Decomposed accents ("e" + U+0301) would split words at
 			// every mark; lingua's models are of composed text.
 			sample = norm.NFC.String(sample)
@@ -628,6 +635,22 @@ func (d *Detector) scoreSamples(g *ngramGroup, text string, st textStats, res *R
 	return g.ids[top], mix[top] / total
 }
 
+// belowU0300 reports whether every rune of s is below U+0300 (its UTF-8
+// lead bytes are below 0xCC), so s is in NFC already: the first code point
+// that NFC may change or compose with, U+0300 COMBINING GRAVE ACCENT,
+// starts the Combining Diacritical Marks block (Unicode Standard Annex
+// #15, the NFC_Quick_Check property of the Unicode Character Database is
+// Yes for every code point below it). It spares the normaliser's scan of
+// Latin samples of a page that holds decomposed accents elsewhere.
+func belowU0300(s string) bool {
+	for i := 0; i < len(s); i++ {
+		if s[i] >= 0xcc {
+			return false
+		}
+	}
+	return true
+}
+
 // sampleFrac is the relative position of the i-th sample of a long text:
 // 0 (start), 1 (end), then 1/2, 1/4, 3/4, 1/8, 5/8, 3/8, 7/8... (the base-2
 // van der Corput sequence), so any number of samples spreads evenly.
@@ -683,12 +706,14 @@ func snapBackward(s string, i int) int {
 // With order 2 it scores distinct bigrams instead (a word's first letter
 // alone when the word has one letter), each backing off to its first
 // letter.
+//
+// It works in three passes: collect the distinct keys, look up their rows
+// (independent probes, so the processor overlaps their cache misses), sum
+// the rows.
 func (d *Detector) scoreSample(m *ngramModel, s string, sc *scratch, order int) (hits, letters int) {
 	t := classTable()
-	k := len(m.langs)
-	scores := sc.scores[:k]
-	clear(scores)
 	sc.resetSet()
+	keys := sc.keys[:0]
 	shift := 64 - d.setBits
 	var p1, p2 rune
 	n := 0 // letters of the current word seen so far, capped at 2
@@ -716,7 +741,7 @@ func (d *Detector) scoreSample(m *ngramModel, s string, sc *scratch, order int) 
 			i++
 		} else {
 			var size int
-			r, size = utf8.DecodeRuneInString(s[i:])
+			r, size = decodeRune(s, i)
 			i += size
 			c := runeClass(t, r)
 			if c&classWord == 0 {
@@ -733,36 +758,93 @@ func (d *Detector) scoreSample(m *ngramModel, s string, sc *scratch, order int) 
 		}
 		letters++
 		if order == 2 {
-			var row []float32
-			if n == 0 {
-				if key := uint64(r); sc.addUnique(key, shift) {
-					row = m.uni.rowOf(key, k)
-				}
-			} else if key := uint64(p1)<<21 | uint64(r); sc.addUnique(key, shift) {
-				if row = m.bi.rowOf(key, k); row == nil {
-					row = m.uni.rowOf(uint64(p1), k)
-				}
+			// A unigram key is the letter alone (key>>21 == 0), a
+			// bigram key has its first letter above it.
+			key := uint64(r)
+			if n > 0 {
+				key |= uint64(p1) << 21
 			}
-			if row != nil {
-				hits++
-				for j, v := range row[:k] {
-					scores[j] += float64(v)
-				}
+			if sc.addUnique(key, shift) {
+				keys = append(keys, key)
 			}
 			n = 1
 		} else if n < 2 {
 			n++
 		} else if key := uint64(p2)<<42 | uint64(p1)<<21 | uint64(r); sc.addUnique(key, shift) {
-			if row := m.row(key); row != nil {
-				hits++
-				for j, v := range row[:k] {
-					scores[j] += float64(v)
-				}
-			}
+			keys = append(keys, key)
 		}
 		p2, p1 = p1, r
 	}
+	sc.keys = keys
+	rows := sc.rows[:len(keys)]
+	for i, key := range keys {
+		switch {
+		case order == 3:
+			rows[i] = m.triRow(key)
+		case key>>21 == 0:
+			rows[i], _ = m.uni.lookup(key)
+		default:
+			rows[i] = m.biRow(key)
+		}
+	}
+	hits = m.sumRows(rows, sc)
 	return hits, letters
+}
+
+// lanes selects 16-bit lanes 0 and 2 of a row word into the two 32-bit
+// lanes of a sum.
+const lanes = 0x0000ffff_0000ffff
+
+// flushHits bounds how many rows are summed in 32-bit lanes before they
+// are moved to the 64-bit sums: 65536 values below 2^16 fit 32 bits.
+const flushHits = 1 << 16
+
+// sumRows adds the rows (row 0: none) and writes each language's sum of
+// log-probabilities into sc.scores; it returns how many rows were not 0.
+// A row word holds four languages' quantised values; sc.lo sums languages
+// 0 and 2 of each word, sc.hi languages 1 and 3, each in a 32-bit lane, so
+// one addition serves two languages. Integer sums are exact, so the
+// scores do not depend on the order of the rows.
+func (m *ngramModel) sumRows(rows []uint32, sc *scratch) int {
+	words := (len(m.langs) + 3) / 4
+	lo, hi := sc.lo[:words], sc.hi[:words]
+	sums := sc.sums[:4*words]
+	clear(lo)
+	clear(hi)
+	clear(sums)
+	hits := 0
+	for _, r := range rows {
+		if r == 0 {
+			continue
+		}
+		row := m.rows[int(r)*m.words+1:]
+		row = row[:len(lo)]
+		for w, x := range row {
+			lo[w] += x & lanes
+			hi[w] += x >> 16 & lanes
+		}
+		hits++
+		if hits%flushHits == 0 {
+			flushLanes(lo, hi, sums)
+		}
+	}
+	flushLanes(lo, hi, sums)
+	scores := sc.scores[:len(m.langs)]
+	for j := range scores {
+		scores[j] = -float64(sums[j]) / qScale
+	}
+	return hits
+}
+
+// flushLanes moves the lane sums into sums and clears them.
+func flushLanes(lo, hi, sums []uint64) {
+	for w := range lo {
+		sums[4*w] += lo[w] & 0xffffffff
+		sums[4*w+2] += lo[w] >> 32
+		sums[4*w+1] += hi[w] & 0xffffffff
+		sums[4*w+3] += hi[w] >> 32
+		lo[w], hi[w] = 0, 0
+	}
 }
 
 // confusable lists groups of closely related languages whose short texts

@@ -46,7 +46,15 @@
 // every candidate's log-probability with the back-off already applied. One
 // lookup per trigram yields the scores of all languages, with no regular
 // expression, no allocation and no arbitrary-precision arithmetic (where
-// lingua spends its time).
+// lingua spends its time). A row stores each log-probability negated in
+// steps of 1/2048 nat in 16 bits (at most 0.00024 nat off lingua's value;
+// every value of the 75 models fits, TestLangQuantisation), four languages
+// to a 64-bit word summed two at a time in 32-bit lanes, so the 49
+// Latin-script languages' row is two cache lines; a table slot is 4 bytes
+// (row index and an 8-bit hash fingerprint), the key being the row's first
+// word. A sample's distinct trigrams are collected first, then looked up,
+// then summed, so the processor overlaps the cache misses of independent
+// lookups. Integer sums are exact, so scores do not depend on the order.
 //
 // 5. Close calls go to lingua itself. When the two best languages of a
 // sample are less than 8 nats apart (a likelihood ratio under ~3000), the
@@ -97,20 +105,25 @@
 //
 // BenchmarkDetect against BenchmarkLinguaWholeText on generated web-like
 // pages of 2-5 KB (UDHR paragraphs with markup, an English block and
-// foreign quotes), 31 candidates, one core: about 30 MB/s against lingua's
+// foreign quotes), 31 candidates, one core: 66-69 MB per second of CPU
+// time (wall clock about 30 MB/s when first measured) against lingua's
 // 0.2 MB/s, naming the page's main language on 100% of the pages against
 // lingua's 97-98%. With every language a candidate (75, the default):
-// about 14 MB/s of CPU time per core (from a CPU profile of BenchmarkDetect: the 2-core machine ran at a
-// load of 7-20 when measured, so its wall-clock MB/s, 3-24, mostly
-// measures waiting), below the 20 MB/s aimed at. Each trigram row holds 49
-// Latin-script languages instead of 25, and close calls (id/ms, hr/bs...)
-// are more frequent; samples of 120+ letters go to lingua only when their
-// two best languages are within 2 nats (longAmbiguityNats), which cut the
-// time by 4.
+// 33-39 MB per second of CPU time on one core (the benchmark's MB/cpu-s:
+// user+system time of the process, so waiting for a core on the loaded
+// 2-core machine does not count), against 25-30 MB/cpu-s with float32
+// rows and 16-byte slots, measured alternately on the same machine (the
+// earlier "about 14 MB/s" was read off a CPU profile at a load of 7-20);
+// the main language of 101 of the 104 pages is found (Indonesian pages
+// read as Malay). Each trigram row holds 49 Latin-script languages instead
+// of 25, and close calls (id/ms, hr/bs...) are more frequent: lingua,
+// asked about one sample in ten pages, takes a quarter of the time.
+// Samples of 120+ letters go to lingua only when their two best languages
+// are within 2 nats (longAmbiguityNats), which cut the time by 4.
 //
-// The packed tables of all 75 languages take 37 MB (build: about 7 s with
+// The packed tables of all 75 languages take 21 MB (build: about 7 s with
 // lingua's trigram models preloaded, 360 MB peak RSS in the test); those
-// of the 31 common web languages 15 MB; with lingua's
+// of the 31 common web languages 7.4 MB; with lingua's
 // preloaded trigram models the detector holds about 40 MB and builds in
 // about 0.5 s on first use. Lingua's high-accuracy models of a confusable
 // language (~20 MB each) load on first need: 153 MB for all seven such

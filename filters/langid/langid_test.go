@@ -6,6 +6,8 @@ import (
 	"sync"
 	"testing"
 	"unicode/utf8"
+
+	"golang.org/x/text/unicode/norm"
 )
 
 // TestLangEdgeCases: degenerate inputs get defined results and no panic.
@@ -207,8 +209,9 @@ func FuzzLangDetect(f *testing.F) {
 }
 
 // TestLangTableBytes guards the memory of the packed tables of the
-// default candidates, every language the models cover (37 MB when
-// written; 15 MB for the 31 common web languages).
+// default candidates, every language the models cover (21 MB when
+// written, with 16-bit rows and 4-byte slots; 7.4 MB for the 31 common web
+// languages).
 func TestLangTableBytes(t *testing.T) {
 	n := defaultDetector(t).TableBytes()
 	t.Logf("packed tables: %.1f MB", float64(n)/(1<<20))
@@ -233,4 +236,88 @@ func TestLangLinguaText(t *testing.T) {
 			t.Errorf("linguaText(%q, %s) = %q, want %q", c.in, scriptNames[c.keep], got, c.want)
 		}
 	}
+}
+
+// TestLangQuantisation: the packed tables hold every log-probability of
+// the default candidates' models without clamping (qScale leaves room
+// down to -32 nats), and a stored value reads back within half a step of
+// lingua's own probability.
+func TestLangQuantisation(t *testing.T) {
+	d := defaultDetector(t)
+	for _, r := range d.byScript {
+		if r.group == nil {
+			continue
+		}
+		m := r.group.model
+		if m.clamped != 0 {
+			t.Errorf("%s: %d log-probabilities below -%.0f nats clamped", scriptNames[r.group.script], m.clamped, maxQuantNats)
+		}
+		// The first language's own trigrams read back as lingua's.
+		probs, err := decodeModel(m.langs[0], 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, e := range probs[:min(len(probs), 2000)] {
+			row, ok := m.tri.lookup(e.key)
+			if e.p <= 0 {
+				continue // lingua backs off from it
+			}
+			if !ok {
+				t.Fatalf("%v: trigram %x missing", m.langs[0], e.key)
+			}
+			if got, want := m.logProb(row, 0), math.Log(e.p); math.Abs(got-want) > 0.5/qScale+1e-12 {
+				t.Errorf("%v: trigram %x: %g, lingua %g", m.langs[0], e.key, got, want)
+			}
+		}
+	}
+	for _, lp := range []float64{-1e-9, -0.5, -3.14159, -17.25, -31.99} {
+		q, clamped := quantise(lp)
+		if clamped || q == 0 {
+			t.Errorf("quantise(%g) = %d, clamped %v", lp, q, clamped)
+		}
+		if got := -float64(q) / qScale; math.Abs(got-lp) > 0.5/qScale && q != 1 {
+			t.Errorf("quantise(%g) reads back as %g", lp, got)
+		}
+	}
+	if q, clamped := quantise(-40); q != 65535 || !clamped {
+		t.Errorf("quantise(-40) = %d, clamped %v", q, clamped)
+	}
+	if q, _ := quantise(0); q != 0 {
+		t.Errorf("quantise(0) = %d, want 0 (p = 1 adds nothing, as in lingua)", q)
+	}
+}
+
+// TestLangBelowU0300: every code point below U+0300 is NFC_Quick_Check=Yes
+// (checked against golang.org/x/text/unicode/norm, an implementation of
+// Unicode Standard Annex #15), so a sample of them needs no normalising,
+// and the byte test agrees with decoding.
+func TestLangBelowU0300(t *testing.T) {
+	for r := rune(0); r < 0x300; r++ {
+		s := "a" + string(r) + "b"
+		if !norm.NFC.IsNormalString(s) || !belowU0300(s) {
+			t.Errorf("U+%04X: normal %v, below %v", r, norm.NFC.IsNormalString(s), belowU0300(s))
+		}
+	}
+	for _, s := range []string{"e\u0301", "\u0300", "ж", "\u1ea1", "\U0001F600"} {
+		if belowU0300(s) {
+			t.Errorf("%q reported below U+0300", s)
+		}
+	}
+}
+
+// FuzzLangDecodeRune: decodeRune agrees with unicode/utf8 at every offset,
+// invalid and truncated sequences included.
+func FuzzLangDecodeRune(f *testing.F) {
+	for _, s := range []string{"", "a", "é", "\xc3", "\xc3(", "\xc0\x80", "\xdf\xbf", "жñ€😀", "\xe2\x82", "\xc2\xa0x"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		for i := 0; i < len(s); i++ {
+			r, n := decodeRune(s, i)
+			wr, wn := utf8.DecodeRuneInString(s[i:])
+			if r != wr || n != wn {
+				t.Fatalf("%q at %d: %U/%d, utf8 %U/%d", s, i, r, n, wr, wn)
+			}
+		}
+	})
 }

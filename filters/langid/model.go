@@ -31,24 +31,25 @@ func linguaModelData(language lingua.Language, ngramLength int) []byte
 // letter key>>42. Keys are exact: no two n-grams share one.
 
 // packedTable maps an n-gram key to a row of per-language log-probabilities.
-// It is an open-addressing hash table with linear probing at load <= 1/2;
-// the key and its row index share one slot so a probe touches one cache
-// line, and the row (k float32s) is one or two more.
+// It is an open-addressing hash table with linear probing at load <= 1/2
+// whose slots hold only a row index and an 8-bit fingerprint of the key's
+// hash (4 bytes, so the slots of the largest table stay small enough to be
+// mostly cached); the key itself is the first word of its row, which the
+// scoring reads anyway. Rows live in the model's shared row array.
 type packedTable struct {
 	shift uint
 	mask  uint64
-	slots []tableSlot
-	rows  []float32 // len = rowCount * k
+	slots []uint32 // row<<8 | fingerprint; 0 = empty (row 0 is never used)
+	rows  []uint64 // the model's rows; row r's key at rows[r*words]
+	words int
 }
 
-type tableSlot struct {
-	key uint64 // 0 = empty (no n-gram key is 0: letters are never U+0000)
-	row uint32
-}
+// maxRows bounds the rows of a model: a slot holds a row index in 24 bits.
+const maxRows = 1 << 24
 
 const hashMul = 0x9E3779B97F4A7C15 // Fibonacci hashing multiplier (2^64 / golden ratio)
 
-func newPackedTable(n int) packedTable {
+func newPackedTable(n int, rows []uint64, words int) packedTable {
 	size := 16
 	for size < 2*n {
 		size <<= 1
@@ -57,27 +58,35 @@ func newPackedTable(n int) packedTable {
 	for 1<<bits < size {
 		bits++
 	}
-	return packedTable{shift: 64 - bits, mask: uint64(size - 1), slots: make([]tableSlot, size)}
+	return packedTable{shift: 64 - bits, mask: uint64(size - 1), slots: make([]uint32, size), rows: rows, words: words}
+}
+
+// probe returns key's first slot and fingerprint: the hash's top bits
+// index the table, the 8 bits below them are the fingerprint.
+func (t *packedTable) probe(key uint64) (uint64, uint32) {
+	h := key * hashMul
+	return h >> t.shift, uint32(h>>(t.shift-8)) & 0xff
 }
 
 func (t *packedTable) insert(key uint64, row uint32) {
-	i := (key * hashMul) >> t.shift
-	for t.slots[i].key != 0 {
+	i, fp := t.probe(key)
+	for t.slots[i] != 0 {
 		i = (i + 1) & t.mask
 	}
-	t.slots[i] = tableSlot{key: key, row: row}
+	t.slots[i] = row<<8 | fp
+	t.rows[int(row)*t.words] = key
 }
 
 // lookup returns the row index of key and whether it is present.
 func (t *packedTable) lookup(key uint64) (uint32, bool) {
-	i := (key * hashMul) >> t.shift
+	i, fp := t.probe(key)
 	for {
-		s := &t.slots[i]
-		if s.key == key {
-			return s.row, true
-		}
-		if s.key == 0 {
+		s := t.slots[i]
+		if s == 0 {
 			return 0, false
+		}
+		if s&0xff == fp && t.rows[int(s>>8)*t.words] == key {
+			return s >> 8, true
 		}
 		i = (i + 1) & t.mask
 	}
@@ -91,10 +100,46 @@ func (t *packedTable) lookup(key uint64) (uint32, bool) {
 // nothing (0) when none is known — exactly lingua's
 // computeSumOfNgramProbabilities. One lookup thus yields the scores of all
 // languages at once.
+//
+// The log-probabilities are stored negated and quantised to 1/qScale nat
+// in 16 bits (0 = adds nothing), four languages to a uint64, so a row of
+// the 49 Latin-script languages takes two cache lines instead of four
+// float32 ones, and a row is summed four languages at a time in integer
+// lanes (see addRow). Rounding moves a log-probability by at most
+// 1/(2·qScale) ≈ 0.00024 nat, a sample of 500 trigrams by a few
+// thousandths of a nat in practice: far below the 2 nats under which a
+// sample is handed to lingua anyway.
 type ngramModel struct {
 	langs         []lingua.Language
+	words         int      // uint64 words per row: the key, then ceil(len(langs)/4), padded to fill cache lines
+	rows          []uint64 // every table's rows, row r at rows[r*words:]
 	tri, bi, uni  packedTable
 	bytesResident int64
+	clamped       int // log-probabilities below -maxQuantNats, stored as the lowest value
+}
+
+// qScale is the quantisation step of the packed log-probabilities: 1/2048
+// nat. 16 bits then hold log-probabilities down to -32 nats (p ≈ 1.3e-14);
+// lingua's smallest are far above that (TestLangQuantisation).
+const qScale = 2048
+
+// maxQuantNats is the largest negated log-probability a row holds.
+const maxQuantNats = 65535.0 / qScale
+
+// quantise returns the stored value of log-probability lp (<= 0): its
+// negation in steps of 1/qScale, at least 1 for any p < 1 so that a known
+// n-gram never reads as unknown, clamped to 16 bits.
+func quantise(lp float64) (q uint16, clamped bool) {
+	v := math.Round(-lp * qScale)
+	switch {
+	case v >= 65535:
+		return 65535, v > 65535
+	case v < 1 && lp < 0:
+		return 1, false
+	case v < 1:
+		return 0, false
+	}
+	return uint16(v), false
 }
 
 // ngramProb is one n-gram of a lingua model.
@@ -161,7 +206,16 @@ func buildModel(langs []lingua.Language) (*ngramModel, error) {
 		}
 	}
 	m := &ngramModel{langs: langs}
+	// Rows of more than one cache line are padded to whole lines (and,
+	// the row array being page-aligned, start on a line), so a row
+	// touches as few lines as it can.
+	m.words = 1 + (k+3)/4
+	if m.words > 8 {
+		m.words = (m.words + 7) &^ 7
+	}
 	tables := [3]*packedTable{&m.uni, &m.bi, &m.tri}
+	var keysBy [3][]uint64
+	total := 0
 	for n := 1; n <= 3; n++ {
 		var keys []uint64
 		for j := range langs {
@@ -170,54 +224,87 @@ func buildModel(langs []lingua.Language) (*ngramModel, error) {
 			}
 		}
 		slices.Sort(keys)
-		keys = slices.Compact(keys)
-		t := newPackedTable(len(keys))
-		t.rows = make([]float32, len(keys)*k)
-		for row, key := range keys {
-			t.insert(key, uint32(row))
-			var from []float32 // the back-off row
+		keysBy[n-1] = slices.Compact(keys)
+		total += len(keysBy[n-1])
+	}
+	if total+1 > maxRows {
+		return nil, fmt.Errorf("langid: %d n-grams exceed the packed tables' %d rows", total, maxRows-1)
+	}
+	m.rows = make([]uint64, (total+1)*m.words) // row 0: unused, all zero
+	next := uint32(1)
+	for n := 1; n <= 3; n++ {
+		keys := keysBy[n-1]
+		t := newPackedTable(len(keys), m.rows, m.words)
+		for _, key := range keys {
+			row := next
+			next++
+			t.insert(key, row)
+			var from uint32 // the back-off row
+			ok := false
 			switch n {
 			case 3:
-				if from = m.bi.rowOf(key>>21, k); from == nil {
-					from = m.uni.rowOf(key>>42, k)
+				if from, ok = m.bi.lookup(key >> 21); !ok {
+					from, ok = m.uni.lookup(key >> 42)
 				}
 			case 2:
-				from = m.uni.rowOf(key>>21, k)
+				from, ok = m.uni.lookup(key >> 21)
 			}
-			copy(t.rows[row*k:row*k+k], from)
+			if ok {
+				copy(m.rowWords(row), m.rowWords(from))
+			}
 		}
+		*tables[n-1] = t
 		for j := range langs {
 			for _, e := range probs[j][n-1] {
 				if e.p > 0 { // lingua backs off from a zero probability
 					row, _ := t.lookup(e.key)
-					t.rows[int(row)*k+j] = float32(math.Log(e.p))
+					q, clamped := quantise(math.Log(e.p))
+					if clamped {
+						m.clamped++
+					}
+					w := &m.rowWords(row)[j/4]
+					shift := 16 * uint(j%4)
+					*w = *w&^(0xffff<<shift) | uint64(q)<<shift
 				}
 			}
 		}
-		*tables[n-1] = t
-		m.bytesResident += int64(len(t.slots))*16 + int64(len(t.rows))*4
+		m.bytesResident += int64(len(t.slots)) * 4
 	}
+	m.bytesResident += int64(len(m.rows)) * 8
 	return m, nil
 }
 
-// rowOf returns the row of key (k columns), or nil when absent.
-func (t *packedTable) rowOf(key uint64, k int) []float32 {
-	r, ok := t.lookup(key)
-	if !ok {
-		return nil
-	}
-	return t.rows[int(r)*k : int(r)*k+k]
+// rowWords returns row r's words of log-probabilities (after its key).
+func (m *ngramModel) rowWords(r uint32) []uint64 {
+	at := int(r)*m.words + 1
+	return m.rows[at : at+(len(m.langs)+3)/4]
 }
 
-// row returns the per-language log-probabilities lingua adds for the
-// trigram key, or nil when no language knows even its first letter.
-func (m *ngramModel) row(key uint64) []float32 {
-	k := len(m.langs)
-	if r := m.tri.rowOf(key, k); r != nil {
+// logProb returns the log-probability column j of row r holds (0: adds
+// nothing).
+func (m *ngramModel) logProb(r uint32, j int) float64 {
+	return -float64(m.rowWords(r)[j/4]>>(16*uint(j%4))&0xffff) / qScale
+}
+
+// triRow returns the row lingua's scoring adds for the trigram key, backing
+// off to its bigram prefix and first letter, or 0 when no language knows
+// even its first letter.
+func (m *ngramModel) triRow(key uint64) uint32 {
+	if r, ok := m.tri.lookup(key); ok {
 		return r
 	}
-	if r := m.bi.rowOf(key>>21, k); r != nil {
+	if r, ok := m.bi.lookup(key >> 21); ok {
 		return r
 	}
-	return m.uni.rowOf(key>>42, k)
+	r, _ := m.uni.lookup(key >> 42)
+	return r
+}
+
+// biRow is triRow for a bigram key (order-2 scoring).
+func (m *ngramModel) biRow(key uint64) uint32 {
+	if r, ok := m.bi.lookup(key); ok {
+		return r
+	}
+	r, _ := m.uni.lookup(key >> 21)
+	return r
 }

@@ -221,7 +221,7 @@ func scanText(s string) textStats {
 			afterLetter = false
 			continue
 		}
-		r, n := utf8.DecodeRuneInString(s[i:])
+		r, n := decodeRune(s, i)
 		i += n
 		st.runes++
 		c := runeClass(t, r)
@@ -245,4 +245,17 @@ func scanText(s string) textStats {
 		st.scripts[c&classScript]++
 	}
 	return st
+}
+
+// decodeRune is utf8.DecodeRuneInString(s[i:]) with the two-byte sequences
+// of Latin accents, Greek, Cyrillic, Hebrew and Arabic decoded inline: a
+// lead byte 0xC2-0xDF followed by a continuation byte is always a valid
+// sequence (RFC 3629, section 4).
+func decodeRune(s string, i int) (rune, int) {
+	if b := s[i]; b >= 0xc2 && b < 0xe0 && i+1 < len(s) {
+		if c := s[i+1]; c&0xc0 == 0x80 {
+			return rune(b&0x1f)<<6 | rune(c&0x3f), 2
+		}
+	}
+	return utf8.DecodeRuneInString(s[i:])
 }
