@@ -466,6 +466,12 @@ func (d *Detector) Detect(text string) Result {
 // detect is Detect that also returns the text's weighted letter count
 // (Han, kana and Hangul letters weigh cjkLetterWeight).
 func (d *Detector) detect(text string) (Result, int) {
+	return d.detectStages(text, true)
+}
+
+// detectStages is detect with the close-pair second stage (closepairs.go)
+// on or off; off, the answer is the n-gram model's alone.
+func (d *Detector) detectStages(text string, closePairs bool) (Result, int) {
 	st := scanText(text)
 	res := Result{Lang: Undetermined, Letters: st.letters}
 	if st.nonSpace > 0 {
@@ -504,6 +510,9 @@ func (d *Detector) detect(text string) (Result, int) {
 					top = d.sr
 				}
 			}
+		}
+		if closePairs && dom == scriptLatin && top >= 0 {
+			top = d.closePair(top, text)
 		}
 	default:
 		top = r.single

@@ -82,6 +82,12 @@
 // with lingua's Serbian model (see serbian.go); it is Serbian when that
 // model explains it better per trigram.
 //
+// Close pairs: when the answer is Bosnian, Croatian or Serbian (Latin
+// script), or Indonesian or Malay, a second stage counts marker words
+// (ekavian or ijekavian forms, each standard's word choices, Indonesian
+// and Malay spellings) and moves the answer within the group when they
+// decide (see closepairs.go); other answers never reach it.
+//
 // 6. A document's language is the one with the largest mean confidence
 // over its samples, each weighted by its number of scored trigrams; its
 // confidence is that mean times the share of the document's letters in the
