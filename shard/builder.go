@@ -111,7 +111,8 @@ type Report struct {
 	DocsWritten int64
 	TextBytes   int64
 	// BudgetLeftOut counts the documents an output written in input order
-	// left out once budget_tokens was reached (they get no LeftOut call).
+	// left out once budget_tokens was reached (each also gets a LeftOut
+	// call, made from Add, when SetLeftOut was called before).
 	BudgetLeftOut int64
 }
 
@@ -132,7 +133,8 @@ type LeftOut struct {
 	Reason string
 }
 
-// SetLeftOut makes Close call fn, in input order, for each document the
+// SetLeftOut makes Close (or, for an output written in input order with
+// budget_tokens, Add) call fn, in input order, for each document the
 // mix (or a shuffled output's token budget) leaves out, so the run can
 // record it (bounded memory: nothing is kept). It has no effect on an
 // output written in input order.
@@ -228,7 +230,7 @@ func NewBuilder(opt Options) (*Builder, error) {
 }
 
 // Add takes one surviving document. Documents arrive in input order.
-func (b *Builder) Add(d *Doc) error {
+func (b *Builder) Add(d *Doc) (err error) {
 	if b.closed {
 		return errors.New("output: Add after Close")
 	}
@@ -264,8 +266,12 @@ func (b *Builder) Add(d *Doc) error {
 		defer func() {
 			if b.pieceOut {
 				b.docsOut++
-			} else {
-				b.budgetLeft++
+				return
+			}
+			b.budgetLeft++
+			if err == nil && b.leftOut != nil {
+				err = b.leftOut(LeftOut{Doc: d.ID, Source: d.Source, File: d.File, Line: d.Line, Tokens: tokens, Bytes: len(d.Text),
+					Reason: fmt.Sprintf("total capped at budget_tokens %d", b.opt.BudgetTokens)})
 			}
 		}()
 	}

@@ -412,6 +412,19 @@ func TestInOrderShardsAndSplits(t *testing.T) {
 	if rep.DocsWritten != int64(len(docs)) || rep.Docs <= rep.DocsWritten {
 		t.Errorf("no budget: %d documents written as %d lines, want %d documents as more lines (splits)", rep.DocsWritten, rep.Docs, len(docs))
 	}
+	// Each document past the budget is reported left out, in input
+	// order, with the budget as its reason: the run turns these into
+	// ledger records, so nothing leaves without a word.
+	rep3, _, left := buildLeftOut(t, docs, Options{Tokenizer: tok, ShardTokens: T, BudgetTokens: 5000})
+	if int64(len(left)) != rep3.BudgetLeftOut || rep3.BudgetLeftOut != rep2.BudgetLeftOut {
+		t.Errorf("budget 5000: %d left-out calls, %d counted (without callback %d)", len(left), rep3.BudgetLeftOut, rep2.BudgetLeftOut)
+	}
+	for i, l := range left {
+		want := docs[len(docs)-len(left)+i]
+		if l.Doc != want.ID || l.Bytes != len(want.Text) || l.Tokens <= 0 || l.Reason != "total capped at budget_tokens 5000" {
+			t.Errorf("left out #%d: %+v, want document %s (%d bytes) with the budget as reason", i, l, want.ID, len(want.Text))
+		}
+	}
 	first := readShard(t, filepath.Join(run2, rep2.Files[0].Path))
 	if first[0].ID != docs[0].ID && !strings.HasPrefix(first[0].ID, docs[0].ID+"#") {
 		t.Errorf("budget output starts with %s", first[0].ID)

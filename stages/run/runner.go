@@ -259,25 +259,30 @@ func (r *Runner) Run(ctx context.Context) error {
 		}
 	}
 	r.started = true
+	// Documents the output leaves out become ledger records: from Close
+	// for a mix or shuffle, from Add (in the collector, which owns the
+	// ledger) for an output in input order cut by budget_tokens.
+	if r.Output == nil && r.Sink != nil {
+		if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
+			lo.OnLeftOut(func(rec *record.LedgerRecord) error {
+				if rec.Action == "drop" {
+					r.Write.Dropped++
+				} else {
+					r.Write.Edited++ // some pieces written, others left out
+				}
+				return r.ledger.Add(rec)
+			})
+		}
+	}
 	err := r.runSegments(ctx, cp)
 	if err == nil || errors.Is(err, context.Canceled) {
 		if r.Output == nil && r.Sink != nil {
-			if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
-				lo.OnLeftOut(func(rec *record.LedgerRecord) error {
-					if rec.Action == "drop" {
-						r.Write.Dropped++
-					} else {
-						r.Write.Edited++ // some pieces written, others left out
-					}
-					return r.ledger.Add(rec)
-				})
-			}
 			out, cerr := r.Sink.Close()
 			if cerr != nil && err == nil {
 				err = cerr
 			}
 			r.Output = out
-			if out != nil {
+			if _, ok := r.Sink.(record.LeftOutRecorder); !ok && out != nil {
 				r.Write.Dropped += out.BudgetLeftOut
 			}
 		}
