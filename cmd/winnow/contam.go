@@ -16,7 +16,6 @@ import (
 	"winnow/stages"
 	"winnow/stages/read"
 	"winnow/stages/run"
-	"winnow/stages/spec"
 )
 
 type contamFlags struct {
@@ -154,54 +153,33 @@ func runContam(ctx context.Context, f contamFlags, args []string, w io.Writer) e
 	if err != nil {
 		return err
 	}
-	sp := &spec.Spec{Dir: ".", Inputs: []spec.InputSpec{{Paths: args, ReadOptions: read.ReadOptions{
-		Source: f.source, Format: read.Format(f.format), TextField: f.textField, IDField: f.docID}}}}
-	inputs, err := spec.ResolveInputs(sp)
-	if err != nil {
-		return err
-	}
-	tmp, err := os.MkdirTemp("", "winnow-contam-")
-	if err != nil {
-		return err
-	}
-	defer os.RemoveAll(tmp)
-	runDir := filepath.Join(tmp, "run")
-	if f.out != "" {
-		runDir = f.out
-	}
-	step := spec.Step{Name: "decontaminate"}
-	if s := d.PerDocument(); s != nil {
-		step.Stage = s
-	} else {
-		step.Global = d
-	}
 	prog := newProgress(f.quiet)
-	r := &run.Runner{Spec: sp, Steps: []spec.Step{step}, Inputs: inputs, Workers: f.workers,
-		Env: stages.Env{SpecDir: ".", RunDir: runDir, TempDir: tmp}, OnProgress: prog.update, Log: prog.logf}
-	runErr := r.Run(ctx)
+	res, err := run.CheckContamination(ctx, args, d, run.ContamOptions{
+		Read:    read.ReadOptions{Source: f.source, Format: read.Format(f.format), TextField: f.textField, IDField: f.docID},
+		Workers: f.workers, Out: f.out, JSON: f.asJSON, OnProgress: prog.update, Log: prog.logf})
 	prog.done()
-	if runErr != nil && !errors.Is(runErr, context.Canceled) {
-		return runErr
+	if err != nil {
+		return err
 	}
 	if f.asJSON {
-		err = stages.PrintContamination(w, filepath.Join(runDir, "contamination.json"), true)
+		_, err = w.Write(res.JSON)
 	} else {
 		err = d.Report().WriteTable(w)
 	}
 	if err != nil {
 		return err
 	}
-	if errors.Is(runErr, context.Canceled) {
+	if res.Interrupted {
 		return &exitError{code: 130, err: errors.New("interrupted: the report covers the documents read so far")}
 	}
-	if r.InternalErrors > 0 {
-		return &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): the check failed on %d document(s), which the report leaves out (please report this bug)", r.InternalErrors, r.InternalErrors)}
+	if res.InternalErrors > 0 {
+		return &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): the check failed on %d document(s), which the report leaves out (please report this bug)", res.InternalErrors, res.InternalErrors)}
 	}
-	if r.FatalInputs > 0 {
-		return &exitError{code: 3, err: fmt.Errorf("finished, but %d input file(s) could not be read to the end: the report covers the documents before the break", r.FatalInputs)}
+	if res.FatalInputs > 0 {
+		return &exitError{code: 3, err: fmt.Errorf("finished, but %d input file(s) could not be read to the end: the report covers the documents before the break", res.FatalInputs)}
 	}
-	if r.ErrCount > 0 {
-		fmt.Fprintf(os.Stderr, "winnow: finished; skipped %d unreadable record(s) or empty input(s)\n", r.ErrCount)
+	if res.ErrCount > 0 {
+		fmt.Fprintf(os.Stderr, "winnow: finished; skipped %d unreadable record(s) or empty input(s)\n", res.ErrCount)
 	}
 	return nil
 }
