@@ -41,9 +41,6 @@ func TestClosePairDecisions(t *testing.T) {
 // TestClosePairDetect: through the detector, the second stage moves a
 // text within its group only.
 func TestClosePairDetect(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the all-language detector")
-	}
 	d := defaultDetector(t)
 	text := "Radionica Larkspur je uvek otvorena. Gde je reka, tu je lepo mesto za brod, a posle podne dolaze deca i vide kako se menja jedro."
 	if r := d.Detect(text); r.Lang != "sr" {

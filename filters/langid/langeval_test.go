@@ -106,9 +106,6 @@ func (t tally) acc() float64 {
 // language lingua-go models a candidate. Long texts: >= 97% except the
 // listed floors; short texts: at least their listed floor.
 func TestLangEvalAccuracy(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the all-language detector")
-	}
 	d := defaultDetector(t)
 	texts := loadLangeval(t)
 	type key struct{ code, kind, source string }
