@@ -206,6 +206,29 @@ type GlobalStage interface {
 	Close() error
 }
 
+// KeyCodec is implemented by global stages whose scan keys can be stored
+// between the phases of a split run (see stages/run "phases"): Scan runs in
+// one process, the keys go to a file, and Collect runs in another process.
+// DecodeKeys(AppendKeys(nil, k)) must give keys that Collect treats exactly
+// as k (a nil Scan result included). Without a codec the next phase scans
+// the stored documents again (correct, but Scan's work is repeated).
+type KeyCodec interface {
+	AppendKeys(b []byte, keys any) []byte
+	DecodeKeys(b []byte) (any, error)
+}
+
+// ReportSplitter is implemented by Observer stages whose run-wide report
+// can be built in parts: in a split run each unit of work observes a range
+// of consecutive documents and saves its part (SaveReport returns the part
+// observed since the last save and starts a new, empty part); the process
+// that finishes the run merges the parts in input order (MergeReport) and
+// then calls Finish. Observing every document in one process, or in parts
+// saved and merged in order, must give byte-identical Finish output.
+type ReportSplitter interface {
+	SaveReport() ([]byte, error)
+	MergeReport(part []byte) error
+}
+
 // Observer is implemented by stages that aggregate over the whole run
 // (e.g. a contamination report). Observe is called on one goroutine, in
 // input order, with every document the stage decided about (not shadow
