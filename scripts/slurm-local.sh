@@ -22,9 +22,9 @@ die() { echo "slurm-local: $*" >&2; exit 1; }
 
 install_packages() {
   local need=()
-  command -v munged >/dev/null 2>&1 || need+=(munge)
-  command -v slurmctld >/dev/null 2>&1 || need+=(slurmctld)
-  command -v slurmd >/dev/null 2>&1 || need+=(slurmd)
+  command -v munged >/dev/null 2>&1 || [ -x /usr/sbin/munged ] || need+=(munge)
+  command -v slurmctld >/dev/null 2>&1 || [ -x /usr/sbin/slurmctld ] || need+=(slurmctld)
+  command -v slurmd >/dev/null 2>&1 || [ -x /usr/sbin/slurmd ] || need+=(slurmd)
   command -v sbatch >/dev/null 2>&1 || need+=(slurm-client)
   if [ ${#need[@]} -gt 0 ]; then
     echo "slurm-local: installing ${need[*]}" >&2
@@ -139,8 +139,8 @@ start() {
     --socket="$dir/munge/munge.socket" --key-file="$dir/munge/munge.key" \
     --pid-file="$dir/munge/munged.pid" --log-file="$dir/log/munged.log" \
     --seed-file="$dir/munge/munged.seed"
-  local i
-  for i in $(seq 1 100); do
+
+  for _ in $(seq 1 100); do
     [ -S "$dir/munge/munge.socket" ] && break
     alive "$dir/run/munged.fg.pid" || { logs "$dir" >&2; die "munged exited"; }
     sleep 0.1
@@ -149,7 +149,7 @@ start() {
 
   start_daemon "$dir" slurmctld slurmctld -D -i
   start_daemon "$dir" slurmd slurmd -D -N localhost
-  for i in $(seq 1 300); do
+  for _ in $(seq 1 300); do
     alive "$dir/run/slurmctld.fg.pid" || { logs "$dir" >&2; die "slurmctld exited"; }
     alive "$dir/run/slurmd.fg.pid" || { logs "$dir" >&2; die "slurmd exited"; }
     if [ "$(sinfo -h -n localhost -o '%t' 2>/dev/null)" = idle ]; then
@@ -163,13 +163,13 @@ start() {
 }
 
 stop() {
-  local dir=$1 name pid i
+  local dir=$1 name pid
   for name in slurmd slurmctld munged; do
     [ -s "$dir/run/$name.fg.pid" ] || continue
     pid=$(cat "$dir/run/$name.fg.pid")
     if kill -0 "$pid" 2>/dev/null; then
       kill -TERM "$pid" 2>/dev/null || true
-      for i in $(seq 1 50); do
+      for _ in $(seq 1 50); do
         kill -0 "$pid" 2>/dev/null || break
         sleep 0.1
       done

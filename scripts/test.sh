@@ -4,6 +4,9 @@
 #   zstd, gzip  - compress test fixtures independently of winnow's own code
 #                 (the zstd package also brings pzstd, which writes skippable frames)
 #   chromium    - opens the HTML audit report headless in the audit tests
+#   slurmctld, slurmd, slurm-client, munge
+#               - a private single-node Slurm (scripts/slurm-local.sh) that
+#                 runs configs/cluster/ in the configs/cluster tests
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -11,6 +14,10 @@ need=()
 command -v zstd >/dev/null 2>&1 && command -v pzstd >/dev/null 2>&1 || need+=(zstd)
 command -v gzip >/dev/null 2>&1 || need+=(gzip)
 command -v chromium >/dev/null 2>&1 || need+=(chromium)
+command -v munged >/dev/null 2>&1 || [ -x /usr/sbin/munged ] || need+=(munge)
+command -v slurmctld >/dev/null 2>&1 || [ -x /usr/sbin/slurmctld ] || need+=(slurmctld)
+command -v slurmd >/dev/null 2>&1 || [ -x /usr/sbin/slurmd ] || need+=(slurmd)
+command -v sbatch >/dev/null 2>&1 || need+=(slurm-client)
 if [ ${#need[@]} -gt 0 ]; then
   echo "installing: ${need[*]}" >&2
   if [ "$(id -u)" = 0 ]; then SUDO=; else SUDO=sudo; fi

@@ -36,7 +36,7 @@ batch_script="$here/winnow.sbatch"
 die() { echo "submit.sh: $*" >&2; exit 2; }
 
 # Settings, read from the options or from a jobs file.
-spec= out= winnow_bin=winnow logs= tasks_default=4
+spec='' out='' winnow_bin=winnow logs='' tasks_default=4
 sbatch_extra=()
 # Per phase, in phase order.
 phases=() phase_tasks=()
@@ -156,13 +156,13 @@ is_failed() {
 # run, else 1 when a task failed, else 0. Tasks waiting behind a phase
 # with a failed task never start, so they do not count as running.
 status() {
-  local p i done failed going blocked=0 any_failed=0 any_going=0 failed_list
+  local p i ndone failed going blocked=0 any_failed=0 any_going=0 failed_list
   for p in "${!phases[@]}"; do
     phase_states "$p"
-    done=0 failed=0 going=0 failed_list=
+    ndone=0 failed=0 going=0 failed_list=''
     for i in "${!state[@]}"; do
       if [ "${state[i]}" = COMPLETED ]; then
-        done=$((done + 1))
+        ndone=$((ndone + 1))
       elif is_failed "${state[i]}"; then
         failed=$((failed + 1))
         failed_list+="${failed_list:+,}$i"
@@ -170,7 +170,7 @@ status() {
         going=$((going + 1))
       fi
     done
-    printf '%s: %d/%d done' "${phases[$p]}" "$done" "${phase_tasks[$p]}"
+    printf '%s: %d/%d done' "${phases[$p]}" "$ndone" "${phase_tasks[$p]}"
     [ "$failed" -eq 0 ] || printf ', failed tasks %s' "$failed_list"
     if [ "$going" -gt 0 ] && [ "$blocked" -eq 1 ]; then
       printf ', %d waiting behind a failed phase (run --resubmit)' "$going"
@@ -187,15 +187,15 @@ status() {
 }
 
 resubmit() {
-  local jobs_file=$1 p i prev= changed=0 rerun going_ids id j
+  local jobs_file=$1 p i prev='' changed=0 rerun going_ids id j
   for p in "${!phases[@]}"; do
     phase_states "$p"
-    rerun= going_ids=
+    rerun='' going_ids=''
     if [ "$changed" -eq 1 ]; then
       # An earlier phase was resubmitted: this phase's waiting jobs can
       # never start. Cancel them and submit what is not done behind it.
       for j in "${!job_id[@]}"; do
-        [ "${job_phase[$j]}" = "${phases[$p]}" ] && scancel "${job_id[$j]}" 2>/dev/null || true
+        if [ "${job_phase[$j]}" = "${phases[$p]}" ]; then scancel "${job_id[$j]}" 2>/dev/null || true; fi
       done
       for i in "${!state[@]}"; do
         [ "${state[i]}" = COMPLETED ] || rerun+="${rerun:+,}$i"
@@ -230,7 +230,7 @@ resubmit() {
 }
 
 main() {
-  local mode=submit jobs_file= wait_secs=0 arg
+  local mode=submit jobs_file='' wait_secs=0 arg
   local -a overrides=()
   while [ $# -gt 0 ]; do
     arg=$1
@@ -311,7 +311,7 @@ main() {
     [ "$known" -eq 1 ] || die "--phase-tasks $o: the spec has no phase ${o%%=*} (phases: ${phases[*]})"
   done
 
-  local p prev= id
+  local p prev='' id
   write_jobs "$jobs_file"
   for p in "${!phases[@]}"; do
     n=${phase_tasks[$p]}
