@@ -513,6 +513,26 @@ func TestKubernetesCommand(t *testing.T) {
 	if len(jobs) != len(ps) {
 		t.Fatalf("render.sh wrote %d jobs for %d phases %v", len(jobs), len(ps), ps)
 	}
+	// The pods mount the claim volume.yaml makes, which many pods can mount at once.
+	var pvc struct {
+		Kind     string `yaml:"kind"`
+		Metadata struct {
+			Name string `yaml:"name"`
+		} `yaml:"metadata"`
+		Spec struct {
+			AccessModes []string `yaml:"accessModes"`
+		} `yaml:"spec"`
+	}
+	vol, err := os.ReadFile(filepath.Join(root(t), "configs", "cluster", "k8s", "volume.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := yaml.Unmarshal(vol, &pvc); err != nil {
+		t.Fatalf("volume.yaml: %v", err)
+	}
+	if pvc.Kind != "PersistentVolumeClaim" || len(pvc.Spec.AccessModes) != 1 || pvc.Spec.AccessModes[0] != "ReadWriteMany" {
+		t.Errorf("volume.yaml: %s with access modes %v, want a ReadWriteMany PersistentVolumeClaim", pvc.Kind, pvc.Spec.AccessModes)
+	}
 	for i, j := range jobs {
 		// Field meanings: Kubernetes batch/v1 Job API reference
 		// (completionMode Indexed, backoffLimitPerIndex needs restartPolicy Never).
@@ -527,6 +547,7 @@ func TestKubernetesCommand(t *testing.T) {
 		}
 		pod := j.Spec.Template.Spec
 		if len(pod.Containers) != 1 || len(pod.Volumes) != 1 || pod.Volumes[0].PersistentVolumeClaim == nil ||
+			pod.Volumes[0].PersistentVolumeClaim.ClaimName != pvc.Metadata.Name ||
 			len(pod.Containers[0].VolumeMounts) != 1 || pod.Containers[0].VolumeMounts[0].MountPath != "/data" ||
 			pod.Containers[0].VolumeMounts[0].Name != pod.Volumes[0].Name {
 			t.Fatalf("job %s: want one container with the claimed volume at /data", j.Metadata.Name)
