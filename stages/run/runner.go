@@ -81,6 +81,10 @@ type Runner struct {
 	// a chunk ends, so a run split into units writes the same bytes.
 	chunkOf  []int
 	curChunk int
+	// unit, set when the runner runs one unit of a split run, receives
+	// what a whole run hands to the next global stage, the id check and
+	// the sink (see phases.go).
+	unit *unitIO
 
 	// Results, filled by Run.
 	Read      record.Counters
@@ -695,7 +699,13 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		if seg.apply < 0 {
 			r.Read.DocsOut++
 			r.Read.BytesOut += int64(it.readBytes)
-			r.noteID(d)
+			if r.unit != nil {
+				if err := r.unit.ids.add(d); err != nil {
+					return err
+				}
+			} else {
+				r.noteID(d)
+			}
 		}
 		for _, res := range out.results {
 			if err := r.recordResult(d, res); err != nil {
@@ -709,7 +719,11 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 			c := r.Counters[seg.scan]
 			c.DocsIn++
 			c.BytesIn += int64(len(d.Text))
-			if err := r.Steps[seg.scan].Global.Collect(d.Order, d.ID, out.keys); err != nil {
+			if r.unit != nil {
+				if err := r.unit.addKeys(d, out.keys); err != nil {
+					return err
+				}
+			} else if err := r.Steps[seg.scan].Global.Collect(d.Order, d.ID, out.keys); err != nil {
 				return fmt.Errorf("stage %s: %w", r.Steps[seg.scan].Name, err)
 			}
 			if err := spill.add(d); err != nil {
@@ -720,7 +734,11 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		r.Write.DocsIn++
 		r.Write.BytesIn += int64(len(d.Text))
 		r.Write.TokensOut += int64(d.Tokens)
-		if r.Sink != nil {
+		if r.unit != nil {
+			if err := r.unit.docs.add(d); err != nil {
+				return err
+			}
+		} else if r.Sink != nil {
 			if err := r.Sink.Add(d); err != nil {
 				return fmt.Errorf("write: %w", err)
 			}
