@@ -26,7 +26,7 @@ empty glob is an error), builds every stage, and prints the plan: inputs,
 stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 	Example: `  winnow check configs/default.yaml
   winnow check spec.yaml --phases      # the phases to run with winnow run --phase`,
-	Args:    cobra.ExactArgs(1),
+	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
 		sp, err := spec.LoadSpec(args[0])
 		if err != nil {
