@@ -15,6 +15,8 @@ import (
 	"winnow/stages/spec"
 )
 
+var checkPhases bool
+
 var checkCmd = &cobra.Command{
 	Use:   "check SPEC",
 	Short: "Validate a spec and its inputs without running it",
@@ -22,8 +24,9 @@ var checkCmd = &cobra.Command{
 value with file:line:column, resolves every input path (a missing file or an
 empty glob is an error), builds every stage, and prints the plan: inputs,
 stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
-	Example: `  winnow check configs/default.yaml`,
-	Args:    cobra.ExactArgs(1),
+	Example: `  winnow check configs/default.yaml
+  winnow check spec.yaml --phases      # the phases to run with winnow run --phase`,
+	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {
 		sp, err := spec.LoadSpec(args[0])
 		if err != nil {
@@ -36,6 +39,12 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 		steps, err := sp.BuildStages(stages.Env{Checking: true})
 		if err != nil {
 			return err
+		}
+		if checkPhases {
+			for _, p := range run.Phases(steps) {
+				fmt.Fprintln(cmd.OutOrStdout(), p.Name)
+			}
+			return nil
 		}
 		if _, err := record.OutputStage(sp.Output, stages.Env{Checking: true}); err != nil {
 			return err
@@ -200,6 +209,7 @@ func printPlanJSON(w io.Writer, sp *spec.Spec, inputs []read.InputFile, steps []
 
 func init() {
 	checkCmd.Flags().BoolVar(&checkJSON, "json", false, "print the plan as JSON")
+	checkCmd.Flags().BoolVar(&checkPhases, "phases", false, "print only the phases of a split run, in order, one per line")
 	rootCmd.AddCommand(checkCmd)
 }
 

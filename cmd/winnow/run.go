@@ -31,6 +31,8 @@ type runFlags struct {
 	sets         []string
 	cpuProfile   string
 	resume       bool
+	phase        string
+	task, tasks  int
 }
 
 func (f *runFlags) register(cmd *cobra.Command) {
@@ -44,6 +46,9 @@ func (f *runFlags) register(cmd *cobra.Command) {
 	cmd.Flags().BoolVar(&f.asJSON, "json", false, "print the stage table as JSON")
 	cmd.Flags().StringArrayVar(&f.sets, "set", nil, "override a stage parameter, STAGE.KEY=VALUE (repeatable)")
 	cmd.Flags().BoolVar(&f.resume, "resume", false, "continue an interrupted run in --out from its last checkpoint")
+	cmd.Flags().StringVar(&f.phase, "phase", "", "run one phase of a split run (see `winnow check SPEC --phases`)")
+	cmd.Flags().IntVar(&f.task, "task", -1, "with --phase: this task's index, from 0 (default: SLURM_ARRAY_TASK_ID - SLURM_ARRAY_TASK_MIN or JOB_COMPLETION_INDEX)")
+	cmd.Flags().IntVar(&f.tasks, "tasks", -1, "with --phase: the number of tasks sharing the phase (default: SLURM_ARRAY_TASK_COUNT, or 1)")
 	cmd.Flags().StringVar(&f.cpuProfile, "cpuprofile", "", "write a Go CPU profile of the run to this file (for developers)")
 	cmd.Flags().MarkHidden("cpuprofile")
 }
@@ -62,11 +67,20 @@ checkpoints after each global stage (dedup) has seen all documents;
 without reading or filtering those documents again, and gives the same
 bytes as a run never stopped.
 
+A run can also be split across processes or machines sharing one
+filesystem: --phase runs one phase (the list: winnow check SPEC --phases),
+--task/--tasks which share of its units of work this process takes. Run
+every task of a phase before the next phase starts; the run directory is
+byte-identical to a single-process run whatever the number of tasks, and a
+task started again redoes only the units it did not finish. See README
+"Running on a cluster".
+
 Exit status: 0 on success; 3 when some input could not be read to its end
 (unless --allow-partial); 4 when a stage failed on some document (an
 internal error: the run went on, the manifest lists each one); 130 when
 interrupted; 1 on any other error.`,
 	Example: `  winnow run configs/default.yaml --out out/ --workers 2
+  winnow run spec.yaml --out /shared/run --phase read --task 3 --tasks 8   # one task of a split run
   winnow run spec.yaml --set quality.fewest_words=80 --force
   winnow run spec.yaml --out out/ --resume        # after Ctrl-C or a crash`,
 	Args: cobra.ExactArgs(1),
@@ -119,6 +133,13 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		if mem, err = fsio.ParseSize(f.memory); err != nil {
 			return nil, fmt.Errorf("--memory: %w", err)
 		}
+	}
+	if f.phase == "" && (f.task >= 0 || f.tasks >= 0) {
+		return nil, errors.New("--task and --tasks need --phase")
+	}
+	if f.phase != "" {
+		prog.done()
+		return nil, runPhase(ctx, sp, f, mem, prog)
 	}
 	if f.cpuProfile != "" {
 		pf, err := os.Create(f.cpuProfile)
@@ -218,4 +239,47 @@ func skipLine(skips map[string]int64) string {
 		parts[i] = fmt.Sprintf("%s %d", r, skips[r])
 	}
 	return fmt.Sprintf("skipped %d record(s) that hold no page text (%s): see ledger/read.jsonl.zst", total, strings.Join(parts, ", "))
+}
+
+// runPhase runs one task of one phase of a split run.
+func runPhase(ctx context.Context, sp *spec.Spec, f runFlags, mem int64, prog *progressLine) error {
+	if f.resume {
+		return errors.New("--resume is implied with --phase: a task started again skips the units it finished")
+	}
+	task, tasks, err := run.TaskFromEnv(f.task, f.tasks, os.Getenv)
+	if err != nil {
+		return err
+	}
+	res, err := run.RunPhase(ctx, sp, run.PhaseOptions{RunOptions: run.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
+		Memory: mem, Against: f.against, Version: version, Log: prog.logf, Sets: f.sets}, Phase: f.phase, Task: task, Tasks: tasks})
+	if err != nil {
+		return err
+	}
+	if res.Manifest == nil {
+		fmt.Fprintf(os.Stderr, "winnow: phase %s, task %d of %d: ran units %v, %d already done\n", f.phase, task, tasks, res.Units, len(res.Skipped))
+		return nil
+	}
+	m := res.Manifest
+	out := termOut(os.Stdout)
+	perr := printStageTable(out, m, f.asJSON)
+	if ferr := out.Flush(); perr == nil {
+		perr = ferr
+	}
+	if perr != nil {
+		return perr
+	}
+	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents in %d shards to %s\n", m.Totals.DocsOut, len(m.Outputs), res.Dir)
+	if m.InternalErrors > 0 {
+		return &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): see %s/manifest.json", m.InternalErrors, res.Dir)}
+	}
+	var fatal int
+	for _, e := range m.Errors {
+		if e.Fatal {
+			fatal++
+		}
+	}
+	if fatal > 0 && !f.allowPartial {
+		return &exitError{code: 3, err: fmt.Errorf("finished, but %d input file(s) could not be read to the end: see errors in %s/manifest.json", fatal, res.Dir)}
+	}
+	return nil
 }

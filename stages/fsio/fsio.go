@@ -151,6 +151,11 @@ type ZstdWriter struct {
 	free chan []byte
 	done chan error
 	err  error
+	// open is set while a frame has bytes not yet ended: frames are only
+	// ever ended with content, so a file's bytes are the concatenation of
+	// one frame per non-empty stretch between EndFrame calls (or a single
+	// empty frame for a file that never got a byte).
+	open bool
 }
 
 // Tuning of the compression hand-off.
@@ -223,18 +228,34 @@ func (z *ZstdWriter) start() {
 // far durable in the temp file. It returns the temp file's path and size;
 // ResumeZstd continues from there. Writing may go on (in a new frame).
 func (z *ZstdWriter) Checkpoint() (string, int64, error) {
-	if err := z.finish(); err != nil {
-		return "", 0, err
-	}
-	if err := z.enc.Close(); err != nil {
+	if err := z.EndFrame(); err != nil {
 		return "", 0, err
 	}
 	if err := z.file.Flush(); err != nil {
 		return "", 0, err
 	}
-	z.enc.Reset(z.file)
-	z.start()
 	return z.file.TempPath(), z.file.Size(), nil
+}
+
+// EndFrame ends the current zstd frame when it holds any byte (an empty
+// stretch writes nothing). The frame's bytes depend only on what was
+// written since the previous EndFrame, so a file whose frames end at the
+// same places is the byte-for-byte concatenation of files written one
+// stretch each: a run split into units of work relies on it.
+func (z *ZstdWriter) EndFrame() error {
+	if !z.open {
+		return z.err
+	}
+	if err := z.finish(); err != nil {
+		return err
+	}
+	if err := z.enc.Close(); err != nil {
+		return err
+	}
+	z.enc.Reset(z.file)
+	z.open = false
+	z.start()
+	return nil
 }
 
 func (z *ZstdWriter) compress(work <-chan []byte) {
@@ -257,6 +278,9 @@ func (z *ZstdWriter) Write(p []byte) (int, error) {
 		return 0, z.err
 	}
 	z.raw += int64(len(p))
+	if len(p) > 0 {
+		z.open = true
+	}
 	if z.buf == nil {
 		select {
 		case z.buf = <-z.free:
@@ -302,6 +326,11 @@ func (z *ZstdWriter) Commit() error {
 		z.enc.Close()
 		z.file.Abort()
 		return err
+	}
+	if !z.open && z.file.Size() > 0 {
+		// The last frame ended already: close the encoder without a
+		// trailing empty frame.
+		z.enc.Reset(io.Discard)
 	}
 	if err := z.enc.Close(); err != nil {
 		z.file.Abort()

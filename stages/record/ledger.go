@@ -3,6 +3,7 @@
 package record
 
 import (
+	"io"
 	"maps"
 	"os"
 	"path/filepath"
@@ -122,6 +123,75 @@ func (s *streamSet) Detach() {
 	for _, n := range s.order {
 		s.files[n].Detach()
 	}
+}
+
+// EndFrames ends the current zstd frame of every file that has bytes in
+// it. A run ends frames wherever a unit of work (an input chunk) ends, so
+// each file is the concatenation of the files its units write alone.
+func (s *streamSet) EndFrames() error {
+	for _, n := range s.order {
+		if err := s.files[n].EndFrame(); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// CommitParts commits the files that got at least one byte and drops the
+// others: a unit of a split run writes its part of each file this way
+// (see AssembleStream). It returns the names committed.
+func (s *streamSet) CommitParts() ([]string, error) {
+	var names []string
+	var first error
+	for _, n := range s.order {
+		w := s.files[n]
+		if w.RawBytes() == 0 {
+			w.Abort()
+			continue
+		}
+		if err := w.Commit(); err != nil && first == nil {
+			first = err
+		}
+		names = append(names, n)
+	}
+	return names, first
+}
+
+// AssembleStream writes final (atomically) as the byte concatenation of
+// parts, skipping parts that do not exist; with no part it writes the
+// empty zstd stream a file that never got a record has.
+func AssembleStream(final string, parts []string) error {
+	var have []string
+	for _, p := range parts {
+		if _, err := os.Stat(p); err == nil {
+			have = append(have, p)
+		}
+	}
+	if len(have) == 0 {
+		w, err := fsio.CreateZstd(final)
+		if err != nil {
+			return err
+		}
+		return w.Commit()
+	}
+	a, err := fsio.CreateAtomic(final)
+	if err != nil {
+		return err
+	}
+	for _, p := range have {
+		f, err := os.Open(p)
+		if err != nil {
+			a.Abort()
+			return err
+		}
+		_, err = io.Copy(a, f)
+		f.Close()
+		if err != nil {
+			a.Abort()
+			return err
+		}
+	}
+	return a.Commit()
 }
 
 // Retarget returns states with each file's current temp name: after a

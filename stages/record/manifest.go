@@ -310,6 +310,12 @@ func PrepareRunDir(dir, configHash string, inputs []read.InputFile, force, resum
 	return tmp, nil
 }
 
+// MarkRunDir records in dir that it holds a run of configHash (a split
+// run's write phase does it; a single process does it when it starts).
+func MarkRunDir(dir, configHash string) error {
+	return fsio.WriteFileAtomic(filepath.Join(dir, runMarker), []byte(configHash+"\n"))
+}
+
 // LockFile marks a run directory in use by a running winnow process.
 const LockFile = ".winnow-lock"
 

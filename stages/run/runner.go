@@ -75,6 +75,16 @@ type Runner struct {
 
 	ledger  *record.Ledger
 	metrics *record.Metrics
+	// chunkOf maps an input's Index to its chunk (unit of work); curChunk
+	// is the chunk of the documents the collector last wrote, -1 at the
+	// start of a segment. Frames of the ledger and metrics files end where
+	// a chunk ends, so a run split into units writes the same bytes.
+	chunkOf  []int
+	curChunk int
+	// unit, set when the runner runs one unit of a split run, receives
+	// what a whole run hands to the next global stage, the id check and
+	// the sink (see phases.go).
+	unit *unitIO
 
 	// Results, filled by Run.
 	Read      record.Counters
@@ -218,6 +228,7 @@ func (r *Runner) Run(ctx context.Context) error {
 		return err
 	}
 	r.wantMetrics()
+	r.chunkOf = chunkIndex(r.Inputs, Chunks(r.Inputs, r.Spec.ChunkBytes))
 	r.Counters = nil
 	for _, s := range r.Steps {
 		kind := ""
@@ -490,6 +501,7 @@ func (r *Runner) runSegment(ctx context.Context, seg segment, produce func(conte
 	pending := map[int64]*batch{}
 	var next int64
 	var collErr error
+	r.curChunk = -1
 	for b := range results {
 		pending[b.seq] = b
 		for {
@@ -514,7 +526,41 @@ func (r *Runner) runSegment(ctx context.Context, seg segment, produce func(conte
 	if prodErr != nil {
 		return prodErr
 	}
-	return ctx.Err()
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	return r.endFrames()
+}
+
+// itemChunk returns the chunk an item belongs to.
+func (r *Runner) itemChunk(seg segment, it *item) int {
+	in := it.input
+	if seg.apply >= 0 && it.rec.Doc != nil {
+		in = it.rec.Doc.Order.Input()
+	}
+	if in >= 0 && in < len(r.chunkOf) {
+		return r.chunkOf[in]
+	}
+	return 0
+}
+
+// enterChunk ends the frames of the ledger and metrics files when the
+// collector moves on to another chunk.
+func (r *Runner) enterChunk(c int) error {
+	if r.curChunk >= 0 && c != r.curChunk {
+		if err := r.endFrames(); err != nil {
+			return err
+		}
+	}
+	r.curChunk = c
+	return nil
+}
+
+func (r *Runner) endFrames() error {
+	if err := r.ledger.EndFrames(); err != nil {
+		return err
+	}
+	return r.metrics.EndFrames()
 }
 
 // work runs the segment's stages over one batch (on a worker goroutine).
@@ -637,6 +683,9 @@ func nanotime() int64 { return int64(time.Since(clockBase)) }
 func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 	for i := range b.items {
 		it := &b.items[i]
+		if err := r.enterChunk(r.itemChunk(seg, it)); err != nil {
+			return err
+		}
 		if iss := it.rec.Issue; iss != nil {
 			if err := r.recordIssue(iss); err != nil {
 				return err
@@ -650,7 +699,13 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		if seg.apply < 0 {
 			r.Read.DocsOut++
 			r.Read.BytesOut += int64(it.readBytes)
-			r.noteID(d)
+			if r.unit != nil {
+				if err := r.unit.ids.add(d); err != nil {
+					return err
+				}
+			} else {
+				r.noteID(d)
+			}
 		}
 		for _, res := range out.results {
 			if err := r.recordResult(d, res); err != nil {
@@ -664,7 +719,11 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 			c := r.Counters[seg.scan]
 			c.DocsIn++
 			c.BytesIn += int64(len(d.Text))
-			if err := r.Steps[seg.scan].Global.Collect(d.Order, d.ID, out.keys); err != nil {
+			if r.unit != nil {
+				if err := r.unit.addKeys(d, out.keys); err != nil {
+					return err
+				}
+			} else if err := r.Steps[seg.scan].Global.Collect(d.Order, d.ID, out.keys); err != nil {
 				return fmt.Errorf("stage %s: %w", r.Steps[seg.scan].Name, err)
 			}
 			if err := spill.add(d); err != nil {
@@ -675,7 +734,11 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		r.Write.DocsIn++
 		r.Write.BytesIn += int64(len(d.Text))
 		r.Write.TokensOut += int64(d.Tokens)
-		if r.Sink != nil {
+		if r.unit != nil {
+			if err := r.unit.docs.add(d); err != nil {
+				return err
+			}
+		} else if r.Sink != nil {
 			if err := r.Sink.Add(d); err != nil {
 				return fmt.Errorf("write: %w", err)
 			}

@@ -22,6 +22,9 @@ import (
 	"winnow/stages/suggest"
 )
 
+// DefaultChunkBytes is the default size of an input chunk (chunk_bytes).
+const DefaultChunkBytes = 64 << 20
+
 // Spec is a loaded pipeline spec (YAML). See README "Pipeline spec".
 type Spec struct {
 	// File is the spec's path; Dir its directory, against which relative
@@ -31,8 +34,13 @@ type Spec struct {
 	Seed      uint64
 	// Memory is the byte budget of global stages before they spill.
 	Memory int64
-	Inputs []InputSpec
-	Stages []StageSpec
+	// ChunkBytes is the size of the units of work a run is cut into:
+	// consecutive input files of about this many bytes on disk (a larger
+	// file is a chunk of its own). Units are fixed by the spec, so a run
+	// split across any number of tasks writes the same bytes.
+	ChunkBytes int64
+	Inputs     []InputSpec
+	Stages     []StageSpec
 	// Output is the "output" mapping; OutputDir its "dir" key resolved.
 	Output    *stages.Params
 	OutputDir string
@@ -103,6 +111,7 @@ func ParseSpec(path string, data []byte) (*Spec, error) {
 	}
 	s.Seed = uint64(p.Int("seed", 0, 0, 1<<62))
 	s.Memory = p.Size("memory", 1<<30, 1<<10, 1<<44)
+	s.ChunkBytes = p.Size("chunk_bytes", DefaultChunkBytes, 1, 1<<44)
 	var errs []error
 	inputs := p.List("inputs")
 	if !p.Has("inputs") || len(inputs) == 0 {
