@@ -68,11 +68,12 @@ const (
 )
 
 // testSpec runs the global stages that must be split by key across tasks
-// (exact and near dedup) after per-document filters, and cuts small shards
-// so that several write tasks have work.
+// (exact and near dedup) after per-document filters, in small input chunks
+// so that every task of every document phase has units to run.
 const testSpec = `# configs/cluster test spec: Larkspur Marine Works corpus from winnow gen
 name: larkspur-cluster
 seed: 7
+chunk_bytes: 16KiB          # about ten units of work in this small corpus
 inputs:
   - source: manuals
     paths: ["corpus/manuals/"]
