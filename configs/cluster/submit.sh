@@ -277,7 +277,7 @@ main() {
           echo "submit.sh: still running after ${wait_secs}s" >&2
           return 3
         fi
-        sleep 2
+        sleep 1
       done
       ;;
   esac
