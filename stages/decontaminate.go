@@ -134,6 +134,9 @@ type Decontaminate struct {
 	df      []uint32
 	ignore  []uint64
 	ignored int
+	// ignoredKnown: Reduce ran (or a merged report part said how many
+	// n-grams were ignored).
+	ignoredKnown bool
 
 	// report, fed by Observe on one goroutine
 	rep     contamReportState
@@ -372,6 +375,7 @@ func (d *Decontaminate) Reduce() error {
 		}
 	}
 	d.df = nil
+	d.ignoredKnown = true
 	return nil
 }
 
