@@ -2,8 +2,8 @@ package stages
 
 import (
 	"bytes"
-	"fmt"
 	"encoding/binary"
+	"fmt"
 	"math"
 	"reflect"
 	"testing"
