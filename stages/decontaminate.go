@@ -29,7 +29,9 @@ package stages
 // runs per document (PerDocument returns it as a Stage).
 //
 // The stage also writes OUT/contamination.json (see ContamReport) from
-// what Observe saw, in input order.
+// what Observe saw, in input order; in a split run the report is saved in
+// parts and merged (contamsplit.go), and the scan keys of the counting
+// pass are stored between phases (keycodec.go).
 
 import (
 	"encoding/json"

@@ -7,7 +7,8 @@ package stages
 // consumes exactly the bytes of one key: truncated input, trailing bytes,
 // out-of-range values and unsorted sets are errors, never panics.
 //
-// Formats (uvarint: encoding/binary's unsigned varint; fixedN: N bits
+// Formats (uvarint: encoding/binary's unsigned varint, the base-128
+// varint of Protocol Buffers' wire format; fixedN: N bits
 // little-endian; set64/set32: a sorted distinct set as uvarint count n,
 // then, when n > 0, the first value as uvarint and each following value
 // as uvarint of (value − previous − 1); count 0 is a nil set):
