@@ -29,7 +29,9 @@ package stages
 // runs per document (PerDocument returns it as a Stage).
 //
 // The stage also writes OUT/contamination.json (see ContamReport) from
-// what Observe saw, in input order.
+// what Observe saw, in input order; in a split run the report is saved in
+// parts and merged (contamsplit.go), and the scan keys of the counting
+// pass are stored between phases (keycodec.go).
 
 import (
 	"encoding/json"
@@ -134,6 +136,9 @@ type Decontaminate struct {
 	df      []uint32
 	ignore  []uint64
 	ignored int
+	// ignoredKnown: Reduce ran (or a merged report part said how many
+	// n-grams were ignored).
+	ignoredKnown bool
 
 	// report, fed by Observe on one goroutine
 	rep     contamReportState
@@ -372,6 +377,7 @@ func (d *Decontaminate) Reduce() error {
 		}
 	}
 	d.df = nil
+	d.ignoredKnown = true
 	return nil
 }
 

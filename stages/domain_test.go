@@ -36,7 +36,7 @@ var (
 
 // writeDomainSets writes the two sets as JSON Lines under dir and returns
 // the paths relative to dir.
-func writeDomainSets(t *testing.T, dir string) (ex, bg string) {
+func writeDomainSets(t testing.TB, dir string) (ex, bg string) {
 	t.Helper()
 	write := func(name string, texts []string) string {
 		var b strings.Builder

@@ -77,6 +77,11 @@ func demoRunDir(t *testing.T) string {
 }
 
 func TestMain(m *testing.M) {
+	if args := os.Getenv(cliArgsEnv); args != "" {
+		// A child process of a test: be the winnow command.
+		runAsCLI(args)
+		return
+	}
 	code := m.Run()
 	if demoDir != "" {
 		os.RemoveAll(demoDir)

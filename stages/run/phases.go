@@ -376,6 +376,43 @@ func (w *idWriter) add(d *stages.Doc) error {
 	return err
 }
 
+// FaultEnv names the environment variable that makes a split run fail on
+// purpose, for tests of crash safety: "PHASE/UNIT/POINT[/fail]" kills the
+// process with SIGKILL (or, with /fail, fails the unit with an error) when
+// unit UNIT ("*": any) of PHASE reaches POINT: "start" (before any work),
+// "written" (all files written, before the marker), "renamed" (the unit
+// is in place, before the task goes on). With FaultOnceEnv set to a path,
+// the fault fires only while that file does not exist (it is created just
+// before), so a task started again succeeds.
+const (
+	FaultEnv     = "WINNOW_FAULT"
+	FaultOnceEnv = "WINNOW_FAULT_ONCE"
+)
+
+// fault fires the fault FaultEnv asks for at this point, if any.
+func fault(phase string, u int, point string) error {
+	spec := os.Getenv(FaultEnv)
+	if spec == "" {
+		return nil
+	}
+	parts := strings.Split(spec, "/")
+	if len(parts) < 3 || parts[0] != phase || parts[2] != point || (parts[1] != "*" && parts[1] != strconv.Itoa(u)) {
+		return nil
+	}
+	if once := os.Getenv(FaultOnceEnv); once != "" {
+		f, err := os.OpenFile(once, os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o644)
+		if err != nil {
+			return nil // fired already
+		}
+		f.Close()
+	}
+	if len(parts) > 3 && parts[3] == "fail" {
+		return fmt.Errorf("fault injected by %s=%s", FaultEnv, spec)
+	}
+	killSelf()
+	return nil
+}
+
 // splitRun is one task's view of a split run.
 type splitRun struct {
 	spec    *spec.Spec
@@ -495,6 +532,11 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 		sr.workers = runtime.NumCPU()
 	}
 	res := &PhaseResult{Dir: abs}
+	if old, _ := filepath.Glob(filepath.Join(abs, ".units-done-*")); len(old) > 0 {
+		for _, o := range old {
+			os.RemoveAll(o) // left by a write phase killed while it cleaned up
+		}
+	}
 	// A finished run: every task has nothing to do.
 	if _, err := os.Stat(filepath.Join(abs, "manifest.json")); err == nil {
 		if _, err := os.Stat(filepath.Join(abs, unitsDir)); errors.Is(err, os.ErrNotExist) {
@@ -766,6 +808,9 @@ func (sr *splitRun) newRunner(inputs []read.InputFile) *Runner {
 // renames it into place.
 func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) error {
 	t0 := time.Now()
+	if err := fault(ph.Name, u, "start"); err != nil {
+		return err
+	}
 	seg := sr.segs[ph.Seg]
 	tmp, err := os.MkdirTemp(filepath.Join(sr.dir, unitsDir), fmt.Sprintf("unit-%s-%05d-", ph.Name, u))
 	if err != nil {
@@ -875,7 +920,13 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) e
 	}
 	state.InputSums, state.Errors, state.ErrCount, state.FatalInputs = r.InputSums, r.Errors, r.ErrCount, r.FatalInputs
 	state.Internal, state.LedgerCounts, state.Docs = r.InternalErrors, r.ledger.Counts(), uio.docs.n
-	return sr.commitUnit(tmp, ph.Name, u, state, files, t0)
+	if err := fault(ph.Name, u, "written"); err != nil {
+		return err
+	}
+	if err := sr.commitUnit(tmp, ph.Name, u, state, files, t0); err != nil {
+		return err
+	}
+	return fault(ph.Name, u, "renamed")
 }
 
 // stepInSeg reports whether the named step runs in seg (per document or
@@ -953,6 +1004,9 @@ func (sr *splitRun) writeFailed(phase string, u int, uerr error, took time.Durat
 // write is the write phase: it puts the run directory together.
 func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 	t0 := time.Now()
+	if err := fault(PhaseWrite, 0, "start"); err != nil {
+		return nil, err
+	}
 	docPhases := sr.phases[:len(sr.phases)-1]
 	markers := make([][]*unitMarker, len(docPhases))
 	for pi, ph := range docPhases {
@@ -1120,6 +1174,9 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 			}
 		}
 	}
+	if err := fault(PhaseWrite, 0, "written"); err != nil {
+		return nil, err
+	}
 	wLedger, err := r.ledger.CommitParts()
 	if err != nil {
 		return nil, err
@@ -1190,7 +1247,13 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 	if err := record.MarkRunDir(sr.dir, sr.spec.ConfigHash); err != nil {
 		return nil, err
 	}
-	os.RemoveAll(filepath.Join(sr.dir, unitsDir))
+	// The units go in one rename, so a task killed here leaves either a
+	// finished run or one whose write phase can run again.
+	gone := filepath.Join(sr.dir, fmt.Sprintf(".units-done-%d", os.Getpid()))
+	if err := os.Rename(filepath.Join(sr.dir, unitsDir), gone); err != nil {
+		return nil, err
+	}
+	os.RemoveAll(gone)
 	os.RemoveAll(filepath.Join(sr.dir, ".work"))
 	return m, nil
 }

@@ -1,0 +1,370 @@
+package main
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"math/rand"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"sort"
+	"strings"
+	"sync"
+	"syscall"
+	"testing"
+	"time"
+
+	"winnow/stages/run"
+	"winnow/stages/termtext"
+)
+
+// Tests of a run split across processes: every task is a separate OS
+// process (this test binary re-executed as the winnow command), tasks of a
+// phase run at once over one run directory, and the result is compared
+// byte for byte with a single-process run.
+
+const cliArgsEnv = "WINNOW_TEST_CLI_ARGS"
+
+// runAsCLI runs the winnow command with JSON-encoded args and exits.
+func runAsCLI(args string) {
+	var a []string
+	if err := json.Unmarshal([]byte(args), &a); err != nil {
+		fmt.Fprintln(os.Stderr, "bad", cliArgsEnv, err)
+		os.Exit(2)
+	}
+	rootCmd.SetArgs(a)
+	if err := rootCmd.Execute(); err != nil {
+		fmt.Fprintln(os.Stderr, "winnow:", termtext.EscapeLines(err.Error()))
+		os.Exit(exitCode(err))
+	}
+	os.Exit(0)
+}
+
+// cliCommand returns the command that runs winnow with args in a child
+// process.
+func cliCommand(env []string, args ...string) *exec.Cmd {
+	b, _ := json.Marshal(args)
+	cmd := exec.Command(os.Args[0], "-test.run=^$")
+	cmd.Env = append(append(os.Environ(), cliArgsEnv+"="+string(b)), env...)
+	return cmd
+}
+
+func cliRun(t *testing.T, env []string, args ...string) string {
+	t.Helper()
+	cmd := cliCommand(env, args...)
+	var errb bytes.Buffer
+	cmd.Stderr = &errb
+	out, err := cmd.Output()
+	if err != nil {
+		t.Fatalf("winnow %s: %v\n%s", strings.Join(args, " "), err, errb.String())
+	}
+	return string(out)
+}
+
+// runDigest hashes every file of a run directory; the manifest is compared
+// without its timings.
+func runDigest(t *testing.T, dir string) map[string]string {
+	t.Helper()
+	out := map[string]string{}
+	err := filepath.Walk(dir, func(p string, info os.FileInfo, err error) error {
+		if err != nil || info.IsDir() {
+			return err
+		}
+		rel, _ := filepath.Rel(dir, p)
+		b, err := os.ReadFile(p)
+		if err != nil {
+			return err
+		}
+		if rel == "manifest.json" {
+			var m map[string]any
+			if err := json.Unmarshal(b, &m); err != nil {
+				return err
+			}
+			delete(m, "seconds")
+			for _, s := range m["stages"].([]any) {
+				delete(s.(map[string]any), "seconds")
+			}
+			b, _ = json.Marshal(m)
+		}
+		h := sha256.Sum256(b)
+		out[rel] = hex.EncodeToString(h[:8])
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return out
+}
+
+func sameRun(t *testing.T, what string, want, got map[string]string) {
+	t.Helper()
+	var keys []string
+	for k := range want {
+		keys = append(keys, k)
+	}
+	for k := range got {
+		if _, ok := want[k]; !ok {
+			keys = append(keys, k)
+		}
+	}
+	sort.Strings(keys)
+	bad := 0
+	for _, k := range keys {
+		if want[k] != got[k] {
+			t.Errorf("%s: %s differs: single process %q, split %q", what, k, want[k], got[k])
+			bad++
+		}
+	}
+	if bad == 0 && len(want) < 5 {
+		t.Errorf("%s: only %d files compared", what, len(want))
+	}
+}
+
+// splitCorpus generates a small corpus (once per test binary).
+var (
+	splitOnce sync.Once
+	splitDir  string
+)
+
+func splitCorpus(t *testing.T) string {
+	t.Helper()
+	splitOnce.Do(func() {
+		d, err := os.MkdirTemp("", "winnow-split-test-")
+		if err != nil {
+			t.Fatal(err)
+		}
+		splitDir = d
+		cliRun(t, nil, "gen", "--out", filepath.Join(d, "corpus"), "--bytes", "3MB", "--files", "4", "--seed", "11")
+	})
+	if splitDir == "" {
+		t.Fatal("no corpus")
+	}
+	return splitDir
+}
+
+const splitInputs = `seed: 7
+memory: 64MiB
+chunk_bytes: 40KB
+inputs:
+  - source: manuals
+    paths: ["corpus/manuals/"]
+  - source: forum
+    paths: ["corpus/forum/"]
+  - source: dealer
+    paths: ["corpus/dealer/"]
+  - source: web
+    paths: ["corpus/web/"]
+`
+
+// splitSpecs are the pipelines of the tests: both dedup stages, paragraph
+// dedup, decontamination with a frequency count, a mix with a budget and
+// repetition, and no global stage at all.
+var splitSpecs = map[string]string{
+	"dedup": `stages:
+  - kind: normalize
+  - kind: quality
+  - kind: exact_dedup
+  - kind: near_dedup
+  - kind: redact
+output:
+  tokenizer: cl100k_base
+  shard_tokens: 100000
+  mix: {manuals: 0.6, forum: 0.2, dealer: 0.1, web: 0.1}
+`,
+	"paragraphs": `stages:
+  - kind: exact_dedup
+    scope: paragraph
+  - kind: near_dedup
+    keep: longest
+output:
+  shard_tokens: 100000
+  tokenizer: cl100k_base
+`,
+	"contamination": `stages:
+  - kind: normalize
+  - kind: decontaminate
+    evals:
+      - name: hull-qa
+        paths: ["corpus/evals/hull-qa.jsonl"]
+        fields: [question, answer]
+    max_doc_frequency: 3
+    action: cut
+  - kind: exact_dedup
+output:
+  tokenizer: cl100k_base
+  shard_tokens: 100000
+`,
+	"budget": `stages:
+  - kind: exact_dedup
+output:
+  tokenizer: cl100k_base
+  shard_tokens: 50000
+  budget_tokens: 600000
+  max_epochs: 3
+  mix: {manuals: 0.4, forum: 0.4, dealer: 0.1, web: 0.1}
+`,
+	"perdoc": `stages:
+  - kind: normalize
+  - kind: quality
+output:
+  tokenizer: cl100k_base
+  shard_tokens: 100000
+  budget_tokens: 400000
+`,
+}
+
+func writeSplitSpec(t *testing.T, name string) string {
+	t.Helper()
+	dir := splitCorpus(t)
+	p := filepath.Join(dir, name+".yaml")
+	if err := os.WriteFile(p, []byte("name: "+name+"\n"+splitInputs+splitSpecs[name]), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// runSplit runs every phase of spec with tasks processes at once.
+func runSplit(t *testing.T, spec, out string, tasks int, env []string) {
+	t.Helper()
+	phases := strings.Fields(cliRun(t, nil, "check", spec, "--phases"))
+	for _, ph := range phases {
+		var wg sync.WaitGroup
+		errs := make([]string, tasks)
+		for i := 0; i < tasks; i++ {
+			wg.Add(1)
+			go func(i int) {
+				defer wg.Done()
+				cmd := cliCommand(env, "run", spec, "--out", out, "--phase", ph, "--task", fmt.Sprint(i), "--tasks", fmt.Sprint(tasks), "-q", "--workers", "1")
+				if b, err := cmd.CombinedOutput(); err != nil {
+					errs[i] = fmt.Sprintf("task %d of phase %s: %v\n%s", i, ph, err, b)
+				}
+			}(i)
+		}
+		wg.Wait()
+		for _, e := range errs {
+			if e != "" {
+				t.Fatal(e)
+			}
+		}
+	}
+}
+
+func TestSplitRunsMatchSingleProcess(t *testing.T) {
+	for _, name := range []string{"dedup", "paragraphs", "contamination", "budget", "perdoc"} {
+		t.Run(name, func(t *testing.T) {
+			spec := writeSplitSpec(t, name)
+			base := t.TempDir()
+			plain := filepath.Join(base, "plain")
+			cliRun(t, nil, "run", spec, "--out", plain, "-q")
+			want := runDigest(t, plain)
+			counts := []int{3}
+			if name == "dedup" {
+				counts = []int{1, 2, 3, 8}
+			}
+			for _, n := range counts {
+				out := filepath.Join(base, fmt.Sprintf("split%d", n))
+				runSplit(t, spec, out, n, nil)
+				sameRun(t, fmt.Sprintf("%s, %d tasks", name, n), want, runDigest(t, out))
+			}
+		})
+	}
+}
+
+// TestSplitRunSurvivesKills kills tasks with SIGKILL at fault points and
+// at random moments, starts them again, and expects the bytes of a run
+// never killed.
+func TestSplitRunSurvivesKills(t *testing.T) {
+	spec := writeSplitSpec(t, "dedup")
+	base := t.TempDir()
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	want := runDigest(t, plain)
+	phases := strings.Fields(cliRun(t, nil, "check", spec, "--phases"))
+
+	// At named points: the killed task is started again with the fault
+	// spent, the other task runs normally.
+	for i, f := range []string{"read/3/written", "exact_dedup/*/start", "near_dedup/2/renamed", "write/0/written"} {
+		out := filepath.Join(base, fmt.Sprintf("fault%d", i))
+		once := filepath.Join(base, fmt.Sprintf("fault%d.once", i))
+		env := []string{run.FaultEnv + "=" + f, run.FaultOnceEnv + "=" + once}
+		for _, ph := range phases {
+			for task := 0; task < 2; task++ {
+				args := []string{"run", spec, "--out", out, "--phase", ph, "--task", fmt.Sprint(task), "--tasks", "2", "-q", "--workers", "1"}
+				cmd := cliCommand(env, args...)
+				b, err := cmd.CombinedOutput()
+				if err != nil {
+					st, _ := cmd.ProcessState.Sys().(syscall.WaitStatus)
+					if !st.Signaled() || st.Signal() != syscall.SIGKILL {
+						t.Fatalf("fault %s: %v\n%s", f, err, b)
+					}
+					cliRun(t, nil, args...) // started again
+				}
+			}
+		}
+		if _, err := os.Stat(once); err != nil {
+			t.Errorf("fault %s never fired", f)
+		}
+		sameRun(t, "fault "+f, want, runDigest(t, out))
+	}
+
+	// At random moments, several seeds.
+	for seed := int64(1); seed <= 2; seed++ {
+		rng := rand.New(rand.NewSource(seed))
+		out := filepath.Join(base, fmt.Sprintf("random%d", seed))
+		kills := 0
+		for _, ph := range phases {
+			for task := 0; task < 2; task++ {
+				args := []string{"run", spec, "--out", out, "--phase", ph, "--task", fmt.Sprint(task), "--tasks", "2", "-q", "--workers", "1"}
+				cmd := cliCommand(nil, args...)
+				if err := cmd.Start(); err != nil {
+					t.Fatal(err)
+				}
+				timer := time.AfterFunc(time.Duration(rng.Intn(1500))*time.Millisecond, func() { cmd.Process.Signal(syscall.SIGKILL) })
+				err := cmd.Wait()
+				if !timer.Stop() && err != nil {
+					kills++
+				} else if err != nil {
+					t.Fatalf("seed %d, phase %s: %v", seed, ph, err)
+				}
+				cliRun(t, nil, args...) // again: finishes what was left, or does nothing
+			}
+		}
+		t.Logf("seed %d: %d tasks killed", seed, kills)
+		sameRun(t, fmt.Sprintf("random kills, seed %d", seed), want, runDigest(t, out))
+	}
+}
+
+// TestSplitTaskFromEnvironment takes the task from Slurm's and
+// Kubernetes' variables.
+func TestSplitTaskFromEnvironment(t *testing.T) {
+	env := func(m map[string]string) func(string) string { return func(k string) string { return m[k] } }
+	cases := []struct {
+		vars        map[string]string
+		task, tasks int
+		want        [2]int
+		err         string
+	}{
+		{map[string]string{"SLURM_ARRAY_TASK_ID": "7", "SLURM_ARRAY_TASK_MIN": "5", "SLURM_ARRAY_TASK_COUNT": "4"}, -1, -1, [2]int{2, 4}, ""},
+		{map[string]string{"JOB_COMPLETION_INDEX": "2"}, -1, 3, [2]int{2, 3}, ""},
+		{map[string]string{"JOB_COMPLETION_INDEX": "2"}, -1, -1, [2]int{}, "pass --tasks"},
+		{map[string]string{}, -1, -1, [2]int{0, 1}, ""},
+		{map[string]string{}, 3, 3, [2]int{}, "out of range"},
+		{map[string]string{"SLURM_ARRAY_TASK_ID": "x"}, -1, -1, [2]int{}, "not a task number"},
+		{map[string]string{"SLURM_ARRAY_TASK_ID": "9"}, 1, 2, [2]int{1, 2}, ""}, // flags win
+	}
+	for _, c := range cases {
+		task, tasks, err := run.TaskFromEnv(c.task, c.tasks, env(c.vars))
+		if c.err != "" {
+			if err == nil || !strings.Contains(err.Error(), c.err) {
+				t.Errorf("%v: error %v, want %q", c.vars, err, c.err)
+			}
+			continue
+		}
+		if err != nil || task != c.want[0] || tasks != c.want[1] {
+			t.Errorf("%v %d/%d: got %d/%d %v, want %v", c.vars, c.task, c.tasks, task, tasks, err, c.want)
+		}
+	}
+}
