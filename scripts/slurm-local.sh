@@ -14,8 +14,9 @@
 # After `start`, point the Slurm commands at the private cluster with
 #   export SLURM_CONF=DIR/slurm.conf
 # (DIR/env holds that line). `start` is idempotent: on a DIR whose daemons are
-# running it only waits for the node. The daemons run as the calling user;
-# SlurmUser is that user, so as root jobs run as root.
+# running it only waits for the node. The daemons run as the calling user
+# (SlurmUser and SlurmdUser are that user); the tests run it as root, the
+# usual case in a CI container, and jobs then run as root.
 set -euo pipefail
 
 die() { echo "slurm-local: $*" >&2; exit 1; }
@@ -68,7 +69,7 @@ SlurmctldHost=localhost
 SlurmctldPort=$ctld_port
 SlurmdPort=$slurmd_port
 SlurmUser=$user
-SlurmdUser=root
+SlurmdUser=$user
 AuthType=auth/munge
 CredType=cred/munge
 AuthInfo=socket=$dir/munge/munge.socket

@@ -443,43 +443,36 @@ func TestSlurmArrays(t *testing.T) {
 	sameRun(t, want, filepath.Join(dir, "run"))
 }
 
-// One task of one phase fails on its first attempt (a wrapper around
-// winnow exits 9 the first time it is started as that task). The later
-// phases then wait forever behind an afterok that cannot be met; submit.sh
-// --resubmit reruns only that task and re-chains the later phases, and the
-// finished run equals the plain run.
+// One task of one phase is killed on its first attempt (SIGKILL after it
+// wrote a unit's files, before the unit's marker: winnow's fault point
+// WINNOW_FAULT, fired once through WINNOW_FAULT_ONCE; Slurm passes the
+// submitting environment to the jobs). The later phases then wait forever
+// behind an afterok that cannot be met; submit.sh --resubmit reruns only
+// that task and re-chains the later phases, and the finished run equals
+// the plain run.
 func TestSlurmResubmitFailedTask(t *testing.T) {
 	want := plain(t)
-	env := slurm(t)
+	slurmEnv := slurm(t)
 	dir := t.TempDir()
 	workspace(t, dir)
 	ps := phases(t, dir)
 	failPhase := ps[0]
-	if len(ps) > 1 {
+	if len(ps) > 2 {
 		failPhase = ps[1] // a middle phase, so that earlier and later phases are both involved
 	}
-	wrapper := filepath.Join(dir, "winnow-fails-once")
-	script := fmt.Sprintf(`#!/bin/sh
-# Fails the first start of task 1 of phase %[1]s, then behaves as winnow.
-case " $* " in
-  *" --phase %[1]s "*" --task 1 "*)
-    if mkdir %[2]q 2>/dev/null; then echo "injected failure" >&2; exit 9; fi ;;
-esac
-exec %[3]q "$@"
-`, failPhase, filepath.Join(dir, "failed-once"), winnow(t))
-	if err := os.WriteFile(wrapper, []byte(script), 0o755); err != nil {
-		t.Fatal(err)
-	}
+	once := filepath.Join(dir, "fault-fired")
+	// With 2 tasks, task 1 runs the odd units: unit 1 is its first.
+	env := append([]string{"WINNOW_FAULT=" + failPhase + "/1/written", "WINNOW_FAULT_ONCE=" + once}, slurmEnv...)
 	submit := filepath.Join(root(t), "configs", "cluster", "submit.sh")
-	run(t, dir, env, "bash", submit, "--tasks", "2", "--winnow", wrapper, "spec.yaml", "run")
+	run(t, dir, env, "bash", submit, "--tasks", "2", "--winnow", winnow(t), "spec.yaml", "run")
 	code, status := submitWait(t, dir, env, "run.jobs")
 	if code != 1 || !strings.Contains(status, failPhase+": 1/2 done, failed tasks 1") {
 		t.Fatalf("want phase %s failed at task 1 (exit 1), got exit %d:\n%s\n%s", failPhase, code, status, jobLogs(t, filepath.Join(dir, "run.logs")))
 	}
-	if _, err := os.Stat(filepath.Join(dir, "failed-once")); err != nil {
-		t.Fatalf("the wrapper never failed a task: %v", err)
+	if _, err := os.Stat(once); err != nil {
+		t.Fatalf("the fault never fired: %v", err)
 	}
-	res := run(t, dir, env, "bash", submit, "--resubmit", "run.jobs")
+	res := run(t, dir, slurmEnv, "bash", submit, "--resubmit", "run.jobs")
 	// Only task 1 of the failed phase is rerun; every later phase is
 	// submitted again in full behind it; earlier phases are left alone.
 	// submit.sh prints "PHASE JOBID (tasks LIST)" per new array.
@@ -504,7 +497,7 @@ exec %[3]q "$@"
 	if fmt.Sprint(got) != fmt.Sprint(wantRerun) {
 		t.Errorf("--resubmit submitted %v, want %v:\n%s", got, wantRerun, res)
 	}
-	code, status = submitWait(t, dir, env, "run.jobs")
+	code, status = submitWait(t, dir, slurmEnv, "run.jobs")
 	if code != 0 {
 		t.Fatalf("after --resubmit, jobs did not all complete (exit %d):\n%s\n%s", code, status, jobLogs(t, filepath.Join(dir, "run.logs")))
 	}
