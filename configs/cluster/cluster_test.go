@@ -676,3 +676,69 @@ func TestSlurmArrayEnvironment(t *testing.T) {
 		}
 	}
 }
+
+// winnow.sbatch submitted by hand, as configs/cluster/README.md shows, one
+// array per phase numbered from 1 (--array=1-2) and without WINNOW_TASKS:
+// winnow takes each task's number and the count from Slurm's
+// SLURM_ARRAY_TASK_ID − SLURM_ARRAY_TASK_MIN and SLURM_ARRAY_TASK_COUNT.
+// The phases are chained with afterok by the test; the run equals the plain run.
+func TestSlurmBatchScriptByHand(t *testing.T) {
+	want := plain(t)
+	slurmEnv := slurm(t)
+	dir := t.TempDir()
+	workspace(t, dir)
+	batch := filepath.Join(root(t), "configs", "cluster", "winnow.sbatch")
+	var ids []string
+	prev := ""
+	for _, p := range phases(t, dir) {
+		env := append([]string{"WINNOW_SPEC=" + filepath.Join(dir, "spec.yaml"), "WINNOW_OUT=" + filepath.Join(dir, "run"),
+			"WINNOW_PHASE=" + p, "WINNOW_BIN=" + winnow(t)}, slurmEnv...)
+		args := []string{"--parsable", "--array=1-2", "--output=" + filepath.Join(dir, "logs", "%x-%A_%a.out")}
+		if prev != "" {
+			args = append(args, "--dependency=afterok:"+prev)
+		}
+		if err := os.MkdirAll(filepath.Join(dir, "logs"), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		out := run(t, dir, env, "sbatch", append(args, batch)...)
+		prev = strings.TrimSpace(strings.Split(out, ";")[0])
+		ids = append(ids, prev)
+	}
+	// Wait until Slurm has no task of these arrays left to run, then
+	// require every task to have completed.
+	deadline := time.Now().Add(150 * time.Second)
+	for {
+		q := run(t, dir, slurmEnv, "squeue", "-h", "-r", "-o", "%i %T %r", "-j", strings.Join(ids, ","))
+		if strings.TrimSpace(q) == "" || strings.Contains(q, "DependencyNeverSatisfied") {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("arrays still queued after 150s:\n%s\n%s", q, jobLogs(t, filepath.Join(dir, "logs")))
+		}
+		time.Sleep(time.Second)
+	}
+	completed := 0
+	for _, id := range ids {
+		for _, l := range strings.Split(strings.TrimSpace(run(t, dir, slurmEnv, "scontrol", "-o", "show", "job", id)), "\n") {
+			if !strings.Contains(l, " JobState=COMPLETED ") {
+				t.Fatalf("array %s has a task that did not complete:\n%s\n%s", id, l, jobLogs(t, filepath.Join(dir, "logs")))
+			}
+			completed++
+		}
+	}
+	if completed != 2*len(ids) {
+		t.Fatalf("%d tasks completed, want %d", completed, 2*len(ids))
+	}
+	// winnow says which task of how many each one was ("phase P, task I
+	// of N: ran units ..."): array indices 1 and 2 are tasks 0 and 1.
+	logs := jobLogs(t, filepath.Join(dir, "logs"))
+	for _, task := range []string{"task 0 of 2:", "task 1 of 2:"} {
+		if !strings.Contains(logs, task) {
+			t.Errorf("no task says %q in its output:\n%s", task, logs)
+		}
+	}
+	if strings.Contains(logs, "task 2 of 2") {
+		t.Errorf("a task took its array index as its number:\n%s", logs)
+	}
+	sameRun(t, want, filepath.Join(dir, "run"))
+}
