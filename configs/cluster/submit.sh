@@ -24,10 +24,10 @@
 # cancels the later phases' waiting jobs and submits them again behind it.
 # Rerunning a task is safe: winnow skips the units a task already finished.
 #
-# Task states come from sacct when the cluster keeps accounting, otherwise
-# from scontrol (which forgets a job MinJobAge seconds after it ended). A task
-# Slurm no longer knows about counts as failed for --resubmit, which only
-# costs a rerun that finds its units done.
+# Task states come from scontrol while the controller still holds the job
+# (until MinJobAge seconds after its end), else from sacct when the cluster
+# keeps accounting. A task Slurm no longer knows about counts as failed for
+# --resubmit, which only costs a rerun that finds its units done.
 set -euo pipefail
 
 here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
@@ -108,10 +108,12 @@ expand_indices() {
   done
 }
 
-# task_states JOBID: "INDEX STATE" per array task Slurm knows of.
+# task_states JOBID: "INDEX STATE" per array task Slurm knows of. The
+# accounting database (sacct) goes first, the controller (scontrol) after:
+# the controller knows a job at once and until MinJobAge after its end, the
+# database later and for longer; phase_states keeps the last line per index.
 task_states() {
-  local id=$1 line jid st idx
-  local acct
+  local id=$1 line jid st idx acct
   if acct=$(sacct -n -X -P -j "$id" -o JobID,State 2>/dev/null); then
     while IFS='|' read -r jid st; do
       [ -n "$jid" ] || continue
@@ -120,7 +122,6 @@ task_states() {
       st=${st%% *}
       expand_indices "$idx" | while read -r i; do echo "$i $st"; done
     done <<<"$acct"
-    return 0
   fi
   scontrol -o show job "$id" 2>/dev/null | while read -r line; do
     idx=$(printf '%s\n' "$line" | tr ' ' '\n' | sed -n 's/^ArrayTaskId=//p')
