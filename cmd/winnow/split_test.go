@@ -337,6 +337,32 @@ func TestSplitRunSurvivesKills(t *testing.T) {
 	}
 }
 
+// TestPhaseAllResumesFromUnits runs every phase in one process, kills it
+// inside a late phase, and resumes: the units done before are not redone
+// and the bytes are those of a plain run.
+func TestPhaseAllResumesFromUnits(t *testing.T) {
+	spec := writeSplitSpec(t, "dedup")
+	base := t.TempDir()
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	out := filepath.Join(base, "all")
+	once := filepath.Join(base, "once")
+	cmd := cliCommand([]string{run.FaultEnv + "=near_dedup/2/written", run.FaultOnceEnv + "=" + once}, "run", spec, "--out", out, "--phase", "all", "-q")
+	if b, err := cmd.CombinedOutput(); err == nil {
+		t.Fatalf("the fault did not stop the run:\n%s", b)
+	}
+	cmd = cliCommand(nil, "run", spec, "--out", out, "--resume", "-q")
+	b, err := cmd.CombinedOutput()
+	if err != nil {
+		t.Fatalf("resume: %v\n%s", err, b)
+	}
+	// The read and exact_dedup units were all finished: none ran again.
+	if !strings.Contains(string(b), "phase read, task 0 of 1: nothing to do") || !strings.Contains(string(b), "phase exact_dedup, task 0 of 1: nothing to do") {
+		t.Errorf("resume redid finished phases:\n%s", b)
+	}
+	sameRun(t, "--phase all, killed and resumed", runDigest(t, plain), runDigest(t, out))
+}
+
 // TestSplitTaskFromEnvironment takes the task from Slurm's and
 // Kubernetes' variables.
 func TestSplitTaskFromEnvironment(t *testing.T) {
