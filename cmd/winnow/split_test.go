@@ -363,6 +363,41 @@ func TestPhaseAllResumesFromUnits(t *testing.T) {
 	sameRun(t, "--phase all, killed and resumed", runDigest(t, plain), runDigest(t, out))
 }
 
+// TestAuditListsUnfinishedUnits: a failed unit is listed with its error,
+// host and inputs, the units not run are listed, and the commands printed
+// finish the run.
+func TestAuditListsUnfinishedUnits(t *testing.T) {
+	spec := writeSplitSpec(t, "perdoc")
+	out := filepath.Join(t.TempDir(), "run")
+	cliRun(t, nil, "run", spec, "--out", out, "--phase", "read", "--task", "0", "--tasks", "3", "-q")
+	cmd := cliCommand([]string{run.FaultEnv + "=read/1/start/fail"}, "run", spec, "--out", out, "--phase", "read", "--task", "1", "--tasks", "3", "-q")
+	if b, err := cmd.CombinedOutput(); err == nil || !strings.Contains(string(b), "fault injected") {
+		t.Fatalf("the unit did not fail: %v\n%s", err, b)
+	}
+	cmd = cliCommand(nil, "audit", out)
+	b, err := cmd.Output()
+	if err == nil {
+		t.Error("audit of an unfinished run exited 0")
+	}
+	text := string(b)
+	host, _ := os.Hostname()
+	for _, want := range []string{"unit 1 failed on " + host, "fault injected", "inputs: corpus/", "units not run: 2,", "--phase read", "phase write            0 of 1 units done"} {
+		if !strings.Contains(text, want) {
+			t.Errorf("audit lacks %q:\n%s", want, text)
+		}
+	}
+	// The printed commands finish the run.
+	for _, line := range strings.Split(text, "\n") {
+		if _, cmdline, ok := strings.Cut(line, "to finish it: winnow "); ok {
+			args := strings.Fields(strings.Split(cmdline, "   (")[0])
+			cliRun(t, nil, append(args, "-q")...)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(out, "manifest.json")); err != nil {
+		t.Fatalf("the printed commands did not finish the run: %v", err)
+	}
+}
+
 // TestSplitTaskFromEnvironment takes the task from Slurm's and
 // Kubernetes' variables.
 func TestSplitTaskFromEnvironment(t *testing.T) {

@@ -119,7 +119,11 @@ type PhaseResult struct {
 
 // frozenInputs is the input list of a split run, fixed by its first task.
 type frozenInputs struct {
-	ConfigHash string        `json:"config_hash"`
+	ConfigHash string `json:"config_hash"`
+	// Spec, Phases and Units say how to finish the run (audit lists them).
+	Spec       string        `json:"spec"`
+	Phases     []string      `json:"phases"`
+	Units      int           `json:"units"`
 	ChunkBytes int64         `json:"chunk_bytes"`
 	Inputs     []frozenInput `json:"inputs"`
 }
@@ -563,9 +567,24 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 			}
 		}
 	}
+	// The phases, from stages built as `check` builds them (cheap: no
+	// model is loaded), so a task with nothing to do ends at once.
+	cenv := stages.Env{SpecDir: s.Dir, RunDir: abs, MemoryBudget: s.Memory, Seed: s.Seed, Checking: true,
+		Inputs: func() ([]read.InputFile, error) { return inputs, nil }}
+	csteps, err := s.BuildStages(cenv)
+	if err != nil {
+		return nil, err
+	}
+	closeSteps(csteps)
+	phases := Phases(csteps)
 	frozen, err := freezeList(s, inputs)
 	if err != nil {
 		return nil, err
+	}
+	frozen.Units = len(sr.chunks)
+	frozen.Spec, _ = filepath.Abs(s.File)
+	for _, p := range phases {
+		frozen.Phases = append(frozen.Phases, p.Name)
 	}
 	if err := os.MkdirAll(filepath.Join(abs, unitsDir), 0o755); err != nil {
 		return nil, err
@@ -593,16 +612,6 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 	if opt.Memory > 0 {
 		sr.env.MemoryBudget = opt.Memory
 	}
-	// The phases, from stages built as `check` builds them (cheap: no
-	// model is loaded), so a task with nothing to do ends at once.
-	cenv := sr.env
-	cenv.Checking = true
-	csteps, err := s.BuildStages(cenv)
-	if err != nil {
-		return nil, err
-	}
-	closeSteps(csteps)
-	phases := Phases(csteps)
 	var names []string
 	for _, p := range phases {
 		names = append(names, p.Name)
@@ -1324,4 +1333,86 @@ func addCounters(a, b *record.Counters) {
 	a.Edited += b.Edited
 	a.Skipped += b.Skipped
 	a.AddNanos(int64(b.Seconds * 1e9))
+}
+
+// SplitStatus is where an unfinished split run stands, phase by phase.
+type SplitStatus struct {
+	Dir    string        `json:"dir"`
+	Spec   string        `json:"spec"`
+	Phases []PhaseStatus `json:"phases"`
+}
+
+// PhaseStatus counts a phase's units; Failed and Missing list the units
+// not done (a failed unit wrote its error, host and inputs).
+type PhaseStatus struct {
+	Name    string        `json:"name"`
+	Units   int           `json:"units"`
+	Done    int           `json:"done"`
+	Failed  []UnitFailure `json:"failed,omitempty"`
+	Missing []int         `json:"missing,omitempty"`
+	// Rerun is the command that finishes the phase (any --tasks works:
+	// finished units are skipped).
+	Rerun string `json:"rerun,omitempty"`
+}
+
+// UnitFailure is a failed unit's marker.
+type UnitFailure struct {
+	Unit   int      `json:"unit"`
+	Error  string   `json:"error"`
+	Host   string   `json:"host"`
+	PID    int      `json:"pid"`
+	Inputs []string `json:"inputs"`
+}
+
+// ReadSplitStatus reads the units of the split run in dir.
+func ReadSplitStatus(dir string) (*SplitStatus, error) {
+	if abs, err := filepath.Abs(dir); err == nil {
+		dir = abs
+	}
+	b, err := os.ReadFile(filepath.Join(dir, unitsDir, "inputs.json"))
+	if err != nil {
+		return nil, err
+	}
+	var f frozenInputs
+	if err := json.Unmarshal(b, &f); err != nil {
+		return nil, fmt.Errorf("%s: %w", filepath.Join(dir, unitsDir, "inputs.json"), err)
+	}
+	st := &SplitStatus{Dir: dir, Spec: f.Spec}
+	for _, name := range f.Phases {
+		ps := PhaseStatus{Name: name, Units: f.Units}
+		if name == PhaseWrite {
+			ps.Units = 1
+		}
+		for u := 0; u < ps.Units; u++ {
+			if name == PhaseWrite {
+				if _, err := os.Stat(filepath.Join(dir, "manifest.json")); err == nil {
+					ps.Done++
+				} else {
+					ps.Missing = append(ps.Missing, 0)
+				}
+				continue
+			}
+			m, err := readMarker(dir, name, u)
+			if err != nil {
+				return nil, err
+			}
+			if m != nil {
+				ps.Done++
+				continue
+			}
+			if b, err := os.ReadFile(failedMarker(dir, name, u)); err == nil {
+				var fm unitMarker
+				if json.Unmarshal(b, &fm) == nil {
+					ps.Failed = append(ps.Failed, UnitFailure{Unit: u, Error: fm.Error, Host: fm.Host, PID: fm.PID, Inputs: fm.Inputs})
+					continue
+				}
+			}
+			ps.Missing = append(ps.Missing, u)
+		}
+		if ps.Done < ps.Units {
+			ps.Rerun = fmt.Sprintf("winnow run %s --out %s --phase %s", f.Spec, dir, name)
+		}
+		st.Phases = append(st.Phases, ps)
+	}
+	return st, nil
 }
