@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"io"
 	"path/filepath"
+	"strconv"
+	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -63,6 +65,9 @@ and lowest scoring documents with the start of their text.`,
 	RunE: func(cmd *cobra.Command, args []string) error {
 		out := termOut(cmd.OutOrStdout())
 		defer out.Flush()
+		if run.IsSplitRunDir(args[0]) {
+			return auditSplit(out, args[0], auditOpts.asJSON)
+		}
 		r, err := audit.Open(args[0], audit.OpenOptions{SpecDir: auditOpts.specDir})
 		if err != nil {
 			return err
@@ -146,4 +151,42 @@ func writeDemoReport(res *run.RunResult) error {
 	}
 	fmt.Printf("  report:   %s\n", p)
 	return nil
+}
+
+// auditSplit lists where an unfinished split run stands: units done per
+// phase, the failed ones with their error, host and inputs, the missing
+// ones, and the command that finishes each phase.
+func auditSplit(out io.Writer, dir string, asJSON bool) error {
+	st, err := run.ReadSplitStatus(dir)
+	if err != nil {
+		return err
+	}
+	if asJSON {
+		if err := writeJSON(out, st); err != nil {
+			return err
+		}
+	} else {
+		fmt.Fprintf(out, "%s holds an unfinished split run of %s\n", dir, st.Spec)
+		for _, p := range st.Phases {
+			fmt.Fprintf(out, "phase %-16s %d of %d units done\n", p.Name, p.Done, p.Units)
+			for _, f := range p.Failed {
+				fmt.Fprintf(out, "  unit %d failed on %s (pid %d): %s\n    inputs: %s\n", f.Unit, f.Host, f.PID, f.Error, strings.Join(f.Inputs, ", "))
+			}
+			if len(p.Missing) > 0 {
+				fmt.Fprintf(out, "  units not run: %s\n", intList(p.Missing))
+			}
+			if p.Rerun != "" {
+				fmt.Fprintf(out, "  to finish it: %s   (any --task/--tasks; finished units are skipped)\n", p.Rerun)
+			}
+		}
+	}
+	return fmt.Errorf("the run in %s is not finished: audit needs its write phase (see above)", dir)
+}
+
+func intList(v []int) string {
+	s := make([]string, len(v))
+	for i, n := range v {
+		s[i] = strconv.Itoa(n)
+	}
+	return strings.Join(s, ", ")
 }

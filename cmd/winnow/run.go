@@ -46,7 +46,7 @@ func (f *runFlags) register(cmd *cobra.Command) {
 	cmd.Flags().BoolVar(&f.asJSON, "json", false, "print the stage table as JSON")
 	cmd.Flags().StringArrayVar(&f.sets, "set", nil, "override a stage parameter, STAGE.KEY=VALUE (repeatable)")
 	cmd.Flags().BoolVar(&f.resume, "resume", false, "continue an interrupted run in --out from its last checkpoint")
-	cmd.Flags().StringVar(&f.phase, "phase", "", "run one phase of a split run (see `winnow check SPEC --phases`)")
+	cmd.Flags().StringVar(&f.phase, "phase", "", "run one phase of a split run (see `winnow check SPEC --phases`), or \"all\": every phase in this process, resumable per unit")
 	cmd.Flags().IntVar(&f.task, "task", -1, "with --phase: this task's index, from 0 (default: SLURM_ARRAY_TASK_ID - SLURM_ARRAY_TASK_MIN or JOB_COMPLETION_INDEX)")
 	cmd.Flags().IntVar(&f.tasks, "tasks", -1, "with --phase: the number of tasks sharing the phase (default: SLURM_ARRAY_TASK_COUNT, or 1)")
 	cmd.Flags().StringVar(&f.cpuProfile, "cpuprofile", "", "write a Go CPU profile of the run to this file (for developers)")
@@ -81,6 +81,7 @@ internal error: the run went on, the manifest lists each one); 130 when
 interrupted; 1 on any other error.`,
 	Example: `  winnow run configs/default.yaml --out out/ --workers 2
   winnow run spec.yaml --out /shared/run --phase read --task 3 --tasks 8   # one task of a split run
+  winnow run spec.yaml --out out/ --phase all     # one process; started again, redoes only unfinished units
   winnow run spec.yaml --set quality.fewest_words=80 --force
   winnow run spec.yaml --out out/ --resume        # after Ctrl-C or a crash`,
 	Args: cobra.ExactArgs(1),
@@ -133,6 +134,10 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		if mem, err = fsio.ParseSize(f.memory); err != nil {
 			return nil, fmt.Errorf("--memory: %w", err)
 		}
+	}
+	if f.resume && f.phase == "" && run.IsSplitRunDir(f.out) {
+		// A run with --phase all (or a split run) goes on from its units.
+		f.phase, f.resume = run.PhaseAll, false
 	}
 	if f.phase == "" && (f.task >= 0 || f.tasks >= 0) {
 		return nil, errors.New("--task and --tasks need --phase")

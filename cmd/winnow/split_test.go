@@ -337,6 +337,67 @@ func TestSplitRunSurvivesKills(t *testing.T) {
 	}
 }
 
+// TestPhaseAllResumesFromUnits runs every phase in one process, kills it
+// inside a late phase, and resumes: the units done before are not redone
+// and the bytes are those of a plain run.
+func TestPhaseAllResumesFromUnits(t *testing.T) {
+	spec := writeSplitSpec(t, "dedup")
+	base := t.TempDir()
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	out := filepath.Join(base, "all")
+	once := filepath.Join(base, "once")
+	cmd := cliCommand([]string{run.FaultEnv + "=near_dedup/2/written", run.FaultOnceEnv + "=" + once}, "run", spec, "--out", out, "--phase", "all", "-q")
+	if b, err := cmd.CombinedOutput(); err == nil {
+		t.Fatalf("the fault did not stop the run:\n%s", b)
+	}
+	cmd = cliCommand(nil, "run", spec, "--out", out, "--resume", "-q")
+	b, err := cmd.CombinedOutput()
+	if err != nil {
+		t.Fatalf("resume: %v\n%s", err, b)
+	}
+	// The read and exact_dedup units were all finished: none ran again.
+	if !strings.Contains(string(b), "phase read, task 0 of 1: nothing to do") || !strings.Contains(string(b), "phase exact_dedup, task 0 of 1: nothing to do") {
+		t.Errorf("resume redid finished phases:\n%s", b)
+	}
+	sameRun(t, "--phase all, killed and resumed", runDigest(t, plain), runDigest(t, out))
+}
+
+// TestAuditListsUnfinishedUnits: a failed unit is listed with its error,
+// host and inputs, the units not run are listed, and the commands printed
+// finish the run.
+func TestAuditListsUnfinishedUnits(t *testing.T) {
+	spec := writeSplitSpec(t, "perdoc")
+	out := filepath.Join(t.TempDir(), "run")
+	cliRun(t, nil, "run", spec, "--out", out, "--phase", "read", "--task", "0", "--tasks", "3", "-q")
+	cmd := cliCommand([]string{run.FaultEnv + "=read/1/start/fail"}, "run", spec, "--out", out, "--phase", "read", "--task", "1", "--tasks", "3", "-q")
+	if b, err := cmd.CombinedOutput(); err == nil || !strings.Contains(string(b), "fault injected") {
+		t.Fatalf("the unit did not fail: %v\n%s", err, b)
+	}
+	cmd = cliCommand(nil, "audit", out)
+	b, err := cmd.Output()
+	if err == nil {
+		t.Error("audit of an unfinished run exited 0")
+	}
+	text := string(b)
+	host, _ := os.Hostname()
+	for _, want := range []string{"unit 1 failed on " + host, "fault injected", "inputs: corpus/", "units not run: 2,", "--phase read", "phase write            0 of 1 units done"} {
+		if !strings.Contains(text, want) {
+			t.Errorf("audit lacks %q:\n%s", want, text)
+		}
+	}
+	// The printed commands finish the run.
+	for _, line := range strings.Split(text, "\n") {
+		if _, cmdline, ok := strings.Cut(line, "to finish it: winnow "); ok {
+			args := strings.Fields(strings.Split(cmdline, "   (")[0])
+			cliRun(t, nil, append(args, "-q")...)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(out, "manifest.json")); err != nil {
+		t.Fatalf("the printed commands did not finish the run: %v", err)
+	}
+}
+
 // TestSplitTaskFromEnvironment takes the task from Slurm's and
 // Kubernetes' variables.
 func TestSplitTaskFromEnvironment(t *testing.T) {

@@ -63,6 +63,9 @@ type Phase struct {
 const (
 	PhaseRead  = "read"
 	PhaseWrite = "write"
+	// PhaseAll runs every phase in one process (one task): a run that
+	// resumes from its finished units when started again.
+	PhaseAll = "all"
 )
 
 // unitsDir is where a split run keeps its units until the write phase.
@@ -86,6 +89,16 @@ func Phases(steps []spec.Step) []Phase {
 	return append(out, Phase{Name: PhaseWrite, Seg: -1})
 }
 
+// IsSplitRunDir reports whether dir holds an unfinished split run (or one
+// run with --phase all).
+func IsSplitRunDir(dir string) bool {
+	if dir == "" {
+		return false
+	}
+	_, err := os.Stat(filepath.Join(dir, unitsDir, "inputs.json"))
+	return err == nil
+}
+
 // PhaseOptions choose one task of one phase.
 type PhaseOptions struct {
 	RunOptions
@@ -106,7 +119,11 @@ type PhaseResult struct {
 
 // frozenInputs is the input list of a split run, fixed by its first task.
 type frozenInputs struct {
-	ConfigHash string        `json:"config_hash"`
+	ConfigHash string `json:"config_hash"`
+	// Spec, Phases and Units say how to finish the run (audit lists them).
+	Spec       string        `json:"spec"`
+	Phases     []string      `json:"phases"`
+	Units      int           `json:"units"`
 	ChunkBytes int64         `json:"chunk_bytes"`
 	Inputs     []frozenInput `json:"inputs"`
 }
@@ -427,6 +444,7 @@ type splitRun struct {
 	env     stages.Env
 	host    string
 	workers int
+	closers []func()
 }
 
 func closeSteps(steps []spec.Step) {
@@ -544,24 +562,39 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 				sr.logf("%s holds the finished run of this spec: nothing to do", out)
 				return res, nil
 			}
-			if opt.Phase == PhaseRead && !opt.Force {
+			if (opt.Phase == PhaseRead || opt.Phase == PhaseAll) && !opt.Force {
 				return nil, fmt.Errorf("output directory %s holds another run: use --force to replace it, or another --out", out)
 			}
 		}
 	}
+	// The phases, from stages built as `check` builds them (cheap: no
+	// model is loaded), so a task with nothing to do ends at once.
+	cenv := stages.Env{SpecDir: s.Dir, RunDir: abs, MemoryBudget: s.Memory, Seed: s.Seed, Checking: true,
+		Inputs: func() ([]read.InputFile, error) { return inputs, nil }}
+	csteps, err := s.BuildStages(cenv)
+	if err != nil {
+		return nil, err
+	}
+	closeSteps(csteps)
+	phases := Phases(csteps)
 	frozen, err := freezeList(s, inputs)
 	if err != nil {
 		return nil, err
 	}
+	frozen.Units = len(sr.chunks)
+	frozen.Spec, _ = filepath.Abs(s.File)
+	for _, p := range phases {
+		frozen.Phases = append(frozen.Phases, p.Name)
+	}
 	if err := os.MkdirAll(filepath.Join(abs, unitsDir), 0o755); err != nil {
 		return nil, err
 	}
-	if opt.Phase == PhaseRead && opt.Force {
+	if (opt.Phase == PhaseRead || opt.Phase == PhaseAll) && opt.Force {
 		if err := clearForSplit(abs); err != nil {
 			return nil, err
 		}
 	}
-	if err := checkFrozen(abs, frozen, opt.Phase == PhaseRead); err != nil {
+	if err := checkFrozen(abs, frozen, opt.Phase == PhaseRead || opt.Phase == PhaseAll); err != nil {
 		return nil, err
 	}
 	sr.tmp, err = os.MkdirTemp(filepath.Join(abs, unitsDir), fmt.Sprintf("tmp-%s-%d-", sanitizeHost(sr.host), os.Getpid()))
@@ -569,18 +602,91 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 		return nil, err
 	}
 	defer os.RemoveAll(sr.tmp)
+	defer func() {
+		for _, c := range sr.closers {
+			c()
+		}
+	}()
 	sr.env = stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: sr.tmp, MemoryBudget: s.Memory, Seed: s.Seed,
 		Inputs: func() ([]read.InputFile, error) { return inputs, nil }}
 	if opt.Memory > 0 {
 		sr.env.MemoryBudget = opt.Memory
 	}
-	steps, err := s.BuildStages(sr.env)
-	if err != nil {
-		return nil, err
+	var names []string
+	for _, p := range phases {
+		names = append(names, p.Name)
 	}
-	defer closeSteps(steps)
-	if ts, err := record.OutputStage(s.Output, sr.env); err != nil {
-		return nil, err
+	todo := []string{opt.Phase}
+	if opt.Phase == PhaseAll {
+		if opt.Tasks != 1 {
+			return nil, fmt.Errorf("--phase %s runs every phase in this one process: it takes no --task/--tasks (got %d tasks)", PhaseAll, opt.Tasks)
+		}
+		todo = names
+	} else if !slices.Contains(names, opt.Phase) {
+		return nil, fmt.Errorf("no phase %q in this spec (phases: %s, or %s)", opt.Phase, strings.Join(names, ", "), PhaseAll)
+	}
+	for _, name := range todo {
+		pi := slices.Index(names, name)
+		var mine []int
+		if phases[pi].Seg < 0 {
+			if opt.Task != 0 {
+				sr.logf("phase %s is one unit, run by task 0: task %d has nothing to do", PhaseWrite, opt.Task)
+				continue
+			}
+		} else {
+			for u := range sr.chunks {
+				if u%opt.Tasks != opt.Task {
+					continue
+				}
+				m, err := readMarker(abs, name, u)
+				if err != nil {
+					return nil, err
+				}
+				if m != nil {
+					res.Skipped = append(res.Skipped, u)
+					continue
+				}
+				mine = append(mine, u)
+			}
+			if len(mine) == 0 {
+				sr.logf("phase %s, task %d of %d: nothing to do (%d units done already)", name, opt.Task, opt.Tasks, len(res.Skipped))
+				continue
+			}
+		}
+		if err := sr.build(); err != nil {
+			return nil, err
+		}
+		if len(sr.phases) != len(phases) {
+			return nil, errors.New("the phases of the built stages differ from the checked ones")
+		}
+		if phases[pi].Seg < 0 {
+			m, err := sr.write(ctx)
+			if err != nil {
+				return nil, err
+			}
+			res.Manifest = m
+			res.Units = append(res.Units, 0)
+			continue
+		}
+		if err := sr.docsPhase(ctx, sr.phases[pi], mine, res); err != nil {
+			return res, err
+		}
+	}
+	return res, nil
+}
+
+// build builds the stages for real (once per process).
+func (sr *splitRun) build() error {
+	if sr.steps != nil {
+		return nil
+	}
+	steps, err := sr.spec.BuildStages(sr.env)
+	if err != nil {
+		return err
+	}
+	sr.closers = append(sr.closers, func() { closeSteps(steps) })
+	if ts, err := record.OutputStage(sr.spec.Output, sr.env); err != nil {
+		return err
 	} else if ts != nil {
 		name := ts.Name()
 		for _, st := range steps {
@@ -591,34 +697,7 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 		steps = append(steps, spec.Step{Name: name, Stage: ts})
 	}
 	sr.steps, sr.segs, sr.phases = steps, segmentsOf(steps), Phases(steps)
-	var ph *Phase
-	for i := range sr.phases {
-		if sr.phases[i].Name == opt.Phase {
-			ph = &sr.phases[i]
-		}
-	}
-	if ph == nil {
-		var names []string
-		for _, p := range sr.phases {
-			names = append(names, p.Name)
-		}
-		return nil, fmt.Errorf("no phase %q in this spec (phases: %s)", opt.Phase, strings.Join(names, ", "))
-	}
-	if ph.Seg < 0 {
-		if opt.Task != 0 {
-			sr.logf("phase %s is one unit, run by task 0: task %d has nothing to do", PhaseWrite, opt.Task)
-			return res, nil
-		}
-		m, err := sr.write(ctx)
-		if err != nil {
-			return nil, err
-		}
-		res.Manifest = m
-		res.Units = []int{0}
-		return res, nil
-	}
-	err = sr.docsPhase(ctx, *ph, res)
-	return res, err
+	return nil
 }
 
 func sanitizeHost(h string) string {
@@ -650,27 +729,8 @@ func (sr *splitRun) logf(format string, args ...any) {
 	}
 }
 
-// docsPhase runs this task's units of a document phase.
-func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, res *PhaseResult) error {
-	var mine []int
-	for u := range sr.chunks {
-		if u%sr.opt.Tasks != sr.opt.Task {
-			continue
-		}
-		m, err := readMarker(sr.dir, ph.Name, u)
-		if err != nil {
-			return err
-		}
-		if m != nil {
-			res.Skipped = append(res.Skipped, u)
-			continue
-		}
-		mine = append(mine, u)
-	}
-	if len(mine) == 0 {
-		sr.logf("phase %s, task %d of %d: nothing to do (%d units done already)", ph.Name, sr.opt.Task, sr.opt.Tasks, len(res.Skipped))
-		return nil
-	}
+// docsPhase runs the units mine of a document phase.
+func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *PhaseResult) error {
 	seg := sr.segs[ph.Seg]
 	var prev string
 	if seg.apply >= 0 {
@@ -1273,4 +1333,86 @@ func addCounters(a, b *record.Counters) {
 	a.Edited += b.Edited
 	a.Skipped += b.Skipped
 	a.AddNanos(int64(b.Seconds * 1e9))
+}
+
+// SplitStatus is where an unfinished split run stands, phase by phase.
+type SplitStatus struct {
+	Dir    string        `json:"dir"`
+	Spec   string        `json:"spec"`
+	Phases []PhaseStatus `json:"phases"`
+}
+
+// PhaseStatus counts a phase's units; Failed and Missing list the units
+// not done (a failed unit wrote its error, host and inputs).
+type PhaseStatus struct {
+	Name    string        `json:"name"`
+	Units   int           `json:"units"`
+	Done    int           `json:"done"`
+	Failed  []UnitFailure `json:"failed,omitempty"`
+	Missing []int         `json:"missing,omitempty"`
+	// Rerun is the command that finishes the phase (any --tasks works:
+	// finished units are skipped).
+	Rerun string `json:"rerun,omitempty"`
+}
+
+// UnitFailure is a failed unit's marker.
+type UnitFailure struct {
+	Unit   int      `json:"unit"`
+	Error  string   `json:"error"`
+	Host   string   `json:"host"`
+	PID    int      `json:"pid"`
+	Inputs []string `json:"inputs"`
+}
+
+// ReadSplitStatus reads the units of the split run in dir.
+func ReadSplitStatus(dir string) (*SplitStatus, error) {
+	if abs, err := filepath.Abs(dir); err == nil {
+		dir = abs
+	}
+	b, err := os.ReadFile(filepath.Join(dir, unitsDir, "inputs.json"))
+	if err != nil {
+		return nil, err
+	}
+	var f frozenInputs
+	if err := json.Unmarshal(b, &f); err != nil {
+		return nil, fmt.Errorf("%s: %w", filepath.Join(dir, unitsDir, "inputs.json"), err)
+	}
+	st := &SplitStatus{Dir: dir, Spec: f.Spec}
+	for _, name := range f.Phases {
+		ps := PhaseStatus{Name: name, Units: f.Units}
+		if name == PhaseWrite {
+			ps.Units = 1
+		}
+		for u := 0; u < ps.Units; u++ {
+			if name == PhaseWrite {
+				if _, err := os.Stat(filepath.Join(dir, "manifest.json")); err == nil {
+					ps.Done++
+				} else {
+					ps.Missing = append(ps.Missing, 0)
+				}
+				continue
+			}
+			m, err := readMarker(dir, name, u)
+			if err != nil {
+				return nil, err
+			}
+			if m != nil {
+				ps.Done++
+				continue
+			}
+			if b, err := os.ReadFile(failedMarker(dir, name, u)); err == nil {
+				var fm unitMarker
+				if json.Unmarshal(b, &fm) == nil {
+					ps.Failed = append(ps.Failed, UnitFailure{Unit: u, Error: fm.Error, Host: fm.Host, PID: fm.PID, Inputs: fm.Inputs})
+					continue
+				}
+			}
+			ps.Missing = append(ps.Missing, u)
+		}
+		if ps.Done < ps.Units {
+			ps.Rerun = fmt.Sprintf("winnow run %s --out %s --phase %s", f.Spec, dir, name)
+		}
+		st.Phases = append(st.Phases, ps)
+	}
+	return st, nil
 }
