@@ -133,7 +133,7 @@ func newLangid(p *Params, env Env) (Stage, error) {
 	if err := p.Done(); err != nil {
 		return nil, err
 	}
-	if !env.Checking {
+	if !env.Checking && !env.LazyModels {
 		// Build now (loads lingua's models once per process), so the
 		// first documents do not pay for it and errors surface here.
 		if _, err := s.detector(); err != nil {

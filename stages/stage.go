@@ -332,6 +332,10 @@ type Env struct {
 	// Checking is true under `winnow check`: constructors validate and
 	// may skip expensive loading.
 	Checking bool
+	// LazyModels asks constructors to load large models on first use
+	// rather than at once: a task of a split run builds every stage but
+	// runs only its phase's.
+	LazyModels bool
 	// Inputs returns the run's resolved input files (nil: unknown). The
 	// domain stage draws its default background from them. Set by
 	// spec.BuildStages.

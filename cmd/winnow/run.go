@@ -142,10 +142,6 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 	if f.phase == "" && (f.task >= 0 || f.tasks >= 0) {
 		return nil, errors.New("--task and --tasks need --phase")
 	}
-	if f.phase != "" {
-		prog.done()
-		return nil, runPhase(ctx, sp, f, mem, prog)
-	}
 	if f.cpuProfile != "" {
 		pf, err := os.Create(f.cpuProfile)
 		if err != nil {
@@ -156,6 +152,10 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 			return nil, err
 		}
 		defer pprof.StopCPUProfile()
+	}
+	if f.phase != "" {
+		prog.done()
+		return nil, runPhase(ctx, sp, f, mem, prog)
 	}
 	res, err := run.RunSpec(ctx, sp, run.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
 		Memory: mem, Against: f.against, Version: version, OnProgress: prog.update, Log: prog.logf, Sets: f.sets, Resume: f.resume})

@@ -337,6 +337,38 @@ func TestSplitRunSurvivesKills(t *testing.T) {
 	}
 }
 
+// TestSplitTwoAttemptsAtOnce starts every task twice at the same time (a
+// scheduler that retried a task it wrongly thought lost): the attempts
+// race for each unit, one rename wins, and the bytes are a plain run's.
+func TestSplitTwoAttemptsAtOnce(t *testing.T) {
+	spec := writeSplitSpec(t, "dedup")
+	base := t.TempDir()
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	out := filepath.Join(base, "twice")
+	for _, ph := range strings.Fields(cliRun(t, nil, "check", spec, "--phases")) {
+		var wg sync.WaitGroup
+		errs := make([]string, 4)
+		for i := 0; i < 4; i++ {
+			wg.Add(1)
+			go func(i int) {
+				defer wg.Done()
+				cmd := cliCommand(nil, "run", spec, "--out", out, "--phase", ph, "--task", fmt.Sprint(i%2), "--tasks", "2", "-q", "--workers", "1")
+				if b, err := cmd.CombinedOutput(); err != nil {
+					errs[i] = fmt.Sprintf("attempt %d of phase %s: %v\n%s", i, ph, err, b)
+				}
+			}(i)
+		}
+		wg.Wait()
+		for _, e := range errs {
+			if e != "" {
+				t.Fatal(e)
+			}
+		}
+	}
+	sameRun(t, "two attempts of every task at once", runDigest(t, plain), runDigest(t, out))
+}
+
 // TestPhaseAllResumesFromUnits runs every phase in one process, kills it
 // inside a late phase, and resumes: the units done before are not redone
 // and the bytes are those of a plain run.

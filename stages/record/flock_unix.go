@@ -12,3 +12,8 @@ import (
 func flockNB(f *os.File) error {
 	return syscall.Flock(int(f.Fd()), syscall.LOCK_EX|syscall.LOCK_NB)
 }
+
+// flockWait takes an exclusive flock on f, waiting for it.
+func flockWait(f *os.File) error {
+	return syscall.Flock(int(f.Fd()), syscall.LOCK_EX)
+}

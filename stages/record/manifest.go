@@ -316,6 +316,20 @@ func MarkRunDir(dir, configHash string) error {
 	return fsio.WriteFileAtomic(filepath.Join(dir, runMarker), []byte(configHash+"\n"))
 }
 
+// WaitLock takes an exclusive lock on the file at path (created when
+// missing), waiting while another process holds it. release unlocks.
+func WaitLock(path string) (release func(), err error) {
+	f, err := os.OpenFile(path, os.O_CREATE|os.O_RDWR, 0o644)
+	if err != nil {
+		return nil, err
+	}
+	if err := flockWait(f); err != nil {
+		f.Close()
+		return nil, err
+	}
+	return func() { f.Close() }, nil
+}
+
 // LockFile marks a run directory in use by a running winnow process.
 const LockFile = ".winnow-lock"
 

@@ -607,7 +607,7 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 			c()
 		}
 	}()
-	sr.env = stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: sr.tmp, MemoryBudget: s.Memory, Seed: s.Seed,
+	sr.env = stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: sr.tmp, MemoryBudget: s.Memory, Seed: s.Seed, LazyModels: true,
 		Inputs: func() ([]read.InputFile, error) { return inputs, nil }}
 	if opt.Memory > 0 {
 		sr.env.MemoryBudget = opt.Memory
@@ -1064,6 +1064,17 @@ func (sr *splitRun) writeFailed(phase string, u int, uerr error, took time.Durat
 // write is the write phase: it puts the run directory together.
 func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 	t0 := time.Now()
+	// One attempt of the write phase at a time; one that waited finds
+	// the run finished.
+	release, err := record.WaitLock(filepath.Join(sr.dir, unitsDir, "write.lock"))
+	if err != nil {
+		return nil, err
+	}
+	defer release()
+	if !IsSplitRunDir(sr.dir) {
+		sr.logf("another attempt of phase %s finished the run", PhaseWrite)
+		return record.ReadManifest(sr.dir)
+	}
 	if err := fault(PhaseWrite, 0, "start"); err != nil {
 		return nil, err
 	}
