@@ -7,10 +7,17 @@
 #
 #   scripts/bench-split.sh [SIZE]          default 1GB (uncompressed text)
 #   BENCH_DIR=/tmp/winnow-split CHUNK=16MiB scripts/bench-split.sh 200MB
+#
+# With PIN=1 (the default) task i is pinned to core i with taskset, as a
+# Slurm array task given one CPU (--cpus-per-task=1, cgroup-bound) is; the
+# one-task run is pinned to core 0. PIN=0 lets every process use every
+# core (a task then uses more than one: its reader, collector and
+# compressors are goroutines of their own).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
 SIZE=${1:-1GB}
+PIN=${PIN:-1}
 CHUNK=${CHUNK:-16MiB}
 DIR=${BENCH_DIR:-$(mktemp -d /tmp/winnow-split.XXXX)}
 mkdir -p "$DIR"
@@ -32,7 +39,9 @@ run_tasks() { # OUT TASKS
     local t0 t1 rss=0
     t0=$(date +%s.%N)
     for ((i = 0; i < n; i++)); do
-      /usr/bin/time -f '%M' -o "$out.$p.$i.time" "$W" run "$DIR/spec.yaml" --out "$out" --phase "$p" \
+      pin=()
+      [ "$PIN" = 1 ] && pin=(taskset -c "$((i % $(nproc)))")
+      "${pin[@]}" /usr/bin/time -f '%M' -o "$out.$p.$i.time" "$W" run "$DIR/spec.yaml" --out "$out" --phase "$p" \
         --task "$i" --tasks "$n" --workers 1 -q >/dev/null 2>"$out.$p.$i.err" &
     done
     wait
@@ -53,7 +62,7 @@ run_tasks() { # OUT TASKS
   echo "$total" > "$out.total"
 }
 
-echo "corpus: $SIZE uncompressed, $docs documents, units of $CHUNK; default spec; one worker per task"
+echo "corpus: $SIZE uncompressed, $docs documents, units of $CHUNK; default spec; one worker per task; pinned to a core each: $PIN"
 echo "1 task:"
 run_tasks "$DIR/one" 1
 echo "2 tasks:"

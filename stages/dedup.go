@@ -129,6 +129,14 @@ func keysPrefix(dir, name string) string {
 	return filepath.Join(dir, "keys", name)
 }
 
+// keysOut is where a dedup stage writes this run's key files ("": none).
+func keysOut(env Env, name string) string {
+	if env.NoKeyFiles {
+		return ""
+	}
+	return keysPrefix(env.RunDir, name)
+}
+
 // exactDedupStage implements exact_dedup.
 type exactDedupStage struct {
 	name       string
@@ -177,7 +185,7 @@ func newExactDedup(p *Params, env Env) (GlobalStage, error) {
 	}
 	opt := dedup.ExactOptions{
 		Norm: s.norm, TempDir: env.TempDir, MemoryBudget: env.MemoryBudget,
-		KeysOut: keysPrefix(env.RunDir, s.name),
+		KeysOut: keysOut(env, s.name),
 	}
 	if env.Against != "" {
 		s.against = env.Against
@@ -327,7 +335,7 @@ func newNearDedup(p *Params, env Env) (GlobalStage, error) {
 	if env.Checking {
 		return s, nil
 	}
-	o.KeysOut = keysPrefix(env.RunDir, s.name)
+	o.KeysOut = keysOut(env, s.name)
 	if env.Against != "" {
 		s.against = env.Against
 		o.Against = keysPrefix(env.Against, s.name)

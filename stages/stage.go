@@ -336,6 +336,11 @@ type Env struct {
 	// rather than at once: a task of a split run builds every stage but
 	// runs only its phase's.
 	LazyModels bool
+	// NoKeyFiles tells global stages not to write the run's key files
+	// (keys/): in a split run only the task that runs the first unit of
+	// the phase after a global stage writes them (the others would write
+	// the same bytes).
+	NoKeyFiles bool
 	// Inputs returns the run's resolved input files (nil: unknown). The
 	// domain stage draws its default background from them. Set by
 	// spec.BuildStages.

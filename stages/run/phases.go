@@ -653,6 +653,10 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 				continue
 			}
 		}
+		if opt.Phase != PhaseAll && phases[pi].Seg > 0 && !slices.Contains(mine, 0) {
+			// Unit 0's task writes the global stage's key files.
+			sr.env.NoKeyFiles = true
+		}
 		if err := sr.build(); err != nil {
 			return nil, err
 		}
