@@ -14,6 +14,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"winnow/stages/fsio"
+	"winnow/stages/record"
 	"winnow/stages/run"
 	"winnow/stages/spec"
 	"winnow/stages/termtext"
@@ -180,8 +181,13 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		return res, &exitError{code: 130, err: fmt.Errorf("interrupted: decisions so far are in %s (manifest says interrupted); `winnow run %s --out %s --resume` continues from %s",
 			res.Dir, sp.File, res.Dir, from)}
 	}
-	m := res.Manifest
-	fatal := res.Runner.FatalInputs
+	return res, finishMessage(res.Manifest, res.Dir, res.Runner.FatalInputs, f.allowPartial)
+}
+
+// finishMessage prints what a finished run wrote and left out, and returns
+// the error that sets the exit status (internal errors 4, partial inputs
+// 3 unless allowed).
+func finishMessage(m *record.Manifest, dir string, fatal int, allowPartial bool) error {
 	toks := "tokens not counted: no output.tokenizer"
 	if m.TokensCounted() {
 		toks = fmt.Sprintf("%d tokens", m.Totals.TokensOut)
@@ -191,7 +197,7 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		recs = fmt.Sprintf(" as %d records", m.Totals.RecordsOut)
 	}
 	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents%s (%s) in %d shards to %s\n",
-		m.Totals.DocsOut, recs, toks, len(m.Outputs), res.Dir)
+		m.Totals.DocsOut, recs, toks, len(m.Outputs), dir)
 	for _, l := range m.LeftOut() {
 		fmt.Fprintln(os.Stderr, "winnow: left out of the output:", termtext.Escape(l))
 	}
@@ -205,24 +211,24 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		// Listed before the partial-input note so the last line is about
 		// the bug; its status wins over 3 and --allow-partial.
 		if fatal > 0 {
-			fmt.Fprintf(os.Stderr, "winnow: %d input file(s) could not be read to the end: see errors in %s/manifest.json\n", fatal, res.Dir)
+			fmt.Fprintf(os.Stderr, "winnow: %d input file(s) could not be read to the end: see errors in %s/manifest.json\n", fatal, dir)
 		}
-		return res, &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): a stage failed on %d document(s), recorded with rule %s in the ledger and listed with their stacks in %s/manifest.json; every other document was processed (please report this bug)",
-			m.InternalErrors, m.InternalErrors, run.RuleInternalError, res.Dir)}
+		return &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): a stage failed on %d document(s), recorded with rule %s in the ledger and listed with their stacks in %s/manifest.json; every other document was processed (please report this bug)",
+			m.InternalErrors, m.InternalErrors, run.RuleInternalError, dir)}
 	}
 	if fatal > 0 {
 		msg := fmt.Errorf("finished, but %d input file(s) could not be read to the end and %d record(s) were unreadable: see errors in %s/manifest.json",
-			fatal, m.ErrorCount-int64(fatal), res.Dir)
-		if f.allowPartial {
+			fatal, m.ErrorCount-int64(fatal), dir)
+		if allowPartial {
 			fmt.Fprintln(os.Stderr, "winnow:", msg)
-			return res, nil
+			return nil
 		}
-		return res, &exitError{code: 3, err: msg}
+		return &exitError{code: 3, err: msg}
 	}
 	if m.ErrorCount > 0 {
 		fmt.Fprintf(os.Stderr, "winnow: finished; skipped %d unreadable record(s) or empty input(s): see ledger/read.jsonl.zst\n", m.ErrorCount)
 	}
-	return res, nil
+	return nil
 }
 
 // skipLine sums the records passed over by rule (WARC records that hold no
@@ -257,6 +263,9 @@ func runPhase(ctx context.Context, sp *spec.Spec, f runFlags, mem int64, prog *p
 	}
 	res, err := run.RunPhase(ctx, sp, run.PhaseOptions{RunOptions: run.RunOptions{Out: f.out, Workers: f.workers, Force: f.force,
 		Memory: mem, Against: f.against, Version: version, Log: prog.logf, Sets: f.sets}, Phase: f.phase, Task: task, Tasks: tasks})
+	if errors.Is(err, context.Canceled) {
+		return &exitError{code: 130, err: errors.New("interrupted: the units finished so far are kept; the same command goes on from there")}
+	}
 	if err != nil {
 		return err
 	}
@@ -273,18 +282,11 @@ func runPhase(ctx context.Context, sp *spec.Spec, f runFlags, mem int64, prog *p
 	if perr != nil {
 		return perr
 	}
-	fmt.Fprintf(os.Stderr, "winnow: wrote %d documents in %d shards to %s\n", m.Totals.DocsOut, len(m.Outputs), res.Dir)
-	if m.InternalErrors > 0 {
-		return &exitError{code: exitInternal, err: fmt.Errorf("finished with %d internal error(s): see %s/manifest.json", m.InternalErrors, res.Dir)}
-	}
 	var fatal int
 	for _, e := range m.Errors {
 		if e.Fatal {
 			fatal++
 		}
 	}
-	if fatal > 0 && !f.allowPartial {
-		return &exitError{code: 3, err: fmt.Errorf("finished, but %d input file(s) could not be read to the end: see errors in %s/manifest.json", fatal, res.Dir)}
-	}
-	return nil
+	return finishMessage(m, res.Dir, fatal, f.allowPartial)
 }
