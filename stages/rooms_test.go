@@ -36,6 +36,7 @@ var roomRank = map[string]int{
 	"winnow/stages/suggest":      1,
 	"winnow/stages/termtext":     1, // escaping for terminal output
 	"winnow/configs":             1,
+	"winnow/configs/cluster":     9, // tests of the cluster examples (runs the built command)
 }
 
 // moduleImports returns, per package of the module, the module packages

@@ -140,7 +140,7 @@ func runLoaded(ctx context.Context, sp *spec.Spec, f runFlags) (*run.RunResult, 
 		// A run with --phase all (or a split run) goes on from its units.
 		f.phase, f.resume = run.PhaseAll, false
 	}
-	if f.phase == "" && (f.task >= 0 || f.tasks >= 0) {
+	if f.phase == "" && (f.task > 0 || f.tasks > 0) {
 		return nil, errors.New("--task and --tasks need --phase")
 	}
 	if f.cpuProfile != "" {
