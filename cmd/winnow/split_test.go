@@ -461,3 +461,117 @@ func TestSplitTaskFromEnvironment(t *testing.T) {
 		}
 	}
 }
+
+// TestSplitRunOnRealDocuments splits runs over real documentation (Debian
+// packages' manuals, Python documentation, prose; testdata/domaindocs and
+// testdata/realdocs, licences beside them): a domain stage that keeps a
+// fraction (a global stage that measures) before exact dedup, and the
+// WARC, HTML and text readers with decontamination against real eval sets.
+func TestSplitRunOnRealDocuments(t *testing.T) {
+	data := domainDocs(t)
+	real, err := filepath.Abs("../../testdata")
+	if err != nil {
+		t.Fatal(err)
+	}
+	specs := map[string]string{
+		"domain": `name: docs
+seed: 5
+chunk_bytes: 1KB
+inputs:
+  - source: docs
+    paths: ["` + data + `/*.jsonl.zst"]
+stages:
+  - kind: normalize
+  - kind: domain
+    examples: ["` + data + `/python.jsonl.zst"]
+    background: ["` + data + `/manpages.jsonl.zst", "` + data + `/prose.jsonl.zst"]
+    method: importance
+    keep_fraction: 0.3
+  - kind: exact_dedup
+output:
+  tokenizer: cl100k_base
+  shard_tokens: 50000
+`,
+		"mixed": `name: mixed
+seed: 3
+chunk_bytes: 40KB
+inputs:
+  - source: man
+    paths: ["` + real + `/realdocs/man/"]
+  - source: docs
+    paths: ["` + real + `/realdocs/html/"]
+    format: html
+  - source: web
+    paths: ["` + real + `/webcrawl/crawl.warc.gz", "` + real + `/warcjs/pages.warc.gz"]
+  - source: mail
+    paths: ["` + real + `/mail-python/msg_*.txt"]
+    format: text
+stages:
+  - kind: normalize
+  - kind: quality
+  - kind: exact_dedup
+    keep: longest
+  - kind: near_dedup
+  - kind: decontaminate
+    max_doc_frequency: 5
+    evals:
+      - name: manual-qa
+        paths: ["` + real + `/realdocs/evals/manual-qa.jsonl"]
+        fields: [question, answer]
+      - name: npm-mc
+        paths: ["` + real + `/evalsets/npm-mc.parquet"]
+        fields: [question, "choices[label]"]
+output:
+  tokenizer: cl100k_base
+  shard_tokens: 50000
+`,
+	}
+	for name, body := range specs {
+		t.Run(name, func(t *testing.T) {
+			dir := t.TempDir()
+			spec := filepath.Join(dir, "spec.yaml")
+			if err := os.WriteFile(spec, []byte(body), 0o644); err != nil {
+				t.Fatal(err)
+			}
+			plain := filepath.Join(dir, "plain")
+			cliRun(t, nil, "run", spec, "--out", plain, "-q")
+			out := filepath.Join(dir, "split")
+			runSplit(t, spec, out, 3, nil)
+			sameRun(t, name, runDigest(t, plain), runDigest(t, out))
+		})
+	}
+}
+
+// TestSplitRunRefusesChangedInputs: an input modified after the first
+// phase froze the list makes the next phase refuse, naming the file; an
+// input list with standard input is refused at once.
+func TestSplitRunRefusesChangedInputs(t *testing.T) {
+	dir := t.TempDir()
+	in := filepath.Join(dir, "a.jsonl")
+	if err := os.WriteFile(in, []byte(`{"id":"1","text":"the yard hauled the ketch out for a new coat of antifouling paint"}`+"\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	spec := filepath.Join(dir, "spec.yaml")
+	if err := os.WriteFile(spec, []byte("name: x\ninputs:\n  - source: s\n    paths: [a.jsonl]\nstages:\n  - kind: exact_dedup\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(dir, "out")
+	cliRun(t, nil, "run", spec, "--out", out, "--phase", "read", "-q")
+	if err := os.WriteFile(in, []byte(`{"id":"1","text":"changed text of another length entirely"}`+"\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	cmd := cliCommand(nil, "run", spec, "--out", out, "--phase", "exact_dedup", "-q")
+	b, err := cmd.CombinedOutput()
+	if err == nil || !strings.Contains(string(b), "a.jsonl") || !strings.Contains(string(b), "inputs differ") {
+		t.Errorf("a changed input was not refused: %v\n%s", err, b)
+	}
+	std := filepath.Join(dir, "stdin.yaml")
+	if err := os.WriteFile(std, []byte("name: x\ninputs:\n  - source: s\n    paths: [\"-\"]\nstages:\n  - kind: exact_dedup\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	cmd = cliCommand(nil, "run", std, "--out", filepath.Join(dir, "out2"), "--phase", "read", "-q")
+	b, err = cmd.CombinedOutput()
+	if err == nil || !strings.Contains(string(b), "standard input") {
+		t.Errorf("standard input was not refused: %v\n%s", err, b)
+	}
+}
