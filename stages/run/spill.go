@@ -3,6 +3,7 @@ package run
 import (
 	"bufio"
 	"encoding/binary"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -174,11 +175,30 @@ func (r *spillReader) next() (*stages.Doc, error) {
 	}
 	if meta != "" {
 		d.Meta = map[string]any{}
-		if err := read.EachField([]byte(meta), func(k, v []byte) { d.Meta[string(k)] = read.RawJSON(append([]byte(nil), v...)) }); err != nil {
+		if err := read.EachField([]byte(meta), func(k, v []byte) { d.Meta[string(k)] = metaValue(v) }); err != nil {
 			return nil, fmt.Errorf("spill meta: %w", err)
 		}
 	}
 	return d, nil
+}
+
+// metaValue turns a spilled meta value back into what a stage set: a JSON
+// string becomes a Go string and true/false a bool (stages and `only:`
+// scopes compare them: a detected "lang" must still match after a global
+// stage); numbers, lists and objects stay raw JSON, written out as read.
+func metaValue(v []byte) any {
+	switch {
+	case len(v) > 0 && v[0] == '"':
+		var s string
+		if json.Unmarshal(v, &s) == nil {
+			return s
+		}
+	case string(v) == "true":
+		return true
+	case string(v) == "false":
+		return false
+	}
+	return read.RawJSON(append([]byte(nil), v...))
 }
 
 func takeUvarint(b []byte) (uint64, []byte, bool) {
