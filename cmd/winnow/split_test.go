@@ -273,6 +273,43 @@ func TestSplitRunsMatchSingleProcess(t *testing.T) {
 	}
 }
 
+// TestSplitRunAgainstPreviousRun: incremental dedup against an earlier
+// run's keys gives the same bytes split as in one process.
+func TestSplitRunAgainstPreviousRun(t *testing.T) {
+	spec := writeSplitSpec(t, "paragraphs")
+	base := t.TempDir()
+	prev := filepath.Join(base, "prev")
+	cliRun(t, nil, "run", spec, "--out", prev, "-q")
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "--against", prev, "-q")
+	out := filepath.Join(base, "split")
+	phases := strings.Fields(cliRun(t, nil, "check", spec, "--phases"))
+	for _, ph := range phases {
+		for task := 0; task < 3; task++ {
+			cliRun(t, nil, "run", spec, "--out", out, "--against", prev, "--phase", ph, "--task", fmt.Sprint(task), "--tasks", "3", "-q")
+		}
+	}
+	sameRun(t, "--against, 3 tasks", runDigest(t, plain), runDigest(t, out))
+	b, err := os.ReadFile(filepath.Join(out, "manifest.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var m struct {
+		Stages []struct {
+			Name            string
+			Dropped, Edited int64
+		}
+	}
+	if err := json.Unmarshal(b, &m); err != nil {
+		t.Fatal(err)
+	}
+	for _, st := range m.Stages {
+		if st.Name == "exact_dedup" && st.Dropped+st.Edited == 0 {
+			t.Error("the previous run's keys removed nothing: the comparison proves little")
+		}
+	}
+}
+
 // TestSplitRunSurvivesKills kills tasks with SIGKILL at fault points and
 // at random moments, starts them again, and expects the bytes of a run
 // never killed.

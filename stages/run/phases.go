@@ -514,11 +514,6 @@ func TaskFromEnv(task, tasks int, getenv func(string) string) (int, int, error) 
 
 // RunPhase runs task opt.Task of opt.Tasks of phase opt.Phase.
 func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult, error) {
-	if opt.Resume || opt.Against != "" {
-		if opt.Against != "" {
-			return nil, errors.New("--against is not supported with --phase yet: run in one process")
-		}
-	}
 	if err := spec.ApplySets(s, opt.Sets); err != nil {
 		return nil, err
 	}
@@ -607,7 +602,7 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 			c()
 		}
 	}()
-	sr.env = stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: sr.tmp, MemoryBudget: s.Memory, Seed: s.Seed, LazyModels: true,
+	sr.env = stages.Env{SpecDir: s.Dir, RunDir: abs, TempDir: sr.tmp, MemoryBudget: s.Memory, Seed: s.Seed, LazyModels: true, Against: opt.Against,
 		Inputs: func() ([]read.InputFile, error) { return inputs, nil }}
 	if opt.Memory > 0 {
 		sr.env.MemoryBudget = opt.Memory
