@@ -57,21 +57,8 @@ type RunResult struct {
 // interruption the manifest is written with interrupted=true and the error
 // is context.Canceled.
 func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, error) {
-	if err := spec.ApplySets(s, opt.Sets); err != nil {
-		return nil, err
-	}
-	inputs, err := spec.ResolveInputs(s)
+	inputs, out, err := prepareSpec(s, opt)
 	if err != nil {
-		return nil, err
-	}
-	out := opt.Out
-	if out == "" {
-		out = s.OutputDir
-	}
-	if out == "" {
-		return nil, errors.New("no output directory: set output.dir in the spec or pass --out")
-	}
-	if err := record.CheckOutNotInput(out, inputs); err != nil {
 		return nil, err
 	}
 	release, err := record.LockRunDir(out, opt.Log)
@@ -143,6 +130,29 @@ func RunSpec(ctx context.Context, s *spec.Spec, opt RunOptions) (*RunResult, err
 		return nil, err
 	}
 	return &RunResult{Dir: abs, Manifest: m, Runner: r}, runErr
+}
+
+// prepareSpec applies opt's --set overrides, resolves the inputs and
+// chooses the output directory (refusing one among the inputs).
+func prepareSpec(s *spec.Spec, opt RunOptions) ([]read.InputFile, string, error) {
+	if err := spec.ApplySets(s, opt.Sets); err != nil {
+		return nil, "", err
+	}
+	inputs, err := spec.ResolveInputs(s)
+	if err != nil {
+		return nil, "", err
+	}
+	out := opt.Out
+	if out == "" {
+		out = s.OutputDir
+	}
+	if out == "" {
+		return nil, "", errors.New("no output directory: set output.dir in the spec or pass --out")
+	}
+	if err := record.CheckOutNotInput(out, inputs); err != nil {
+		return nil, "", err
+	}
+	return inputs, out, nil
 }
 
 // removeStaleTemps deletes temp files a crashed earlier attempt left in the

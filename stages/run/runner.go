@@ -223,31 +223,17 @@ func (r *Runner) Run(ctx context.Context) error {
 	}
 	r.ledger = record.NewLedger(filepath.Join(r.Env.RunDir, "ledger"))
 	r.metrics = record.NewMetrics(filepath.Join(r.Env.RunDir, "metrics"))
-	r.Read = record.Counters{Name: "read", Kind: "read"}
 	if err := r.ledger.Open("read"); err != nil {
 		return err
 	}
 	r.wantMetrics()
 	r.chunkOf = chunkIndex(r.Inputs, Chunks(r.Inputs, r.Spec.ChunkBytes))
-	r.Counters = nil
+	r.initCounters()
 	for _, s := range r.Steps {
-		kind := ""
-		if s.Stage != nil {
-			kind = s.Stage.Kind()
-		} else {
-			kind = s.Global.Kind()
-		}
-		c := &record.Counters{Name: s.Name, Kind: kind, Global: s.Stage == nil}
-		if fw, ok := s.Stage.(stages.FileWriter); ok {
-			c.Files = fw.StageFiles()
-		}
-		r.Counters = append(r.Counters, c)
 		if err := r.ledger.Open(s.Name); err != nil {
 			return err
 		}
 	}
-	r.Write = record.Counters{Name: "write", Kind: "write"}
-	r.checkpointSeg = -1
 	start := time.Now()
 	stopProg := r.startProgress(start)
 	defer stopProg()
@@ -338,6 +324,28 @@ func (r *Runner) Run(ctx context.Context) error {
 		}
 	}
 	return err
+}
+
+// initCounters gives the read and write rows and every step a fresh
+// counter.
+func (r *Runner) initCounters() {
+	r.Read = record.Counters{Name: "read", Kind: "read"}
+	r.Counters = nil
+	for _, s := range r.Steps {
+		kind := ""
+		if s.Stage != nil {
+			kind = s.Stage.Kind()
+		} else {
+			kind = s.Global.Kind()
+		}
+		c := &record.Counters{Name: s.Name, Kind: kind, Global: s.Stage == nil}
+		if fw, ok := s.Stage.(stages.FileWriter); ok {
+			c.Files = fw.StageFiles()
+		}
+		r.Counters = append(r.Counters, c)
+	}
+	r.Write = record.Counters{Name: "write", Kind: "write"}
+	r.checkpointSeg = -1
 }
 
 func stageOf(s spec.Step) any {

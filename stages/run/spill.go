@@ -13,9 +13,10 @@ import (
 
 	"winnow/stages/jsonl"
 
-	"github.com/klauspost/compress/zstd"
 	"winnow/stages"
 	"winnow/stages/read"
+
+	"github.com/klauspost/compress/zstd"
 )
 
 // docSpill stores the documents that reached a global stage, so the next
@@ -26,15 +27,29 @@ import (
 // values later stages asked for (uvarint count; name, float64 bits LE;
 // sorted by name).
 type docSpill struct {
-	path string
-	f    *os.File
-	enc  *zstd.Encoder
-	buf  []byte
-	jb   jsonl.Object
-	n    int64
+	recordFile
+	jb jsonl.Object
+	n  int64
 }
 
 func createDocSpill(path string) (*docSpill, error) {
+	rf, err := createRecordFile(path)
+	if err != nil {
+		return nil, err
+	}
+	return &docSpill{recordFile: *rf}, nil
+}
+
+// recordFile is a zstd stream (fastest level) of length-prefixed records:
+// the runner's spills and a split run's key and id files.
+type recordFile struct {
+	path string
+	f    *os.File
+	enc  *zstd.Encoder
+	buf  []byte // the record being built, reused
+}
+
+func createRecordFile(path string) (*recordFile, error) {
 	f, err := os.Create(path)
 	if err != nil {
 		return nil, err
@@ -44,7 +59,27 @@ func createDocSpill(path string) (*docSpill, error) {
 		f.Close()
 		return nil, err
 	}
-	return &docSpill{path: path, f: f, enc: enc}, nil
+	return &recordFile{path: path, f: f, enc: enc}, nil
+}
+
+// put writes b as one record and keeps it as the buffer for the next.
+func (w *recordFile) put(b []byte) error {
+	var hdr [binary.MaxVarintLen64]byte
+	n := binary.PutUvarint(hdr[:], uint64(len(b)))
+	w.buf = b
+	if _, err := w.enc.Write(hdr[:n]); err != nil {
+		return err
+	}
+	_, err := w.enc.Write(b)
+	return err
+}
+
+func (w *recordFile) close() error {
+	err := w.enc.Close()
+	if e := w.f.Close(); err == nil {
+		err = e
+	}
+	return err
 }
 
 func (s *docSpill) add(d *stages.Doc) error {
@@ -74,28 +109,13 @@ func (s *docSpill) add(d *stages.Doc) error {
 			b = binary.LittleEndian.AppendUint64(b, math.Float64bits(d.Measured[k]))
 		}
 	}
-	var hdr [binary.MaxVarintLen64]byte
-	n := binary.PutUvarint(hdr[:], uint64(len(b)))
-	if _, err := s.enc.Write(hdr[:n]); err != nil {
-		return err
-	}
-	_, err := s.enc.Write(b)
-	s.buf = b
 	s.n++
-	return err
+	return s.put(b)
 }
 
 func appendField(b []byte, s string) []byte {
 	b = binary.AppendUvarint(b, uint64(len(s)))
 	return append(b, s...)
-}
-
-func (s *docSpill) close() error {
-	err := s.enc.Close()
-	if e := s.f.Close(); err == nil {
-		err = e
-	}
-	return err
 }
 
 // spillReader reads a docSpill back in order.
