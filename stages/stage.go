@@ -217,6 +217,33 @@ type KeyCodec interface {
 	DecodeKeys(b []byte) (any, error)
 }
 
+// Feed calls collect with every document's scan keys, in input order:
+// exactly the sequence of Collect calls a single process makes. It may be
+// called more than once.
+type Feed func(collect func(order OrderKey, id string, keys any) error) error
+
+// SplitReducer is implemented by global stages whose Reduce can be cut
+// into a fixed number of parts that separate processes reduce: a split
+// run's reduce phase hands the parts out to its tasks, and every task of
+// the next phase loads all the parts' results instead of reducing. A task
+// then holds only its parts' share of the keys.
+type SplitReducer interface {
+	// ReduceParts is the number of parts, fixed by the stage's
+	// parameters (never by the number of tasks).
+	ReduceParts() int
+	// ReduceSome reduces the parts ps (ascending, a subset of
+	// 0..ReduceParts()-1) from the keys feed delivers, keeping only what
+	// those parts need, and returns one result per part of ps, in order.
+	// Results are deterministic bytes.
+	ReduceSome(ps []int, feed Feed) ([][]byte, error)
+	// LoadReduced takes every part's result, in part order, and makes
+	// Apply decide every document exactly as after Collect and Reduce in
+	// one process. Unless the stage was built with Env.NoKeyFiles it also
+	// writes the run's key files, byte-identical to those Reduce writes;
+	// for that it may call feed.
+	LoadReduced(results [][]byte, feed Feed) error
+}
+
 // ReportSplitter is implemented by Observer stages whose run-wide report
 // can be built in parts: in a split run each unit of work observes a range
 // of consecutive documents and saves its part (SaveReport returns the part
