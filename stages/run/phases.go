@@ -49,8 +49,25 @@ import (
 type Phase struct {
 	Name string
 	// Seg is the pipeline segment the phase runs; -1 for the write phase.
+	// A reduce phase has the segment whose scan feeds it.
 	Seg int
+	// Reduce is the step of the global stage a reduce phase reduces; -1
+	// for other phases.
+	Reduce int
 }
+
+// docsPhaseOf names the document phase that runs segment seg.
+func (sr *splitRun) docsPhaseOf(seg int) string {
+	for _, p := range sr.phases {
+		if p.Seg == seg && p.Reduce < 0 {
+			return p.Name
+		}
+	}
+	return ""
+}
+
+// reducePhaseName names the reduce phase of a global stage.
+func reducePhaseName(stage string) string { return "reduce-" + stage }
 
 // The fixed phase names; the others are the names of global stages.
 const (
@@ -76,10 +93,13 @@ func Phases(steps []spec.Step) []Phase {
 		name := PhaseRead
 		if seg.apply >= 0 {
 			name = steps[seg.apply].Name
+			if _, ok := steps[seg.apply].Global.(stages.SplitReducer); ok {
+				out = append(out, Phase{Name: reducePhaseName(name), Seg: i - 1, Reduce: seg.apply})
+			}
 		}
-		out = append(out, Phase{Name: name, Seg: i})
+		out = append(out, Phase{Name: name, Seg: i, Reduce: -1})
 	}
-	return append(out, Phase{Name: PhaseWrite, Seg: -1})
+	return append(out, Phase{Name: PhaseWrite, Seg: -1, Reduce: -1})
 }
 
 // IsSplitRunDir reports whether dir holds an unfinished split run (or one
@@ -246,7 +266,15 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 	frozen.Units = len(sr.chunks)
 	frozen.Spec, _ = filepath.Abs(s.File)
 	for _, p := range phases {
+		n := len(sr.chunks)
+		switch {
+		case p.Seg < 0:
+			n = 1
+		case p.Reduce >= 0:
+			n = csteps[p.Reduce].Global.(stages.SplitReducer).ReduceParts()
+		}
 		frozen.Phases = append(frozen.Phases, p.Name)
+		frozen.PhaseUnits = append(frozen.PhaseUnits, n)
 	}
 	if err := os.MkdirAll(filepath.Join(abs, unitsDir), 0o755); err != nil {
 		return nil, err
@@ -296,7 +324,11 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 				continue
 			}
 		} else {
-			for u := range sr.chunks {
+			n := len(sr.chunks)
+			if phases[pi].Reduce >= 0 {
+				n = csteps[phases[pi].Reduce].Global.(stages.SplitReducer).ReduceParts()
+			}
+			for u := 0; u < n; u++ {
 				if u%opt.Tasks != opt.Task {
 					continue
 				}
@@ -315,8 +347,9 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 				continue
 			}
 		}
-		if opt.Phase != PhaseAll && phases[pi].Seg > 0 && !slices.Contains(mine, 0) {
-			// Unit 0's task writes the global stage's key files.
+		if opt.Phase != PhaseAll && (phases[pi].Reduce >= 0 || (phases[pi].Seg > 0 && !slices.Contains(mine, 0))) {
+			// Unit 0's task of the phase after a global stage writes the
+			// stage's key files.
 			sr.env.NoKeyFiles = true
 		}
 		if err := sr.build(); err != nil {
@@ -332,6 +365,12 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 			}
 			res.Manifest = m
 			res.Units = append(res.Units, 0)
+			continue
+		}
+		if phases[pi].Reduce >= 0 {
+			if err := sr.reducePhase(ctx, sr.phases[pi], mine, res); err != nil {
+				return res, err
+			}
 			continue
 		}
 		if err := sr.docsPhase(ctx, sr.phases[pi], mine, res); err != nil {
@@ -400,8 +439,8 @@ func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *Ph
 	seg := sr.segs[ph.Seg]
 	var prev string
 	if seg.apply >= 0 {
-		prev = sr.phases[ph.Seg-1].Name
-		if err := sr.requireDone(prev); err != nil {
+		prev = sr.docsPhaseOf(ph.Seg - 1)
+		if err := sr.requireDone(prev, len(sr.chunks)); err != nil {
 			return err
 		}
 		if err := sr.rebuild(ctx, prev, seg.apply); err != nil {
@@ -426,9 +465,9 @@ func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *Ph
 }
 
 // requireDone checks that every unit of phase is done.
-func (sr *splitRun) requireDone(phase string) error {
+func (sr *splitRun) requireDone(phase string, n int) error {
 	var missing, failed []string
-	for u := range sr.chunks {
+	for u := 0; u < n; u++ {
 		m, err := readMarker(sr.dir, phase, u)
 		if err != nil {
 			return err
@@ -457,52 +496,139 @@ func (sr *splitRun) requireDone(phase string) error {
 	return fmt.Errorf("%s run `winnow run %s --out %s --phase %s` (any task count) first", msg, sr.spec.File, sr.dir, phase)
 }
 
-// rebuild feeds the keys every unit of phase prev stored to the global
-// stage at step gi, in input order, and reduces it.
-func (sr *splitRun) rebuild(ctx context.Context, prev string, gi int) error {
+// feed returns the keys every unit of phase prev stored for the global
+// stage at step gi, in input order (the Collect sequence of one process).
+func (sr *splitRun) feed(ctx context.Context, prev string, gi int) stages.Feed {
 	g := sr.steps[gi].Global
 	codec, _ := g.(stages.KeyCodec)
-	for u := range sr.chunks {
-		if ctx.Err() != nil {
-			return ctx.Err()
+	return func(collect func(order stages.OrderKey, id string, keys any) error) error {
+		for u := range sr.chunks {
+			if ctx.Err() != nil {
+				return ctx.Err()
+			}
+			m, err := readMarker(sr.dir, prev, u)
+			if err != nil {
+				return err
+			}
+			if m == nil {
+				return fmt.Errorf("unit %d of phase %s is not done", u, prev)
+			}
+			ud := unitDir(sr.dir, prev, u)
+			if codec != nil && m.State.Keys {
+				err = forEachRecord(filepath.Join(ud, "keys.zst"), func(b []byte) error {
+					o, rest, ok := takeUvarint(b)
+					if !ok {
+						return errSpill
+					}
+					id, rest, ok := takeField(rest)
+					if !ok {
+						return errSpill
+					}
+					kb, _, ok := takeField(rest)
+					if !ok {
+						return errSpill
+					}
+					keys, err := codec.DecodeKeys([]byte(kb))
+					if err != nil {
+						return fmt.Errorf("keys of %s: %w", id, err)
+					}
+					return collect(stages.OrderKey(o), id, keys)
+				})
+			} else {
+				// No stored keys: scan the unit's documents again (Scan is pure).
+				err = forEachSpilled(filepath.Join(ud, "docs.zst"), func(d *stages.Doc) error {
+					return collect(d.Order, d.ID, g.Scan(d))
+				})
+			}
+			if err != nil {
+				return fmt.Errorf("stage %s, unit %d of phase %s: %w", sr.steps[gi].Name, u, prev, err)
+			}
 		}
-		m, err := readMarker(sr.dir, prev, u)
+		return nil
+	}
+}
+
+// rebuild prepares the global stage at step gi for Apply: from the
+// results of its reduce phase when it has one, else by feeding it every
+// stored key and reducing here.
+func (sr *splitRun) rebuild(ctx context.Context, prev string, gi int) error {
+	g := sr.steps[gi].Global
+	name := sr.steps[gi].Name
+	feed := sr.feed(ctx, prev, gi)
+	if sp, ok := g.(stages.SplitReducer); ok {
+		rp := reducePhaseName(name)
+		n := sp.ReduceParts()
+		if err := sr.requireDone(rp, n); err != nil {
+			return err
+		}
+		results := make([][]byte, n)
+		for p := 0; p < n; p++ {
+			b, err := os.ReadFile(filepath.Join(unitDir(sr.dir, rp, p), "result.bin"))
+			if err != nil {
+				return err
+			}
+			results[p] = b
+		}
+		if err := sp.LoadReduced(results, feed); err != nil {
+			return fmt.Errorf("stage %s: %w", name, err)
+		}
+		return nil
+	}
+	if err := feed(g.Collect); err != nil {
+		return err
+	}
+	if err := g.Reduce(); err != nil {
+		return fmt.Errorf("stage %s: %w", name, err)
+	}
+	return nil
+}
+
+// reducePhase runs the parts ps of a global stage's reduce and commits
+// each part's result as a unit.
+func (sr *splitRun) reducePhase(ctx context.Context, ph Phase, ps []int, res *PhaseResult) error {
+	prev := sr.docsPhaseOf(ph.Seg) // the document phase that scanned the stage's keys
+	if err := sr.requireDone(prev, len(sr.chunks)); err != nil {
+		return err
+	}
+	sp := sr.steps[ph.Reduce].Global.(stages.SplitReducer)
+	t0 := time.Now()
+	for _, p := range ps {
+		if err := fault(ph.Name, p, "start"); err != nil {
+			return err
+		}
+	}
+	results, err := sp.ReduceSome(ps, sr.feed(ctx, prev, ph.Reduce))
+	if err == nil && len(results) != len(ps) {
+		err = fmt.Errorf("stage %s returned %d results for %d parts", sr.steps[ph.Reduce].Name, len(results), len(ps))
+	}
+	if err != nil {
+		if !errors.Is(err, context.Canceled) {
+			for _, p := range ps {
+				sr.writeFailed(ph.Name, p, err, time.Since(t0))
+			}
+		}
+		return fmt.Errorf("phase %s, parts %v: %w", ph.Name, ps, err)
+	}
+	for i, p := range ps {
+		tmp, err := os.MkdirTemp(filepath.Join(sr.dir, unitsDir), fmt.Sprintf("unit-%s-%05d-", ph.Name, p))
 		if err != nil {
 			return err
 		}
-		ud := unitDir(sr.dir, prev, u)
-		if codec != nil && m.State.Keys {
-			err = forEachRecord(filepath.Join(ud, "keys.zst"), func(b []byte) error {
-				o, rest, ok := takeUvarint(b)
-				if !ok {
-					return errSpill
-				}
-				id, rest, ok := takeField(rest)
-				if !ok {
-					return errSpill
-				}
-				kb, _, ok := takeField(rest)
-				if !ok {
-					return errSpill
-				}
-				keys, err := codec.DecodeKeys([]byte(kb))
-				if err != nil {
-					return fmt.Errorf("keys of %s: %w", id, err)
-				}
-				return g.Collect(stages.OrderKey(o), id, keys)
-			})
-		} else {
-			// No stored keys: scan the unit's documents again (Scan is pure).
-			err = forEachSpilled(filepath.Join(ud, "docs.zst"), func(d *stages.Doc) error {
-				return g.Collect(d.Order, d.ID, g.Scan(d))
-			})
+		err = os.WriteFile(filepath.Join(tmp, "result.bin"), results[i], 0o644)
+		if err == nil {
+			err = fault(ph.Name, p, "written")
 		}
+		if err == nil {
+			err = sr.commitUnit(tmp, ph.Name, p, &unitState{}, nil, t0)
+		}
+		os.RemoveAll(tmp)
 		if err != nil {
-			return fmt.Errorf("stage %s, unit %d of phase %s: %w", sr.steps[gi].Name, u, prev, err)
+			return err
 		}
-	}
-	if err := g.Reduce(); err != nil {
-		return fmt.Errorf("stage %s: %w", sr.steps[gi].Name, err)
+		if err := fault(ph.Name, p, "renamed"); err != nil {
+			return err
+		}
+		res.Units = append(res.Units, p)
 	}
 	return nil
 }

@@ -50,10 +50,10 @@ func ReadSplitStatus(dir string) (*SplitStatus, error) {
 		return nil, fmt.Errorf("%s: %w", filepath.Join(dir, unitsDir, "inputs.json"), err)
 	}
 	st := &SplitStatus{Dir: dir, Spec: f.Spec}
-	for _, name := range f.Phases {
+	for i, name := range f.Phases {
 		ps := PhaseStatus{Name: name, Units: f.Units}
-		if name == PhaseWrite {
-			ps.Units = 1
+		if i < len(f.PhaseUnits) {
+			ps.Units = f.PhaseUnits[i]
 		}
 		for u := 0; u < ps.Units; u++ {
 			if name == PhaseWrite {

@@ -32,10 +32,15 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 	if err := fault(PhaseWrite, 0, "start"); err != nil {
 		return nil, err
 	}
-	docPhases := sr.phases[:len(sr.phases)-1]
+	var docPhases []Phase
+	for _, p := range sr.phases {
+		if p.Seg >= 0 && p.Reduce < 0 {
+			docPhases = append(docPhases, p)
+		}
+	}
 	markers := make([][]*unitMarker, len(docPhases))
 	for pi, ph := range docPhases {
-		if err := sr.requireDone(ph.Name); err != nil {
+		if err := sr.requireDone(ph.Name, len(sr.chunks)); err != nil {
 			return nil, err
 		}
 		for u := range sr.chunks {

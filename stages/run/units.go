@@ -32,6 +32,7 @@ type frozenInputs struct {
 	Spec       string        `json:"spec"`
 	Phases     []string      `json:"phases"`
 	Units      int           `json:"units"`
+	PhaseUnits []int         `json:"phase_units"`
 	ChunkBytes int64         `json:"chunk_bytes"`
 	Inputs     []frozenInput `json:"inputs"`
 }
