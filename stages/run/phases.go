@@ -460,6 +460,9 @@ func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *Ph
 			return fmt.Errorf("phase %s, unit %d: %w", ph.Name, u, err)
 		}
 		res.Units = append(res.Units, u)
+		if m, err := readMarker(sr.dir, ph.Name, u); err == nil && m != nil && m.State != nil {
+			sr.logf("phase %s, unit %d of %d: %d documents passed on, %.1f s", ph.Name, u, len(sr.chunks), m.State.Docs, time.Since(t0).Seconds())
+		}
 	}
 	return nil
 }
