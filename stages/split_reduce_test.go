@@ -57,6 +57,11 @@ func splitCases() []splitCase {
 				params: map[string]any{"keep": keep}, docs: splitDocs, against: against, keyFiles: true})
 		}
 	}
+	for _, action := range []string{"cut", "drop"} {
+		out = append(out, splitCase{name: "decontaminate max_doc_frequency " + action, kind: "decontaminate",
+			params:  map[string]any{"evals": decontamEvalParams(), "max_doc_frequency": 2, "action": action},
+			specDir: "..", docs: func(tb testing.TB) []*Doc { return makeDocs(contamDocs(tb)) }})
+	}
 	return out
 }
 
@@ -64,6 +69,10 @@ func splitCases() []splitCase {
 type splitRun struct {
 	decisions []string
 	keys      map[string]string // path under keys/ -> sha256
+	// report is the run-level file a Finisher wrote (contamination.json).
+	report string
+	// ignored is the number of n-grams decontaminate ignored.
+	ignored int
 }
 
 // keyHashes returns the sha256 of every file under dir/keys.
@@ -110,12 +119,35 @@ func feedOf(docs []*Doc, keys []any) Feed {
 	}
 }
 
-func decide(g GlobalStage, docs []*Doc) []string {
-	out := make([]string, len(docs))
+// finish decides about every document (observing the decisions when the
+// stage aggregates a report, and writing the report) and hashes the key
+// files.
+func finish(tb testing.TB, g GlobalStage, docs []*Doc, runDir string) splitRun {
+	tb.Helper()
+	r := splitRun{decisions: make([]string, len(docs)), keys: keyHashes(tb, runDir)}
 	for i, d := range docs {
-		out[i] = renderDecision(g.Apply(d))
+		dec := g.Apply(d)
+		r.decisions[i] = renderDecision(dec)
+		if o, ok := g.(Observer); ok {
+			o.Observe(d, &dec)
+		}
 	}
-	return out
+	if f, ok := g.(Finisher); ok {
+		if err := f.Finish(runDir); err != nil {
+			tb.Fatal(err)
+		}
+		for _, name := range []string{"contamination.json"} {
+			b, err := os.ReadFile(filepath.Join(runDir, name))
+			if err != nil {
+				tb.Fatal(err)
+			}
+			r.report += string(b)
+		}
+	}
+	if dc, ok := g.(*Decontaminate); ok {
+		r.ignored = dc.Report().IgnoredNgrams
+	}
+	return r
 }
 
 // runSplit reduces docs in one of three ways: groups nil is Collect and
@@ -142,7 +174,7 @@ func (c splitCase) runSplit(t *testing.T, docs []*Doc, against string, nGroups i
 		if err := scanner.Reduce(); err != nil {
 			t.Fatal(err)
 		}
-		return splitRun{decide(scanner, docs), keyHashes(t, runDir)}
+		return finish(t, scanner, docs, runDir)
 	}
 	sr, ok := scanner.(SplitReducer)
 	if !ok {
@@ -179,7 +211,7 @@ func (c splitCase) runSplit(t *testing.T, docs []*Doc, against string, nGroups i
 	if err := loader.(SplitReducer).LoadReduced(results, feed); err != nil {
 		t.Fatal(err)
 	}
-	return splitRun{decide(loader, docs), keyHashes(t, runDir)}
+	return finish(t, loader, docs, runDir)
 }
 
 // TestSplitReduceMatchesReduce: for every global stage that reduces in
@@ -225,7 +257,10 @@ func TestSplitReduceMatchesReduce(t *testing.T) {
 			if c.keyFiles && len(want.keys) == 0 {
 				t.Fatalf("Reduce wrote no key files")
 			}
-			t.Logf("%d docs, %d removed (%d of the previous run), key files %d", len(docs), removed, againstHits, len(want.keys))
+			if c.kind == "decontaminate" && want.ignored == 0 {
+				t.Fatalf("no n-gram ignored: max_doc_frequency shows nothing")
+			}
+			t.Logf("%d docs, %d removed or edited (%d of the previous run), key files %d, n-grams ignored %d", len(docs), removed, againstHits, len(want.keys), want.ignored)
 			for _, groups := range []int{1, 3} {
 				got := c.runSplit(t, docs, prev, groups)
 				for i, d := range docs {
@@ -233,10 +268,75 @@ func TestSplitReduceMatchesReduce(t *testing.T) {
 						t.Errorf("%d groups: %s: %q, Reduce decided %q", groups, d.ID, got.decisions[i], want.decisions[i])
 					}
 				}
+				if got.report != want.report {
+					t.Errorf("%d groups: report\n%s\nReduce's\n%s", groups, got.report, want.report)
+				}
 				if fmt.Sprint(got.keys) != fmt.Sprint(want.keys) {
 					t.Errorf("%d groups: key files %v, Reduce wrote %v", groups, got.keys, want.keys)
 				}
 			}
 		})
+	}
+}
+
+// FuzzDecontamPart: decoding arbitrary bytes as a part of n keys never
+// panics and gives ascending offsets below n; what decodes re-encodes to
+// bytes that decode to the same offsets. Seeds include real results of
+// ReduceSome over the real eval sets and mail with pasted questions.
+func FuzzDecontamPart(f *testing.F) {
+	g := buildGlobal(f, "decontaminate", map[string]any{"evals": decontamEvalParams(), "max_doc_frequency": 2}, Env{SpecDir: ".."})
+	dc := g.(*Decontaminate)
+	docs := makeDocs(contamDocs(f))
+	keys := make([]any, len(docs))
+	for i, d := range docs {
+		keys[i] = dc.Scan(d)
+	}
+	all := make([]int, decontamParts)
+	for i := range all {
+		all[i] = i
+	}
+	res, err := dc.ReduceSome(all, feedOf(docs, keys))
+	if err != nil {
+		f.Fatal(err)
+	}
+	for p, b := range res {
+		f.Add(b, uint32(dc.partLo(p+1)-dc.partLo(p)))
+	}
+	f.Add(encodeDecontamPart(nil, []int{0, 1, 5, 300}), uint32(301))
+	f.Add(encodeDecontamPart(nil, nil), uint32(0))
+	f.Fuzz(func(t *testing.T, b []byte, n uint32) {
+		n %= 1 << 24
+		ks, err := decodeDecontamPart(b, int(n))
+		if err != nil {
+			return
+		}
+		for i, k := range ks {
+			if k < 0 || k >= int(n) || (i > 0 && k <= ks[i-1]) {
+				t.Fatalf("offsets %v of a part of %d keys", ks, n)
+			}
+		}
+		again, err := decodeDecontamPart(encodeDecontamPart(nil, ks), int(n))
+		if err != nil || fmt.Sprint(again) != fmt.Sprint(ks) {
+			t.Fatalf("re-encoded %v decodes to %v, %v", ks, again, err)
+		}
+	})
+}
+
+// TestDecontamPartRoundTrip: a part's result decodes to the keys it was
+// made of and no proper prefix decodes.
+func TestDecontamPartRoundTrip(t *testing.T) {
+	ks := []int{0, 3, 4, 127, 128, 20000}
+	b := encodeDecontamPart(nil, ks)
+	got, err := decodeDecontamPart(b, 20001)
+	if err != nil || fmt.Sprint(got) != fmt.Sprint(ks) {
+		t.Fatalf("decoded %v, %v", got, err)
+	}
+	if _, err := decodeDecontamPart(b, 20000); err == nil {
+		t.Fatal("key 20000 accepted in a part of 20000 keys")
+	}
+	for n := 0; n < len(b); n++ {
+		if _, err := decodeDecontamPart(b[:n], 20001); err == nil {
+			t.Fatalf("the first %d of %d bytes decoded", n, len(b))
+		}
 	}
 }
