@@ -5,7 +5,7 @@ package dedup
 // Each document's text is normalized (normalize.go: case folded,
 // whitespace collapsed, optionally punctuation deleted and digits folded)
 // and hashed with xxh3-128. Add appends one 24-byte record (hash high,
-// hash low, order key) to one of 16 partition files chosen by the top 4
+// hash low, order key) to one of 64 partition files chosen by the top 6
 // bits of the hash; the document's id goes to an append-only id log on
 // disk. Reduce sorts the partitions one at a time (in memory when one
 // partition fits the memory budget, else with an external Sorter that
@@ -206,6 +206,10 @@ type ExactIndex struct {
 	rm       removals
 	stats    IndexStats
 	prevPath string
+	// only, when not nil, marks the partitions this index reduces
+	// (RestrictPartitions); records of the others are skipped.
+	only     []bool
+	onlyList []int
 }
 
 // NewExactIndex returns an empty index. When opt.Against is set, the
@@ -285,7 +289,11 @@ func (x *ExactIndex) AddPriority(order uint64, id string, h Hash128, priority ui
 		return fmt.Errorf("dedup: documents out of input order (order key %d after %d)", order, x.last)
 	}
 	x.started, x.last = true, order
-	if err := x.parts.add(int(h.Hi>>(64-exactPartitionBits)), exactRec{h.Hi, h.Lo, priority, order}); err != nil {
+	p := int(h.Hi >> (64 - exactPartitionBits))
+	if x.only != nil && !x.only[p] {
+		return nil // another task reduces this partition (exact_split.go)
+	}
+	if err := x.parts.add(p, exactRec{h.Hi, h.Lo, priority, order}); err != nil {
 		return err
 	}
 	x.stats.Docs++
@@ -299,19 +307,6 @@ func (x *ExactIndex) Reduce() (err error) {
 		return errors.New("dedup: ExactIndex.Reduce called twice")
 	}
 	x.reduced = true
-	if err := x.parts.flush(); err != nil {
-		return err
-	}
-	it := &exactSource{x: x}
-	defer it.close()
-
-	var prev *exactKeyReader
-	if x.opt.Against != "" {
-		if prev, err = openExactKeys(x.opt.Against); err != nil {
-			return err
-		}
-		defer prev.close()
-	}
 	var out *fsio.AtomicFile
 	if x.opt.KeysOut != "" {
 		if out, err = fsio.CreateAtomic(x.opt.KeysOut + ".hashes"); err != nil {
@@ -322,54 +317,22 @@ func (x *ExactIndex) Reduce() (err error) {
 				out.Abort()
 			}
 		}()
-		hdr := make([]byte, exactHeaderLen)
-		copy(hdr, exactKeysMagic)
-		hdr[8] = normFlags(x.opt.Norm)
-		if _, err = out.Write(hdr); err != nil {
+		if _, err = out.Write(exactKeysHeader(x.opt.Norm)); err != nil {
 			return err
 		}
 	}
-
 	var recBuf [exactKeyLen]byte
-	cur, have := it.Next()
-	for have {
-		first := cur
-		rep := int32(-1)
-		if prev != nil {
-			p, ok, perr := prev.seek(first)
-			if perr != nil {
-				return perr
-			}
-			if ok {
-				rep = x.rm.addRep(p.order, true)
-				x.rm.add(first.order, rep, 1)
-				x.stats.RemovedPrev++
-			}
+	err = x.walk(func(r exactRec) error {
+		if out == nil {
+			return nil
 		}
-		if rep < 0 && out != nil {
-			putExactKey(recBuf[:], first)
-			if _, err = out.Write(recBuf[:]); err != nil {
-				return err
-			}
-		}
-		for {
-			cur, have = it.Next()
-			if !have || cmpExactHash(cur, first) != 0 {
-				break
-			}
-			if rep < 0 {
-				rep = x.rm.addRep(first.order, false)
-			} else if x.rm.reps[rep].against {
-				x.stats.RemovedPrev++
-			}
-			x.rm.add(cur.order, rep, 1)
-		}
-	}
-	if err = it.err; err != nil {
+		putExactKey(recBuf[:], r)
+		_, err := out.Write(recBuf[:])
+		return err
+	})
+	if err != nil {
 		return err
 	}
-	x.rm.sort()
-	x.stats.Removed = int64(len(x.rm.list))
 
 	// Pass over the id log in input order: ids of kept documents that
 	// copies point to, and this run's kept ids.
@@ -384,6 +347,24 @@ func (x *ExactIndex) Reduce() (err error) {
 			}
 		}()
 	}
+	if err = x.resolveIDs(ids); err != nil {
+		return err
+	}
+	if out != nil {
+		if err = out.Commit(); err != nil {
+			return fmt.Errorf("dedup: keys: %w", err)
+		}
+		if err = ids.commit(); err != nil {
+			return fmt.Errorf("dedup: keys: %w", err)
+		}
+	}
+	return nil
+}
+
+// resolveIDs passes over the id log in input order: it fills the ids of
+// kept documents that copies point to (and of a previous run's, from its
+// ids file) and, when ids is not nil, writes this run's kept ids.
+func (x *ExactIndex) resolveIDs(ids *idsOut) error {
 	need := x.rm.repsNeeded(false)
 	rd, err := x.ids.reader()
 	if err != nil {
@@ -410,25 +391,84 @@ func (x *ExactIndex) Reduce() (err error) {
 		}
 		removed := ri < len(x.rm.list) && x.rm.list[ri].order == order
 		if !removed && ids != nil {
-			if err = ids.add(order, id); err != nil {
+			if err := ids.add(order, id); err != nil {
 				return err
 			}
 		}
 	}
 	x.ids.close()
-	if prev != nil {
-		if err = x.rm.resolvePrevIDs(x.opt.Against + ".ids.zst"); err != nil {
+	if x.opt.Against != "" {
+		return x.rm.resolvePrevIDs(x.opt.Against + ".ids.zst")
+	}
+	return nil
+}
+
+// exactKeysHeader is the 16-byte header of a PREFIX.hashes file.
+func exactKeysHeader(norm Normalization) []byte {
+	hdr := make([]byte, exactHeaderLen)
+	copy(hdr, exactKeysMagic)
+	hdr[8] = normFlags(norm)
+	return hdr
+}
+
+// walk sorts the partitions one at a time and walks the records in
+// (hash, priority, order) order, filling x.rm (sorted by order key at the
+// end, reps without ids). kept is called, in hash order, with the record
+// of every hash group this run keeps (the key-file records).
+func (x *ExactIndex) walk(kept func(exactRec) error) (err error) {
+	if err := x.parts.flush(); err != nil {
+		return err
+	}
+	it := &exactSource{x: x}
+	defer it.close()
+	var prev *exactKeyReader
+	if x.opt.Against != "" {
+		if prev, err = openExactKeys(x.opt.Against); err != nil {
 			return err
 		}
+		defer prev.close()
 	}
-	if out != nil {
-		if err = out.Commit(); err != nil {
-			return fmt.Errorf("dedup: keys: %w", err)
+	cur, have := it.Next()
+	for have {
+		first := cur
+		part := uint8(first.hi >> (64 - exactPartitionBits))
+		rep := int32(-1)
+		if prev != nil {
+			p, ok, perr := prev.seek(first)
+			if perr != nil {
+				return perr
+			}
+			if ok {
+				rep = x.rm.addRep(p.order, true)
+				x.rm.reps[rep].part = part
+				x.rm.add(first.order, rep, 1)
+				x.stats.RemovedPrev++
+			}
 		}
-		if err = ids.commit(); err != nil {
-			return fmt.Errorf("dedup: keys: %w", err)
+		if rep < 0 {
+			if err = kept(first); err != nil {
+				return err
+			}
+		}
+		for {
+			cur, have = it.Next()
+			if !have || cmpExactHash(cur, first) != 0 {
+				break
+			}
+			if rep < 0 {
+				rep = x.rm.addRep(first.order, false)
+				x.rm.reps[rep].part = part
+			} else if x.rm.reps[rep].against {
+				x.stats.RemovedPrev++
+			}
+			x.rm.add(cur.order, rep, 1)
 		}
 	}
+	if err = it.err; err != nil {
+		return err
+	}
+	x.rm.sort()
+	x.stats.Removed = int64(len(x.rm.list))
 	return nil
 }
 
@@ -592,6 +632,7 @@ type repInfo struct {
 	order   uint64 // order key of the kept document (in its own run)
 	id      string
 	against bool
+	part    uint8 // exact dedup: the hash partition of the group
 }
 
 // removals is the decision table an index builds in Reduce and Apply
