@@ -66,6 +66,15 @@ func (sr *splitRun) docsPhaseOf(seg int) string {
 	return ""
 }
 
+// splitReducer returns g's SplitReducer when its reduce is cut into parts
+// in this configuration (ReduceParts > 0), else nil.
+func splitReducer(g stages.GlobalStage) stages.SplitReducer {
+	if sp, ok := g.(stages.SplitReducer); ok && sp.ReduceParts() > 0 {
+		return sp
+	}
+	return nil
+}
+
 // reducePhaseName names the reduce phase of a global stage.
 func reducePhaseName(stage string) string { return "reduce-" + stage }
 
@@ -93,7 +102,7 @@ func Phases(steps []spec.Step) []Phase {
 		name := PhaseRead
 		if seg.apply >= 0 {
 			name = steps[seg.apply].Name
-			if _, ok := steps[seg.apply].Global.(stages.SplitReducer); ok {
+			if splitReducer(steps[seg.apply].Global) != nil {
 				out = append(out, Phase{Name: reducePhaseName(name), Seg: i - 1, Reduce: seg.apply})
 			}
 		}
@@ -371,6 +380,9 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 			if err := sr.reducePhase(ctx, sr.phases[pi], mine, res); err != nil {
 				return res, err
 			}
+			// The stage reduced parts; the next phase loads all of them
+			// into a stage built afresh.
+			sr.steps = nil
 			continue
 		}
 		if err := sr.docsPhase(ctx, sr.phases[pi], mine, res); err != nil {
@@ -558,7 +570,7 @@ func (sr *splitRun) rebuild(ctx context.Context, prev string, gi int) error {
 	g := sr.steps[gi].Global
 	name := sr.steps[gi].Name
 	feed := sr.feed(ctx, prev, gi)
-	if sp, ok := g.(stages.SplitReducer); ok {
+	if sp := splitReducer(g); sp != nil {
 		rp := reducePhaseName(name)
 		n := sp.ReduceParts()
 		if err := sr.requireDone(rp, n); err != nil {
