@@ -164,6 +164,10 @@ type NearIndex struct {
 	reduced  bool
 	rm       removals
 	stats    IndexStats
+	// only, when not nil, marks the band-key partitions this index
+	// reduces (RestrictPartitions); band keys of the others are skipped.
+	only     []bool
+	onlyList []int
 }
 
 // NewNearIndex returns an empty index, checking a previous run's key file
@@ -290,7 +294,11 @@ func (x *NearIndex) Add(order uint64, id string, k *NearKey) error {
 		return err
 	}
 	for _, h := range k.Bands {
-		if err := x.bands.add(x.partition(h), bandKey(h, idx)); err != nil {
+		p := x.partition(h)
+		if x.only != nil && !x.only[p] {
+			continue // another task reduces this partition (near_split.go)
+		}
+		if err := x.bands.add(p, bandKey(h, idx)); err != nil {
 			return err
 		}
 	}
@@ -522,7 +530,11 @@ func (x *NearIndex) loadPrev() error {
 		}
 		bands = x.band.Hashes(sig, bands[:0])
 		for _, h := range bands {
-			if err := x.prevBd.add(x.partition(h), bandKey(h, j)); err != nil {
+			p := x.partition(h)
+			if x.only != nil && !x.only[p] {
+				continue
+			}
+			if err := x.prevBd.add(p, bandKey(h, j)); err != nil {
 				return err
 			}
 		}

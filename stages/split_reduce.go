@@ -221,3 +221,41 @@ func (d *Decontaminate) LoadReduced(results [][]byte, feed Feed) error {
 	d.df = nil
 	return nil
 }
+
+// ReduceParts is the number of band-key partitions of near dedup.
+func (s *nearDedupStage) ReduceParts() int { return dedup.KeyPartitions }
+
+// ReduceSome feeds every document (signatures and priorities are needed
+// to verify and rank the candidates) but keeps band keys of the
+// partitions ps only, and returns their verified pairs.
+func (s *nearDedupStage) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
+	if err := s.idx.RestrictPartitions(ps); err != nil {
+		return nil, fmt.Errorf("%s: %w", s.name, err)
+	}
+	if err := feed(s.Collect); err != nil {
+		return nil, err
+	}
+	out, err := s.idx.ReduceSplit()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", s.name, err)
+	}
+	return out, nil
+}
+
+// LoadReduced makes the greedy pass over every partition's pairs and
+// writes the key file (signatures and ids from feed, in input order).
+func (s *nearDedupStage) LoadReduced(results [][]byte, feed Feed) error {
+	err := s.idx.LoadSplit(results, func(emit func(uint64, string, *dedup.NearKey) error) error {
+		return feed(func(order OrderKey, id string, keys any) error {
+			k, ok := keys.(*dedup.NearKey)
+			if keys != nil && !ok {
+				return fmt.Errorf("%s: unexpected scan key %T", s.name, keys)
+			}
+			return emit(uint64(order), id, k)
+		})
+	})
+	if err != nil {
+		return fmt.Errorf("%s: %w", s.name, err)
+	}
+	return nil
+}

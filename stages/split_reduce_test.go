@@ -55,8 +55,12 @@ func splitCases() []splitCase {
 			}
 			out = append(out, splitCase{name: "exact_dedup" + suffix, kind: "exact_dedup",
 				params: map[string]any{"keep": keep}, docs: splitDocs, against: against, keyFiles: true})
+			out = append(out, splitCase{name: "near_dedup" + suffix, kind: "near_dedup",
+				params: map[string]any{"keep": keep, "threshold": 0.7}, docs: splitDocs, against: against, keyFiles: true})
 		}
 	}
+	out = append(out, splitCase{name: "near_dedup verify exact against", kind: "near_dedup",
+		params: map[string]any{"verify": "exact", "threshold": 0.7, "keep": "longest"}, docs: splitDocs, against: true, keyFiles: true})
 	for _, action := range []string{"cut", "drop"} {
 		out = append(out, splitCase{name: "decontaminate max_doc_frequency " + action, kind: "decontaminate",
 			params:  map[string]any{"evals": decontamEvalParams(), "max_doc_frequency": 2, "action": action},
@@ -73,6 +77,8 @@ type splitRun struct {
 	report string
 	// ignored is the number of n-grams decontaminate ignored.
 	ignored int
+	// of is each document's "of" ledger field ("" for none).
+	of []string
 }
 
 // keyHashes returns the sha256 of every file under dir/keys.
@@ -124,10 +130,13 @@ func feedOf(docs []*Doc, keys []any) Feed {
 // files.
 func finish(tb testing.TB, g GlobalStage, docs []*Doc, runDir string) splitRun {
 	tb.Helper()
-	r := splitRun{decisions: make([]string, len(docs)), keys: keyHashes(tb, runDir)}
+	r := splitRun{decisions: make([]string, len(docs)), keys: keyHashes(tb, runDir), of: make([]string, len(docs))}
 	for i, d := range docs {
 		dec := g.Apply(d)
 		r.decisions[i] = renderDecision(dec)
+		if of, ok := dec.Extra["of"].(string); ok && dec.Extra["against"] == nil {
+			r.of[i] = of
+		}
 		if o, ok := g.(Observer); ok {
 			o.Observe(d, &dec)
 		}
@@ -266,6 +275,17 @@ func TestSplitReduceMatchesReduce(t *testing.T) {
 				for i, d := range docs {
 					if got.decisions[i] != want.decisions[i] {
 						t.Errorf("%d groups: %s: %q, Reduce decided %q", groups, d.ID, got.decisions[i], want.decisions[i])
+					}
+				}
+				// Every document removed as a copy of this run's points at a
+				// document that was kept (no chains of copies of copies).
+				kept := map[string]bool{}
+				for i, d := range docs {
+					kept[d.ID] = got.decisions[i] == "keep"
+				}
+				for i, of := range got.of {
+					if of != "" && !kept[of] {
+						t.Errorf("%d groups: %s removed of %s, which was not kept", groups, docs[i].ID, of)
 					}
 				}
 				if got.report != want.report {
