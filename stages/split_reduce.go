@@ -2,21 +2,23 @@ package stages
 
 import (
 	"encoding/binary"
-	"sort"
-	"winnow/dedup"
-
 	"errors"
 	"fmt"
+	"sort"
+
+	"winnow/dedup"
 )
 
 // SplitReducer implementations of the global stages: the reduce is cut
 // into the index's fixed key partitions (see dedup/exact_split.go,
-// dedup/near_split.go and decontaminate's frequency count).
+// dedup/paragraph_split.go, dedup/near_split.go and, below,
+// decontaminate's frequency count).
 
-// ReduceParts is the number of hash partitions of exact dedup.
+// ReduceParts is the number of hash partitions of exact dedup (of the
+// document hash, or at paragraph scope of the paragraph hash).
 func (s *exactDedupStage) ReduceParts() int {
 	if s.paragraph {
-		return 0
+		return dedup.ParagraphPartitions
 	}
 	return dedup.ExactPartitions
 }
@@ -24,16 +26,24 @@ func (s *exactDedupStage) ReduceParts() int {
 // ReduceSome feeds every document but keeps only the records of the hash
 // partitions ps, and reduces them.
 func (s *exactDedupStage) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
+	var err error
 	if s.paragraph {
-		return nil, errors.New(s.name + ": scope: paragraph cannot be reduced in parts")
+		err = s.para.RestrictPartitions(ps)
+	} else {
+		err = s.idx.RestrictPartitions(ps)
 	}
-	if err := s.idx.RestrictPartitions(ps); err != nil {
+	if err != nil {
 		return nil, fmt.Errorf("%s: %w", s.name, err)
 	}
 	if err := feed(s.Collect); err != nil {
 		return nil, err
 	}
-	out, err := s.idx.ReduceSplit()
+	var out [][]byte
+	if s.paragraph {
+		out, err = s.para.ReduceSplit()
+	} else {
+		out, err = s.idx.ReduceSplit()
+	}
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", s.name, err)
 	}
@@ -44,7 +54,12 @@ func (s *exactDedupStage) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
 // (the kept ids come from feed, in input order).
 func (s *exactDedupStage) LoadReduced(results [][]byte, feed Feed) error {
 	if s.paragraph {
-		return errors.New(s.name + ": scope: paragraph cannot be reduced in parts")
+		// No key files at paragraph scope (counts are not carried
+		// between runs), so feed is not needed.
+		if err := s.para.LoadSplit(results); err != nil {
+			return fmt.Errorf("%s: %w", s.name, err)
+		}
+		return nil
 	}
 	err := s.idx.LoadSplit(results, func(emit func(uint64, string) error) error {
 		return feed(func(order OrderKey, id string, keys any) error {

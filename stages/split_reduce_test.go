@@ -59,6 +59,10 @@ func splitCases() []splitCase {
 				params: map[string]any{"keep": keep, "threshold": 0.7}, docs: splitDocs, against: against, keyFiles: true})
 		}
 	}
+	for _, maxRepeats := range []int{1, 2} {
+		out = append(out, splitCase{name: fmt.Sprintf("exact_dedup paragraph max_repeats %d", maxRepeats), kind: "exact_dedup",
+			params: map[string]any{"scope": "paragraph", "max_repeats": maxRepeats}, docs: splitDocs})
+	}
 	out = append(out, splitCase{name: "near_dedup verify exact against", kind: "near_dedup",
 		params: map[string]any{"verify": "exact", "threshold": 0.7, "keep": "longest"}, docs: splitDocs, against: true, keyFiles: true})
 	for _, action := range []string{"cut", "drop"} {
@@ -134,6 +138,10 @@ func finish(tb testing.TB, g GlobalStage, docs []*Doc, runDir string) splitRun {
 	for i, d := range docs {
 		dec := g.Apply(d)
 		r.decisions[i] = renderDecision(dec)
+		if dec.Action == Edit {
+			sum := sha256.Sum256([]byte(dec.Text)) // the edited text itself, not only its length
+			r.decisions[i] += " " + hex.EncodeToString(sum[:8])
+		}
 		if of, ok := dec.Extra["of"].(string); ok && dec.Extra["against"] == nil {
 			r.of[i] = of
 		}
