@@ -76,6 +76,9 @@ package dedup
 //	signature values; if flagged, uvarint n and n uvarint deltas of the
 //	sorted shingle hashes; uvarint len(id), id.
 //
+// A split run finds the pairs of the partitions in separate processes and
+// makes the greedy pass once over all of them (near_split.go).
+//
 // Not implemented: re-verification of previous-run documents against each
 // other (they were deduplicated by their own run), weighting of shingles,
 // running the partitions in parallel.

@@ -21,6 +21,9 @@ package dedup
 // counts of two different paragraphs with probability ~M²/2^65 for M
 // distinct paragraphs (negligible below billions).
 //
+// A split run counts 64 ranges of the hash in separate processes
+// (paragraph_split.go).
+//
 // Not implemented: near-duplicate paragraphs, line-level dedup, and
 // incremental runs (counts of a previous run are not carried over).
 

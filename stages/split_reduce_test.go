@@ -25,6 +25,9 @@ type splitCase struct {
 	against bool
 	// keyFiles: the stage writes key files.
 	keyFiles bool
+	// budget is Env.MemoryBudget (0: the default); a small one makes the
+	// indexes sort partitions and pairs externally.
+	budget int64
 }
 
 // splitDocs returns real documents (manual pages, mail, HTML pages,
@@ -58,6 +61,16 @@ func splitCases() []splitCase {
 			out = append(out, splitCase{name: "near_dedup" + suffix, kind: "near_dedup",
 				params: map[string]any{"keep": keep, "threshold": 0.7}, docs: splitDocs, against: against, keyFiles: true})
 		}
+	}
+	// Partitions larger than the memory budget: external sorts.
+	// (64 bytes: two exact-dedup records, four band keys.)
+	for _, kind := range []string{"exact_dedup", "near_dedup"} {
+		params := map[string]any{"keep": "longest"}
+		if kind == "near_dedup" {
+			params["threshold"] = 0.7
+		}
+		out = append(out, splitCase{name: kind + " keep longest against, budget 64 bytes", kind: kind,
+			params: params, docs: splitDocs, against: true, keyFiles: true, budget: 64})
 	}
 	for _, maxRepeats := range []int{1, 2} {
 		out = append(out, splitCase{name: fmt.Sprintf("exact_dedup paragraph max_repeats %d", maxRepeats), kind: "exact_dedup",
@@ -114,7 +127,7 @@ func (c splitCase) env(tb testing.TB, runDir, against string) Env {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		tb.Fatal(err)
 	}
-	return Env{RunDir: runDir, Against: against, SpecDir: c.specDir, Seed: 7}
+	return Env{RunDir: runDir, Against: against, SpecDir: c.specDir, Seed: 7, MemoryBudget: c.budget}
 }
 
 // feedOf returns a Feed over docs with their scanned keys.
