@@ -12,7 +12,7 @@ package dedup
 // of its partitions with a fresh table of verified pairs (so a partition's
 // result depends on nothing else) and returns per partition:
 //
-//	"WNP1", uvarint documents of this run (n), uvarint documents of the
+//	"WNP1", uvarint partition, uvarint documents of this run (n), uvarint documents of the
 //	previous run (P); uvarint number of documents in the pairs, per
 //	document in index order: uvarint index (the first as is, the others
 //	as the gap to the previous minus 1), uvarint order key (for a
@@ -76,6 +76,7 @@ type nearPair struct {
 
 // nearPart is one partition's reduce result.
 type nearPart struct {
+	part     uint32
 	n, prevN uint32
 	docs     []nearDoc
 	pairs    []nearPair
@@ -160,7 +161,7 @@ func (x *NearIndex) ReduceSplit() ([][]byte, error) {
 	}
 	out := make([][]byte, len(x.onlyList))
 	for i, prs := range found {
-		part := nearPart{n: x.n, prevN: x.prevN}
+		part := nearPart{part: uint32(x.onlyList[i]), n: x.n, prevN: x.prevN}
 		pos := map[uint32]uint32{}
 		for _, pr := range prs {
 			for _, d := range []uint32{pr.later, pr.earlier} {
@@ -235,6 +236,7 @@ func (x *NearIndex) describeDocs(need map[uint32]*nearDoc) error {
 
 func appendNearPart(b []byte, p *nearPart) []byte {
 	b = append(b, nearPartMagic...)
+	b = binary.AppendUvarint(b, uint64(p.part))
 	b = binary.AppendUvarint(b, uint64(p.n))
 	b = binary.AppendUvarint(b, uint64(p.prevN))
 	b = binary.AppendUvarint(b, uint64(len(p.docs)))
@@ -258,13 +260,17 @@ func appendNearPart(b []byte, p *nearPart) []byte {
 	return b
 }
 
-// decodeNearPart decodes a partition result: document indices ascending
-// and below n+P, pairs naming two different listed documents, similarities
-// at most 1.
-func decodeNearPart(b []byte) (nearPart, error) {
+// decodeNearPart decodes partition p's result: document indices
+// ascending and below n+P, pairs naming two different listed documents,
+// similarities at most 1.
+func decodeNearPart(b []byte, p int) (nearPart, error) {
 	r := &partReader{b: b}
 	var out nearPart
 	r.magic(nearPartMagic)
+	if q := r.uvarint(); r.err == nil && q != uint64(p) {
+		r.fail("the result of partition %d", q)
+	}
+	out.part = uint32(p)
 	n, prevN := r.uvarint(), r.uvarint()
 	if r.err == nil && (n > maxDocs || prevN > maxDocs/2 || n+prevN >= maxDocs) {
 		r.fail("%d + %d documents", n, prevN)
@@ -327,7 +333,7 @@ func (x *NearIndex) LoadSplit(results [][]byte, keys func(emit func(order uint64
 	}
 	var pairs []idxPair
 	for p, b := range results {
-		part, err := decodeNearPart(b)
+		part, err := decodeNearPart(b, p)
 		if err != nil {
 			return fmt.Errorf("dedup: partition %d: %w", p, err)
 		}

@@ -100,7 +100,7 @@ func TestNearPartRoundTrip(t *testing.T) {
 	_, results := nearSplitRun(t, chainCorpus(10, 4, 12, 2), NearOptions{Threshold: 0.7}, 2, nil)
 	pairs := 0
 	for p, b := range results {
-		part, err := decodeNearPart(b)
+		part, err := decodeNearPart(b, p)
 		if err != nil {
 			t.Fatalf("partition %d: %v", p, err)
 		}
@@ -109,9 +109,12 @@ func TestNearPartRoundTrip(t *testing.T) {
 			t.Fatalf("partition %d: re-encoding differs", p)
 		}
 		for n := 0; n < len(b); n++ {
-			if _, err := decodeNearPart(b[:n]); err == nil {
+			if _, err := decodeNearPart(b[:n], p); err == nil {
 				t.Fatalf("partition %d: the first %d of %d bytes decoded", p, n, len(b))
 			}
+		}
+		if _, err := decodeNearPart(b, (p+1)%KeyPartitions); err == nil {
+			t.Fatalf("partition %d's result accepted as partition %d's", p, p+1)
 		}
 	}
 	if pairs == 0 {
@@ -123,18 +126,20 @@ func TestNearPartRoundTrip(t *testing.T) {
 // decodes encodes to bytes that decode to the same result.
 func FuzzNearPart(f *testing.F) {
 	_, results := nearSplitRun(f, chainCorpus(6, 4, 12, 3), NearOptions{Threshold: 0.7}, 1, nil)
-	for _, b := range results {
+	for p, b := range results {
 		if len(b) > 20 {
-			f.Add(b)
+			f.Add(b, uint8(p))
 		}
 	}
-	f.Add([]byte("WNP1\x05\x00\x02\x00\x01\x00\x01a\x00\x02\x00\x01\x01\x10\x27"))
-	f.Fuzz(func(t *testing.T, b []byte) {
-		x, err := decodeNearPart(b)
+	f.Add(appendNearPart(nil, &nearPart{part: 2, n: 5, docs: []nearDoc{{idx: 0, order: 1, id: "a"}, {idx: 3, order: 9, prio: 4}},
+		pairs: []nearPair{{later: 1, earlier: 0, sim: 10000}}}), uint8(2))
+	f.Fuzz(func(t *testing.T, b []byte, pb uint8) {
+		p := int(pb) % KeyPartitions
+		x, err := decodeNearPart(b, p)
 		if err != nil {
 			return
 		}
-		y, err := decodeNearPart(appendNearPart(nil, &x))
+		y, err := decodeNearPart(appendNearPart(nil, &x), p)
 		if err != nil {
 			t.Fatalf("re-encoded result does not decode: %v", err)
 		}

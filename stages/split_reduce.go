@@ -103,7 +103,7 @@ func (d *Decontaminate) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
 	out := make([][]byte, len(ps))
 	if d.cfg.MaxDocFrequency == 0 {
 		for i := range out {
-			out[i] = binary.AppendUvarint([]byte(decontamPartMagic), 0)
+			out[i] = encodeDecontamPart(nil, ps[i], 0, nil)
 		}
 		return out, nil
 	}
@@ -136,26 +136,29 @@ func (d *Decontaminate) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
 		return nil, err
 	}
 	for i := range ps {
-		out[i] = appendDecontamPart(nil, counts[i], d.cfg.MaxDocFrequency)
+		out[i] = appendDecontamPart(nil, ps[i], counts[i], d.cfg.MaxDocFrequency)
 	}
 	return out, nil
 }
 
-// appendDecontamPart encodes a part's frequent keys: the magic, their
-// number, then each key's offset in the part as a uvarint gap from the
-// previous one (the first from 0).
-func appendDecontamPart(b []byte, counts []uint32, maxDF int) []byte {
+// appendDecontamPart encodes part p's frequent keys: the magic, uvarint
+// p, uvarint number of keys of the part, uvarint number of frequent keys,
+// then each frequent key's offset in the part as a uvarint gap from the
+// previous one minus 1 (the first as is).
+func appendDecontamPart(b []byte, p int, counts []uint32, maxDF int) []byte {
 	var frequent []int
 	for k, n := range counts {
 		if int(n) > maxDF {
 			frequent = append(frequent, k)
 		}
 	}
-	return encodeDecontamPart(b, frequent)
+	return encodeDecontamPart(b, p, len(counts), frequent)
 }
 
-func encodeDecontamPart(b []byte, frequent []int) []byte {
+func encodeDecontamPart(b []byte, p, n int, frequent []int) []byte {
 	b = append(b, decontamPartMagic...)
+	b = binary.AppendUvarint(b, uint64(p))
+	b = binary.AppendUvarint(b, uint64(n))
 	b = binary.AppendUvarint(b, uint64(len(frequent)))
 	last := 0
 	for i, k := range frequent {
@@ -169,13 +172,24 @@ func encodeDecontamPart(b []byte, frequent []int) []byte {
 	return b
 }
 
-// decodeDecontamPart decodes a part of n keys: the offsets of its
-// frequent keys, ascending, each below n.
-func decodeDecontamPart(b []byte, n int) ([]int, error) {
+// decodeDecontamPart decodes the result of part p of n keys: the offsets
+// of its frequent keys, ascending, each below n.
+func decodeDecontamPart(b []byte, p, n int) ([]int, error) {
 	if len(b) < len(decontamPartMagic) || string(b[:len(decontamPartMagic)]) != decontamPartMagic {
 		return nil, errors.New("not a decontaminate reduce result")
 	}
 	b = b[len(decontamPartMagic):]
+	var hdr [2]uint64 // part, keys
+	for i := range hdr {
+		v, m := binary.Uvarint(b)
+		if m <= 0 {
+			return nil, errors.New("truncated")
+		}
+		hdr[i], b = v, b[m:]
+	}
+	if hdr[0] != uint64(p) || hdr[1] != uint64(n) {
+		return nil, fmt.Errorf("the result of part %d of %d keys, want part %d of %d keys (another part, or other eval sets)", hdr[0], hdr[1], p, n)
+	}
 	cnt, m := binary.Uvarint(b)
 	if m <= 0 {
 		return nil, errors.New("truncated")
@@ -212,7 +226,7 @@ func (d *Decontaminate) LoadReduced(results [][]byte, feed Feed) error {
 	}
 	if d.cfg.MaxDocFrequency == 0 {
 		for p, b := range results {
-			if ks, err := decodeDecontamPart(b, 0); err != nil || len(ks) > 0 {
+			if ks, err := decodeDecontamPart(b, p, 0); err != nil || len(ks) > 0 {
 				return fmt.Errorf("%s: reduce result of part %d: not empty without max_doc_frequency (%v)", d.name, p, err)
 			}
 		}
@@ -222,7 +236,7 @@ func (d *Decontaminate) LoadReduced(results [][]byte, feed Feed) error {
 	ignored := 0
 	for p, b := range results {
 		lo := d.partLo(p)
-		ks, err := decodeDecontamPart(b, d.partLo(p+1)-lo)
+		ks, err := decodeDecontamPart(b, p, d.partLo(p+1)-lo)
 		if err != nil {
 			return fmt.Errorf("%s: reduce result of part %d: %w", d.name, p, err)
 		}

@@ -341,13 +341,13 @@ func FuzzDecontamPart(f *testing.F) {
 		f.Fatal(err)
 	}
 	for p, b := range res {
-		f.Add(b, uint32(dc.partLo(p+1)-dc.partLo(p)))
+		f.Add(b, uint8(p), uint32(dc.partLo(p+1)-dc.partLo(p)))
 	}
-	f.Add(encodeDecontamPart(nil, []int{0, 1, 5, 300}), uint32(301))
-	f.Add(encodeDecontamPart(nil, nil), uint32(0))
-	f.Fuzz(func(t *testing.T, b []byte, n uint32) {
+	f.Add(encodeDecontamPart(nil, 3, 301, []int{0, 1, 5, 300}), uint8(3), uint32(301))
+	f.Add(encodeDecontamPart(nil, 0, 0, nil), uint8(0), uint32(0))
+	f.Fuzz(func(t *testing.T, b []byte, p uint8, n uint32) {
 		n %= 1 << 24
-		ks, err := decodeDecontamPart(b, int(n))
+		ks, err := decodeDecontamPart(b, int(p), int(n))
 		if err != nil {
 			return
 		}
@@ -356,7 +356,7 @@ func FuzzDecontamPart(f *testing.F) {
 				t.Fatalf("offsets %v of a part of %d keys", ks, n)
 			}
 		}
-		again, err := decodeDecontamPart(encodeDecontamPart(nil, ks), int(n))
+		again, err := decodeDecontamPart(encodeDecontamPart(nil, int(p), int(n), ks), int(p), int(n))
 		if err != nil || fmt.Sprint(again) != fmt.Sprint(ks) {
 			t.Fatalf("re-encoded %v decodes to %v, %v", ks, again, err)
 		}
@@ -367,17 +367,94 @@ func FuzzDecontamPart(f *testing.F) {
 // made of and no proper prefix decodes.
 func TestDecontamPartRoundTrip(t *testing.T) {
 	ks := []int{0, 3, 4, 127, 128, 20000}
-	b := encodeDecontamPart(nil, ks)
-	got, err := decodeDecontamPart(b, 20001)
+	b := encodeDecontamPart(nil, 4, 20001, ks)
+	got, err := decodeDecontamPart(b, 4, 20001)
 	if err != nil || fmt.Sprint(got) != fmt.Sprint(ks) {
 		t.Fatalf("decoded %v, %v", got, err)
 	}
-	if _, err := decodeDecontamPart(b, 20000); err == nil {
+	if _, err := decodeDecontamPart(encodeDecontamPart(nil, 4, 20000, ks), 4, 20000); err == nil {
 		t.Fatal("key 20000 accepted in a part of 20000 keys")
 	}
+	if _, err := decodeDecontamPart(b, 5, 20001); err == nil {
+		t.Fatal("part 4's result accepted as part 5's")
+	}
+	if _, err := decodeDecontamPart(b, 4, 20002); err == nil {
+		t.Fatal("a result of 20001 keys accepted for a part of 20002")
+	}
 	for n := 0; n < len(b); n++ {
-		if _, err := decodeDecontamPart(b[:n], 20001); err == nil {
+		if _, err := decodeDecontamPart(b[:n], 4, 20001); err == nil {
 			t.Fatalf("the first %d of %d bytes decoded", n, len(b))
 		}
+	}
+}
+
+// TestLoadReducedRejects: results cut short, two parts' results swapped,
+// or another stage's results are errors naming the stage, never a panic
+// or a silent wrong decision.
+func TestLoadReducedRejects(t *testing.T) {
+	byName := map[string]splitCase{}
+	for _, c := range splitCases() {
+		byName[c.name] = c
+	}
+	names := []string{"exact_dedup keep first", "near_dedup keep first", "exact_dedup paragraph max_repeats 1", "decontaminate max_doc_frequency drop"}
+	all := map[string][][]byte{}
+	for _, name := range names {
+		c, ok := byName[name]
+		if !ok {
+			t.Fatalf("no case %q", name)
+		}
+		docs := c.docs(t)
+		env := c.env(t, t.TempDir(), "")
+		g := buildGlobal(t, c.kind, c.params, env)
+		keys := make([]any, len(docs))
+		for i, d := range docs {
+			keys[i] = g.Scan(d)
+		}
+		sr := g.(SplitReducer)
+		ps := make([]int, sr.ReduceParts())
+		for i := range ps {
+			ps[i] = i
+		}
+		res, err := sr.ReduceSome(ps, feedOf(docs, keys))
+		if err != nil {
+			t.Fatal(err)
+		}
+		g.Close()
+		all[name] = res
+		// Two non-empty results (the longest two) swapped.
+		a, b := 0, 1
+		for i := range res {
+			if len(res[i]) > len(res[a]) {
+				a, b = i, a
+			} else if i != a && len(res[i]) > len(res[b]) {
+				b = i
+			}
+		}
+		swapped := append([][]byte{}, res...)
+		swapped[a], swapped[b] = swapped[b], swapped[a]
+		bad := map[string][][]byte{"cut short": res[:len(res)-1], "swapped": swapped}
+		for what, rs := range bad {
+			g := buildGlobal(t, c.kind, c.params, c.env(t, t.TempDir(), ""))
+			err := g.(SplitReducer).LoadReduced(rs, feedOf(docs, keys))
+			if err == nil || !strings.Contains(err.Error(), g.Name()) {
+				t.Errorf("%s: results %s: %v", name, what, err)
+			}
+			g.Close()
+		}
+	}
+	// Another stage's results (padded or cut to the part count).
+	for i, name := range names {
+		c := byName[name]
+		other := all[names[(i+1)%len(names)]]
+		g := buildGlobal(t, c.kind, c.params, c.env(t, t.TempDir(), ""))
+		n := g.(SplitReducer).ReduceParts()
+		rs := make([][]byte, n)
+		for p := range rs {
+			rs[p] = other[p%len(other)]
+		}
+		if err := g.(SplitReducer).LoadReduced(rs, feedOf(nil, nil)); err == nil {
+			t.Errorf("%s loaded the results of %s", name, names[(i+1)%len(names)])
+		}
+		g.Close()
 	}
 }
