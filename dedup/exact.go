@@ -40,6 +40,9 @@ package dedup
 //	PREFIX.ids.zst  zstd stream: "WNWIDS01", then per kept document in
 //	                input order: uvarint order key, uvarint len(id), id.
 //
+// A split run cuts Reduce into the 64 partitions, reduced by separate
+// processes (exact_split.go).
+//
 // Not implemented: documents whose normalized text is empty are not
 // indexed (never removed, never a reason to remove another).
 

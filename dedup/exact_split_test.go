@@ -98,3 +98,79 @@ func FuzzExactPart(f *testing.F) {
 		}
 	})
 }
+
+// paragraphSplitResults counts the paragraphs of synthetic documents
+// sharing footers (every document ends with one of five) in one
+// ReduceSplit over every partition.
+func paragraphSplitResults(tb testing.TB) [][]byte {
+	tb.Helper()
+	p := NewParagraphIndex(ParagraphOptions{MaxRepeats: 2, TempDir: tb.TempDir()})
+	defer p.Close()
+	all := make([]int, ParagraphPartitions)
+	for i := range all {
+		all[i] = i
+	}
+	if err := p.RestrictPartitions(all); err != nil {
+		tb.Fatal(err)
+	}
+	rng := rand.New(rand.NewPCG(5, 6))
+	for i := 0; i < 300; i++ {
+		text := randomText(rng, 30) + "\n\n" + fmt.Sprintf("Larkspur Marine Works, berth %d", i%(5+i%40))
+		if err := p.Add(ParagraphHashes(text, Normalization{}, nil)); err != nil {
+			tb.Fatal(err)
+		}
+	}
+	out, err := p.ReduceSplit()
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return out
+}
+
+// TestParagraphPartRoundTrip: every partition result decodes, re-encodes
+// to the same bytes, rejects every proper prefix and another partition.
+func TestParagraphPartRoundTrip(t *testing.T) {
+	n := 0
+	for q, b := range paragraphSplitResults(t) {
+		hs, err := decodeParagraphPart(b, q)
+		if err != nil {
+			t.Fatal(err)
+		}
+		n += len(hs)
+		if string(appendParagraphPart(nil, hs)) != string(b) {
+			t.Fatalf("partition %d: re-encoding differs", q)
+		}
+		for k := 0; k < len(b); k++ {
+			if _, err := decodeParagraphPart(b[:k], q); err == nil {
+				t.Fatalf("partition %d: the first %d of %d bytes decoded", q, k, len(b))
+			}
+		}
+		if len(hs) > 0 {
+			if _, err := decodeParagraphPart(b, (q+1)%ParagraphPartitions); err == nil {
+				t.Fatalf("partition %d's result accepted as partition %d's", q, q+1)
+			}
+		}
+	}
+	if n == 0 {
+		t.Fatal("no frequent paragraph")
+	}
+}
+
+// FuzzParagraphPart: decoding arbitrary bytes never panics, and whatever
+// decodes encodes to the same bytes (the encoding has no slack).
+func FuzzParagraphPart(f *testing.F) {
+	for q, b := range paragraphSplitResults(f) {
+		f.Add(b, uint8(q))
+	}
+	f.Fuzz(func(t *testing.T, b []byte, qb uint8) {
+		q := int(qb) % ParagraphPartitions
+		hs, err := decodeParagraphPart(b, q)
+		if err != nil {
+			return
+		}
+		again, err := decodeParagraphPart(appendParagraphPart(nil, hs), q)
+		if err != nil || !reflect.DeepEqual(again, hs) {
+			t.Fatalf("decode(encode(%v)) = %v, %v", hs, again, err)
+		}
+	})
+}

@@ -76,6 +76,9 @@ package dedup
 //	signature values; if flagged, uvarint n and n uvarint deltas of the
 //	sorted shingle hashes; uvarint len(id), id.
 //
+// A split run finds the pairs of the partitions in separate processes and
+// makes the greedy pass once over all of them (near_split.go).
+//
 // Not implemented: re-verification of previous-run documents against each
 // other (they were deduplicated by their own run), weighting of shingles,
 // running the partitions in parallel.
@@ -164,6 +167,10 @@ type NearIndex struct {
 	reduced  bool
 	rm       removals
 	stats    IndexStats
+	// only, when not nil, marks the band-key partitions this index
+	// reduces (RestrictPartitions); band keys of the others are skipped.
+	only     []bool
+	onlyList []int
 }
 
 // NewNearIndex returns an empty index, checking a previous run's key file
@@ -290,7 +297,11 @@ func (x *NearIndex) Add(order uint64, id string, k *NearKey) error {
 		return err
 	}
 	for _, h := range k.Bands {
-		if err := x.bands.add(x.partition(h), bandKey(h, idx)); err != nil {
+		p := x.partition(h)
+		if x.only != nil && !x.only[p] {
+			continue // another task reduces this partition (near_split.go)
+		}
+		if err := x.bands.add(p, bandKey(h, idx)); err != nil {
 			return err
 		}
 	}
@@ -522,7 +533,11 @@ func (x *NearIndex) loadPrev() error {
 		}
 		bands = x.band.Hashes(sig, bands[:0])
 		for _, h := range bands {
-			if err := x.prevBd.add(x.partition(h), bandKey(h, j)); err != nil {
+			p := x.partition(h)
+			if x.only != nil && !x.only[p] {
+				continue
+			}
+			if err := x.prevBd.add(p, bandKey(h, j)); err != nil {
 				return err
 			}
 		}

@@ -21,6 +21,9 @@ package dedup
 // counts of two different paragraphs with probability ~M²/2^65 for M
 // distinct paragraphs (negligible below billions).
 //
+// A split run counts 64 ranges of the hash in separate processes
+// (paragraph_split.go).
+//
 // Not implemented: near-duplicate paragraphs, line-level dedup, and
 // incremental runs (counts of a previous run are not carried over).
 
@@ -148,6 +151,10 @@ type ParagraphIndex struct {
 	frequent []uint64
 	reduced  bool
 	stats    IndexStats
+	// only, when not nil, marks the hash partitions this index counts
+	// (RestrictPartitions); hashes of the others are skipped.
+	only     []bool
+	onlyList []int
 }
 
 // NewParagraphIndex returns an empty index writing spill runs to
@@ -163,6 +170,9 @@ func (p *ParagraphIndex) Add(hs []uint64) error {
 		return errors.New("dedup: ParagraphIndex.Add after Reduce")
 	}
 	for _, h := range hs {
+		if p.only != nil && !p.only[h>>(64-paragraphPartitionBits)] {
+			continue // another task counts this partition
+		}
 		if err := p.sorter.Add(h); err != nil {
 			return err
 		}

@@ -2,21 +2,23 @@ package stages
 
 import (
 	"encoding/binary"
-	"sort"
-	"winnow/dedup"
-
 	"errors"
 	"fmt"
+	"sort"
+
+	"winnow/dedup"
 )
 
 // SplitReducer implementations of the global stages: the reduce is cut
 // into the index's fixed key partitions (see dedup/exact_split.go,
-// dedup/near_split.go and decontaminate's frequency count).
+// dedup/paragraph_split.go, dedup/near_split.go and, below,
+// decontaminate's frequency count).
 
-// ReduceParts is the number of hash partitions of exact dedup.
+// ReduceParts is the number of hash partitions of exact dedup (of the
+// document hash, or at paragraph scope of the paragraph hash).
 func (s *exactDedupStage) ReduceParts() int {
 	if s.paragraph {
-		return 0
+		return dedup.ParagraphPartitions
 	}
 	return dedup.ExactPartitions
 }
@@ -24,16 +26,24 @@ func (s *exactDedupStage) ReduceParts() int {
 // ReduceSome feeds every document but keeps only the records of the hash
 // partitions ps, and reduces them.
 func (s *exactDedupStage) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
+	var err error
 	if s.paragraph {
-		return nil, errors.New(s.name + ": scope: paragraph cannot be reduced in parts")
+		err = s.para.RestrictPartitions(ps)
+	} else {
+		err = s.idx.RestrictPartitions(ps)
 	}
-	if err := s.idx.RestrictPartitions(ps); err != nil {
+	if err != nil {
 		return nil, fmt.Errorf("%s: %w", s.name, err)
 	}
 	if err := feed(s.Collect); err != nil {
 		return nil, err
 	}
-	out, err := s.idx.ReduceSplit()
+	var out [][]byte
+	if s.paragraph {
+		out, err = s.para.ReduceSplit()
+	} else {
+		out, err = s.idx.ReduceSplit()
+	}
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", s.name, err)
 	}
@@ -44,7 +54,12 @@ func (s *exactDedupStage) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
 // (the kept ids come from feed, in input order).
 func (s *exactDedupStage) LoadReduced(results [][]byte, feed Feed) error {
 	if s.paragraph {
-		return errors.New(s.name + ": scope: paragraph cannot be reduced in parts")
+		// No key files at paragraph scope (counts are not carried
+		// between runs), so feed is not needed.
+		if err := s.para.LoadSplit(results); err != nil {
+			return fmt.Errorf("%s: %w", s.name, err)
+		}
+		return nil
 	}
 	err := s.idx.LoadSplit(results, func(emit func(uint64, string) error) error {
 		return feed(func(order OrderKey, id string, keys any) error {
@@ -88,7 +103,7 @@ func (d *Decontaminate) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
 	out := make([][]byte, len(ps))
 	if d.cfg.MaxDocFrequency == 0 {
 		for i := range out {
-			out[i] = binary.AppendUvarint([]byte(decontamPartMagic), 0)
+			out[i] = encodeDecontamPart(nil, ps[i], 0, nil)
 		}
 		return out, nil
 	}
@@ -121,26 +136,29 @@ func (d *Decontaminate) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
 		return nil, err
 	}
 	for i := range ps {
-		out[i] = appendDecontamPart(nil, counts[i], d.cfg.MaxDocFrequency)
+		out[i] = appendDecontamPart(nil, ps[i], counts[i], d.cfg.MaxDocFrequency)
 	}
 	return out, nil
 }
 
-// appendDecontamPart encodes a part's frequent keys: the magic, their
-// number, then each key's offset in the part as a uvarint gap from the
-// previous one (the first from 0).
-func appendDecontamPart(b []byte, counts []uint32, maxDF int) []byte {
+// appendDecontamPart encodes part p's frequent keys: the magic, uvarint
+// p, uvarint number of keys of the part, uvarint number of frequent keys,
+// then each frequent key's offset in the part as a uvarint gap from the
+// previous one minus 1 (the first as is).
+func appendDecontamPart(b []byte, p int, counts []uint32, maxDF int) []byte {
 	var frequent []int
 	for k, n := range counts {
 		if int(n) > maxDF {
 			frequent = append(frequent, k)
 		}
 	}
-	return encodeDecontamPart(b, frequent)
+	return encodeDecontamPart(b, p, len(counts), frequent)
 }
 
-func encodeDecontamPart(b []byte, frequent []int) []byte {
+func encodeDecontamPart(b []byte, p, n int, frequent []int) []byte {
 	b = append(b, decontamPartMagic...)
+	b = binary.AppendUvarint(b, uint64(p))
+	b = binary.AppendUvarint(b, uint64(n))
 	b = binary.AppendUvarint(b, uint64(len(frequent)))
 	last := 0
 	for i, k := range frequent {
@@ -154,13 +172,24 @@ func encodeDecontamPart(b []byte, frequent []int) []byte {
 	return b
 }
 
-// decodeDecontamPart decodes a part of n keys: the offsets of its
-// frequent keys, ascending, each below n.
-func decodeDecontamPart(b []byte, n int) ([]int, error) {
+// decodeDecontamPart decodes the result of part p of n keys: the offsets
+// of its frequent keys, ascending, each below n.
+func decodeDecontamPart(b []byte, p, n int) ([]int, error) {
 	if len(b) < len(decontamPartMagic) || string(b[:len(decontamPartMagic)]) != decontamPartMagic {
 		return nil, errors.New("not a decontaminate reduce result")
 	}
 	b = b[len(decontamPartMagic):]
+	var hdr [2]uint64 // part, keys
+	for i := range hdr {
+		v, m := binary.Uvarint(b)
+		if m <= 0 {
+			return nil, errors.New("truncated")
+		}
+		hdr[i], b = v, b[m:]
+	}
+	if hdr[0] != uint64(p) || hdr[1] != uint64(n) {
+		return nil, fmt.Errorf("the result of part %d of %d keys, want part %d of %d keys (another part, or other eval sets)", hdr[0], hdr[1], p, n)
+	}
 	cnt, m := binary.Uvarint(b)
 	if m <= 0 {
 		return nil, errors.New("truncated")
@@ -197,7 +226,7 @@ func (d *Decontaminate) LoadReduced(results [][]byte, feed Feed) error {
 	}
 	if d.cfg.MaxDocFrequency == 0 {
 		for p, b := range results {
-			if ks, err := decodeDecontamPart(b, 0); err != nil || len(ks) > 0 {
+			if ks, err := decodeDecontamPart(b, p, 0); err != nil || len(ks) > 0 {
 				return fmt.Errorf("%s: reduce result of part %d: not empty without max_doc_frequency (%v)", d.name, p, err)
 			}
 		}
@@ -207,7 +236,7 @@ func (d *Decontaminate) LoadReduced(results [][]byte, feed Feed) error {
 	ignored := 0
 	for p, b := range results {
 		lo := d.partLo(p)
-		ks, err := decodeDecontamPart(b, d.partLo(p+1)-lo)
+		ks, err := decodeDecontamPart(b, p, d.partLo(p+1)-lo)
 		if err != nil {
 			return fmt.Errorf("%s: reduce result of part %d: %w", d.name, p, err)
 		}
@@ -219,5 +248,43 @@ func (d *Decontaminate) LoadReduced(results [][]byte, feed Feed) error {
 	}
 	d.ignore, d.ignored, d.ignoredKnown = ignore, ignored, true
 	d.df = nil
+	return nil
+}
+
+// ReduceParts is the number of band-key partitions of near dedup.
+func (s *nearDedupStage) ReduceParts() int { return dedup.KeyPartitions }
+
+// ReduceSome feeds every document (signatures and priorities are needed
+// to verify and rank the candidates) but keeps band keys of the
+// partitions ps only, and returns their verified pairs.
+func (s *nearDedupStage) ReduceSome(ps []int, feed Feed) ([][]byte, error) {
+	if err := s.idx.RestrictPartitions(ps); err != nil {
+		return nil, fmt.Errorf("%s: %w", s.name, err)
+	}
+	if err := feed(s.Collect); err != nil {
+		return nil, err
+	}
+	out, err := s.idx.ReduceSplit()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", s.name, err)
+	}
+	return out, nil
+}
+
+// LoadReduced makes the greedy pass over every partition's pairs and
+// writes the key file (signatures and ids from feed, in input order).
+func (s *nearDedupStage) LoadReduced(results [][]byte, feed Feed) error {
+	err := s.idx.LoadSplit(results, func(emit func(uint64, string, *dedup.NearKey) error) error {
+		return feed(func(order OrderKey, id string, keys any) error {
+			k, ok := keys.(*dedup.NearKey)
+			if keys != nil && !ok {
+				return fmt.Errorf("%s: unexpected scan key %T", s.name, keys)
+			}
+			return emit(uint64(order), id, k)
+		})
+	})
+	if err != nil {
+		return fmt.Errorf("%s: %w", s.name, err)
+	}
 	return nil
 }

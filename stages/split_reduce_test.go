@@ -25,6 +25,9 @@ type splitCase struct {
 	against bool
 	// keyFiles: the stage writes key files.
 	keyFiles bool
+	// budget is Env.MemoryBudget (0: the default); a small one makes the
+	// indexes sort partitions and pairs externally.
+	budget int64
 }
 
 // splitDocs returns real documents (manual pages, mail, HTML pages,
@@ -55,8 +58,26 @@ func splitCases() []splitCase {
 			}
 			out = append(out, splitCase{name: "exact_dedup" + suffix, kind: "exact_dedup",
 				params: map[string]any{"keep": keep}, docs: splitDocs, against: against, keyFiles: true})
+			out = append(out, splitCase{name: "near_dedup" + suffix, kind: "near_dedup",
+				params: map[string]any{"keep": keep, "threshold": 0.7}, docs: splitDocs, against: against, keyFiles: true})
 		}
 	}
+	// Partitions larger than the memory budget: external sorts.
+	// (64 bytes: two exact-dedup records, four band keys.)
+	for _, kind := range []string{"exact_dedup", "near_dedup"} {
+		params := map[string]any{"keep": "longest"}
+		if kind == "near_dedup" {
+			params["threshold"] = 0.7
+		}
+		out = append(out, splitCase{name: kind + " keep longest against, budget 64 bytes", kind: kind,
+			params: params, docs: splitDocs, against: true, keyFiles: true, budget: 64})
+	}
+	for _, maxRepeats := range []int{1, 2} {
+		out = append(out, splitCase{name: fmt.Sprintf("exact_dedup paragraph max_repeats %d", maxRepeats), kind: "exact_dedup",
+			params: map[string]any{"scope": "paragraph", "max_repeats": maxRepeats}, docs: splitDocs})
+	}
+	out = append(out, splitCase{name: "near_dedup verify exact against", kind: "near_dedup",
+		params: map[string]any{"verify": "exact", "threshold": 0.7, "keep": "longest"}, docs: splitDocs, against: true, keyFiles: true})
 	for _, action := range []string{"cut", "drop"} {
 		out = append(out, splitCase{name: "decontaminate max_doc_frequency " + action, kind: "decontaminate",
 			params:  map[string]any{"evals": decontamEvalParams(), "max_doc_frequency": 2, "action": action},
@@ -73,6 +94,8 @@ type splitRun struct {
 	report string
 	// ignored is the number of n-grams decontaminate ignored.
 	ignored int
+	// of is each document's "of" ledger field ("" for none).
+	of []string
 }
 
 // keyHashes returns the sha256 of every file under dir/keys.
@@ -104,7 +127,7 @@ func (c splitCase) env(tb testing.TB, runDir, against string) Env {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		tb.Fatal(err)
 	}
-	return Env{RunDir: runDir, Against: against, SpecDir: c.specDir, Seed: 7}
+	return Env{RunDir: runDir, Against: against, SpecDir: c.specDir, Seed: 7, MemoryBudget: c.budget}
 }
 
 // feedOf returns a Feed over docs with their scanned keys.
@@ -124,10 +147,17 @@ func feedOf(docs []*Doc, keys []any) Feed {
 // files.
 func finish(tb testing.TB, g GlobalStage, docs []*Doc, runDir string) splitRun {
 	tb.Helper()
-	r := splitRun{decisions: make([]string, len(docs)), keys: keyHashes(tb, runDir)}
+	r := splitRun{decisions: make([]string, len(docs)), keys: keyHashes(tb, runDir), of: make([]string, len(docs))}
 	for i, d := range docs {
 		dec := g.Apply(d)
 		r.decisions[i] = renderDecision(dec)
+		if dec.Action == Edit {
+			sum := sha256.Sum256([]byte(dec.Text)) // the edited text itself, not only its length
+			r.decisions[i] += " " + hex.EncodeToString(sum[:8])
+		}
+		if of, ok := dec.Extra["of"].(string); ok && dec.Extra["against"] == nil {
+			r.of[i] = of
+		}
 		if o, ok := g.(Observer); ok {
 			o.Observe(d, &dec)
 		}
@@ -268,6 +298,17 @@ func TestSplitReduceMatchesReduce(t *testing.T) {
 						t.Errorf("%d groups: %s: %q, Reduce decided %q", groups, d.ID, got.decisions[i], want.decisions[i])
 					}
 				}
+				// Every document removed as a copy of this run's points at a
+				// document that was kept (no chains of copies of copies).
+				kept := map[string]bool{}
+				for i, d := range docs {
+					kept[d.ID] = got.decisions[i] == "keep"
+				}
+				for i, of := range got.of {
+					if of != "" && !kept[of] {
+						t.Errorf("%d groups: %s removed of %s, which was not kept", groups, docs[i].ID, of)
+					}
+				}
 				if got.report != want.report {
 					t.Errorf("%d groups: report\n%s\nReduce's\n%s", groups, got.report, want.report)
 				}
@@ -300,13 +341,13 @@ func FuzzDecontamPart(f *testing.F) {
 		f.Fatal(err)
 	}
 	for p, b := range res {
-		f.Add(b, uint32(dc.partLo(p+1)-dc.partLo(p)))
+		f.Add(b, uint8(p), uint32(dc.partLo(p+1)-dc.partLo(p)))
 	}
-	f.Add(encodeDecontamPart(nil, []int{0, 1, 5, 300}), uint32(301))
-	f.Add(encodeDecontamPart(nil, nil), uint32(0))
-	f.Fuzz(func(t *testing.T, b []byte, n uint32) {
+	f.Add(encodeDecontamPart(nil, 3, 301, []int{0, 1, 5, 300}), uint8(3), uint32(301))
+	f.Add(encodeDecontamPart(nil, 0, 0, nil), uint8(0), uint32(0))
+	f.Fuzz(func(t *testing.T, b []byte, p uint8, n uint32) {
 		n %= 1 << 24
-		ks, err := decodeDecontamPart(b, int(n))
+		ks, err := decodeDecontamPart(b, int(p), int(n))
 		if err != nil {
 			return
 		}
@@ -315,7 +356,7 @@ func FuzzDecontamPart(f *testing.F) {
 				t.Fatalf("offsets %v of a part of %d keys", ks, n)
 			}
 		}
-		again, err := decodeDecontamPart(encodeDecontamPart(nil, ks), int(n))
+		again, err := decodeDecontamPart(encodeDecontamPart(nil, int(p), int(n), ks), int(p), int(n))
 		if err != nil || fmt.Sprint(again) != fmt.Sprint(ks) {
 			t.Fatalf("re-encoded %v decodes to %v, %v", ks, again, err)
 		}
@@ -326,17 +367,94 @@ func FuzzDecontamPart(f *testing.F) {
 // made of and no proper prefix decodes.
 func TestDecontamPartRoundTrip(t *testing.T) {
 	ks := []int{0, 3, 4, 127, 128, 20000}
-	b := encodeDecontamPart(nil, ks)
-	got, err := decodeDecontamPart(b, 20001)
+	b := encodeDecontamPart(nil, 4, 20001, ks)
+	got, err := decodeDecontamPart(b, 4, 20001)
 	if err != nil || fmt.Sprint(got) != fmt.Sprint(ks) {
 		t.Fatalf("decoded %v, %v", got, err)
 	}
-	if _, err := decodeDecontamPart(b, 20000); err == nil {
+	if _, err := decodeDecontamPart(encodeDecontamPart(nil, 4, 20000, ks), 4, 20000); err == nil {
 		t.Fatal("key 20000 accepted in a part of 20000 keys")
 	}
+	if _, err := decodeDecontamPart(b, 5, 20001); err == nil {
+		t.Fatal("part 4's result accepted as part 5's")
+	}
+	if _, err := decodeDecontamPart(b, 4, 20002); err == nil {
+		t.Fatal("a result of 20001 keys accepted for a part of 20002")
+	}
 	for n := 0; n < len(b); n++ {
-		if _, err := decodeDecontamPart(b[:n], 20001); err == nil {
+		if _, err := decodeDecontamPart(b[:n], 4, 20001); err == nil {
 			t.Fatalf("the first %d of %d bytes decoded", n, len(b))
 		}
+	}
+}
+
+// TestLoadReducedRejects: results cut short, two parts' results swapped,
+// or another stage's results are errors naming the stage, never a panic
+// or a silent wrong decision.
+func TestLoadReducedRejects(t *testing.T) {
+	byName := map[string]splitCase{}
+	for _, c := range splitCases() {
+		byName[c.name] = c
+	}
+	names := []string{"exact_dedup keep first", "near_dedup keep first", "exact_dedup paragraph max_repeats 1", "decontaminate max_doc_frequency drop"}
+	all := map[string][][]byte{}
+	for _, name := range names {
+		c, ok := byName[name]
+		if !ok {
+			t.Fatalf("no case %q", name)
+		}
+		docs := c.docs(t)
+		env := c.env(t, t.TempDir(), "")
+		g := buildGlobal(t, c.kind, c.params, env)
+		keys := make([]any, len(docs))
+		for i, d := range docs {
+			keys[i] = g.Scan(d)
+		}
+		sr := g.(SplitReducer)
+		ps := make([]int, sr.ReduceParts())
+		for i := range ps {
+			ps[i] = i
+		}
+		res, err := sr.ReduceSome(ps, feedOf(docs, keys))
+		if err != nil {
+			t.Fatal(err)
+		}
+		g.Close()
+		all[name] = res
+		// Two non-empty results (the longest two) swapped.
+		a, b := 0, 1
+		for i := range res {
+			if len(res[i]) > len(res[a]) {
+				a, b = i, a
+			} else if i != a && len(res[i]) > len(res[b]) {
+				b = i
+			}
+		}
+		swapped := append([][]byte{}, res...)
+		swapped[a], swapped[b] = swapped[b], swapped[a]
+		bad := map[string][][]byte{"cut short": res[:len(res)-1], "swapped": swapped}
+		for what, rs := range bad {
+			g := buildGlobal(t, c.kind, c.params, c.env(t, t.TempDir(), ""))
+			err := g.(SplitReducer).LoadReduced(rs, feedOf(docs, keys))
+			if err == nil || !strings.Contains(err.Error(), g.Name()) {
+				t.Errorf("%s: results %s: %v", name, what, err)
+			}
+			g.Close()
+		}
+	}
+	// Another stage's results (padded or cut to the part count).
+	for i, name := range names {
+		c := byName[name]
+		other := all[names[(i+1)%len(names)]]
+		g := buildGlobal(t, c.kind, c.params, c.env(t, t.TempDir(), ""))
+		n := g.(SplitReducer).ReduceParts()
+		rs := make([][]byte, n)
+		for p := range rs {
+			rs[p] = other[p%len(other)]
+		}
+		if err := g.(SplitReducer).LoadReduced(rs, feedOf(nil, nil)); err == nil {
+			t.Errorf("%s loaded the results of %s", name, names[(i+1)%len(names)])
+		}
+		g.Close()
 	}
 }
