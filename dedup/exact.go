@@ -303,6 +303,23 @@ func (x *ExactIndex) AddPriority(order uint64, id string, h Hash128, priority ui
 	return x.ids.add(order, id)
 }
 
+// createHashesOut starts this run's PREFIX.hashes key file with its
+// header (nil when the run writes no key files).
+func (x *ExactIndex) createHashesOut() (*fsio.AtomicFile, error) {
+	if x.opt.KeysOut == "" {
+		return nil, nil
+	}
+	out, err := fsio.CreateAtomic(x.opt.KeysOut + ".hashes")
+	if err != nil {
+		return nil, fmt.Errorf("dedup: keys: %w", err)
+	}
+	if _, err := out.Write(exactKeysHeader(x.opt.Norm)); err != nil {
+		out.Abort()
+		return nil, err
+	}
+	return out, nil
+}
+
 // Reduce decides which documents are copies. It is called once, after the
 // last Add.
 func (x *ExactIndex) Reduce() (err error) {
@@ -310,19 +327,16 @@ func (x *ExactIndex) Reduce() (err error) {
 		return errors.New("dedup: ExactIndex.Reduce called twice")
 	}
 	x.reduced = true
-	var out *fsio.AtomicFile
-	if x.opt.KeysOut != "" {
-		if out, err = fsio.CreateAtomic(x.opt.KeysOut + ".hashes"); err != nil {
-			return fmt.Errorf("dedup: keys: %w", err)
-		}
+	out, err := x.createHashesOut()
+	if err != nil {
+		return err
+	}
+	if out != nil {
 		defer func() {
 			if err != nil {
 				out.Abort()
 			}
 		}()
-		if _, err = out.Write(exactKeysHeader(x.opt.Norm)); err != nil {
-			return err
-		}
 	}
 	var recBuf [exactKeyLen]byte
 	err = x.walk(func(r exactRec) error {

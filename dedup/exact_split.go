@@ -27,8 +27,6 @@ import (
 	"errors"
 	"fmt"
 	"slices"
-
-	"winnow/stages/fsio"
 )
 
 // ExactPartitions is the number of parts exact dedup's reduce is cut into.
@@ -255,19 +253,16 @@ func (x *ExactIndex) LoadSplit(results [][]byte, kept func(emit func(order uint6
 	if len(results) != exactPartitions {
 		return fmt.Errorf("dedup: %d exact dedup reduce results, want %d", len(results), exactPartitions)
 	}
-	var out *fsio.AtomicFile
-	if x.opt.KeysOut != "" {
-		if out, err = fsio.CreateAtomic(x.opt.KeysOut + ".hashes"); err != nil {
-			return fmt.Errorf("dedup: keys: %w", err)
-		}
+	out, err := x.createHashesOut()
+	if err != nil {
+		return err
+	}
+	if out != nil {
 		defer func() {
 			if err != nil {
 				out.Abort()
 			}
 		}()
-		if _, err = out.Write(exactKeysHeader(x.opt.Norm)); err != nil {
-			return err
-		}
 	}
 	var rec [exactKeyLen]byte
 	for p, b := range results {
