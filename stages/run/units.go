@@ -4,7 +4,6 @@ package run
 // hands on, running one unit and committing it.
 
 import (
-	"bufio"
 	"context"
 	"encoding/binary"
 	"encoding/json"
@@ -15,8 +14,6 @@ import (
 	"path/filepath"
 	"strings"
 	"time"
-
-	"github.com/klauspost/compress/zstd"
 
 	"winnow/stages"
 	"winnow/stages/fsio"
@@ -221,19 +218,13 @@ func (w *keyWriter) add(order stages.OrderKey, id string, keys []byte) error {
 	return w.put(appendField(b, string(keys)))
 }
 
-// forEachRecord reads a length-prefixed zstd record file.
+// forEachRecord reads a recordFile.
 func forEachRecord(path string, fn func([]byte) error) error {
-	f, err := os.Open(path)
+	f, br, err := openRecordFile(path)
 	if err != nil {
 		return err
 	}
 	defer f.Close()
-	dec, err := zstd.NewReader(f, zstd.WithDecoderConcurrency(1))
-	if err != nil {
-		return err
-	}
-	defer dec.Close()
-	br := bufio.NewReaderSize(dec, 1<<20)
 	var buf []byte
 	for {
 		n, err := binary.ReadUvarint(br)
