@@ -220,7 +220,7 @@ func NewBuilder(opt Options) (*Builder, error) {
 			tmp = filepath.Join(filepath.Dir(opt.Dir), ".work")
 		}
 		b.opt.TempDir = tmp
-		s, err := createSpill(tmp, "output-spill-*.zst")
+		s, err := createSpill(tmp, "output-spill-*.s2")
 		if err != nil {
 			return nil, err
 		}
