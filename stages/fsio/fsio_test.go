@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/klauspost/compress/zstd"
@@ -141,5 +142,72 @@ func TestParseSize(t *testing.T) {
 		if _, err := ParseSize(in); err == nil {
 			t.Errorf("ParseSize(%q): no error", in)
 		}
+	}
+}
+
+// A stream whose frames end between stretches is the byte concatenation
+// of streams written one stretch each; ending a frame with nothing new
+// writes nothing; a stream that never got a byte is one empty frame,
+// which a zstd reader (klauspost/compress, a general-purpose library)
+// reads as empty. A split run relies on the concatenation.
+func TestZstdEndFrameConcatenates(t *testing.T) {
+	stretches := []string{strings.Repeat(`{"doc":"a","rule":"fewest_words"}`+"\n", 5000), "", `{"doc":"b"}` + "\n",
+		strings.Repeat("x", 3<<20)}
+	dir := t.TempDir()
+	whole, err := CreateZstd(filepath.Join(dir, "whole.zst"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var parts []byte
+	var all string
+	for i, s := range stretches {
+		whole.Write([]byte(s))
+		if err := whole.EndFrame(); err != nil {
+			t.Fatal(err)
+		}
+		if err := whole.EndFrame(); err != nil { // nothing new: no frame
+			t.Fatal(err)
+		}
+		p, err := CreateZstd(filepath.Join(dir, fmt.Sprintf("part%d.zst", i)))
+		if err != nil {
+			t.Fatal(err)
+		}
+		p.Write([]byte(s))
+		if err := p.Commit(); err != nil {
+			t.Fatal(err)
+		}
+		if s != "" {
+			b, _ := os.ReadFile(p.Path())
+			parts = append(parts, b...)
+		}
+		all += s
+	}
+	if err := whole.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	got, _ := os.ReadFile(whole.Path())
+	if !bytes.Equal(got, parts) {
+		t.Errorf("stream with ended frames (%d bytes) is not the concatenation of its parts (%d bytes)", len(got), len(parts))
+	}
+	d, _ := zstd.NewReader(bytes.NewReader(got))
+	text, err := io.ReadAll(d)
+	d.Close()
+	if err != nil || string(text) != all {
+		t.Errorf("concatenation does not read back: %v", err)
+	}
+	empty, err := CreateZstd(filepath.Join(dir, "empty.zst"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	empty.EndFrame()
+	if err := empty.Commit(); err != nil {
+		t.Fatal(err)
+	}
+	b, _ := os.ReadFile(empty.Path())
+	d, _ = zstd.NewReader(bytes.NewReader(b))
+	text, err = io.ReadAll(d)
+	d.Close()
+	if len(b) == 0 || err != nil || len(text) != 0 {
+		t.Errorf("empty stream: %d bytes, %q, %v", len(b), text, err)
 	}
 }
