@@ -487,6 +487,11 @@ func (sr *splitRun) requireDone(phase string, n int) error {
 		if err != nil {
 			return err
 		}
+		if m != nil && (m.Version != sr.opt.Version || m.ConfigHash != sr.spec.ConfigHash) {
+			// Units must agree byte for byte: one tool version and spec.
+			return fmt.Errorf("unit %d of phase %s was written by winnow %s for config %s on %s; this is winnow %s, config %s: run every task with one binary and one spec",
+				u, phase, m.Version, m.ConfigHash, m.Host, sr.opt.Version, sr.spec.ConfigHash)
+		}
 		if m == nil {
 			if b, err := os.ReadFile(failedMarker(sr.dir, phase, u)); err == nil {
 				var fm unitMarker
