@@ -210,7 +210,8 @@ type GlobalStage interface {
 // between the phases of a split run (see stages/run "phases"): Scan runs in
 // one process, the keys go to a file, and Collect runs in another process.
 // DecodeKeys(AppendKeys(nil, k)) must give keys that Collect treats exactly
-// as k (a nil Scan result included). Without a codec the next phase scans
+// as k (a nil Scan result included); DecodeKeys must not keep b, whose
+// bytes are reused for the next document. Without a codec the next phase scans
 // the stored documents again (correct, but Scan's work is repeated).
 type KeyCodec interface {
 	AppendKeys(b []byte, keys any) []byte

@@ -170,26 +170,15 @@ func countFile(ctx context.Context, path string, input int, opts *CountOptions) 
 		printed.Add(1)
 		go func() { // restores input order
 			defer printed.Done()
-			pending := map[int]done{}
-			next := 0
 			var line []byte
-			for d := range doneCh {
-				pending[d.seq] = d
-				for {
-					b, ok := pending[next]
-					if !ok {
-						break
-					}
-					delete(pending, next)
-					next++
-					for i, id := range b.ids {
-						line, _ = json.Marshal(countDocLine{ID: id, Tokens: b.counts[i]})
-						if _, err := perDoc.Write(append(line, '\n')); err != nil && writeErr == nil {
-							writeErr = err
-						}
+			inOrder(doneCh, func(d done) int64 { return int64(d.seq) }, func(b done) {
+				for i, id := range b.ids {
+					line, _ = json.Marshal(countDocLine{ID: id, Tokens: b.counts[i]})
+					if _, err := perDoc.Write(append(line, '\n')); err != nil && writeErr == nil {
+						writeErr = err
 					}
 				}
-			}
+			})
 		}()
 	}
 	results := make([]partial, workers)

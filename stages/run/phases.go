@@ -327,6 +327,7 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 	for _, name := range todo {
 		pi := slices.Index(names, name)
 		var mine []int
+		done := 0
 		if phases[pi].Seg < 0 {
 			if opt.Task != 0 {
 				sr.logf("phase %s is one unit, run by task 0: task %d has nothing to do", PhaseWrite, opt.Task)
@@ -347,12 +348,13 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 				}
 				if m != nil {
 					res.Skipped = append(res.Skipped, u)
+					done++
 					continue
 				}
 				mine = append(mine, u)
 			}
 			if len(mine) == 0 {
-				sr.logf("phase %s, task %d of %d: nothing to do (%d units done already)", name, opt.Task, opt.Tasks, len(res.Skipped))
+				sr.logf("phase %s, task %d of %d: nothing to do (%d units done already)", name, opt.Task, opt.Tasks, done)
 				continue
 			}
 		}
@@ -464,7 +466,7 @@ func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *Ph
 			return ctx.Err()
 		}
 		t0 := time.Now()
-		err := sr.runUnit(ctx, ph, u, prev)
+		docs, err := sr.runUnit(ctx, ph, u, prev)
 		if err != nil {
 			if !errors.Is(err, context.Canceled) {
 				sr.writeFailed(ph.Name, u, err, time.Since(t0))
@@ -472,9 +474,7 @@ func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *Ph
 			return fmt.Errorf("phase %s, unit %d: %w", ph.Name, u, err)
 		}
 		res.Units = append(res.Units, u)
-		if m, err := readMarker(sr.dir, ph.Name, u); err == nil && m != nil && m.State != nil {
-			sr.logf("phase %s, unit %d of %d: %d documents passed on, %.1f s", ph.Name, u, len(sr.chunks), m.State.Docs, time.Since(t0).Seconds())
-		}
+		sr.logf("phase %s, unit %d of %d: %d documents passed on, %.1f s", ph.Name, u, len(sr.chunks), docs, time.Since(t0).Seconds())
 	}
 	return nil
 }
@@ -544,11 +544,11 @@ func (sr *splitRun) feed(ctx context.Context, prev string, gi int) stages.Feed {
 					if !ok {
 						return errSpill
 					}
-					kb, _, ok := takeField(rest)
+					kb, _, ok := takeBytes(rest)
 					if !ok {
 						return errSpill
 					}
-					keys, err := codec.DecodeKeys([]byte(kb))
+					keys, err := codec.DecodeKeys(kb)
 					if err != nil {
 						return fmt.Errorf("keys of %s: %w", id, err)
 					}

@@ -260,40 +260,17 @@ func (r *Runner) Run(ctx context.Context) error {
 	// for a mix or shuffle, from Add (in the collector, which owns the
 	// ledger) for an output in input order cut by budget_tokens.
 	if r.Output == nil && r.Sink != nil {
-		if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
-			lo.OnLeftOut(func(rec *record.LedgerRecord) error {
-				if rec.Action == "drop" {
-					r.Write.Dropped++
-				} else {
-					r.Write.Edited++ // some pieces written, others left out
-				}
-				return r.ledger.Add(rec)
-			})
-		}
+		r.recordLeftOut()
 	}
 	err := r.runSegments(ctx, cp)
 	if err == nil || errors.Is(err, context.Canceled) {
 		if r.Output == nil && r.Sink != nil {
-			out, cerr := r.Sink.Close()
-			if cerr != nil && err == nil {
+			if cerr := r.closeSink(); cerr != nil && err == nil {
 				err = cerr
 			}
-			r.Output = out
-			if _, ok := r.Sink.(record.LeftOutRecorder); !ok && out != nil {
-				r.Write.Dropped += out.BudgetLeftOut
-			}
 		}
-		if r.Output != nil {
-			for i := range r.Output.Edits {
-				r.ledger.Add(&r.Output.Edits[i])
-			}
-		}
-		for _, s := range r.Steps {
-			if f, ok := stageOf(s).(stages.Finisher); ok {
-				if ferr := f.Finish(r.Env.RunDir); ferr != nil && err == nil {
-					err = ferr
-				}
-			}
+		if ferr := r.finishOutput(); ferr != nil && err == nil {
+			err = ferr
 		}
 		if cerr := r.ledger.Commit(); cerr != nil && err == nil {
 			err = cerr
@@ -324,6 +301,54 @@ func (r *Runner) Run(ctx context.Context) error {
 		}
 	}
 	return err
+}
+
+// recordLeftOut makes the documents the sink leaves out ledger records of
+// the write row: from Close for a mix or shuffle, from Add (on the
+// collector, which owns the ledger) for an output in input order cut by
+// budget_tokens.
+func (r *Runner) recordLeftOut() {
+	if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
+		lo.OnLeftOut(func(rec *record.LedgerRecord) error {
+			if rec.Action == "drop" {
+				r.Write.Dropped++
+			} else {
+				r.Write.Edited++ // some pieces written, others left out
+			}
+			return r.ledger.Add(rec)
+		})
+	}
+}
+
+// closeSink finishes the shards and keeps the sink's report.
+func (r *Runner) closeSink() error {
+	out, err := r.Sink.Close()
+	r.Output = out
+	if _, ok := r.Sink.(record.LeftOutRecorder); !ok && out != nil {
+		r.Write.Dropped += out.BudgetLeftOut
+	}
+	return err
+}
+
+// finishOutput writes the sink's edit records (split documents) and lets
+// every stage that writes a run-level file write it.
+func (r *Runner) finishOutput() error {
+	var first error
+	if r.Output != nil {
+		for i := range r.Output.Edits {
+			if err := r.ledger.Add(&r.Output.Edits[i]); err != nil && first == nil {
+				first = err
+			}
+		}
+	}
+	for _, s := range r.Steps {
+		if f, ok := stageOf(s).(stages.Finisher); ok {
+			if err := f.Finish(r.Env.RunDir); err != nil && first == nil {
+				first = err
+			}
+		}
+	}
+	return first
 }
 
 // initCounters gives the read and write rows and every step a fresh
@@ -506,28 +531,17 @@ func (r *Runner) runSegment(ctx context.Context, seg segment, produce func(conte
 	}
 	go func() { wg.Wait(); close(results) }()
 
-	pending := map[int64]*batch{}
-	var next int64
 	var collErr error
 	r.curChunk = -1
-	for b := range results {
-		pending[b.seq] = b
-		for {
-			nb, ok := pending[next]
-			if !ok {
-				break
+	inOrder(results, func(b *batch) int64 { return b.seq }, func(b *batch) {
+		if collErr == nil {
+			if err := r.collect(seg, b, spill); err != nil {
+				collErr = err
+				cancel()
 			}
-			delete(pending, next)
-			next++
-			if collErr == nil {
-				if err := r.collect(seg, nb, spill); err != nil {
-					collErr = err
-					cancel()
-				}
-			}
-			<-window
 		}
-	}
+		<-window
+	})
 	if collErr != nil {
 		return collErr
 	}
@@ -569,6 +583,26 @@ func (r *Runner) endFrames() error {
 		return err
 	}
 	return r.metrics.EndFrames()
+}
+
+// inOrder calls fn with the items of in in sequence order (seq numbers
+// 0, 1, 2, ...), holding back those that arrive early: workers finish
+// batches in any order, output is written in input order.
+func inOrder[T any](in <-chan T, seq func(T) int64, fn func(T)) {
+	pending := map[int64]T{}
+	var next int64
+	for x := range in {
+		pending[seq(x)] = x
+		for {
+			y, ok := pending[next]
+			if !ok {
+				break
+			}
+			delete(pending, next)
+			next++
+			fn(y)
+		}
+	}
 }
 
 // work runs the segment's stages over one batch (on a worker goroutine).

@@ -125,35 +125,10 @@ func appendField(b []byte, s string) []byte {
 	return append(b, s...)
 }
 
-// spillReader reads a docSpill back in order.
-type spillReader struct {
-	f   *os.File
-	br  *bufio.Reader
-	buf []byte
-}
-
-func openDocSpill(path string) (*spillReader, error) {
-	f, br, err := openRecordFile(path)
-	if err != nil {
-		return nil, err
-	}
-	return &spillReader{f: f, br: br}, nil
-}
-
 var errSpill = errors.New("corrupt spill record")
 
-func (r *spillReader) next() (*stages.Doc, error) {
-	n, err := binary.ReadUvarint(r.br)
-	if err != nil {
-		return nil, err
-	}
-	if cap(r.buf) < int(n) {
-		r.buf = make([]byte, n)
-	}
-	b := r.buf[:n]
-	if _, err := io.ReadFull(r.br, b); err != nil {
-		return nil, fmt.Errorf("spill %s: %w", r.f.Name(), err)
-	}
+// parseSpilled decodes one docSpill record.
+func parseSpilled(b []byte) (*stages.Doc, error) {
 	d := &stages.Doc{}
 	var ok bool
 	var u uint64
@@ -231,32 +206,56 @@ func takeUvarint(b []byte) (uint64, []byte, bool) {
 }
 
 func takeField(b []byte) (string, []byte, bool) {
-	n, b, ok := takeUvarint(b)
-	if !ok || uint64(len(b)) < n {
-		return "", b, false
-	}
-	return string(b[:n]), b[n:], true
+	f, rest, ok := takeBytes(b)
+	return string(f), rest, ok
 }
 
-func (r *spillReader) close() { r.f.Close() }
+// takeBytes is takeField without the copy: the field aliases b.
+func takeBytes(b []byte) ([]byte, []byte, bool) {
+	n, b, ok := takeUvarint(b)
+	if !ok || uint64(len(b)) < n {
+		return nil, b, false
+	}
+	return b[:n], b[n:], true
+}
 
 // forEachSpilled calls fn with every document of a spill, in order,
 // stopping at the first error.
 func forEachSpilled(path string, fn func(*stages.Doc) error) error {
-	sr, err := openDocSpill(path)
+	return forEachRecord(path, func(b []byte) error {
+		d, err := parseSpilled(b)
+		if err != nil {
+			return fmt.Errorf("spill %s: %w", path, err)
+		}
+		return fn(d)
+	})
+}
+
+// forEachRecord calls fn with every record of a recordFile, in order; b is
+// reused for the next record.
+func forEachRecord(path string, fn func(b []byte) error) error {
+	f, br, err := openRecordFile(path)
 	if err != nil {
 		return err
 	}
-	defer sr.close()
+	defer f.Close()
+	var buf []byte
 	for {
-		d, err := sr.next()
+		n, err := binary.ReadUvarint(br)
 		if err == io.EOF {
 			return nil
 		}
 		if err != nil {
-			return err
+			return fmt.Errorf("%s: %w", path, err)
 		}
-		if err := fn(d); err != nil {
+		if cap(buf) < int(n) {
+			buf = make([]byte, n)
+		}
+		b := buf[:n]
+		if _, err := io.ReadFull(br, b); err != nil {
+			return fmt.Errorf("%s: %w", path, err)
+		}
+		if err := fn(b); err != nil {
 			return err
 		}
 	}

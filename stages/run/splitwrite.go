@@ -150,16 +150,7 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 	r.Sink = sink
 	r.ledger = record.NewLedger(filepath.Join(wtmp, "ledger"))
 	r.metrics = record.NewMetrics(filepath.Join(wtmp, "metrics"))
-	if lo, ok := sink.(record.LeftOutRecorder); ok {
-		lo.OnLeftOut(func(rec *record.LedgerRecord) error {
-			if rec.Action == "drop" {
-				r.Write.Dropped++
-			} else {
-				r.Write.Edited++
-			}
-			return r.ledger.Add(rec)
-		})
-	}
+	r.recordLeftOut()
 	last := docPhases[len(docPhases)-1].Name
 	for u := range sr.chunks {
 		if ctx.Err() != nil {
@@ -182,27 +173,13 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 			return nil, err
 		}
 	}
-	out, err := sink.Close()
-	if err != nil {
+	if err := r.closeSink(); err != nil {
 		r.ledger.Abort()
 		r.metrics.Abort()
 		return nil, err
 	}
-	r.Output = out
-	if _, ok := sink.(record.LeftOutRecorder); !ok && out != nil {
-		r.Write.Dropped += out.BudgetLeftOut
-	}
-	for i := range out.Edits {
-		if err := r.ledger.Add(&out.Edits[i]); err != nil {
-			return nil, err
-		}
-	}
-	for _, s := range sr.steps {
-		if f, ok := stageOf(s).(stages.Finisher); ok {
-			if err := f.Finish(sr.dir); err != nil {
-				return nil, err
-			}
-		}
+	if err := r.finishOutput(); err != nil {
+		return nil, err
 	}
 	if err := fault(PhaseWrite, 0, "written"); err != nil {
 		return nil, err

@@ -9,7 +9,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"os"
 	"path/filepath"
 	"strings"
@@ -192,13 +191,15 @@ type unitIO struct {
 	keys  *keyWriter
 	ids   *idWriter
 	codec stages.KeyCodec
+	kb    []byte // the encoded keys of the current document, reused
 }
 
 func (u *unitIO) addKeys(d *stages.Doc, keys any) error {
 	if u.keys == nil {
 		return nil
 	}
-	return u.keys.add(d.Order, d.ID, u.codec.AppendKeys(nil, keys))
+	u.kb = u.codec.AppendKeys(u.kb[:0], keys)
+	return u.keys.add(d.Order, d.ID, u.kb)
 }
 
 // keyWriter stores scan keys: per document, order, id and encoded keys.
@@ -215,36 +216,8 @@ func createKeyWriter(path string) (*keyWriter, error) {
 func (w *keyWriter) add(order stages.OrderKey, id string, keys []byte) error {
 	b := binary.AppendUvarint(w.buf[:0], uint64(order))
 	b = appendField(b, id)
-	return w.put(appendField(b, string(keys)))
-}
-
-// forEachRecord reads a recordFile.
-func forEachRecord(path string, fn func([]byte) error) error {
-	f, br, err := openRecordFile(path)
-	if err != nil {
-		return err
-	}
-	defer f.Close()
-	var buf []byte
-	for {
-		n, err := binary.ReadUvarint(br)
-		if err == io.EOF {
-			return nil
-		}
-		if err != nil {
-			return fmt.Errorf("%s: %w", path, err)
-		}
-		if cap(buf) < int(n) {
-			buf = make([]byte, n)
-		}
-		b := buf[:n]
-		if _, err := io.ReadFull(br, b); err != nil {
-			return fmt.Errorf("%s: %w", path, err)
-		}
-		if err := fn(b); err != nil {
-			return err
-		}
-	}
+	b = binary.AppendUvarint(b, uint64(len(keys)))
+	return w.put(append(b, keys...))
 }
 
 // idWriter stores the ids a read unit saw (xxh3, id, file, line), so the
@@ -258,16 +231,16 @@ func (w *idWriter) add(d *stages.Doc) error {
 }
 
 // runUnit runs unit u of a document phase into a temp directory and
-// renames it into place.
-func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) error {
+// renames it into place; it returns the number of documents it passed on.
+func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) (int64, error) {
 	t0 := time.Now()
 	if err := fault(ph.Name, u, "start"); err != nil {
-		return err
+		return 0, err
 	}
 	seg := sr.segs[ph.Seg]
 	tmp, err := os.MkdirTemp(filepath.Join(sr.dir, unitsDir), fmt.Sprintf("unit-%s-%05d-", ph.Name, u))
 	if err != nil {
-		return err
+		return 0, err
 	}
 	defer os.RemoveAll(tmp)
 	var files []read.InputFile
@@ -281,14 +254,14 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) e
 	uio := &unitIO{}
 	r.unit = uio
 	if uio.docs, err = createDocSpill(filepath.Join(tmp, "docs.zst")); err != nil {
-		return err
+		return 0, err
 	}
 	state := &unitState{}
 	if seg.scan >= 0 {
 		if c, ok := sr.steps[seg.scan].Global.(stages.KeyCodec); ok {
 			uio.codec = c
 			if uio.keys, err = createKeyWriter(filepath.Join(tmp, "keys.zst")); err != nil {
-				return err
+				return 0, err
 			}
 			state.Keys = true
 		}
@@ -296,7 +269,7 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) e
 	if seg.apply < 0 {
 		kw, err := createKeyWriter(filepath.Join(tmp, "ids.zst"))
 		if err != nil {
-			return err
+			return 0, err
 		}
 		uio.ids = &idWriter{kw: kw}
 	}
@@ -330,10 +303,10 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) e
 	for _, st := range sr.steps {
 		if rs, ok := stageOf(st).(stages.ReportSplitter); ok {
 			if _, err := rs.SaveReport(); err != nil {
-				return err
+				return 0, err
 			}
 		} else if _, obs := stageOf(st).(stages.Observer); obs && sr.stepInSeg(st.Name, seg) {
-			return fmt.Errorf("stage %s keeps a run-wide report that cannot be built in parts: run this spec in one process", st.Name)
+			return 0, fmt.Errorf("stage %s keeps a run-wide report that cannot be built in parts: run this spec in one process", st.Name)
 		}
 	}
 	err = r.runSegment(ctx, seg, produce, uio.docs)
@@ -343,13 +316,13 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) e
 	if err != nil {
 		r.ledger.Abort()
 		r.metrics.Abort()
-		return err
+		return 0, err
 	}
 	if state.Ledger, err = r.ledger.CommitParts(); err != nil {
-		return err
+		return 0, err
 	}
 	if state.Metrics, err = r.metrics.CommitParts(); err != nil {
-		return err
+		return 0, err
 	}
 	for _, st := range sr.steps {
 		rs, ok := stageOf(st).(stages.ReportSplitter)
@@ -358,10 +331,10 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) e
 		}
 		part, err := rs.SaveReport()
 		if err != nil {
-			return err
+			return 0, err
 		}
 		if err := os.WriteFile(filepath.Join(tmp, "report-"+st.Name+".bin"), part, 0o644); err != nil {
-			return err
+			return 0, err
 		}
 		state.Reports = append(state.Reports, st.Name)
 	}
@@ -374,12 +347,12 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) e
 	state.InputSums, state.Errors, state.ErrCount, state.FatalInputs = r.InputSums, r.Errors, r.ErrCount, r.FatalInputs
 	state.Internal, state.LedgerCounts, state.Docs = r.InternalErrors, r.ledger.Counts(), uio.docs.n
 	if err := fault(ph.Name, u, "written"); err != nil {
-		return err
+		return 0, err
 	}
 	if err := sr.commitUnit(tmp, ph.Name, u, state, files, t0); err != nil {
-		return err
+		return 0, err
 	}
-	return fault(ph.Name, u, "renamed")
+	return state.Docs, fault(ph.Name, u, "renamed")
 }
 
 // commitUnit writes the unit's marker into tmp and renames tmp into place.
