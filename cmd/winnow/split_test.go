@@ -612,3 +612,29 @@ func TestSplitRunRefusesChangedInputs(t *testing.T) {
 		t.Errorf("standard input was not refused: %v\n%s", err, b)
 	}
 }
+
+// TestSplitWriteRemovesStaleTemps: a task killed while a global stage
+// wrote its key files leaves a temp file in keys/; the write phase removes
+// it, as a single process does after a crashed attempt (a random-kill run
+// found this).
+func TestSplitWriteRemovesStaleTemps(t *testing.T) {
+	spec := writeSplitSpec(t, "budget")
+	base := t.TempDir()
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	out := filepath.Join(base, "split")
+	phases := strings.Fields(cliRun(t, nil, "check", spec, "--phases"))
+	for i, ph := range phases {
+		if i == 1 {
+			if err := os.MkdirAll(filepath.Join(out, "keys"), 0o755); err != nil {
+				t.Fatal(err)
+			}
+			if err := os.WriteFile(filepath.Join(out, "keys", ".tmp-exact_dedup.hashes-1"), nil, 0o644); err != nil {
+				t.Fatal(err)
+			}
+		}
+		cliRun(t, nil, "run", spec, "--out", out, "--phase", ph, "--tasks", "2", "--task", "0", "-q")
+		cliRun(t, nil, "run", spec, "--out", out, "--phase", ph, "--tasks", "2", "--task", "1", "-q")
+	}
+	sameRun(t, "stale temp file in keys/", runDigest(t, plain), runDigest(t, out))
+}

@@ -254,6 +254,10 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 	if err := record.MarkRunDir(sr.dir, sr.spec.ConfigHash); err != nil {
 		return nil, err
 	}
+	// Temp files of tasks killed while writing (a global stage's key
+	// files are written by the phases before this one), as a single
+	// process cleans up after a crashed earlier attempt.
+	removeStaleTemps(sr.dir)
 	// The units go in one rename, so a task killed here leaves either a
 	// finished run or one whose write phase can run again.
 	gone := filepath.Join(sr.dir, fmt.Sprintf(".units-done-%d", os.Getpid()))
