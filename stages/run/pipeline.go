@@ -158,7 +158,7 @@ func prepareSpec(s *spec.Spec, opt RunOptions) ([]read.InputFile, string, error)
 // removeStaleTemps deletes temp files a crashed earlier attempt left in the
 // run's directories (a finished run's own files are all renamed by now).
 func removeStaleTemps(runDir string) {
-	for _, sub := range []string{"ledger", "metrics", "shards", "keys"} {
+	for _, sub := range []string{"", "ledger", "metrics", "shards", "keys"} { // "": manifest, contamination.json
 		matches, _ := filepath.Glob(filepath.Join(runDir, sub, ".tmp-*"))
 		for _, m := range matches {
 			os.Remove(m)
