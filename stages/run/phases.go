@@ -128,6 +128,9 @@ type PhaseOptions struct {
 	Task, Tasks int
 	// Host names this machine in markers (default os.Hostname).
 	Host string
+	// afterCheck, when set (tests), runs once the task has seen the run
+	// unfinished, before it touches the units.
+	afterCheck func()
 }
 
 // PhaseResult says what a task did.
@@ -247,17 +250,45 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 		}
 	}
 	// A finished run: every task has nothing to do.
-	if _, err := os.Stat(filepath.Join(abs, "manifest.json")); err == nil {
-		if _, err := os.Stat(filepath.Join(abs, unitsDir)); errors.Is(err, os.ErrNotExist) {
-			if m, err := record.ReadManifest(abs); err == nil && m.ConfigHash == s.ConfigHash && !m.Interrupted {
-				sr.logf("%s holds the finished run of this spec: nothing to do", out)
-				return res, nil
-			}
-			if (opt.Phase == PhaseRead || opt.Phase == PhaseAll) && !opt.Force {
-				return nil, fmt.Errorf("output directory %s holds another run: use --force to replace it, or another --out", out)
-			}
+	if fin, other := finishedRun(abs, s.ConfigHash); fin {
+		sr.logf("%s holds the finished run of this spec: nothing to do", out)
+		return res, nil
+	} else if other && (opt.Phase == PhaseRead || opt.Phase == PhaseAll) && !opt.Force {
+		return nil, fmt.Errorf("output directory %s holds another run: use --force to replace it, or another --out", out)
+	}
+	if opt.afterCheck != nil {
+		opt.afterCheck()
+	}
+	res, err = sr.runPhases(ctx, opt, res)
+	if err != nil {
+		// Another attempt of the write phase may have finished the run
+		// (and moved the units away) while this one was starting.
+		if fin, _ := finishedRun(abs, s.ConfigHash); fin {
+			sr.logf("another attempt finished the run in %s: nothing to do", out)
+			return &PhaseResult{Dir: abs}, nil
 		}
 	}
+	return res, err
+}
+
+// finishedRun tells whether dir holds a finished run of the config
+// (fin), or a finished run of another config (other).
+func finishedRun(dir, configHash string) (fin, other bool) {
+	if _, err := os.Stat(filepath.Join(dir, "manifest.json")); err != nil {
+		return false, false
+	}
+	if _, err := os.Stat(filepath.Join(dir, unitsDir)); !errors.Is(err, os.ErrNotExist) {
+		return false, false
+	}
+	if m, err := record.ReadManifest(dir); err == nil && m.ConfigHash == configHash && !m.Interrupted {
+		return true, false
+	}
+	return false, true
+}
+
+// runPhases runs the phases of opt in the prepared split run.
+func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseResult) (*PhaseResult, error) {
+	s, abs, inputs := sr.spec, sr.dir, sr.inputs
 	// The phases, from stages built as `check` builds them (cheap: no
 	// model is loaded), so a task with nothing to do ends at once.
 	cenv := stages.Env{SpecDir: s.Dir, RunDir: abs, MemoryBudget: s.Memory, Seed: s.Seed, Checking: true,
@@ -285,15 +316,22 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 		frozen.Phases = append(frozen.Phases, p.Name)
 		frozen.PhaseUnits = append(frozen.PhaseUnits, n)
 	}
-	if err := os.MkdirAll(filepath.Join(abs, unitsDir), 0o755); err != nil {
-		return nil, err
+	first := opt.Phase == PhaseRead || opt.Phase == PhaseAll
+	if first {
+		if err := os.MkdirAll(filepath.Join(abs, unitsDir), 0o755); err != nil {
+			return nil, err
+		}
+	} else if _, err := os.Stat(filepath.Join(abs, unitsDir)); err != nil {
+		// Later phases never create the units directory: a late task
+		// must not bring it back after the write phase moved it away.
+		return nil, fmt.Errorf("%s: no units of a split run (%v): run phase %q first", abs, err, PhaseRead)
 	}
 	if (opt.Phase == PhaseRead || opt.Phase == PhaseAll) && opt.Force {
 		if err := clearForSplit(abs); err != nil {
 			return nil, err
 		}
 	}
-	if err := checkFrozen(abs, frozen, opt.Phase == PhaseRead || opt.Phase == PhaseAll); err != nil {
+	if err := checkFrozen(abs, frozen, first); err != nil {
 		return nil, err
 	}
 	sr.tmp, err = os.MkdirTemp(filepath.Join(abs, unitsDir), fmt.Sprintf("tmp-%s-%d-", sanitizeHost(sr.host), os.Getpid()))
