@@ -769,8 +769,8 @@ type assembler struct {
 	w      *shardWriter
 	splits *[]Split // where shard_boundary splits go
 	cuts   []cut
-	next int // index of the next cut
-	tol  int
+	next   int // index of the next cut
+	tol    int
 }
 
 func (a *assembler) add(p int, r *record) error {
