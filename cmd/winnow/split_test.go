@@ -196,6 +196,7 @@ output:
 output:
   tokenizer: cl100k_base
   shard_tokens: 100000
+  shuffle: true
 `,
 	"budget": `stages:
   - kind: exact_dedup
@@ -323,7 +324,7 @@ func TestSplitRunSurvivesKills(t *testing.T) {
 
 	// At named points: the killed task is started again with the fault
 	// spent, the other task runs normally.
-	for i, f := range []string{"read/3/written", "exact_dedup/*/start", "near_dedup/2/renamed", "write/0/written"} {
+	for i, f := range []string{"read/3/written", "exact_dedup/*/start", "near_dedup/2/renamed", "shards/0/written", "shards/3/start", "write/0/written"} {
 		out := filepath.Join(base, fmt.Sprintf("fault%d", i))
 		once := filepath.Join(base, fmt.Sprintf("fault%d.once", i))
 		env := []string{run.FaultEnv + "=" + f, run.FaultOnceEnv + "=" + once}
