@@ -17,6 +17,8 @@ package run
 // their sizes and xxh3. A task started again skips the units whose marker
 // exists, so a task killed at any moment redoes only unfinished units, and
 // two attempts of one unit at once are harmless (the second rename loses).
+// A task claims a unit with a flock'ed file before running it, and once
+// its own units are done it takes other tasks' unclaimed units (steal).
 //
 // A document phase after a global stage first rebuilds that stage: it
 // feeds the keys of every unit of the previous phase, in input order, to
