@@ -159,6 +159,7 @@ type Builder struct {
 	splits   []Split
 	leftOut  func(LeftOut) error
 	leftWhy  map[string]string // source -> reason its documents are left out
+	raw      int64             // uncompressed bytes of the spilled records
 	line     []byte
 	closed   bool
 
@@ -167,8 +168,8 @@ type Builder struct {
 	pieceOut   bool  // a piece of the current document was written (in-order mode)
 }
 
-// NewBuilder validates opt and prepares the output directory.
-func NewBuilder(opt Options) (*Builder, error) {
+// withDefaults validates opt and fills in its defaults.
+func withDefaults(opt Options) (Options, error) {
 	if opt.ShardTokens <= 0 {
 		opt.ShardTokens = DefaultShardTokens
 	}
@@ -182,7 +183,7 @@ func NewBuilder(opt Options) (*Builder, error) {
 		opt.MemoryBudget = defaultMemory
 	}
 	if opt.Tokenizer == nil && (opt.Mix != nil || opt.BudgetTokens > 0 || opt.TokenFiles || opt.Shuffle) {
-		return nil, errors.New("mix, shuffle, budget_tokens and token_files need output.tokenizer")
+		return opt, errors.New("mix, shuffle, budget_tokens and token_files need output.tokenizer")
 	}
 	if opt.SplitTokens <= 0 {
 		opt.SplitTokens = opt.ShardTokens
@@ -191,10 +192,19 @@ func NewBuilder(opt Options) (*Builder, error) {
 		}
 	}
 	if opt.SplitTokens > opt.ShardTokens {
-		return nil, fmt.Errorf("split_tokens %d is larger than shard_tokens %d", opt.SplitTokens, opt.ShardTokens)
+		return opt, fmt.Errorf("split_tokens %d is larger than shard_tokens %d", opt.SplitTokens, opt.ShardTokens)
 	}
 	if opt.Name == "" {
 		opt.Name = "shard"
+	}
+	return opt, nil
+}
+
+// NewBuilder validates opt and prepares the output directory.
+func NewBuilder(opt Options) (*Builder, error) {
+	opt, err := withDefaults(opt)
+	if err != nil {
+		return nil, err
 	}
 	b := &Builder{opt: opt, tok: opt.Tokenizer, srcIdx: map[string]uint16{}}
 	if opt.MetaKeys != nil {
@@ -209,7 +219,7 @@ func NewBuilder(opt Options) (*Builder, error) {
 	}
 	b.w = newShardWriter(opt.Dir, opt.Name, b.tok, opt.TokenFiles)
 	if b.tok != nil {
-		b.asm = &assembler{b: b, tol: int(opt.ShardTokens / cutTolerance)}
+		b.asm = &assembler{b: b, w: b.w, splits: &b.splits, tol: int(opt.ShardTokens / cutTolerance)}
 	}
 	if b.tok != nil && opt.Mix == nil && !opt.Shuffle {
 		b.stream = &streamCutter{shardTokens: opt.ShardTokens, budget: opt.BudgetTokens}
@@ -352,20 +362,45 @@ func (b *Builder) Close() (*Report, error) {
 		if err := b.w.finish(); err != nil {
 			return nil, err
 		}
-		if b.opt.Mix == nil {
-			return b.report(nil), nil
-		}
-		mix := &MixReport{Mode: "empty", Note: "no document reached the output: nothing to mix", MaxEpochs: b.opt.MaxEpochs,
-			BudgetTokens: b.opt.BudgetTokens, Sources: []MixSource{}}
-		return b.report(mix), nil
+		return b.report(b.emptyMix()), nil
 	}
+	order, mix, err := b.plan()
+	if err != nil {
+		return nil, err
+	}
+	b.raw = b.spill.raw
+	win := window{lo: 0, hi: len(order), cuts: planCuts(slotTokens(b.units, order), b.opt.ShardTokens)}
+	err = b.writeReordered(b.asm, reorder{order: order, wins: []window{win}, files: []string{b.spill.f.Name()}, full: true})
+	if err == nil {
+		err = b.w.finish()
+	}
+	if err != nil {
+		b.w.abort()
+		return nil, err
+	}
+	return b.report(mix), nil
+}
+
+// emptyMix is the mix report of an output no document reached (nil
+// without a mix).
+func (b *Builder) emptyMix() *MixReport {
+	if b.opt.Mix == nil {
+		return nil
+	}
+	return &MixReport{Mode: "empty", Note: "no document reached the output: nothing to mix", MaxEpochs: b.opt.MaxEpochs,
+		BudgetTokens: b.opt.BudgetTokens, Sources: []MixSource{}}
+}
+
+// plan orders the output positions of a mix or a shuffle and notes why
+// each source loses documents.
+func (b *Builder) plan() ([]slot, *MixReport, error) {
 	var order []slot
 	var mix *MixReport
-	var err error
 	if b.opt.Mix != nil {
+		var err error
 		order, mix, err = planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
 		if err != nil {
-			return nil, fmt.Errorf("output: %w", err)
+			return nil, nil, fmt.Errorf("output: %w", err)
 		}
 	} else {
 		order = planShuffle(b.units, b.opt.BudgetTokens)
@@ -380,20 +415,7 @@ func (b *Builder) Close() (*Report, error) {
 			b.leftWhy[src] = fmt.Sprintf("total capped at budget_tokens %d", b.opt.BudgetTokens)
 		}
 	}
-	tokens := make([]int64, len(order))
-	for i, s := range order {
-		tokens[i] = int64(b.units[s.unit].tokens)
-	}
-	b.asm.cuts = planCuts(tokens, b.opt.ShardTokens)
-	err = b.writeReordered(b.asm, order)
-	if err == nil {
-		err = b.w.finish()
-	}
-	if err != nil {
-		b.w.abort()
-		return nil, err
-	}
-	return b.report(mix), nil
+	return order, mix, nil
 }
 
 func (b *Builder) report(mix *MixReport) *Report {
@@ -414,13 +436,38 @@ func (b *Builder) Abort() {
 	}
 }
 
-// writeReordered writes records in mix order. The output positions are
-// cut into contiguous groups of at most half the memory budget; one pass
-// over the spill sends each record to the bucket file of each group that
+// window is a range of output positions [lo, hi) written as whole
+// shards, with the cuts that fall inside it (ends of shards within the
+// range; the range ends the last one).
+type window struct {
+	lo, hi int
+	cuts   []cut
+}
+
+// reorder is one writing of planned output positions: the windows to
+// write, the spill files holding every unit's record in unit order, and
+// what to do as each window starts and ends.
+type reorder struct {
+	order []slot
+	wins  []window
+	files []string
+	// full reads every record and reports left-out documents and
+	// docsOut; otherwise records without a position in a window are
+	// skipped unread.
+	full  bool
+	start func(i int) error // before window i's first record
+	end   func(i int) error // after its last
+}
+
+// writeReordered writes the records of the windows in output order. The
+// windows' positions are laid end to end ("compact" positions) and cut
+// into contiguous groups of at most half the memory budget; one pass
+// over the spills sends each record to the bucket file of each group that
 // holds one of its positions (a repeated document has several), then each
-// group is read, sorted by position and written. With one group the
+// group is read, placed by position and written. With one group the
 // records stay in memory.
-func (b *Builder) writeReordered(a *assembler, order []slot) error {
+func (b *Builder) writeReordered(a *assembler, ro reorder) error {
+	order := ro.order
 	// Positions of each unit, in CSR form.
 	start := make([]uint32, len(b.units)+1)
 	for _, s := range order {
@@ -436,41 +483,75 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 		fill[s.unit]++
 	}
 	fill = nil
-	// Group boundaries by estimated bytes.
+	// Compact positions: window i's positions follow window i-1's.
+	off := make([]int, len(ro.wins)+1)
+	for i, w := range ro.wins {
+		off[i+1] = off[i] + w.hi - w.lo
+	}
+	compact := func(p int) int {
+		i := sort.Search(len(ro.wins), func(i int) bool { return ro.wins[i].hi > p })
+		if i == len(ro.wins) || p < ro.wins[i].lo {
+			return -1
+		}
+		return off[i] + p - ro.wins[i].lo
+	}
+	// Group boundaries (compact) by estimated bytes.
 	var totalTok int64
 	for _, u := range b.units {
 		totalTok += int64(u.tokens)
 	}
 	bytesPerTok := 4.0
 	if totalTok > 0 {
-		bytesPerTok = float64(b.spill.raw) / float64(totalTok)
+		bytesPerTok = float64(b.raw) / float64(totalTok)
 	}
 	groupBytes := float64(b.opt.MemoryBudget / 2)
 	var outTok int64
-	for _, s := range order {
-		outTok += int64(b.units[s.unit].tokens)
+	for _, w := range ro.wins {
+		for p := w.lo; p < w.hi; p++ {
+			outTok += int64(b.units[order[p].unit].tokens)
+		}
 	}
 	if g := float64(outTok) * bytesPerTok / groupBytes; g > maxBuckets {
 		groupBytes = float64(outTok) * bytesPerTok / maxBuckets
 	}
 	groupStart := []int{0}
 	acc := 0.0
-	for p, s := range order {
-		acc += float64(b.units[s.unit].tokens)*bytesPerTok + 64
-		if acc > groupBytes && p > groupStart[len(groupStart)-1] {
-			groupStart = append(groupStart, p)
-			acc = float64(b.units[s.unit].tokens)*bytesPerTok + 64
+	for i, w := range ro.wins {
+		for p := w.lo; p < w.hi; p++ {
+			tk := float64(b.units[order[p].unit].tokens)*bytesPerTok + 64
+			cp := off[i] + p - w.lo
+			acc += tk
+			if acc > groupBytes && cp > groupStart[len(groupStart)-1] {
+				groupStart = append(groupStart, cp)
+				acc = tk
+			}
 		}
 	}
-	groupOf := func(p int) int { return sort.SearchInts(groupStart, p+1) - 1 }
+	total := off[len(ro.wins)]
+	groupEnd := func(g int) int {
+		if g+1 < len(groupStart) {
+			return groupStart[g+1]
+		}
+		return total
+	}
+	groupOf := func(c int) int { return sort.SearchInts(groupStart, c+1) - 1 }
 
-	r, err := openSpill(b.spill.f.Name())
+	if total == 0 && !ro.full {
+		// Nothing to write here (empty ranges): no need to read.
+		return b.emptyWindows(ro)
+	}
+	r, err := openSpills(ro.files)
 	if err != nil {
 		return err
 	}
 	defer r.close()
 	single := len(groupStart) == 1
+	// Every output position is held by exactly one record, so a group's
+	// records are placed at their positions directly.
 	var mem []record
+	if single {
+		mem = make([]record, total)
+	}
 	var buckets []*spillWriter
 	defer func() {
 		for _, w := range buckets {
@@ -514,80 +595,157 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 		return nil
 	}
 	for ui := 0; ui < len(b.units); ui++ {
+		if !ro.full {
+			need := false
+			for _, p := range pos[start[ui]:start[ui+1]] {
+				if compact(int(p)) >= 0 {
+					need = true
+					break
+				}
+			}
+			if !need {
+				if err := r.skip(); err != nil {
+					return fmt.Errorf("output: reading spill: %w", err)
+				}
+				continue
+			}
+		}
 		if err := r.next(&rec, false); err != nil {
 			return fmt.Errorf("output: reading spill: %w", err)
 		}
-		doc := rec.id
-		if rec.original != "" {
-			doc = rec.original
-		}
-		if !curOpen || rec.original == "" || rec.piece <= 1 || doc != cur.Doc {
-			if err := flushDoc(); err != nil {
-				return err
+		if ro.full {
+			doc := rec.id
+			if rec.original != "" {
+				doc = rec.original
 			}
-			cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line, Reason: b.leftWhy[rec.source]}
-			part = cur
-			curUsed, curOpen = false, true
-		}
-		cur.Tokens += rec.tokens
-		cur.Bytes += len(rec.text)
-		if start[ui+1] > start[ui] {
-			curUsed = true
-		} else if rec.original != "" {
-			part.Tokens += rec.tokens
-			part.Bytes += len(rec.text)
-			part.Pieces = append(part.Pieces, rec.id)
+			if !curOpen || rec.original == "" || rec.piece <= 1 || doc != cur.Doc {
+				if err := flushDoc(); err != nil {
+					return err
+				}
+				cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line, Reason: b.leftWhy[rec.source]}
+				part = cur
+				curUsed, curOpen = false, true
+			}
+			cur.Tokens += rec.tokens
+			cur.Bytes += len(rec.text)
+			if start[ui+1] > start[ui] {
+				curUsed = true
+			} else if rec.original != "" {
+				part.Tokens += rec.tokens
+				part.Bytes += len(rec.text)
+				part.Pieces = append(part.Pieces, rec.id)
+			}
 		}
 		for _, p := range pos[start[ui]:start[ui+1]] {
-			rec.pos = uint64(p)
-			if single {
-				mem = append(mem, rec)
+			c := compact(int(p))
+			if c < 0 {
 				continue
 			}
-			if err := buckets[groupOf(int(p))].put(&rec, true); err != nil {
+			rec.pos = uint64(c)
+			if single {
+				mem[c] = rec
+				continue
+			}
+			if err := buckets[groupOf(c)].put(&rec, true); err != nil {
 				return err
 			}
 		}
 	}
-	if err := flushDoc(); err != nil {
-		return err
+	if ro.full {
+		if err := flushDoc(); err != nil {
+			return err
+		}
 	}
-	if single {
-		sort.Slice(mem, func(i, j int) bool { return mem[i].pos < mem[j].pos })
-		for i := range mem {
-			if err := a.add(int(mem[i].pos), &mem[i]); err != nil {
+	// Assembly, window by window in compact order.
+	wi := -1
+	advance := func(c int) error {
+		for wi < len(ro.wins)-1 && (wi < 0 || c >= off[wi+1]) {
+			if wi >= 0 && ro.end != nil {
+				if err := ro.end(wi); err != nil {
+					return err
+				}
+			}
+			wi++
+			a.cuts, a.next = ro.wins[wi].cuts, 0
+			if ro.start != nil {
+				if err := ro.start(wi); err != nil {
+					return err
+				}
+			}
+		}
+		return nil
+	}
+	place := func(recs []record, base int) error {
+		for i := range recs {
+			c := base + i
+			if err := advance(c); err != nil {
+				return err
+			}
+			if err := a.add(ro.wins[wi].lo+c-off[wi], &recs[i]); err != nil {
 				return err
 			}
 		}
 		return nil
 	}
-	for g, w := range buckets {
-		if err := w.close(); err != nil {
+	if single {
+		if err := place(mem, 0); err != nil {
 			return err
 		}
-		br, err := openSpill(w.f.Name())
-		if err != nil {
-			return err
-		}
-		var recs []record
-		for {
-			var rr record
-			err := br.next(&rr, true)
-			if err == io.EOF {
-				break
+	} else {
+		for g, w := range buckets {
+			if err := w.close(); err != nil {
+				return err
 			}
+			br, err := openSpill(w.f.Name())
 			if err != nil {
-				br.close()
-				return fmt.Errorf("output: reading bucket %d: %w", g, err)
+				return err
 			}
-			recs = append(recs, rr)
+			first, end := groupStart[g], groupEnd(g)
+			recs := make([]record, end-first)
+			for {
+				var rr record
+				err := br.next(&rr, true)
+				if err == io.EOF {
+					break
+				}
+				if err == nil && (rr.pos < uint64(first) || rr.pos >= uint64(end)) {
+					err = fmt.Errorf("position %d outside the group", rr.pos)
+				}
+				if err != nil {
+					br.close()
+					return fmt.Errorf("output: reading bucket %d: %w", g, err)
+				}
+				recs[rr.pos-uint64(first)] = rr
+			}
+			br.close()
+			w.remove()
+			buckets[g] = nil
+			if err := place(recs, first); err != nil {
+				return err
+			}
 		}
-		br.close()
-		w.remove()
-		buckets[g] = nil
-		sort.Slice(recs, func(i, j int) bool { return recs[i].pos < recs[j].pos })
-		for i := range recs {
-			if err := a.add(int(recs[i].pos), &recs[i]); err != nil {
+	}
+	// Windows after the last record (empty ones), and the last one's end.
+	if err := advance(total); err != nil {
+		return err
+	}
+	if wi >= 0 && ro.end != nil {
+		return ro.end(wi)
+	}
+	return nil
+}
+
+// emptyWindows starts and ends each window of ro, none of which holds a
+// position.
+func (b *Builder) emptyWindows(ro reorder) error {
+	for k := range ro.wins {
+		if ro.start != nil {
+			if err := ro.start(k); err != nil {
+				return err
+			}
+		}
+		if ro.end != nil {
+			if err := ro.end(k); err != nil {
 				return err
 			}
 		}
@@ -595,17 +753,28 @@ func (b *Builder) writeReordered(a *assembler, order []slot) error {
 	return nil
 }
 
+// slotTokens lists the tokens of each output position.
+func slotTokens(units []unit, order []slot) []int64 {
+	tokens := make([]int64, len(order))
+	for i, s := range order {
+		tokens[i] = int64(units[s.unit].tokens)
+	}
+	return tokens
+}
+
 // assembler writes records in output order and ends shards at the
 // planned cuts, splitting a document's text where a cut falls inside it.
 type assembler struct {
-	b    *Builder
-	cuts []cut
-	next int // index of the next cut
-	tol  int
+	b      *Builder
+	w      *shardWriter
+	splits *[]Split // where shard_boundary splits go
+	cuts   []cut
+	next   int // index of the next cut
+	tol    int
 }
 
 func (a *assembler) add(p int, r *record) error {
-	w := a.b.w
+	w := a.w
 	if a.next >= len(a.cuts) || a.cuts[a.next].pos != p {
 		return a.write(r, r.id, r.text, r.tokens)
 	}
@@ -643,7 +812,7 @@ func (a *assembler) add(p int, r *record) error {
 		for i := range parts {
 			sp.Pieces = append(sp.Pieces, fmt.Sprintf("%s~%d", r.id, i+1))
 		}
-		a.b.splits = append(a.b.splits, sp)
+		*a.splits = append(*a.splits, sp)
 		if err := a.write(r, id, text, -1); err != nil {
 			return err
 		}
@@ -663,7 +832,7 @@ func (a *assembler) write(r *record, id, text string, tokens int) error {
 		tokens = a.b.tok.Count(text)
 	}
 	a.b.line = appendLineMeta(a.b.line[:0], id, text, r.source, tokens, r.meta)
-	return a.b.w.write(a.b.line, id, r.source, text, tokens)
+	return a.w.write(a.b.line, id, r.source, text, tokens)
 }
 
 // streamCutter ends shards on the fly when documents are written in input
@@ -697,8 +866,8 @@ func (s *streamCutter) add(a *assembler, r *record) error {
 		before, after := c-s.start, s.start+t-c
 		switch {
 		case before == 0 || (before <= after && before <= tol):
-			if len(a.cuts) == 0 && a.b.w.cur != nil {
-				if err := a.b.w.finish(); err != nil {
+			if len(a.cuts) == 0 && a.w.cur != nil {
+				if err := a.w.finish(); err != nil {
 					return err
 				}
 			}

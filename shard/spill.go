@@ -221,3 +221,66 @@ func (r *spillReader) fail(err error, inside bool) error {
 	}
 	return fmt.Errorf("spill %s: truncated or corrupt record: %w", r.name, err)
 }
+
+// skip reads past one record (without position) without keeping it.
+func (r *spillReader) skip() error {
+	for i := 0; i < 10; i++ {
+		// file, line, id, source, text, meta, tokens, original, piece,
+		// total: strings are a length and bytes, numbers a uvarint.
+		n, err := r.uvarint()
+		if err != nil {
+			return r.fail(err, i > 0)
+		}
+		if i == 1 || i == 6 || i == 8 || i == 9 {
+			continue
+		}
+		if _, err := r.br.Discard(int(n)); err != nil {
+			return r.fail(err, true)
+		}
+	}
+	return nil
+}
+
+// spillChain reads spill files one after the other as one stream.
+type spillChain struct {
+	files []string
+	i     int
+	cur   *spillReader
+}
+
+func openSpills(files []string) (*spillChain, error) { return &spillChain{files: files}, nil }
+
+func (c *spillChain) step(f func(r *spillReader) error) error {
+	for {
+		if c.cur == nil {
+			if c.i >= len(c.files) {
+				return io.EOF
+			}
+			r, err := openSpill(c.files[c.i])
+			if err != nil {
+				return err
+			}
+			c.cur = r
+		}
+		err := f(c.cur)
+		if err != io.EOF {
+			return err
+		}
+		c.cur.close()
+		c.cur = nil
+		c.i++
+	}
+}
+
+func (c *spillChain) next(rec *record, withPos bool) error {
+	return c.step(func(r *spillReader) error { return r.next(rec, withPos) })
+}
+
+func (c *spillChain) skip() error { return c.step(func(r *spillReader) error { return r.skip() }) }
+
+func (c *spillChain) close() {
+	if c.cur != nil {
+		c.cur.close()
+		c.cur = nil
+	}
+}

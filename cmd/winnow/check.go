@@ -41,7 +41,7 @@ stages with their parameters' effects (e.g. the LSH S-curve of near_dedup).`,
 			return err
 		}
 		if checkPhases {
-			for _, p := range run.Phases(steps) {
+			for _, p := range run.Phases(steps, record.PlannedOutput(sp.Output)) {
 				fmt.Fprintln(cmd.OutOrStdout(), p.Name)
 			}
 			return nil

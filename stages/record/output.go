@@ -184,18 +184,33 @@ func sortedStrings[V any](m map[string]V) []string {
 // env.RunDir/shards/. Under env.Checking it validates and returns a sink
 // that writes nothing.
 func OpenSink(p *stages.Params, env stages.Env, name string) (Sink, error) {
-	c, err := parseOutput(p, env)
+	opt, err := OutputOptions(p, env, name)
 	if err != nil {
 		return nil, err
 	}
 	if env.Checking {
 		return discardSink{}, nil
 	}
+	b, err := shard.NewBuilder(opt)
+	if err != nil {
+		return nil, fmt.Errorf("output: %w", err)
+	}
+	return &shardSink{b: b}, nil
+}
+
+// OutputOptions returns the shard options OpenSink builds its writer
+// from: shards in env.RunDir/shards, temp files in env.TempDir (default
+// env.RunDir/.work).
+func OutputOptions(p *stages.Params, env stages.Env, name string) (shard.Options, error) {
+	c, err := parseOutput(p, env)
+	if err != nil {
+		return shard.Options{}, err
+	}
 	tmp := env.TempDir
 	if tmp == "" {
 		tmp = filepath.Join(env.RunDir, ".work")
 	}
-	b, err := shard.NewBuilder(shard.Options{
+	return shard.Options{
 		Dir:          filepath.Join(env.RunDir, "shards"),
 		Name:         name,
 		Tokenizer:    c.tok,
@@ -211,12 +226,29 @@ func OpenSink(p *stages.Params, env stages.Env, name string) (Sink, error) {
 		Seed:         env.Seed,
 		TempDir:      tmp,
 		MemoryBudget: env.MemoryBudget,
-	})
-	if err != nil {
-		return nil, fmt.Errorf("output: %w", err)
-	}
-	return &shardSink{b: b}, nil
+	}, nil
 }
+
+// PlannedOutput reports whether the output section plans its shards when
+// it closes (a tokenizer with a mix or a shuffle): then a split run saves
+// its documents in parts and writes the shards in ranges.
+func PlannedOutput(p *stages.Params) bool {
+	if p == nil || !p.Has("tokenizer") {
+		return false
+	}
+	return p.Has("mix") || p.Bool("shuffle", false)
+}
+
+// PartSaver is a sink that can keep its documents as one part of a
+// planned output (shard.Builder.SavePart) instead of closing.
+type PartSaver interface {
+	Sink
+	Planned() bool
+	SavePart(dir string) error
+}
+
+func (s *shardSink) Planned() bool             { return s.b.Planned() }
+func (s *shardSink) SavePart(dir string) error { return s.b.SavePart(dir) }
 
 // discardSink is the sink of `winnow check`.
 type discardSink struct{}
@@ -250,20 +282,24 @@ type LeftOutRecorder interface {
 // OnLeftOut makes Close call fn for each document the mix (or a shuffled
 // output's budget) leaves out.
 func (s *shardSink) OnLeftOut(fn func(*LedgerRecord) error) {
-	s.b.SetLeftOut(func(l shard.LeftOut) error {
-		why := l.Reason
-		if why == "" {
-			why = "its source had more tokens than its mix share needed"
-		}
-		if len(l.Pieces) > 0 {
-			return fn(&LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
-				Rule: RuleMixLeftOutPieces, Action: "edit", Value: l.Tokens, Changes: map[string]int{"pieces_left_out": len(l.Pieces)},
-				Extra: map[string]any{"reason": why, "pieces": l.Pieces, "bytes": l.Bytes}})
-		}
-		return fn(&LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
-			Rule: RuleMixLeftOut, Action: "drop", Value: l.Tokens,
-			Extra: map[string]any{"reason": why}})
-	})
+	s.b.SetLeftOut(func(l shard.LeftOut) error { return fn(LeftOutRecord(l)) })
+}
+
+// LeftOutRecord is the ledger record of a document the mix (or a
+// shuffled output's budget) left out, wholly or in part.
+func LeftOutRecord(l shard.LeftOut) *LedgerRecord {
+	why := l.Reason
+	if why == "" {
+		why = "its source had more tokens than its mix share needed"
+	}
+	if len(l.Pieces) > 0 {
+		return &LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
+			Rule: RuleMixLeftOutPieces, Action: "edit", Value: l.Tokens, Changes: map[string]int{"pieces_left_out": len(l.Pieces)},
+			Extra: map[string]any{"reason": why, "pieces": l.Pieces, "bytes": l.Bytes}}
+	}
+	return &LedgerRecord{Doc: l.Doc, Source: l.Source, File: l.File, Line: l.Line, Stage: OutputLedgerStage,
+		Rule: RuleMixLeftOut, Action: "drop", Value: l.Tokens,
+		Extra: map[string]any{"reason": why}}
 }
 
 // Add hands one surviving document to the builder.
@@ -279,6 +315,12 @@ func (s *shardSink) Close() (*OutputReport, error) {
 	if err != nil {
 		return nil, err
 	}
+	return ReportOf(rep), nil
+}
+
+// ReportOf converts the report of the shard writer for the manifest and
+// the ledger.
+func ReportOf(rep *shard.Report) *OutputReport {
 	out := &OutputReport{Files: make([]OutputFile, 0, len(rep.Files))}
 	for _, f := range rep.Files {
 		out.Files = append(out.Files, OutputFile{Path: f.Path, Docs: f.Docs, Tokens: f.Tokens, Bytes: f.Bytes, XXH3: f.XXH3,
@@ -295,7 +337,7 @@ func (s *shardSink) Close() (*OutputReport, error) {
 			Extra: map[string]any{"reason": sp.Reason, "pieces": sp.Pieces, "tokens": sp.Tokens},
 		})
 	}
-	return out, nil
+	return out
 }
 
 // Abort removes unfinished files.

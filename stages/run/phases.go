@@ -84,6 +84,8 @@ func reducePhaseName(stage string) string { return "reduce-" + stage }
 const (
 	PhaseRead  = "read"
 	PhaseWrite = "write"
+	// PhaseShards writes a planned output's shards in ranges (units).
+	PhaseShards = "shards"
 	// PhaseAll runs every phase in one process (one task): a run that
 	// resumes from its finished units when started again.
 	PhaseAll = "all"
@@ -98,7 +100,11 @@ func segmentsOf(steps []spec.Step) []segment {
 }
 
 // Phases lists the phases of a pipeline in order.
-func Phases(steps []spec.Step) []Phase {
+//
+// planned adds the phase that writes the shards of a planned output (a
+// mix or a shuffle: record.PlannedOutput) in ranges before the write
+// phase.
+func Phases(steps []spec.Step, planned bool) []Phase {
 	var out []Phase
 	for i, seg := range segmentsOf(steps) {
 		name := PhaseRead
@@ -109,6 +115,9 @@ func Phases(steps []spec.Step) []Phase {
 			}
 		}
 		out = append(out, Phase{Name: name, Seg: i, Reduce: -1})
+	}
+	if planned {
+		out = append(out, Phase{Name: PhaseShards, Seg: -1, Reduce: -1})
 	}
 	return append(out, Phase{Name: PhaseWrite, Seg: -1, Reduce: -1})
 }
@@ -154,6 +163,7 @@ type splitRun struct {
 	tmp     string // this process's temp directory
 	inputs  []read.InputFile
 	chunks  [][]int
+	planned bool // the output is planned: phase shards writes it in ranges
 	steps   []spec.Step
 	segs    []segment
 	phases  []Phase
@@ -240,7 +250,7 @@ func RunPhase(ctx context.Context, s *spec.Spec, opt PhaseOptions) (*PhaseResult
 	if err != nil {
 		return nil, err
 	}
-	sr := &splitRun{spec: s, opt: opt, dir: abs, inputs: inputs, chunks: Chunks(inputs, s.ChunkBytes)}
+	sr := &splitRun{spec: s, opt: opt, dir: abs, inputs: inputs, chunks: Chunks(inputs, s.ChunkBytes), planned: record.PlannedOutput(s.Output)}
 	sr.host = opt.Host
 	if sr.host == "" {
 		sr.host, _ = os.Hostname()
@@ -304,7 +314,7 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 		return nil, err
 	}
 	closeSteps(csteps)
-	phases := Phases(csteps)
+	phases := Phases(csteps, sr.planned)
 	frozen, err := freezeList(s, inputs)
 	if err != nil {
 		return nil, err
@@ -314,6 +324,8 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 	for _, p := range phases {
 		n := len(sr.chunks)
 		switch {
+		case p.Name == PhaseShards:
+			n = shardRanges
 		case p.Seg < 0:
 			n = 1
 		case p.Reduce >= 0:
@@ -372,7 +384,7 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 		pi := slices.Index(names, name)
 		var mine, steal []int
 		done := 0
-		if phases[pi].Seg < 0 {
+		if phases[pi].Name == PhaseWrite {
 			if opt.Task != 0 {
 				sr.logf("phase %s is one unit, run by task 0: task %d has nothing to do", PhaseWrite, opt.Task)
 				continue
@@ -381,6 +393,8 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 			n := len(sr.chunks)
 			if phases[pi].Reduce >= 0 {
 				n = csteps[phases[pi].Reduce].Global.(stages.SplitReducer).ReduceParts()
+			} else if name == PhaseShards {
+				n = shardRanges
 			}
 			for u := 0; u < n; u++ {
 				if u%opt.Tasks != opt.Task {
@@ -416,13 +430,19 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 			// stage's key files.
 			sr.env.NoKeyFiles = true
 		}
+		if name == PhaseShards {
+			if err := sr.shardsPhase(ctx, phases, mine, res); err != nil {
+				return res, err
+			}
+			continue
+		}
 		if err := sr.build(); err != nil {
 			return nil, err
 		}
 		if len(sr.phases) != len(phases) {
 			return nil, errors.New("the phases of the built stages differ from the checked ones")
 		}
-		if phases[pi].Seg < 0 {
+		if name == PhaseWrite {
 			m, err := sr.write(ctx)
 			if err != nil {
 				return nil, err
@@ -475,7 +495,7 @@ func (sr *splitRun) build() error {
 		}
 		steps = append(steps, spec.Step{Name: name, Stage: ts})
 	}
-	sr.steps, sr.segs, sr.phases = steps, segmentsOf(steps), Phases(steps)
+	sr.steps, sr.segs, sr.phases = steps, segmentsOf(steps), Phases(steps, sr.planned)
 	return nil
 }
 

@@ -309,15 +309,18 @@ func (r *Runner) Run(ctx context.Context) error {
 // budget_tokens.
 func (r *Runner) recordLeftOut() {
 	if lo, ok := r.Sink.(record.LeftOutRecorder); ok {
-		lo.OnLeftOut(func(rec *record.LedgerRecord) error {
-			if rec.Action == "drop" {
-				r.Write.Dropped++
-			} else {
-				r.Write.Edited++ // some pieces written, others left out
-			}
-			return r.ledger.Add(rec)
-		})
+		lo.OnLeftOut(r.addLeftOut)
 	}
+}
+
+// addLeftOut counts and records a document the output's mix left out.
+func (r *Runner) addLeftOut(rec *record.LedgerRecord) error {
+	if rec.Action == "drop" {
+		r.Write.Dropped++
+	} else {
+		r.Write.Edited++ // some pieces written, others left out
+	}
+	return r.ledger.Add(rec)
 }
 
 // closeSink finishes the shards and keeps the sink's report.
@@ -776,7 +779,12 @@ func (r *Runner) collect(seg segment, b *batch, spill *docSpill) error {
 		r.Write.DocsIn++
 		r.Write.BytesIn += int64(len(d.Text))
 		r.Write.TokensOut += int64(d.Tokens)
-		if r.unit != nil {
+		if r.unit != nil && r.unit.part != nil {
+			r.unit.partDocs++
+			if err := r.unit.part.Add(d); err != nil {
+				return fmt.Errorf("write: %w", err)
+			}
+		} else if r.unit != nil {
 			if err := r.unit.docs.add(d); err != nil {
 				return err
 			}

@@ -8,6 +8,7 @@ import (
 
 	"winnow/stages"
 	"winnow/stages/read"
+	"winnow/stages/record"
 	"winnow/stages/spec"
 )
 
@@ -33,7 +34,7 @@ func TestLateWriteAttemptAfterFinish(t *testing.T) {
 	opt := func(phase string) PhaseOptions {
 		return PhaseOptions{RunOptions: RunOptions{Out: out, Workers: 1, Version: "t"}, Phase: phase, Tasks: 1}
 	}
-	for _, ph := range Phases(steps) {
+	for _, ph := range Phases(steps, record.PlannedOutput(s.Output)) {
 		if ph.Name == PhaseWrite {
 			continue
 		}

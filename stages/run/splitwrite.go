@@ -143,37 +143,16 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 			return nil, err
 		}
 	}
-	sink, err := record.OpenSink(sr.spec.Output, sr.env, sr.spec.Name)
-	if err != nil {
-		return nil, err
-	}
-	r.Sink = sink
 	r.ledger = record.NewLedger(filepath.Join(wtmp, "ledger"))
 	r.metrics = record.NewMetrics(filepath.Join(wtmp, "metrics"))
-	r.recordLeftOut()
-	last := docPhases[len(docPhases)-1].Name
-	for u := range sr.chunks {
-		if ctx.Err() != nil {
-			sink.Abort()
-			return nil, ctx.Err()
-		}
-		err := forEachSpilled(filepath.Join(unitDir(sr.dir, last, u), "docs.zst"), func(d *stages.Doc) error {
-			if err := sink.Add(d); err != nil {
-				return fmt.Errorf("write: %w", err)
-			}
-			return nil
-		})
-		if err == nil {
-			err = r.endFrames()
-		}
-		if err != nil {
-			sink.Abort()
+	if sr.planned {
+		// Phase shards wrote the shards in ranges.
+		if err := sr.assembleShards(r); err != nil {
 			r.ledger.Abort()
 			r.metrics.Abort()
 			return nil, err
 		}
-	}
-	if err := r.closeSink(); err != nil {
+	} else if err := sr.writeSink(ctx, r, docPhases[len(docPhases)-1].Name); err != nil {
 		r.ledger.Abort()
 		r.metrics.Abort()
 		return nil, err
@@ -267,6 +246,37 @@ func (sr *splitRun) write(ctx context.Context) (*record.Manifest, error) {
 	os.RemoveAll(gone)
 	os.RemoveAll(filepath.Join(sr.dir, ".work"))
 	return m, nil
+}
+
+// writeSink feeds the documents of the last document phase to the
+// output sink in input order and closes it.
+func (sr *splitRun) writeSink(ctx context.Context, r *Runner, last string) error {
+	sink, err := record.OpenSink(sr.spec.Output, sr.env, sr.spec.Name)
+	if err != nil {
+		return err
+	}
+	r.Sink = sink
+	r.recordLeftOut()
+	for u := range sr.chunks {
+		if ctx.Err() != nil {
+			sink.Abort()
+			return ctx.Err()
+		}
+		err := forEachSpilled(filepath.Join(unitDir(sr.dir, last, u), "docs.zst"), func(d *stages.Doc) error {
+			if err := sink.Add(d); err != nil {
+				return fmt.Errorf("write: %w", err)
+			}
+			return nil
+		})
+		if err == nil {
+			err = r.endFrames()
+		}
+		if err != nil {
+			sink.Abort()
+			return err
+		}
+	}
+	return r.closeSink()
 }
 
 // addCounters adds the counts of b to a.

@@ -187,7 +187,12 @@ func readMarker(dir, phase string, u int) (*unitMarker, error) {
 // unitIO receives what one unit hands on: surviving documents, the next
 // global stage's keys and the ids read.
 type unitIO struct {
-	docs  *docSpill
+	docs *docSpill
+	// part takes the surviving documents instead of docs when the output
+	// is planned (phase shards writes it in ranges).
+	part     record.PartSaver
+	partDocs int64
+
 	keys  *keyWriter
 	ids   *idWriter
 	codec stages.KeyCodec
@@ -256,6 +261,23 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) (
 	if uio.docs, err = createDocSpill(filepath.Join(tmp, "docs.zst")); err != nil {
 		return 0, err
 	}
+	if seg.scan < 0 && sr.planned {
+		// The last document phase of a planned output hands its documents
+		// to a part of the output (tokens, hashes and records), which
+		// phase shards plans and writes in ranges.
+		env := sr.env
+		env.RunDir, env.TempDir = tmp, filepath.Join(tmp, "spill")
+		sink, err := record.OpenSink(sr.spec.Output, env, sr.spec.Name)
+		if err != nil {
+			return 0, err
+		}
+		ps, ok := sink.(record.PartSaver)
+		if !ok || !ps.Planned() {
+			sink.Abort()
+			return 0, errors.New("the output is not planned (no mix or shuffle): phase shards has nothing to write")
+		}
+		uio.part = ps
+	}
 	state := &unitState{}
 	if seg.scan >= 0 {
 		if c, ok := sr.steps[seg.scan].Global.(stages.KeyCodec); ok {
@@ -313,6 +335,13 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) (
 	if cerr := closeAll(); cerr != nil && err == nil {
 		err = cerr
 	}
+	if uio.part != nil {
+		if err == nil {
+			err = uio.part.SavePart(filepath.Join(tmp, partDir))
+		} else {
+			uio.part.Abort()
+		}
+	}
 	if err != nil {
 		r.ledger.Abort()
 		r.metrics.Abort()
@@ -345,7 +374,7 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) (
 		state.Counters = append(state.Counters, s)
 	}
 	state.InputSums, state.Errors, state.ErrCount, state.FatalInputs = r.InputSums, r.Errors, r.ErrCount, r.FatalInputs
-	state.Internal, state.LedgerCounts, state.Docs = r.InternalErrors, r.ledger.Counts(), uio.docs.n
+	state.Internal, state.LedgerCounts, state.Docs = r.InternalErrors, r.ledger.Counts(), uio.docs.n+uio.partDocs
 	if err := fault(ph.Name, u, "written"); err != nil {
 		return 0, err
 	}
