@@ -399,8 +399,10 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 			for u := 0; u < n; u++ {
 				if u%opt.Tasks != opt.Task {
 					// Another task's unit: taken when done with our own,
-					// never unit 0 (its task writes the key files).
-					if u != 0 && !unitDone(abs, name, u) {
+					// never unit 0 (its task writes the key files), never
+					// in the shards phase (its ranges are written in one
+					// pass).
+					if u != 0 && name != PhaseShards && !unitDone(abs, name, u) {
 						steal = append(steal, u)
 					}
 					continue
