@@ -270,7 +270,8 @@ func runPhase(ctx context.Context, sp *spec.Spec, f runFlags, mem int64, prog *p
 		return err
 	}
 	if res.Manifest == nil {
-		fmt.Fprintf(os.Stderr, "winnow: phase %s, task %d of %d: ran units %v, %d already done\n", f.phase, task, tasks, res.Units, len(res.Skipped))
+		fmt.Fprintf(os.Stderr, "winnow: phase %s, task %d of %d: ran units %v, %d already done; took %d units of other tasks %v\n",
+			f.phase, task, tasks, res.Units, len(res.Skipped), len(res.Stolen), res.Stolen)
 		return nil
 	}
 	m := res.Manifest

@@ -439,7 +439,7 @@ func TestPhaseAllResumesFromUnits(t *testing.T) {
 func TestAuditListsUnfinishedUnits(t *testing.T) {
 	spec := writeSplitSpec(t, "perdoc")
 	out := filepath.Join(t.TempDir(), "run")
-	cliRun(t, nil, "run", spec, "--out", out, "--phase", "read", "--task", "0", "--tasks", "3", "-q")
+	// Task 1's first unit fails before it takes any other task's units.
 	cmd := cliCommand([]string{run.FaultEnv + "=read/1/start/fail"}, "run", spec, "--out", out, "--phase", "read", "--task", "1", "--tasks", "3", "-q")
 	if b, err := cmd.CombinedOutput(); err == nil || !strings.Contains(string(b), "fault injected") {
 		t.Fatalf("the unit did not fail: %v\n%s", err, b)
@@ -451,7 +451,7 @@ func TestAuditListsUnfinishedUnits(t *testing.T) {
 	}
 	text := string(b)
 	host, _ := os.Hostname()
-	for _, want := range []string{"unit 1 failed on " + host, "fault injected", "inputs: corpus/", "units not run: 2,", "--phase read", "phase write            0 of 1 units done"} {
+	for _, want := range []string{"unit 1 failed on " + host, "fault injected", "inputs: corpus/", "units not run: 0, 2, 3,", "--phase read", "phase write            0 of 1 units done"} {
 		if !strings.Contains(text, want) {
 			t.Errorf("audit lacks %q:\n%s", want, text)
 		}
@@ -638,4 +638,135 @@ func TestSplitWriteRemovesStaleTemps(t *testing.T) {
 		cliRun(t, nil, "run", spec, "--out", out, "--phase", ph, "--tasks", "2", "--task", "1", "-q")
 	}
 	sameRun(t, "stale temp file in keys/", runDigest(t, plain), runDigest(t, out))
+}
+
+// runTask runs one task of one phase and returns its pid and log.
+func runTask(t *testing.T, env []string, spec, out, phase string, task, tasks int) (int, string) {
+	t.Helper()
+	cmd := cliCommand(env, "run", spec, "--out", out, "--phase", phase, "--task", fmt.Sprint(task), "--tasks", fmt.Sprint(tasks), "-q", "--workers", "1")
+	var errb bytes.Buffer
+	cmd.Stderr = &errb
+	if err := cmd.Run(); err != nil {
+		t.Fatalf("task %d of phase %s: %v\n%s", task, phase, err, errb.String())
+	}
+	return cmd.Process.Pid, errb.String()
+}
+
+// unitPIDs returns, per unit of phase with a completion marker, the pid
+// that wrote it.
+func unitPIDs(t *testing.T, out, phase string) map[int]int {
+	t.Helper()
+	got := map[int]int{}
+	dirs, _ := filepath.Glob(filepath.Join(out, ".units", phase, "[0-9]*"))
+	for _, d := range dirs {
+		b, err := os.ReadFile(filepath.Join(d, "done.json"))
+		if err != nil {
+			continue // a claim or failure marker
+		}
+		var m struct{ Unit, PID int }
+		if err := json.Unmarshal(b, &m); err != nil {
+			t.Fatal(err)
+		}
+		got[m.Unit] = m.PID
+	}
+	return got
+}
+
+// phaseUnits reads the number of units of each phase from the run's
+// frozen input list.
+func phaseUnits(t *testing.T, out string) map[string]int {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join(out, ".units", "inputs.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var f struct {
+		Phases     []string `json:"phases"`
+		PhaseUnits []int    `json:"phase_units"`
+	}
+	if err := json.Unmarshal(b, &f); err != nil {
+		t.Fatal(err)
+	}
+	n := map[string]int{}
+	for i, p := range f.Phases {
+		n[p] = f.PhaseUnits[i]
+	}
+	return n
+}
+
+// TestSplitTaskTakesOtherTasksUnits: task 0 of 2 started alone runs its
+// own units and then every unit of task 1 (document and reduce phases);
+// task 1 started afterwards has nothing to do; the bytes are a plain
+// run's, since every unit writes the same files whoever runs it.
+func TestSplitTaskTakesOtherTasksUnits(t *testing.T) {
+	spec := writeSplitSpec(t, "dedup")
+	base := t.TempDir()
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	out := filepath.Join(base, "alone")
+	for _, ph := range strings.Fields(cliRun(t, nil, "check", spec, "--phases")) {
+		if ph == "write" || ph == "shards" {
+			// Not taken over: the shards task writes its ranges in one
+			// pass, the write phase is one unit.
+			runTask(t, nil, spec, out, ph, 0, 2)
+			runTask(t, nil, spec, out, ph, 1, 2)
+			continue
+		}
+		pid, log := runTask(t, nil, spec, out, ph, 0, 2)
+		n := phaseUnits(t, out)[ph]
+		pids := unitPIDs(t, out, ph)
+		if len(pids) != n || n < 2 {
+			t.Fatalf("phase %s: task 0 alone finished %d of %d units:\n%s", ph, len(pids), n, log)
+		}
+		for u, p := range pids {
+			if p != pid {
+				t.Errorf("phase %s: unit %d written by pid %d, not task 0 (%d)", ph, u, p, pid)
+			}
+		}
+		if want := fmt.Sprintf("already done; took %d units of other tasks", n/2); !strings.Contains(log, want) {
+			t.Errorf("phase %s: task 0's log lacks %q:\n%s", ph, want, log)
+		}
+		_, log = runTask(t, nil, spec, out, ph, 1, 2)
+		if !strings.Contains(log, "nothing to do") {
+			t.Errorf("phase %s: task 1 after task 0 did not report nothing to do:\n%s", ph, log)
+		}
+	}
+	sameRun(t, "task 0 took every unit of task 1", runDigest(t, plain), runDigest(t, out))
+}
+
+// TestSplitStolenUnitFails: a unit that fails in a task that took it from
+// another task does not fail that task and is not marked failed; the task
+// takes no more units, and the unit's own task runs it afterwards.
+func TestSplitStolenUnitFails(t *testing.T) {
+	spec := writeSplitSpec(t, "perdoc")
+	base := t.TempDir()
+	plain := filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	out := filepath.Join(base, "split")
+	_, log := runTask(t, []string{run.FaultEnv + "=read/3/start/fail"}, spec, out, "read", 0, 2)
+	n := phaseUnits(t, out)["read"]
+	if n < 6 {
+		t.Fatalf("only %d units: the test needs more", n)
+	}
+	pids := unitPIDs(t, out, "read")
+	for u := 0; u < n; u++ {
+		// Own units all done, task 1's taken from the last down to 5;
+		// unit 3 failed and unit 1 was never tried.
+		want := u%2 == 0 || u > 3
+		if _, done := pids[u]; done != want {
+			t.Errorf("unit %d done: %v, want %v", u, done, want)
+		}
+	}
+	if !strings.Contains(log, "fault injected") || !strings.Contains(log, "left to their tasks") {
+		t.Errorf("the failed unit is not logged:\n%s", log)
+	}
+	if _, err := os.Stat(filepath.Join(out, ".units", "read", "00003.failed.json")); !os.IsNotExist(err) {
+		t.Errorf("a unit that failed in another task is marked failed: %v", err)
+	}
+	_, log = runTask(t, nil, spec, out, "read", 1, 2)
+	if !strings.Contains(log, "ran units [1 3], ") {
+		t.Errorf("task 1 did not run the units left to it:\n%s", log)
+	}
+	runTask(t, nil, spec, out, "write", 0, 2)
+	sameRun(t, "a taken unit failed", runDigest(t, plain), runDigest(t, out))
 }

@@ -461,19 +461,20 @@ func TestSlurmResubmitFailedTask(t *testing.T) {
 		failPhase = ps[1] // a middle phase, so that earlier and later phases are both involved
 	}
 	once := filepath.Join(dir, "fault-fired")
-	// With 2 tasks, task 1 runs the odd units: unit 1 is its first.
-	env := append([]string{"WINNOW_FAULT=" + failPhase + "/1/written", "WINNOW_FAULT_ONCE=" + once}, slurmEnv...)
+	// With 2 tasks, task 0 runs the even units; unit 0 is never taken by
+	// another task, so the fault hits task 0 whichever task starts first.
+	env := append([]string{"WINNOW_FAULT=" + failPhase + "/0/written", "WINNOW_FAULT_ONCE=" + once}, slurmEnv...)
 	submit := filepath.Join(root(t), "configs", "cluster", "submit.sh")
 	run(t, dir, env, "bash", submit, "--tasks", "2", "--winnow", winnow(t), "spec.yaml", "run")
 	code, status := submitWait(t, dir, env, "run.jobs")
-	if code != 1 || !strings.Contains(status, failPhase+": 1/2 done, failed tasks 1") {
-		t.Fatalf("want phase %s failed at task 1 (exit 1), got exit %d:\n%s\n%s", failPhase, code, status, jobLogs(t, filepath.Join(dir, "run.logs")))
+	if code != 1 || !strings.Contains(status, failPhase+": 1/2 done, failed tasks 0") {
+		t.Fatalf("want phase %s failed at task 0 (exit 1), got exit %d:\n%s\n%s", failPhase, code, status, jobLogs(t, filepath.Join(dir, "run.logs")))
 	}
 	if _, err := os.Stat(once); err != nil {
 		t.Fatalf("the fault never fired: %v", err)
 	}
 	res := run(t, dir, slurmEnv, "bash", submit, "--resubmit", "run.jobs")
-	// Only task 1 of the failed phase is rerun; every later phase is
+	// Only task 0 of the failed phase is rerun; every later phase is
 	// submitted again in full behind it; earlier phases are left alone.
 	// submit.sh prints "PHASE JOBID (tasks LIST)" per new array.
 	got := map[string]string{}
@@ -488,7 +489,7 @@ func TestSlurmResubmitFailedTask(t *testing.T) {
 	for _, p := range ps {
 		switch {
 		case p == failPhase:
-			wantRerun[p] = "1"
+			wantRerun[p] = "0"
 			after = true
 		case after:
 			wantRerun[p] = "0,1"

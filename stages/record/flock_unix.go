@@ -3,6 +3,7 @@
 package record
 
 import (
+	"errors"
 	"os"
 	"syscall"
 )
@@ -17,3 +18,6 @@ func flockNB(f *os.File) error {
 func flockWait(f *os.File) error {
 	return syscall.Flock(int(f.Fd()), syscall.LOCK_EX)
 }
+
+// flockBusy tells whether flockNB failed because another holds the lock.
+func flockBusy(err error) bool { return errors.Is(err, syscall.EWOULDBLOCK) }

@@ -330,6 +330,25 @@ func WaitLock(path string) (release func(), err error) {
 	return func() { f.Close() }, nil
 }
 
+// TryLock takes an exclusive lock on the file at path (created when
+// missing) without waiting: ok is false when another process (or another
+// open of the file) holds it. release unlocks. Where flock is not
+// available every attempt succeeds.
+func TryLock(path string) (release func(), ok bool, err error) {
+	f, err := os.OpenFile(path, os.O_CREATE|os.O_RDWR, 0o644)
+	if err != nil {
+		return nil, false, err
+	}
+	if err := flockNB(f); err != nil {
+		f.Close()
+		if flockBusy(err) {
+			return nil, false, nil
+		}
+		return nil, false, err
+	}
+	return func() { f.Close() }, true, nil
+}
+
 // LockFile marks a run directory in use by a running winnow process.
 const LockFile = ".winnow-lock"
 

@@ -17,6 +17,8 @@ package run
 // their sizes and xxh3. A task started again skips the units whose marker
 // exists, so a task killed at any moment redoes only unfinished units, and
 // two attempts of one unit at once are harmless (the second rename loses).
+// A task claims a unit with a flock'ed file before running it, and once
+// its own units are done it takes other tasks' unclaimed units (steal).
 //
 // A document phase after a global stage first rebuilds that stage: it
 // feeds the keys of every unit of the previous phase, in input order, to
@@ -145,8 +147,10 @@ type PhaseOptions struct {
 // PhaseResult says what a task did.
 type PhaseResult struct {
 	Dir string
-	// Units are the units this task ran; Skipped those already done.
-	Units, Skipped []int
+	// Units are the units of its own this task ran; Skipped those of its
+	// own already done (by an earlier attempt, or taken by another task);
+	// Stolen the units of other tasks it ran.
+	Units, Skipped, Stolen []int
 	// Manifest is set by the write phase.
 	Manifest *record.Manifest
 }
@@ -167,6 +171,8 @@ type splitRun struct {
 	host    string
 	workers int
 	closers []func()
+	// closeBuilt closes the stages of the last build (once).
+	closeBuilt func()
 }
 
 func closeSteps(steps []spec.Step) {
@@ -376,7 +382,7 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 	}
 	for _, name := range todo {
 		pi := slices.Index(names, name)
-		var mine []int
+		var mine, steal []int
 		done := 0
 		if phases[pi].Name == PhaseWrite {
 			if opt.Task != 0 {
@@ -392,6 +398,13 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 			}
 			for u := 0; u < n; u++ {
 				if u%opt.Tasks != opt.Task {
+					// Another task's unit: taken when done with our own,
+					// never unit 0 (its task writes the key files), never
+					// in the shards phase (its ranges are written in one
+					// pass).
+					if u != 0 && name != PhaseShards && !unitDone(abs, name, u) {
+						steal = append(steal, u)
+					}
 					continue
 				}
 				m, err := readMarker(abs, name, u)
@@ -406,6 +419,10 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 				mine = append(mine, u)
 			}
 			if len(mine) == 0 {
+				// Build the stages only when some unit is free to take.
+				steal = sr.unclaimed(name, steal)
+			}
+			if len(mine) == 0 && len(steal) == 0 {
 				sr.logf("phase %s, task %d of %d: nothing to do (%d units done already)", name, opt.Task, opt.Tasks, done)
 				continue
 			}
@@ -437,7 +454,7 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 			continue
 		}
 		if phases[pi].Reduce >= 0 {
-			if err := sr.reducePhase(ctx, sr.phases[pi], mine, res); err != nil {
+			if err := sr.reducePhase(ctx, sr.phases[pi], mine, steal, res); err != nil {
 				return res, err
 			}
 			// The stage reduced parts; the next phase loads all of them
@@ -445,7 +462,7 @@ func (sr *splitRun) runPhases(ctx context.Context, opt PhaseOptions, res *PhaseR
 			sr.steps = nil
 			continue
 		}
-		if err := sr.docsPhase(ctx, sr.phases[pi], mine, res); err != nil {
+		if err := sr.docsPhase(ctx, sr.phases[pi], mine, steal, res); err != nil {
 			return res, err
 		}
 	}
@@ -461,7 +478,14 @@ func (sr *splitRun) build() error {
 	if err != nil {
 		return err
 	}
-	sr.closers = append(sr.closers, func() { closeSteps(steps) })
+	closed := false
+	sr.closeBuilt = func() {
+		if !closed {
+			closed = true
+			closeSteps(steps)
+		}
+	}
+	sr.closers = append(sr.closers, sr.closeBuilt)
 	if ts, err := record.OutputStage(sr.spec.Output, sr.env); err != nil {
 		return err
 	} else if ts != nil {
@@ -506,8 +530,9 @@ func (sr *splitRun) logf(format string, args ...any) {
 	}
 }
 
-// docsPhase runs the units mine of a document phase.
-func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *PhaseResult) error {
+// docsPhase runs the units mine of a document phase, then takes the units
+// steal of other tasks (see steal).
+func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine, steal []int, res *PhaseResult) error {
 	seg := sr.segs[ph.Seg]
 	var prev string
 	if seg.apply >= 0 {
@@ -523,16 +548,158 @@ func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine []int, res *Ph
 		if ctx.Err() != nil {
 			return ctx.Err()
 		}
+		release, err := sr.claim(ph.Name, u)
+		if err != nil {
+			return err
+		}
+		if m, err := readMarker(sr.dir, ph.Name, u); err != nil || m != nil {
+			release()
+			if err != nil {
+				return err
+			}
+			res.Skipped = append(res.Skipped, u) // another task took it
+			continue
+		}
 		t0 := time.Now()
 		docs, err := sr.runUnit(ctx, ph, u, prev)
 		if err != nil {
 			if !errors.Is(err, context.Canceled) {
 				sr.writeFailed(ph.Name, u, err, time.Since(t0))
 			}
+			release()
 			return fmt.Errorf("phase %s, unit %d: %w", ph.Name, u, err)
 		}
+		release()
 		res.Units = append(res.Units, u)
 		sr.logf("phase %s, unit %d of %d: %d documents passed on, %.1f s", ph.Name, u, len(sr.chunks), docs, time.Since(t0).Seconds())
+	}
+	return sr.steal(ctx, ph.Name, steal, false, func(us []int) ([]int, error) {
+		t0 := time.Now()
+		docs, err := sr.runUnit(ctx, ph, us[0], prev)
+		if err != nil {
+			return nil, err
+		}
+		sr.logf("phase %s, unit %d of %d (task %d's): %d documents passed on, %.1f s", ph.Name, us[0], len(sr.chunks), us[0]%sr.opt.Tasks, docs, time.Since(t0).Seconds())
+		return us, nil
+	}, res)
+}
+
+// claimPath is the file a task locks while it runs unit u of phase.
+func claimPath(dir, phase string, u int) string {
+	return filepath.Join(dir, unitsDir, phase, fmt.Sprintf("%05d.claim", u))
+}
+
+// claimFile returns the claim file of unit u, creating the phase's
+// directory (never the units directory: see runPhases).
+func (sr *splitRun) claimFile(phase string, u int) (string, error) {
+	if err := os.Mkdir(filepath.Join(sr.dir, unitsDir, phase), 0o755); err != nil && !errors.Is(err, os.ErrExist) {
+		return "", err
+	}
+	return claimPath(sr.dir, phase, u), nil
+}
+
+// claim locks unit u of phase for this task, waiting while another task
+// runs it. The kernel drops the lock of a task that dies.
+func (sr *splitRun) claim(phase string, u int) (release func(), err error) {
+	p, err := sr.claimFile(phase, u)
+	if err != nil {
+		return nil, err
+	}
+	return record.WaitLock(p)
+}
+
+// tryClaim locks unit u of phase when no other task holds it.
+func (sr *splitRun) tryClaim(phase string, u int) (release func(), ok bool, err error) {
+	p, err := sr.claimFile(phase, u)
+	if err != nil {
+		return nil, false, err
+	}
+	return record.TryLock(p)
+}
+
+// unitDone reports whether unit u of phase has its completion marker.
+func unitDone(dir, phase string, u int) bool {
+	_, err := os.Stat(filepath.Join(unitDir(dir, phase, u), "done.json"))
+	return err == nil
+}
+
+// unclaimed returns the units of us that no task holds at the moment.
+func (sr *splitRun) unclaimed(phase string, us []int) []int {
+	var out []int
+	for _, u := range us {
+		release, ok, err := sr.tryClaim(phase, u)
+		if err != nil {
+			sr.logf("phase %s: cannot claim unit %d: %v", phase, u, err)
+			return out
+		}
+		if ok {
+			release()
+			out = append(out, u)
+		}
+	}
+	return out
+}
+
+// steal runs, once this task's own units are done, the units us (other
+// tasks', ascending) that no task holds and none finished, from the last
+// down: a task that runs behind loses its last units first. A document
+// phase runs them one call of run each; a reduce phase (batch) claims
+// every free part first and runs them in one call, since each call reads
+// all stored keys. run returns the units it committed. A failure is logged
+// and ends the stealing without failing the task or marking a unit
+// failed: its own task runs it again. Cancellation still ends the task.
+func (sr *splitRun) steal(ctx context.Context, phase string, us []int, batch bool, run func([]int) ([]int, error), res *PhaseResult) error {
+	var claimed []int
+	var releases []func()
+	releaseAll := func() {
+		for _, r := range releases {
+			r()
+		}
+		claimed, releases = nil, nil
+	}
+	defer releaseAll()
+	runClaimed := func() (bool, error) {
+		slices.Sort(claimed)
+		done, err := run(claimed)
+		res.Stolen = append(res.Stolen, done...)
+		units := claimed
+		releaseAll()
+		if err == nil {
+			return true, nil
+		}
+		if ctx.Err() != nil || errors.Is(err, context.Canceled) {
+			return false, err
+		}
+		sr.logf("phase %s, units %v of other tasks: %v; left to their tasks, taking no more", phase, units, err)
+		return false, nil
+	}
+	for i := len(us) - 1; i >= 0; i-- {
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		u := us[i]
+		release, ok, err := sr.tryClaim(phase, u)
+		if err != nil {
+			sr.logf("phase %s: cannot claim unit %d: %v; taking no more units of other tasks", phase, u, err)
+			break
+		}
+		if !ok {
+			continue // its task (or another) runs it
+		}
+		if unitDone(sr.dir, phase, u) {
+			release()
+			continue
+		}
+		claimed, releases = append(claimed, u), append(releases, release)
+		if !batch {
+			if more, err := runClaimed(); !more {
+				return err
+			}
+		}
+	}
+	if len(claimed) > 0 {
+		_, err := runClaimed()
+		return err
 	}
 	return nil
 }
@@ -661,18 +828,70 @@ func (sr *splitRun) rebuild(ctx context.Context, prev string, gi int) error {
 	return nil
 }
 
-// reducePhase runs the parts ps of a global stage's reduce and commits
-// each part's result as a unit.
-func (sr *splitRun) reducePhase(ctx context.Context, ph Phase, ps []int, res *PhaseResult) error {
+// reducePhase runs the parts mine of a global stage's reduce in one call,
+// each claimed first, and commits each part's result as a unit; then it
+// takes the parts steal of other tasks (see steal).
+func (sr *splitRun) reducePhase(ctx context.Context, ph Phase, mine, steal []int, res *PhaseResult) error {
 	prev := sr.docsPhaseOf(ph.Seg) // the document phase that scanned the stage's keys
 	if err := sr.requireDone(prev, len(sr.chunks)); err != nil {
 		return err
 	}
+	// Own parts are claimed in ascending order, so two attempts of a task
+	// never wait for each other in a circle (stealers never wait).
+	var ps []int
+	var releases []func()
+	releaseAll := func() {
+		for _, r := range releases {
+			r()
+		}
+		releases = nil
+	}
+	defer releaseAll()
+	for _, p := range mine {
+		release, err := sr.claim(ph.Name, p)
+		if err != nil {
+			return err
+		}
+		if m, err := readMarker(sr.dir, ph.Name, p); err != nil || m != nil {
+			release()
+			if err != nil {
+				return err
+			}
+			res.Skipped = append(res.Skipped, p) // another task took it
+			continue
+		}
+		ps, releases = append(ps, p), append(releases, release)
+	}
+	if len(ps) > 0 {
+		done, err := sr.reduceParts(ctx, ph, prev, ps, true)
+		res.Units = append(res.Units, done...)
+		if err != nil {
+			return err
+		}
+	}
+	releaseAll()
+	return sr.steal(ctx, ph.Name, steal, true, func(parts []int) ([]int, error) {
+		if len(ps) > 0 {
+			// A stage reduces once: other parts need it built afresh.
+			sr.closeBuilt()
+			sr.steps = nil
+			if err := sr.build(); err != nil {
+				return nil, err
+			}
+		}
+		return sr.reduceParts(ctx, ph, prev, parts, false)
+	}, res)
+}
+
+// reduceParts reduces the parts ps in one call and commits each; it
+// returns the parts committed. A failure of the task's own parts (own) is
+// recorded beside them.
+func (sr *splitRun) reduceParts(ctx context.Context, ph Phase, prev string, ps []int, own bool) ([]int, error) {
 	sp := sr.steps[ph.Reduce].Global.(stages.SplitReducer)
 	t0 := time.Now()
 	for _, p := range ps {
 		if err := fault(ph.Name, p, "start"); err != nil {
-			return err
+			return nil, err
 		}
 	}
 	results, err := sp.ReduceSome(ps, sr.feed(ctx, prev, ph.Reduce))
@@ -680,17 +899,18 @@ func (sr *splitRun) reducePhase(ctx context.Context, ph Phase, ps []int, res *Ph
 		err = fmt.Errorf("stage %s returned %d results for %d parts", sr.steps[ph.Reduce].Name, len(results), len(ps))
 	}
 	if err != nil {
-		if !errors.Is(err, context.Canceled) {
+		if own && !errors.Is(err, context.Canceled) {
 			for _, p := range ps {
 				sr.writeFailed(ph.Name, p, err, time.Since(t0))
 			}
 		}
-		return fmt.Errorf("phase %s, parts %v: %w", ph.Name, ps, err)
+		return nil, fmt.Errorf("phase %s, parts %v: %w", ph.Name, ps, err)
 	}
+	var done []int
 	for i, p := range ps {
 		tmp, err := os.MkdirTemp(filepath.Join(sr.dir, unitsDir), fmt.Sprintf("unit-%s-%05d-", ph.Name, p))
 		if err != nil {
-			return err
+			return done, err
 		}
 		err = os.WriteFile(filepath.Join(tmp, "result.bin"), results[i], 0o644)
 		if err == nil {
@@ -701,14 +921,17 @@ func (sr *splitRun) reducePhase(ctx context.Context, ph Phase, ps []int, res *Ph
 		}
 		os.RemoveAll(tmp)
 		if err != nil {
-			return err
+			return done, err
 		}
 		if err := fault(ph.Name, p, "renamed"); err != nil {
-			return err
+			return done, err
 		}
-		res.Units = append(res.Units, p)
+		done = append(done, p)
 	}
-	return nil
+	if !own {
+		sr.logf("phase %s, parts %v of other tasks: %.1f s", ph.Name, ps, time.Since(t0).Seconds())
+	}
+	return done, nil
 }
 
 // newRunner returns a runner for one unit: its counters are fresh.
