@@ -83,8 +83,10 @@ func TestMain(m *testing.M) {
 		return
 	}
 	code := m.Run()
-	if demoDir != "" {
-		os.RemoveAll(demoDir)
+	for _, d := range []string{demoDir, splitDir} {
+		if d != "" {
+			os.RemoveAll(d) // shared by the tests of this binary
+		}
 	}
 	os.Exit(code)
 }
