@@ -325,31 +325,44 @@ func (x *NearIndex) LoadSplit(results [][]byte, keys func(emit func(order uint64
 	if len(results) != x.opt.Partitions {
 		return fmt.Errorf("dedup: %d near dedup reduce results, want %d", len(results), x.opt.Partitions)
 	}
-	docs := map[uint32]nearDoc{}
+	// Documents by index (dense: the comparator below runs n log n
+	// times; map lookups there were most of this function's time).
+	var docs []nearDoc
+	var named []bool
 	var n uint32
 	type idxPair struct {
 		later, earlier uint32
 		sim            uint16
 	}
-	var pairs []idxPair
+	parts := make([]nearPart, len(results))
+	total := 0
 	for p, b := range results {
 		part, err := decodeNearPart(b, p)
 		if err != nil {
 			return fmt.Errorf("dedup: partition %d: %w", p, err)
 		}
+		parts[p] = part
+		total += len(part.pairs)
+	}
+	pairs := make([]idxPair, 0, total)
+	for p, part := range parts {
 		if part.prevN != x.prevN {
 			return fmt.Errorf("dedup: partition %d was reduced against %d previous documents, this run has %d", p, part.prevN, x.prevN)
 		}
 		if p == 0 {
 			n = part.n
+			docs, named = make([]nearDoc, n), make([]bool, n)
 		} else if part.n != n {
 			return fmt.Errorf("dedup: partition %d was reduced over %d documents, partition 0 over %d", p, part.n, n)
 		}
 		for _, d := range part.docs {
-			if old, ok := docs[d.idx]; ok && old != d {
+			if d.idx >= n {
+				return fmt.Errorf("dedup: partition %d names document %d of %d", p, d.idx, n)
+			}
+			if named[d.idx] && docs[d.idx] != d {
 				return fmt.Errorf("dedup: partitions disagree about document %d", d.idx)
 			}
-			docs[d.idx] = d
+			docs[d.idx], named[d.idx] = d, true
 		}
 		for _, pr := range part.pairs {
 			pairs = append(pairs, idxPair{part.docs[pr.later].idx, part.docs[pr.earlier].idx, pr.sim})
@@ -387,7 +400,7 @@ func (x *NearIndex) LoadSplit(results [][]byte, keys func(emit func(order uint64
 		return cmp.Compare(a.sim, b.sim)
 	})
 	// The greedy pass of Reduce (near_pairs.go), over indices.
-	removed := map[uint32]bool{}
+	removed := make([]bool, n)
 	var rms []rmRank
 	var cur uint32
 	have, done := false, false
