@@ -1,7 +1,9 @@
 package run
 
 import (
+	"bytes"
 	"context"
+	"encoding/binary"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -90,13 +92,7 @@ func (sr *splitRun) shardsPhase(ctx context.Context, phases []Phase, mine []int,
 		if left, err = createKeyWriter(filepath.Join(tmps[0], rangeLeftOut)); err != nil {
 			return err
 		}
-		leftOut = func(l shard.LeftOut) error {
-			b, err := json.Marshal(l)
-			if err != nil {
-				return err
-			}
-			return left.put(b)
-		}
+		leftOut = func(l shard.LeftOut) error { return left.put(appendLeftOut(left.buf[:0], &l)) }
 	}
 	commit := func(u int, files ...any) error {
 		for i := 0; i+1 < len(files); i += 2 {
@@ -185,8 +181,8 @@ func (sr *splitRun) assembleShards(r *Runner) error {
 	}
 	// Left-out documents first, as a sink reports them while it closes.
 	err = forEachRecord(filepath.Join(ud0, rangeLeftOut), func(b []byte) error {
-		var l shard.LeftOut
-		if err := json.Unmarshal(b, &l); err != nil {
+		l, err := parseLeftOut(b)
+		if err != nil {
 			return fmt.Errorf("%s: %w", rangeLeftOut, err)
 		}
 		return r.addLeftOut(record.LeftOutRecord(l))
@@ -212,4 +208,70 @@ func readJSON(path string, v any) error {
 		return fmt.Errorf("%s: %w", path, err)
 	}
 	return nil
+}
+
+// appendLeftOut encodes a left-out document (a record of leftout.s2).
+func appendLeftOut(b []byte, l *shard.LeftOut) []byte {
+	b = appendField(b, l.Doc)
+	b = appendField(b, l.Source)
+	b = appendField(b, l.File)
+	b = binary.AppendVarint(b, l.Line)
+	b = binary.AppendUvarint(b, uint64(l.Tokens))
+	b = binary.AppendUvarint(b, uint64(l.Bytes))
+	b = appendField(b, l.Reason)
+	b = binary.AppendUvarint(b, uint64(len(l.Pieces)))
+	for _, p := range l.Pieces {
+		b = appendField(b, p)
+	}
+	return b
+}
+
+// parseLeftOut decodes a record of appendLeftOut; bytes that are not
+// exactly such an encoding (e.g. an overlong varint) are refused.
+func parseLeftOut(b []byte) (shard.LeftOut, error) {
+	l, err := parseLeftOutLoose(b)
+	if err == nil && !bytes.Equal(appendLeftOut(nil, &l), b) {
+		err = errSpill
+	}
+	return l, err
+}
+
+func parseLeftOutLoose(b []byte) (shard.LeftOut, error) {
+	var l shard.LeftOut
+	ok := true
+	field := func() string {
+		var s string
+		if ok {
+			s, b, ok = takeField(b)
+		}
+		return s
+	}
+	num := func() uint64 {
+		var u uint64
+		if ok {
+			u, b, ok = takeUvarint(b)
+		}
+		return u
+	}
+	l.Doc, l.Source, l.File = field(), field(), field()
+	if ok {
+		var k int
+		l.Line, k = binary.Varint(b)
+		if ok = k > 0; ok {
+			b = b[k:]
+		}
+	}
+	l.Tokens, l.Bytes = int(num()), int(num())
+	l.Reason = field()
+	n := num()
+	if ok && n > uint64(len(b)) {
+		ok = false
+	}
+	for i := uint64(0); ok && i < n; i++ {
+		l.Pieces = append(l.Pieces, field())
+	}
+	if !ok || len(b) != 0 {
+		return l, errSpill
+	}
+	return l, nil
 }
