@@ -2,8 +2,10 @@ package run
 
 import (
 	"context"
+	"encoding/json"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"winnow/stages"
@@ -63,4 +65,48 @@ func TestLateWriteAttemptAfterFinish(t *testing.T) {
 		t.Errorf("units directory after the run finished: %v", err)
 	}
 	sameRunDir(t, "write raced by a late attempt", runDirDigest(t, out), want)
+}
+
+// A split run whose every document is removed writes, through phase
+// shards, the same empty output and manifest as one process (the mix
+// report says "empty").
+func TestSplitAllRemovedWithMix(t *testing.T) {
+	dir := writeCorpus(t, 30)
+	text := `name: none
+inputs:
+  - source: yard
+    paths: ["raw/part-0.jsonl.zst"]
+  - source: shop
+    paths: ["raw/part-1.jsonl.zst"]
+stages:
+  - kind: normalize
+  - kind: length
+    min_chars: 100000
+output:
+  dir: out
+  tokenizer: cl100k_base
+  mix: {yard: 0.5, shop: 0.5}
+`
+	s := writeSpec(t, dir, text)
+	plain := filepath.Join(dir, "plain")
+	if _, err := RunSpec(context.Background(), s, RunOptions{Out: plain, Workers: 1, Version: "t"}); err != nil {
+		t.Fatal(err)
+	}
+	split := filepath.Join(dir, "split")
+	for _, ph := range []string{PhaseRead, PhaseShards, PhaseWrite} {
+		for task := 0; task < 2; task++ {
+			opt := PhaseOptions{RunOptions: RunOptions{Out: split, Workers: 1, Version: "t"}, Phase: ph, Task: task, Tasks: 2}
+			if _, err := RunPhase(context.Background(), writeSpec(t, dir, text), opt); err != nil {
+				t.Fatalf("phase %s task %d: %v", ph, task, err)
+			}
+		}
+	}
+	sameRunDir(t, "all removed, split", runDirDigest(t, split), runDirDigest(t, plain))
+	m, err := record.ReadManifest(split)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if mix, _ := json.Marshal(m.Mix); !strings.Contains(string(mix), `"mode":"empty"`) {
+		t.Errorf("mix %s", mix)
+	}
 }
