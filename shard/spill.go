@@ -8,6 +8,7 @@ import (
 	"io"
 	"os"
 	"strings"
+	"unsafe"
 
 	"github.com/klauspost/compress/s2"
 	"github.com/klauspost/compress/zstd"
@@ -79,7 +80,18 @@ func appendField(b []byte, s string) []byte {
 }
 
 func (w *spillWriter) put(r *record, withPos bool) error {
-	b := w.buf[:0]
+	b := appendRecord(w.buf[:0], r, withPos)
+	w.buf = b
+	w.n++
+	w.raw += int64(len(b))
+	if _, err := w.enc.Write(b); err != nil {
+		return fmt.Errorf("spill %s: %w", w.f.Name(), err)
+	}
+	return nil
+}
+
+// appendRecord encodes one spill record.
+func appendRecord(b []byte, r *record, withPos bool) []byte {
 	if withPos {
 		b = binary.AppendUvarint(b, r.pos)
 	}
@@ -93,14 +105,7 @@ func (w *spillWriter) put(r *record, withPos bool) error {
 	b = binary.AppendUvarint(b, uint64(r.tokens))
 	b = appendField(b, r.original)
 	b = binary.AppendUvarint(b, uint64(r.piece))
-	b = binary.AppendUvarint(b, uint64(r.total))
-	w.buf = b
-	w.n++
-	w.raw += int64(len(b))
-	if _, err := w.enc.Write(b); err != nil {
-		return fmt.Errorf("spill %s: %w", w.f.Name(), err)
-	}
-	return nil
+	return binary.AppendUvarint(b, uint64(r.total))
 }
 
 // close finishes the stream; the file stays for reading.
@@ -153,16 +158,35 @@ func (r *spillReader) close() {
 
 func (r *spillReader) uvarint() (uint64, error) { return binary.ReadUvarint(r.br) }
 
+// field reads a length-prefixed string with one copy: the bytes are read
+// into a fresh slice that nothing else refers to, so it can back the
+// string (a second copy through string(b) was a large part of reading a
+// spill).
 func (r *spillReader) field() (string, error) {
+	b, err := r.bytesField()
+	if err != nil || len(b) == 0 {
+		return "", err
+	}
+	return unsafe.String(unsafe.SliceData(b), len(b)), nil
+}
+
+// bytesField reads a length-prefixed field into a fresh slice.
+func (r *spillReader) bytesField() ([]byte, error) {
 	n, err := r.uvarint()
 	if err != nil {
-		return "", err
+		return nil, err
+	}
+	if n > 1<<40 {
+		return nil, fmt.Errorf("field of %d bytes", n)
 	}
 	b := make([]byte, n)
 	if _, err := io.ReadFull(r.br, b); err != nil {
-		return "", err
+		if err == io.EOF {
+			err = io.ErrUnexpectedEOF // the length was there: a cut record
+		}
+		return nil, err
 	}
-	return string(b), nil
+	return b, nil
 }
 
 // next reads one record; io.EOF at the clean end of the file.
@@ -190,11 +214,9 @@ func (r *spillReader) next(rec *record, withPos bool) error {
 	if rec.text, err = r.field(); err != nil {
 		return r.fail(err, true)
 	}
-	var m string
-	if m, err = r.field(); err != nil {
+	if rec.meta, err = r.bytesField(); err != nil {
 		return r.fail(err, true)
 	}
-	rec.meta = []byte(m)
 	if v, err = r.uvarint(); err != nil {
 		return r.fail(err, true)
 	}
