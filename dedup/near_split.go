@@ -351,13 +351,19 @@ func (x *NearIndex) LoadSplit(results [][]byte, keys func(emit func(order uint64
 		}
 		if p == 0 {
 			n = part.n
-			docs, named = make([]nearDoc, n), make([]bool, n)
+			// Indices run over the previous run's documents, then this
+			// run's.
+			all := uint64(x.prevN) + uint64(n)
+			if all >= 1<<32 {
+				return fmt.Errorf("dedup: %d documents", all)
+			}
+			docs, named = make([]nearDoc, all), make([]bool, all)
 		} else if part.n != n {
 			return fmt.Errorf("dedup: partition %d was reduced over %d documents, partition 0 over %d", p, part.n, n)
 		}
 		for _, d := range part.docs {
-			if d.idx >= n {
-				return fmt.Errorf("dedup: partition %d names document %d of %d", p, d.idx, n)
+			if int(d.idx) >= len(docs) {
+				return fmt.Errorf("dedup: partition %d names document %d of %d", p, d.idx, len(docs))
 			}
 			if named[d.idx] && docs[d.idx] != d {
 				return fmt.Errorf("dedup: partitions disagree about document %d", d.idx)
@@ -400,7 +406,7 @@ func (x *NearIndex) LoadSplit(results [][]byte, keys func(emit func(order uint64
 		return cmp.Compare(a.sim, b.sim)
 	})
 	// The greedy pass of Reduce (near_pairs.go), over indices.
-	removed := make([]bool, n)
+	removed := make([]bool, len(docs))
 	var rms []rmRank
 	var cur uint32
 	have, done := false, false

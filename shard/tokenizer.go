@@ -223,6 +223,13 @@ func Load(spec, baseDir string) (*Tokenizer, error) {
 	return r.tok, r.err
 }
 
+// IsEncoding reports whether spec names an encoding embedded in the
+// binary (directly or by a model name), not a tokenizer.json file.
+func IsEncoding(spec string) bool {
+	key, build := resolve(spec, "")
+	return build != nil && strings.HasPrefix(key, "enc:")
+}
+
 // resolve decides what spec names and returns a cache key and a builder.
 func resolve(spec, baseDir string) (string, func() (*Tokenizer, error)) {
 	if a, ok := encodingAliases[spec]; ok {

@@ -63,6 +63,7 @@ const OutputLedgerStage = "output"
 type outputConfig struct {
 	tokenizer   string
 	tok         *shard.Tokenizer
+	lazy        bool // tok is loaded on first use (env.LazyModels)
 	shardTokens int64
 	shardBytes  int64
 	splitTokens int64
@@ -86,6 +87,10 @@ func OutputStage(p *stages.Params, env stages.Env) (stages.Stage, error) {
 	c, err := parseOutput(p, env)
 	if err != nil {
 		return nil, err
+	}
+	if c.lazy {
+		name, dir := c.tokenizer, env.SpecDir
+		return stages.NewLazyTokenizeStage(func() (*shard.Tokenizer, error) { return shard.Load(name, dir) }), nil
 	}
 	if c.tok == nil {
 		return nil, nil
@@ -130,11 +135,17 @@ func parseOutput(p *stages.Params, env stages.Env) (*outputConfig, error) {
 		}
 	}
 	if c.tokenizer != "" {
-		tok, err := shard.Load(c.tokenizer, env.SpecDir)
-		if err != nil {
-			p.Fail("tokenizer", err)
+		if env.LazyModels && shard.IsEncoding(c.tokenizer) {
+			// A split task loads an embedded encoding when it first
+			// counts (most phases never do).
+			c.lazy = true
+		} else {
+			tok, err := shard.Load(c.tokenizer, env.SpecDir)
+			if err != nil {
+				p.Fail("tokenizer", err)
+			}
+			c.tok = tok
 		}
-		c.tok = tok
 		if p.Has("shard_bytes") {
 			p.Errorf("shard_bytes", "applies only without output.tokenizer (shards are cut by shard_tokens)")
 		}
@@ -202,6 +213,7 @@ func OpenSink(p *stages.Params, env stages.Env, name string) (Sink, error) {
 // from: shards in env.RunDir/shards, temp files in env.TempDir (default
 // env.RunDir/.work).
 func OutputOptions(p *stages.Params, env stages.Env, name string) (shard.Options, error) {
+	env.LazyModels = false // the writer needs its tokenizer
 	c, err := parseOutput(p, env)
 	if err != nil {
 		return shard.Options{}, err
