@@ -51,6 +51,10 @@ type Options struct {
 	// holds every source; pieces of a split document stay together.
 	// Needs a tokenizer (ignored with a mix, which already interleaves).
 	Shuffle bool
+	// Parts: the builder takes one part of the documents and is ended
+	// with SavePart (written later in ranges: WriteRanges); with a
+	// tokenizer it spills even without a mix or a shuffle.
+	Parts bool
 	// BudgetTokens caps the total output (0: no cap).
 	BudgetTokens int64
 	// MaxEpochs bounds up-sampling by repetition (default 1: none).
@@ -94,6 +98,10 @@ type Split struct {
 	Reason string
 	Pieces []string
 	Tokens int
+	// At orders splits as one Builder writing in input order records
+	// them: the output position of a shard_boundary cut, the input
+	// position of the last piece of a long_document split.
+	At int `json:"at"`
 }
 
 // Report is what Close returns.
@@ -131,6 +139,9 @@ type LeftOut struct {
 	// Reason is why its source lost documents, in words (the mix
 	// report's left_out_reason, or the budget of a shuffled output).
 	Reason string
+	// Part is the saved part the document came from (WriteRanges; 0 for
+	// one Builder).
+	Part int
 }
 
 // SetLeftOut makes Close (or, for an output written in input order with
@@ -160,6 +171,8 @@ type Builder struct {
 	leftOut  func(LeftOut) error
 	leftWhy  map[string]string // source -> reason its documents are left out
 	raw      int64             // uncompressed bytes of the spilled records
+	partEnd  []int             // ranges: the end of each part in units
+	nput     int               // records put (pieces count one each)
 	line     []byte
 	closed   bool
 
@@ -221,10 +234,10 @@ func NewBuilder(opt Options) (*Builder, error) {
 	if b.tok != nil {
 		b.asm = &assembler{b: b, w: b.w, splits: &b.splits, tol: int(opt.ShardTokens / cutTolerance)}
 	}
-	if b.tok != nil && opt.Mix == nil && !opt.Shuffle {
+	if b.tok != nil && opt.Mix == nil && !opt.Shuffle && !opt.Parts {
 		b.stream = &streamCutter{shardTokens: opt.ShardTokens, budget: opt.BudgetTokens}
 	}
-	if b.tok != nil && (opt.Mix != nil || opt.Shuffle) {
+	if b.tok != nil && (opt.Mix != nil || opt.Shuffle || opt.Parts) {
 		tmp := opt.TempDir
 		if tmp == "" {
 			tmp = filepath.Join(filepath.Dir(opt.Dir), ".work")
@@ -302,12 +315,14 @@ func (b *Builder) Add(d *Doc) (err error) {
 		}
 	}
 	if len(pieces) > 1 {
+		sp.At = b.nput - 1
 		b.splits = append(b.splits, sp)
 	}
 	return nil
 }
 
 func (b *Builder) put(r *record, h uint64, si uint16, piece int) error {
+	b.nput++
 	if b.stream != nil {
 		err := b.stream.add(b.asm, r)
 		if !b.stream.full {
@@ -396,14 +411,17 @@ func (b *Builder) emptyMix() *MixReport {
 func (b *Builder) plan() ([]slot, *MixReport, error) {
 	var order []slot
 	var mix *MixReport
-	if b.opt.Mix != nil {
+	switch {
+	case b.opt.Mix != nil:
 		var err error
 		order, mix, err = planMix(b.units, b.srcNames, b.opt.Mix, b.opt.BudgetTokens, b.opt.MaxEpochs)
 		if err != nil {
 			return nil, nil, fmt.Errorf("output: %w", err)
 		}
-	} else {
+	case b.opt.Shuffle:
 		order = planShuffle(b.units, b.opt.BudgetTokens)
+	default:
+		order = planInOrder(b.units, b.opt.BudgetTokens)
 	}
 	b.leftWhy = map[string]string{}
 	if mix != nil {
@@ -576,9 +594,32 @@ func (b *Builder) writeReordered(a *assembler, ro reorder) error {
 	// some of its pieces have none.
 	var cur, part LeftOut
 	curUsed, curOpen := false, false
+	curLast := 0 // unit index of the document's last piece so far
+	inOrder := b.opt.Mix == nil && !b.opt.Shuffle
+	si := 0 // next long_document split (input order), for in-order output
 	flushDoc := func() error {
 		if curOpen && curUsed {
 			b.docsOut++
+		}
+		if inOrder && curOpen {
+			// As a Builder writing in input order reports them: a
+			// document none of whose pieces was written, with its whole
+			// count; a document written in part is not reported.
+			curOpen = false
+			if curUsed {
+				return nil
+			}
+			b.budgetLeft++
+			for si < len(b.splits) && b.splits[si].At < curLast {
+				si++
+			}
+			if si < len(b.splits) && b.splits[si].At == curLast && b.splits[si].Doc == cur.Doc {
+				cur.Tokens = b.splits[si].Tokens
+			}
+			if b.leftOut == nil {
+				return nil
+			}
+			return b.leftOut(cur)
 		}
 		switch {
 		case !curOpen || b.leftOut == nil:
@@ -622,10 +663,11 @@ func (b *Builder) writeReordered(a *assembler, ro reorder) error {
 				if err := flushDoc(); err != nil {
 					return err
 				}
-				cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line, Reason: b.leftWhy[rec.source]}
+				cur = LeftOut{Doc: doc, Source: rec.source, File: rec.file, Line: rec.line, Reason: b.leftWhy[rec.source], Part: b.partOf(ui)}
 				part = cur
 				curUsed, curOpen = false, true
 			}
+			curLast = ui
 			cur.Tokens += rec.tokens
 			cur.Bytes += len(rec.text)
 			if start[ui+1] > start[ui] {
@@ -753,6 +795,66 @@ func (b *Builder) emptyWindows(ro reorder) error {
 	return nil
 }
 
+// partOf returns the part (WriteRanges) holding unit ui; 0 for one
+// Builder.
+func (b *Builder) partOf(ui int) int {
+	return sort.SearchInts(b.partEnd, ui+1)
+}
+
+// planInOrder is the order of an output written in input order: every
+// unit until the budget is reached, decided as streamCutter decides it
+// (a unit is left out, with every unit after it, when at most half of it
+// would fit).
+func planInOrder(units []unit, budget int64) []slot {
+	var start int64
+	order := make([]slot, 0, len(units))
+	for i, u := range units {
+		t := int64(u.tokens)
+		if budget > 0 && 2*(budget-start) <= t {
+			break
+		}
+		order = append(order, slot{unit: uint32(i)})
+		start += t
+	}
+	return order
+}
+
+// streamCuts are the cuts streamCutter makes over slot token counts
+// written in order (input order, no total known in advance): a shard
+// ends at the record boundary nearest each multiple of shardTokens when
+// within the tolerance, else inside the record that straddles it; a
+// boundary just before a record ends the shard after the previous one.
+func streamCuts(tokens []int64, shardTokens int64) []cut {
+	tol := shardTokens / cutTolerance
+	var cuts []cut
+	var start int64
+	k := int64(1)
+	open := false // a shard holds something
+	for p, t := range tokens {
+		mine := 0 // cuts placed in this record
+		for c := k * shardTokens; c < start+t; c = k * shardTokens {
+			k++
+			before, after := c-start, start+t-c
+			switch {
+			case before == 0 || (before <= after && before <= tol):
+				if mine == 0 && open {
+					cuts = append(cuts, cut{pos: p - 1, offset: tokens[p-1]})
+					open = false
+				}
+			case after <= tol:
+				cuts = append(cuts, cut{pos: p, offset: t})
+				mine++
+			default:
+				cuts = append(cuts, cut{pos: p, offset: before})
+				mine++
+			}
+		}
+		start += t
+		open = !(mine > 0 && cuts[len(cuts)-1].offset >= t)
+	}
+	return cuts
+}
+
 // slotTokens lists the tokens of each output position.
 func slotTokens(units []unit, order []slot) []int64 {
 	tokens := make([]int64, len(order))
@@ -808,7 +910,7 @@ func (a *assembler) add(p int, r *record) error {
 	if len(parts) > 0 {
 		parts = append(parts, text)
 		id = fmt.Sprintf("%s~%d", r.id, len(parts))
-		sp := Split{Doc: r.id, Source: r.source, File: r.file, Line: r.line, Rule: levelRule[rule], Reason: "shard_boundary", Tokens: r.tokens}
+		sp := Split{Doc: r.id, Source: r.source, File: r.file, Line: r.line, Rule: levelRule[rule], Reason: "shard_boundary", Tokens: r.tokens, At: p}
 		for i := range parts {
 			sp.Pieces = append(sp.Pieces, fmt.Sprintf("%s~%d", r.id, i+1))
 		}

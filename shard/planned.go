@@ -1,9 +1,9 @@
 package shard
 
-// Writing a planned output (a mix or a shuffle) in ranges, by several
-// processes. The documents arrive in parts (consecutive runs of input
-// order): a Builder per part takes them with Add and keeps them with
-// SavePart instead of Close. WriteRanges then plans the whole output from
+// Writing an output with a tokenizer (a mix, a shuffle, or input order)
+// in ranges, by several processes. The documents arrive in parts
+// (consecutive runs of input order): a Builder per part (Options.Parts)
+// takes them with Add and keeps them with SavePart instead of Close. WriteRanges then plans the whole output from
 // every part's table (the same plan a single Builder makes: positions and
 // shard cuts come from token counts and id hashes only), cuts the output
 // positions into n ranges of whole shards, and writes the ranges asked
@@ -19,6 +19,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"sort"
 	"strings"
 
 	"winnow/stages/fsio"
@@ -39,9 +40,9 @@ type partMeta struct {
 	Units   int      `json:"units"`
 }
 
-// Planned reports whether the builder plans its output when it closes (a
-// mix or a shuffle): then its documents can be saved in parts and written
-// in ranges.
+// Planned reports whether the builder spills its documents (a mix, a
+// shuffle, or Options.Parts): then they can be saved as a part and
+// written in ranges.
 func (b *Builder) Planned() bool { return b.spill != nil }
 
 // SavePart ends a planned builder that took one part of the documents
@@ -50,7 +51,7 @@ func (b *Builder) Planned() bool { return b.spill != nil }
 // documents it split before mixing. No shard is written.
 func (b *Builder) SavePart(dir string) error {
 	if !b.Planned() {
-		return errors.New("output: SavePart needs a mix or a shuffle")
+		return errors.New("output: SavePart needs a builder made with Options.Parts")
 	}
 	if b.closed {
 		return errors.New("output: SavePart after Close")
@@ -103,6 +104,9 @@ type Whole struct {
 	Splits []Split `json:"splits"`
 	// DocsWritten counts the documents of which a piece was written.
 	DocsWritten int64 `json:"docs_written"`
+	// BudgetLeftOut counts the documents an output in input order left
+	// out once budget_tokens was reached.
+	BudgetLeftOut int64 `json:"budget_left_out"`
 }
 
 // loadParts builds a planner from saved parts, in input order: one table
@@ -112,8 +116,8 @@ func loadParts(opt Options, parts []string) (*Builder, []string, error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	if opt.Tokenizer == nil || (opt.Mix == nil && !opt.Shuffle) {
-		return nil, nil, errors.New("output: ranges need a tokenizer and a mix or a shuffle")
+	if opt.Tokenizer == nil {
+		return nil, nil, errors.New("output: ranges need a tokenizer")
 	}
 	if opt.TempDir == "" {
 		opt.TempDir = filepath.Join(filepath.Dir(opt.Dir), ".work")
@@ -158,7 +162,11 @@ func loadParts(opt Options, parts []string) (*Builder, []string, error) {
 			b.units = append(b.units, unit{hash: binary.LittleEndian.Uint64(e), tokens: binary.LittleEndian.Uint32(e[8:]),
 				src: remap[src], piece: binary.LittleEndian.Uint16(e[14:])})
 		}
-		b.splits = append(b.splits, m.Splits...)
+		for _, sp := range m.Splits {
+			sp.At += len(b.units) - m.Units // input positions of the whole output
+			b.splits = append(b.splits, sp)
+		}
+		b.partEnd = append(b.partEnd, len(b.units))
 		b.raw += m.Raw
 		files[i] = filepath.Join(dir, partRecords)
 	}
@@ -236,7 +244,11 @@ func WriteRanges(opt Options, parts []string, n int, mine []int, dir func(i int)
 			return nil, err
 		}
 		tokens := slotTokens(b.units, order)
-		wins = rangesOf(tokens, planCuts(tokens, b.opt.ShardTokens), n)
+		cuts := planCuts(tokens, b.opt.ShardTokens)
+		if b.opt.Mix == nil && !b.opt.Shuffle {
+			cuts = streamCuts(tokens, b.opt.ShardTokens)
+		}
+		wins = rangesOf(tokens, cuts, n)
 		if full {
 			whole = &Whole{Mix: mix}
 		}
@@ -278,6 +290,7 @@ func WriteRanges(opt Options, parts []string, n int, mine []int, dir func(i int)
 	if whole != nil {
 		whole.Splits = b.splits
 		whole.DocsWritten = b.docsOut
+		whole.BudgetLeftOut = b.budgetLeft
 	}
 	return whole, nil
 }
@@ -298,7 +311,8 @@ func AssembleRanges(opt Options, whole *Whole, dirs []string, results []*RangeRe
 		return nil, fmt.Errorf("output: %w", err)
 	}
 	w := newShardWriter(opt.Dir, opt.Name, nil, false)
-	rep := &Report{Files: []File{}, Splits: append([]Split(nil), whole.Splits...), DocsWritten: whole.DocsWritten}
+	rep := &Report{Files: []File{}, Splits: append([]Split(nil), whole.Splits...), DocsWritten: whole.DocsWritten,
+		BudgetLeftOut: whole.BudgetLeftOut}
 	if whole.Mix != nil {
 		rep.Mix = whole.Mix
 	}
@@ -343,6 +357,17 @@ func AssembleRanges(opt Options, whole *Whole, dirs []string, results []*RangeRe
 		}
 		rep.Splits = append(rep.Splits, res.Splits...)
 		rep.TextBytes += res.TextBytes
+	}
+	if opt.Mix == nil && !opt.Shuffle {
+		// In input order a Builder records each split as it happens: a
+		// document's shard_boundary cuts, then its long_document split.
+		sort.SliceStable(rep.Splits, func(i, j int) bool {
+			a, b := rep.Splits[i], rep.Splits[j]
+			if a.At != b.At {
+				return a.At < b.At
+			}
+			return a.Reason == "shard_boundary" && b.Reason != "shard_boundary"
+		})
 	}
 	return rep, nil
 }

@@ -27,6 +27,7 @@ func buildRanges(t *testing.T, docs []Doc, opt Options, parts, n, tasks int) (*R
 		po := opt
 		po.Dir = filepath.Join(run, fmt.Sprintf("p%d", p), "shards")
 		po.TempDir = filepath.Join(run, fmt.Sprintf("p%d", p), "tmp")
+		po.Parts = true
 		b, err := NewBuilder(po)
 		if err != nil {
 			t.Fatal(err)
@@ -118,6 +119,9 @@ func TestRangesMatchOneBuilder(t *testing.T) {
 		{"shuffle with budget", Options{Tokenizer: tok, ShardTokens: 2000, Shuffle: true, Seed: 7, BudgetTokens: 30000}, 2, 4, 2},
 		{"more ranges than shards", Options{Tokenizer: tok, ShardTokens: 50000, Mix: shares, Seed: 3}, 3, 16, 3},
 		{"one range", Options{Tokenizer: tok, ShardTokens: 5000, Mix: shares, Seed: 3}, 1, 1, 1},
+		{"input order", Options{Tokenizer: tok, ShardTokens: 4000}, 3, 5, 2},
+		{"input order, budget, long documents split", Options{Tokenizer: tok, ShardTokens: 3000, SplitTokens: 700, BudgetTokens: 40000}, 4, 6, 3},
+		{"input order, budget inside a split document", Options{Tokenizer: tok, ShardTokens: 2000, SplitTokens: 300, BudgetTokens: 20011, TokenFiles: true}, 3, 4, 2},
 	}
 	for _, c := range cases {
 		want, wantRun, wantLeft := buildLeftOut(t, docs, c.opt)
@@ -157,6 +161,9 @@ func TestRangesMatchOneBuilder(t *testing.T) {
 		gj, _ := json.Marshal(got)
 		if !bytes.Equal(wj, gj) {
 			t.Errorf("%s: report differs:\n got %s\nwant %s", c.name, gj, wj)
+		}
+		for i := range gotLeft {
+			gotLeft[i].Part = 0 // the part a document came from: one Builder has one
 		}
 		if !reflect.DeepEqual(wantLeft, gotLeft) {
 			t.Errorf("%s: %d left-out documents, want %d (or another order)", c.name, len(gotLeft), len(wantLeft))

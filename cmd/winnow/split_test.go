@@ -767,6 +767,10 @@ func TestSplitStolenUnitFails(t *testing.T) {
 	if !strings.Contains(log, "ran units [1 3], ") {
 		t.Errorf("task 1 did not run the units left to it:\n%s", log)
 	}
-	runTask(t, nil, spec, out, "write", 0, 2)
+	for _, ph := range strings.Fields(cliRun(t, nil, "check", spec, "--phases"))[1:] {
+		for task := 0; task < 2; task++ {
+			runTask(t, nil, spec, out, ph, task, 2)
+		}
+	}
 	sameRun(t, "a taken unit failed", runDigest(t, plain), runDigest(t, out))
 }

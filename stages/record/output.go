@@ -1,6 +1,7 @@
 package record
 
 import (
+	"errors"
 	"fmt"
 	"path/filepath"
 	"sort"
@@ -241,14 +242,32 @@ func OutputOptions(p *stages.Params, env stages.Env, name string) (shard.Options
 	}, nil
 }
 
-// PlannedOutput reports whether the output section plans its shards when
-// it closes (a tokenizer with a mix or a shuffle): then a split run saves
-// its documents in parts and writes the shards in ranges.
+// PlannedOutput reports whether a split run writes this output in ranges
+// (phase shards): every output with a tokenizer (shards cut by tokens,
+// in a mix, shuffled or in input order). Without one, shards are cut by
+// bytes and the write phase writes them in input order.
 func PlannedOutput(p *stages.Params) bool {
-	if p == nil || !p.Has("tokenizer") {
-		return false
+	return p != nil && p.Has("tokenizer") && p.String("tokenizer", "") != ""
+}
+
+// OpenPartSink opens a sink that takes one part of the documents of a
+// planned output (PlannedOutput) and keeps them with SavePart: shards are
+// written later in ranges.
+func OpenPartSink(p *stages.Params, env stages.Env, name string) (PartSaver, error) {
+	opt, err := OutputOptions(p, env, name)
+	if err != nil {
+		return nil, err
 	}
-	return p.Has("mix") || p.Bool("shuffle", false)
+	opt.Parts = true
+	b, err := shard.NewBuilder(opt)
+	if err != nil {
+		return nil, fmt.Errorf("output: %w", err)
+	}
+	if !b.Planned() {
+		b.Abort()
+		return nil, errors.New("output: no tokenizer: shards are not written in ranges")
+	}
+	return &shardSink{b: b}, nil
 }
 
 // PartSaver is a sink that can keep its documents as one part of a

@@ -101,8 +101,8 @@ func segmentsOf(steps []spec.Step) []segment {
 
 // Phases lists the phases of a pipeline in order.
 //
-// planned adds the phase that writes the shards of a planned output (a
-// mix or a shuffle: record.PlannedOutput) in ranges before the write
+// planned adds the phase that writes the shards of a planned output (one
+// with a tokenizer: record.PlannedOutput) in ranges before the write
 // phase.
 func Phases(steps []spec.Step, planned bool) []Phase {
 	var out []Phase

@@ -17,7 +17,7 @@ import (
 )
 
 // shardRanges is the number of units of phase shards: ranges of whole
-// shards of a planned output (a mix or a shuffle), cut where the shards
+// shards of a planned output (one with a tokenizer), cut where the shards
 // of one plan end nearest to equal shares. A range without a shard of
 // its own is an empty unit.
 const shardRanges = 64
@@ -179,14 +179,27 @@ func (sr *splitRun) assembleShards(r *Runner) error {
 	if err := readJSON(filepath.Join(ud0, rangeWhole), &whole); err != nil {
 		return err
 	}
-	// Left-out documents first, as a sink reports them while it closes.
+	// Left-out documents first: a mix or a shuffle reports them while it
+	// closes; an output in input order as it takes them, so its ledger
+	// records end a frame where each input chunk (part) ends, as a
+	// single process's collector ends them.
+	inOrder := opt.Mix == nil && !opt.Shuffle
+	part := 0
 	err = forEachRecord(filepath.Join(ud0, rangeLeftOut), func(b []byte) error {
 		l, err := parseLeftOut(b)
 		if err != nil {
 			return fmt.Errorf("%s: %w", rangeLeftOut, err)
 		}
+		for ; inOrder && part < l.Part; part++ {
+			if err := r.endFrames(); err != nil {
+				return err
+			}
+		}
 		return r.addLeftOut(record.LeftOutRecord(l))
 	})
+	if err == nil && inOrder {
+		err = r.endFrames()
+	}
 	if err != nil {
 		return err
 	}
@@ -219,6 +232,7 @@ func appendLeftOut(b []byte, l *shard.LeftOut) []byte {
 	b = binary.AppendUvarint(b, uint64(l.Tokens))
 	b = binary.AppendUvarint(b, uint64(l.Bytes))
 	b = appendField(b, l.Reason)
+	b = binary.AppendUvarint(b, uint64(l.Part))
 	b = binary.AppendUvarint(b, uint64(len(l.Pieces)))
 	for _, p := range l.Pieces {
 		b = appendField(b, p)
@@ -263,6 +277,7 @@ func parseLeftOutLoose(b []byte) (shard.LeftOut, error) {
 	}
 	l.Tokens, l.Bytes = int(num()), int(num())
 	l.Reason = field()
+	l.Part = int(num())
 	n := num()
 	if ok && n > uint64(len(b)) {
 		ok = false

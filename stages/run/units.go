@@ -267,14 +267,9 @@ func (sr *splitRun) runUnit(ctx context.Context, ph Phase, u int, prev string) (
 		// phase shards plans and writes in ranges.
 		env := sr.env
 		env.RunDir, env.TempDir = tmp, filepath.Join(tmp, "spill")
-		sink, err := record.OpenSink(sr.spec.Output, env, sr.spec.Name)
+		ps, err := record.OpenPartSink(sr.spec.Output, env, sr.spec.Name)
 		if err != nil {
 			return 0, err
-		}
-		ps, ok := sink.(record.PartSaver)
-		if !ok || !ps.Planned() {
-			sink.Abort()
-			return 0, errors.New("the output is not planned (no mix or shuffle): phase shards has nothing to write")
 		}
 		uio.part = ps
 	}
