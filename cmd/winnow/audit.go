@@ -184,9 +184,23 @@ func auditSplit(out io.Writer, dir string, asJSON bool) error {
 }
 
 func intList(v []int) string {
-	s := make([]string, len(v))
-	for i, n := range v {
-		s[i] = strconv.Itoa(n)
+	// Runs of three or more consecutive units read as ranges ("0-63"),
+	// so that a phase not yet started does not print 64 numbers.
+	var s []string
+	for i := 0; i < len(v); {
+		j := i
+		for j+1 < len(v) && v[j+1] == v[j]+1 {
+			j++
+		}
+		switch {
+		case j-i >= 2:
+			s = append(s, strconv.Itoa(v[i])+"-"+strconv.Itoa(v[j]))
+		case j > i:
+			s = append(s, strconv.Itoa(v[i]), strconv.Itoa(v[j]))
+		default:
+			s = append(s, strconv.Itoa(v[i]))
+		}
+		i = j + 1
 	}
 	return strings.Join(s, ", ")
 }

@@ -90,3 +90,23 @@ func TestInterruptBeforeCheckpointSaysNoResume(t *testing.T) {
 		t.Errorf("message: %v", err)
 	}
 }
+
+// TestIntList: audit prints runs of three or more units as ranges, pairs
+// and single units as numbers, and loses no unit.
+func TestIntList(t *testing.T) {
+	for _, c := range []struct {
+		in   []int
+		want string
+	}{
+		{nil, ""},
+		{[]int{5}, "5"},
+		{[]int{0, 1}, "0, 1"},
+		{[]int{0, 1, 2}, "0-2"},
+		{[]int{0, 2, 3, 4, 5, 9, 11, 12}, "0, 2-5, 9, 11, 12"},
+		{[]int{3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20, 21, 22, 23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52, 53, 54, 55, 56, 57, 58, 59, 60, 61, 62, 63}, "3-63"},
+	} {
+		if got := intList(c.in); got != c.want {
+			t.Errorf("intList(%v) = %q, want %q", c.in, got, c.want)
+		}
+	}
+}

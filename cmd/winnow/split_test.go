@@ -451,7 +451,7 @@ func TestAuditListsUnfinishedUnits(t *testing.T) {
 	}
 	text := string(b)
 	host, _ := os.Hostname()
-	for _, want := range []string{"unit 1 failed on " + host, "fault injected", "inputs: corpus/", "units not run: 0, 2, 3,", "--phase read", "phase write            0 of 1 units done"} {
+	for _, want := range []string{"unit 1 failed on " + host, "fault injected", "inputs: corpus/", "units not run: 0, 2-", "--phase read", "phase write            0 of 1 units done"} {
 		if !strings.Contains(text, want) {
 			t.Errorf("audit lacks %q:\n%s", want, text)
 		}
