@@ -3,8 +3,8 @@ package shard
 // Writing an output with a tokenizer (a mix, a shuffle, or input order)
 // in ranges, by several processes. The documents arrive in parts
 // (consecutive runs of input order): a Builder per part (Options.Parts)
-// takes them with Add and keeps them with SavePart instead of Close. WriteRanges then plans the whole output from
-// every part's table (the same plan a single Builder makes: positions and
+// takes them with Add and keeps them with SavePart instead of Close.
+// WriteRanges then plans the whole output from every part's table (the same plan a single Builder makes: positions and
 // shard cuts come from token counts and id hashes only), cuts the output
 // positions into n ranges of whole shards, and writes the ranges asked
 // for; AssembleRanges numbers the ranges' shards into one directory and

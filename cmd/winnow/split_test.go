@@ -256,10 +256,7 @@ func runSplit(t *testing.T, spec, out string, tasks int, env []string) {
 func TestSplitRunsMatchSingleProcess(t *testing.T) {
 	for _, name := range []string{"dedup", "paragraphs", "contamination", "budget", "perdoc"} {
 		t.Run(name, func(t *testing.T) {
-			spec := writeSplitSpec(t, name)
-			base := t.TempDir()
-			plain := filepath.Join(base, "plain")
-			cliRun(t, nil, "run", spec, "--out", plain, "-q")
+			spec, base, plain := splitSpecAndPlain(t, name)
 			want := runDigest(t, plain)
 			counts := []int{3}
 			if name == "dedup" {
@@ -272,6 +269,18 @@ func TestSplitRunsMatchSingleProcess(t *testing.T) {
 			}
 		})
 	}
+}
+
+// splitSpecAndPlain writes the named split-test spec and runs it once in
+// one process, the run a split run must equal byte for byte; base is a
+// temporary directory for the split runs.
+func splitSpecAndPlain(t *testing.T, kind string) (spec, base, plain string) {
+	t.Helper()
+	spec = writeSplitSpec(t, kind)
+	base = t.TempDir()
+	plain = filepath.Join(base, "plain")
+	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	return spec, base, plain
 }
 
 // TestSplitRunAgainstPreviousRun: incremental dedup against an earlier
@@ -315,10 +324,7 @@ func TestSplitRunAgainstPreviousRun(t *testing.T) {
 // at random moments, starts them again, and expects the bytes of a run
 // never killed.
 func TestSplitRunSurvivesKills(t *testing.T) {
-	spec := writeSplitSpec(t, "dedup")
-	base := t.TempDir()
-	plain := filepath.Join(base, "plain")
-	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	spec, base, plain := splitSpecAndPlain(t, "dedup")
 	want := runDigest(t, plain)
 	phases := strings.Fields(cliRun(t, nil, "check", spec, "--phases"))
 
@@ -379,10 +385,7 @@ func TestSplitRunSurvivesKills(t *testing.T) {
 // scheduler that retried a task it wrongly thought lost): the attempts
 // race for each unit, one rename wins, and the bytes are a plain run's.
 func TestSplitTwoAttemptsAtOnce(t *testing.T) {
-	spec := writeSplitSpec(t, "dedup")
-	base := t.TempDir()
-	plain := filepath.Join(base, "plain")
-	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	spec, base, plain := splitSpecAndPlain(t, "dedup")
 	out := filepath.Join(base, "twice")
 	for _, ph := range strings.Fields(cliRun(t, nil, "check", spec, "--phases")) {
 		var wg sync.WaitGroup
@@ -411,10 +414,7 @@ func TestSplitTwoAttemptsAtOnce(t *testing.T) {
 // inside a late phase, and resumes: the units done before are not redone
 // and the bytes are those of a plain run.
 func TestPhaseAllResumesFromUnits(t *testing.T) {
-	spec := writeSplitSpec(t, "dedup")
-	base := t.TempDir()
-	plain := filepath.Join(base, "plain")
-	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	spec, base, plain := splitSpecAndPlain(t, "dedup")
 	out := filepath.Join(base, "all")
 	once := filepath.Join(base, "once")
 	cmd := cliCommand([]string{run.FaultEnv + "=near_dedup/2/written", run.FaultOnceEnv + "=" + once}, "run", spec, "--out", out, "--phase", "all", "-q")
@@ -619,10 +619,7 @@ func TestSplitRunRefusesChangedInputs(t *testing.T) {
 // it, as a single process does after a crashed attempt (a random-kill run
 // found this).
 func TestSplitWriteRemovesStaleTemps(t *testing.T) {
-	spec := writeSplitSpec(t, "budget")
-	base := t.TempDir()
-	plain := filepath.Join(base, "plain")
-	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	spec, base, plain := splitSpecAndPlain(t, "budget")
 	out := filepath.Join(base, "split")
 	phases := strings.Fields(cliRun(t, nil, "check", spec, "--phases"))
 	for i, ph := range phases {
@@ -699,10 +696,7 @@ func phaseUnits(t *testing.T, out string) map[string]int {
 // task 1 started afterwards has nothing to do; the bytes are a plain
 // run's, since every unit writes the same files whoever runs it.
 func TestSplitTaskTakesOtherTasksUnits(t *testing.T) {
-	spec := writeSplitSpec(t, "dedup")
-	base := t.TempDir()
-	plain := filepath.Join(base, "plain")
-	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	spec, base, plain := splitSpecAndPlain(t, "dedup")
 	out := filepath.Join(base, "alone")
 	for _, ph := range strings.Fields(cliRun(t, nil, "check", spec, "--phases")) {
 		if ph == "write" || ph == "shards" {
@@ -738,10 +732,7 @@ func TestSplitTaskTakesOtherTasksUnits(t *testing.T) {
 // another task does not fail that task and is not marked failed; the task
 // takes no more units, and the unit's own task runs it afterwards.
 func TestSplitStolenUnitFails(t *testing.T) {
-	spec := writeSplitSpec(t, "perdoc")
-	base := t.TempDir()
-	plain := filepath.Join(base, "plain")
-	cliRun(t, nil, "run", spec, "--out", plain, "-q")
+	spec, base, plain := splitSpecAndPlain(t, "perdoc")
 	out := filepath.Join(base, "split")
 	_, log := runTask(t, []string{run.FaultEnv + "=read/3/start/fail"}, spec, out, "read", 0, 2)
 	n := phaseUnits(t, out)["read"]

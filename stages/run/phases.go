@@ -548,15 +548,11 @@ func (sr *splitRun) docsPhase(ctx context.Context, ph Phase, mine, steal []int, 
 		if ctx.Err() != nil {
 			return ctx.Err()
 		}
-		release, err := sr.claim(ph.Name, u)
+		release, err := sr.claimUndone(ph.Name, u)
 		if err != nil {
 			return err
 		}
-		if m, err := readMarker(sr.dir, ph.Name, u); err != nil || m != nil {
-			release()
-			if err != nil {
-				return err
-			}
+		if release == nil {
 			res.Skipped = append(res.Skipped, u) // another task took it
 			continue
 		}
@@ -606,6 +602,20 @@ func (sr *splitRun) claim(phase string, u int) (release func(), err error) {
 		return nil, err
 	}
 	return record.WaitLock(p)
+}
+
+// claimUndone claims unit u of phase (waiting while another task runs it)
+// unless the unit is finished: then, or on error, release is nil.
+func (sr *splitRun) claimUndone(phase string, u int) (release func(), err error) {
+	release, err = sr.claim(phase, u)
+	if err != nil {
+		return nil, err
+	}
+	if m, err := readMarker(sr.dir, phase, u); err != nil || m != nil {
+		release()
+		return nil, err
+	}
+	return release, nil
 }
 
 // tryClaim locks unit u of phase when no other task holds it.
@@ -848,15 +858,11 @@ func (sr *splitRun) reducePhase(ctx context.Context, ph Phase, mine, steal []int
 	}
 	defer releaseAll()
 	for _, p := range mine {
-		release, err := sr.claim(ph.Name, p)
+		release, err := sr.claimUndone(ph.Name, p)
 		if err != nil {
 			return err
 		}
-		if m, err := readMarker(sr.dir, ph.Name, p); err != nil || m != nil {
-			release()
-			if err != nil {
-				return err
-			}
+		if release == nil {
 			res.Skipped = append(res.Skipped, p) // another task took it
 			continue
 		}

@@ -315,12 +315,9 @@ func TestSetOverrideRecordedInConfig(t *testing.T) {
 	}
 }
 
-// When every document is removed and the output mixes sources, the run
-// still ends with its manifest (an empty mix) and says which stage let
-// nothing through.
-func TestAllRemovedWithMixWritesManifest(t *testing.T) {
-	dir := writeCorpus(t, 30)
-	s := writeSpec(t, dir, `name: none
+// allRemovedMixSpec mixes two sources of writeCorpus and removes every
+// document (none has 100,000 characters).
+const allRemovedMixSpec = `name: none
 inputs:
   - source: yard
     paths: ["raw/part-0.jsonl.zst"]
@@ -334,7 +331,14 @@ output:
   dir: out
   tokenizer: cl100k_base
   mix: {yard: 0.5, shop: 0.5}
-`)
+`
+
+// When every document is removed and the output mixes sources, the run
+// still ends with its manifest (an empty mix) and says which stage let
+// nothing through.
+func TestAllRemovedWithMixWritesManifest(t *testing.T) {
+	dir := writeCorpus(t, 30)
+	s := writeSpec(t, dir, allRemovedMixSpec)
 	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out"), Workers: 2})
 	if err != nil {
 		t.Fatalf("run: %v", err)

@@ -72,21 +72,7 @@ func TestLateWriteAttemptAfterFinish(t *testing.T) {
 // report says "empty").
 func TestSplitAllRemovedWithMix(t *testing.T) {
 	dir := writeCorpus(t, 30)
-	text := `name: none
-inputs:
-  - source: yard
-    paths: ["raw/part-0.jsonl.zst"]
-  - source: shop
-    paths: ["raw/part-1.jsonl.zst"]
-stages:
-  - kind: normalize
-  - kind: length
-    min_chars: 100000
-output:
-  dir: out
-  tokenizer: cl100k_base
-  mix: {yard: 0.5, shop: 0.5}
-`
+	text := allRemovedMixSpec
 	s := writeSpec(t, dir, text)
 	plain := filepath.Join(dir, "plain")
 	if _, err := RunSpec(context.Background(), s, RunOptions{Out: plain, Workers: 1, Version: "t"}); err != nil {
