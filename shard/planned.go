@@ -69,14 +69,7 @@ func (b *Builder) SavePart(dir string) error {
 		b.spill.remove()
 		return err
 	}
-	buf := make([]byte, 0, unitBytes*len(b.units))
-	for _, u := range b.units {
-		buf = binary.LittleEndian.AppendUint64(buf, u.hash)
-		buf = binary.LittleEndian.AppendUint32(buf, u.tokens)
-		buf = binary.LittleEndian.AppendUint16(buf, u.src)
-		buf = binary.LittleEndian.AppendUint16(buf, u.piece)
-	}
-	if err := os.WriteFile(filepath.Join(dir, partUnits), buf, 0o644); err != nil {
+	if err := os.WriteFile(filepath.Join(dir, partUnits), appendUnits(nil, b.units), 0o644); err != nil {
 		return err
 	}
 	meta, err := json.Marshal(partMeta{Sources: b.srcNames, Splits: b.splits, Raw: b.spill.raw, Units: len(b.units)})
@@ -84,6 +77,18 @@ func (b *Builder) SavePart(dir string) error {
 		return err
 	}
 	return os.WriteFile(filepath.Join(dir, partInfo), meta, 0o644)
+}
+
+// appendUnits appends a part's table: per record its id hash, tokens,
+// source and piece, little-endian (unitBytes each).
+func appendUnits(buf []byte, us []unit) []byte {
+	for _, u := range us {
+		buf = binary.LittleEndian.AppendUint64(buf, u.hash)
+		buf = binary.LittleEndian.AppendUint32(buf, u.tokens)
+		buf = binary.LittleEndian.AppendUint16(buf, u.src)
+		buf = binary.LittleEndian.AppendUint16(buf, u.piece)
+	}
+	return buf
 }
 
 // RangeResult is what one range of a planned output wrote into its
@@ -137,8 +142,18 @@ func loadParts(opt Options, parts []string) (*Builder, []string, error) {
 		if err != nil {
 			return nil, nil, fmt.Errorf("output part: %w", err)
 		}
-		if len(ub) != unitBytes*m.Units {
+		if m.Units < 0 || len(ub)%unitBytes != 0 || len(ub)/unitBytes != m.Units {
 			return nil, nil, fmt.Errorf("output part %s: %d table bytes for %d records", dir, len(ub), m.Units)
+		}
+		if m.Raw < 0 {
+			return nil, nil, fmt.Errorf("output part %s: %d raw bytes", dir, m.Raw)
+		}
+		for _, sp := range m.Splits {
+			// A part's splits are long documents cut before mixing; At is
+			// the position of the last piece in the part.
+			if sp.At < 0 || sp.At >= m.Units {
+				return nil, nil, fmt.Errorf("output part %s: split of %q at record %d of %d", dir, sp.Doc, sp.At, m.Units)
+			}
 		}
 		remap := make([]uint16, len(m.Sources))
 		for j, name := range m.Sources {
