@@ -2,7 +2,8 @@
 # Split-run benchmark: the default spec over a generated corpus, run phase
 # by phase as 1 task and as 2 tasks (separate processes, one worker each,
 # as array tasks on two cores would be), compared byte for byte. Prints
-# wall seconds and peak RSS per phase, the speed-up, and the bytes each
+# wall seconds, CPU seconds (user + system, all tasks) and peak RSS per
+# phase, the speed-up, and the bytes each
 # document phase writes per input document.
 #
 #   scripts/bench-split.sh [SIZE]          default 1GB (uncompressed text)
@@ -45,20 +46,22 @@ run_phase() { # OUT TASKS PHASE: prints seconds, peak RSS, bytes per document
   for ((i = 0; i < n; i++)); do
     pin=()
     [ "$PIN" = 1 ] && pin=(taskset -c "$((i % $(nproc)))")
-    "${pin[@]}" /usr/bin/time -f '%M' -o "$out.$p.$i.time" "$W" run "$DIR/spec.yaml" --out "$out" --phase "$p" \
+    "${pin[@]}" /usr/bin/time -f '%M %U %S' -o "$out.$p.$i.time" "$W" run "$DIR/spec.yaml" --out "$out" --phase "$p" \
       --task "$i" --tasks "$n" --workers 1 -q >/dev/null 2>"$out.$p.$i.err" &
   done
   wait
   t1=$(date +%s.%N)
+  local cpu=0
   for ((i = 0; i < n; i++)); do
-    r=$(tail -1 "$out.$p.$i.time")
+    read -r r u s < <(tail -1 "$out.$p.$i.time")
     [ "$r" -gt "$rss" ] && rss=$r
+    cpu=$(echo "$cpu + $u + $s" | bc -l)
   done
   per="-"
   if [ -d "$out/.units/$p" ] && [ "$docs" -gt 0 ]; then
     per=$(echo "$(du -sb "$out/.units/$p" | cut -f1) / $docs" | bc)
   fi
-  echo "$(echo "$t1 - $t0" | bc -l) $((rss / 1024)) $per"
+  echo "$(echo "$t1 - $t0" | bc -l) $((rss / 1024)) $per $cpu"
 }
 
 echo "corpus: $SIZE uncompressed, $docs documents, units of $CHUNK; default spec; one worker per task; pinned to a core each: $PIN"
@@ -67,11 +70,11 @@ echo "corpus: $SIZE uncompressed, $docs documents, units of $CHUNK; default spec
 for ((rep = 1; rep <= REPEAT; rep++)); do
   rm -rf "$DIR/one" "$DIR/two"
   t1=0 t2=0 st0=$(steal)
-  printf '%-20s %9s %9s %8s %12s %12s\n' phase "1 task" "2 tasks" speedup "peak RSS" "written/doc"
+  printf '%-20s %9s %9s %8s %15s %12s %12s\n' phase "1 task" "2 tasks" speedup "CPU s (1 / 2)" "peak RSS" "written/doc"
   for p in $phases; do
-    read -r a r1 w1 < <(run_phase "$DIR/one" 1 "$p")
-    read -r b r2 w2 < <(run_phase "$DIR/two" 2 "$p")
-    printf '%-20s %8.1fs %8.1fs %7.2fx %5d/%4d MB %10s B\n' "$p" "$a" "$b" "$(echo "$a / $b" | bc -l)" "$r1" "$r2" "$w1"
+    read -r a r1 w1 c1 < <(run_phase "$DIR/one" 1 "$p")
+    read -r b r2 w2 c2 < <(run_phase "$DIR/two" 2 "$p")
+    printf '%-20s %8.1fs %8.1fs %7.2fx %6.1f /%6.1f %5d/%4d MB %10s B\n' "$p" "$a" "$b" "$(echo "$a / $b" | bc -l)" "$c1" "$c2" "$r1" "$r2" "$w1"
     t1=$(echo "$t1 + $a" | bc -l)
     t2=$(echo "$t2 + $b" | bc -l)
   done
