@@ -106,8 +106,8 @@ func (s *Summary) WriteText(w io.Writer) error {
 	if s.Interrupted {
 		fmt.Fprint(w, ", INTERRUPTED (the ledger covers the documents decided before the stop)")
 	}
-	fmt.Fprintf(w, "\n%s documents read from %d file(s) (%s) -> %s documents in the output", Group(s.Totals.DocsIn),
-		s.Totals.InputFiles, HumanBytes(s.Totals.InputBytes), Group(s.Totals.DocsOut))
+	fmt.Fprintf(w, "\n%s documents read from %s file(s) (%s) -> %s documents in the output", Group(s.Totals.DocsIn),
+		Group(int64(s.Totals.InputFiles)), HumanBytes(s.Totals.InputBytes), Group(s.Totals.DocsOut))
 	if s.TokenStage != "" {
 		fmt.Fprintf(w, ", %s tokens", Group(s.Totals.TokensOut))
 	} else {

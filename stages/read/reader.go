@@ -125,6 +125,35 @@ type Skipper interface {
 // ErrBinary is returned for input that is neither text, gzip nor zstd.
 var ErrBinary = errors.New("binary data: not text, gzip or zstd (wrong format or a corrupt file)")
 
+// ErrMultilineJSON is returned for a JSON input whose first line opens an
+// object or array and holds nothing else: one JSON value written over many
+// lines (pretty-printed), not one document per line. Read as JSON Lines,
+// every one of its lines would be a malformed record.
+var ErrMultilineJSON = errors.New("a JSON document written over many lines (its first line is only \"{\" or \"[\"), not JSON Lines: " +
+	"write one document per line (e.g. jq -c '.[]' for an array of documents)")
+
+// looksMultilineJSON reports whether the first non-blank line of head is a
+// lone "{" or "[" (white space around it allowed). A JSON Lines record is
+// never that: a line of its own is a whole object.
+func looksMultilineJSON(head []byte) bool {
+	for len(head) > 0 {
+		line := head
+		i := bytes.IndexByte(head, '\n')
+		if i >= 0 {
+			line, head = head[:i], head[i+1:]
+		} else {
+			// A first line longer than the peeked head: not a lone bracket.
+			return false
+		}
+		t := bytes.TrimSpace(line)
+		if len(t) == 0 {
+			continue
+		}
+		return len(t) == 1 && (t[0] == '{' || t[0] == '[')
+	}
+	return false
+}
+
 // NewRecordReader returns the reader for format over decompressed bytes r.
 // file is the display path used in ids and messages; input is the file's
 // index in the run, used in order keys.
@@ -151,6 +180,9 @@ func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (Reco
 	case FormatJSONL, FormatText:
 		if looksBinary(head) {
 			return nil, format, ErrBinary
+		}
+		if format == FormatJSONL && looksMultilineJSON(head) {
+			return nil, format, ErrMultilineJSON
 		}
 		lr := newLineReader(br, opt.MaxDocBytes)
 		lr.off = int64(skip)

@@ -3,6 +3,7 @@ package read
 import (
 	"bufio"
 	"bytes"
+	"encoding/json"
 	"errors"
 	"io"
 	"os"
@@ -276,6 +277,74 @@ func TestEmptyAndBinaryInput(t *testing.T) {
 	if _, err := readAll(t, bin, ReadOptions{Source: "s"}); !errors.Is(err, ErrBinary) {
 		t.Errorf("binary: got %v, want ErrBinary", err)
 	}
+}
+
+// TestMultilineJSONIsOneError: a pretty-printed JSON document (real:
+// the API documentation the nodejs package ships, testdata/nodejs-api)
+// named .json is one error for the file, not a malformed record per line,
+// whether the format was guessed or given; read as text it is text; JSON
+// Lines after blank lines, or starting with a whole object, stay JSON Lines.
+func TestMultilineJSONIsOneError(t *testing.T) {
+	real := filepath.Join("..", "..", "testdata", "nodejs-api", "string_decoder.json.gz")
+	for _, f := range []Format{FormatAuto, FormatJSONL} {
+		if _, err := readAll(t, real, ReadOptions{Source: "s", Format: f}); !errors.Is(err, ErrMultilineJSON) {
+			t.Errorf("format %s: got %v, want ErrMultilineJSON", f, err)
+		}
+	}
+	recs, err := readAll(t, real, ReadOptions{Source: "s", Format: FormatText, TextMode: "file"})
+	if err != nil || len(recs) != 1 || !strings.Contains(recs[0].Doc.Text, `"type": "module"`) {
+		t.Errorf("as text: %d records, %v", len(recs), err)
+	}
+	dir := t.TempDir()
+	for name, c := range map[string]struct {
+		text  string
+		multi bool
+	}{
+		"array.json":    {"[\n  {\"text\": \"a\"}\n]\n", true},
+		"indented.json": {"\n\n   {  \n\"text\": \"a\"}\n", true},
+		"crlf.json":     {"{\r\n\"text\": \"a\"}\r\n", true},
+		"blank.jsonl":   {"\n\n{\"text\": \"a\"}\n{\"text\": \"b\"}\n", false},
+		"compact.json":  {"{\"text\": \"a\"}\n", false},
+		"opens.json":    {"{\"text\":\n\"a\"}\n", false}, // malformed records, judged per line
+	} {
+		p := writeFile(t, dir, name, c.text)
+		_, err := readAll(t, p, ReadOptions{Source: "s"})
+		if got := errors.Is(err, ErrMultilineJSON); got != c.multi {
+			t.Errorf("%s: multi-line %v (%v), want %v", name, got, err, c.multi)
+		}
+	}
+}
+
+// FuzzLooksMultilineJSON: a head is called multi-line JSON only when its
+// first non-blank line is a lone bracket, so a file whose first line is a
+// whole JSON value (checked with encoding/json) is never refused.
+func FuzzLooksMultilineJSON(f *testing.F) {
+	for _, s := range []string{"{\n", "[\n", "\n  {  \n\"a\": 1}", "{\"a\":1}\n{", "{}\n", "{", "", "\n\n", " [ \r\n"} {
+		f.Add([]byte(s))
+	}
+	f.Fuzz(func(t *testing.T, head []byte) {
+		got := looksMultilineJSON(head)
+		var first []byte
+		rest, found := head, false
+		for {
+			i := bytes.IndexByte(rest, '\n')
+			if i < 0 {
+				break
+			}
+			if l := bytes.TrimSpace(rest[:i]); len(l) > 0 {
+				first, found = l, true
+				break
+			}
+			rest = rest[i+1:]
+		}
+		want := found && (string(first) == "{" || string(first) == "[")
+		if got != want {
+			t.Fatalf("looksMultilineJSON(%q) = %v, want %v", head, got, want)
+		}
+		if got && json.Valid(first) {
+			t.Fatalf("refused a head whose first line %q is a whole JSON value", first)
+		}
+	})
 }
 
 func TestTextBlocksAndFile(t *testing.T) {
