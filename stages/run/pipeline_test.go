@@ -12,6 +12,7 @@ import (
 	"regexp"
 	"slices"
 	"strings"
+	"sync"
 	"testing"
 	"winnow/stages/record"
 
@@ -213,12 +214,39 @@ func TestRunTruncatedInputRecorded(t *testing.T) {
 	p := filepath.Join(dir, "raw", "part-1.jsonl.zst")
 	b, _ := os.ReadFile(p)
 	os.WriteFile(p, b[:len(b)*9/10], 0o644)
+	// And a file that is not zstd at all, under a .zst name: nothing of
+	// it is read.
+	os.WriteFile(filepath.Join(dir, "raw", "part-2.jsonl.zst"), []byte{0x7f, 'E', 'L', 'F', 0, 0, 1, 2, 3, 0, 0, 0, 9, 9, 9, 9}, 0o644)
 	s := writeSpec(t, dir, basicSpec)
-	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out")})
+	var logs []string
+	var mu sync.Mutex
+	logf := func(format string, args ...any) {
+		mu.Lock()
+		logs = append(logs, fmt.Sprintf(format, args...))
+		mu.Unlock()
+	}
+	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out"), Log: logf})
 	if err != nil {
 		t.Fatal(err)
 	}
-	if res.Runner.FatalInputs != 1 {
+	// The messages say how many documents of each broken file were kept.
+	joined := strings.Join(logs, "\n")
+	kept := "raw/part-1.jsonl.zst: "
+	tail := fmt.Sprintf("(the %d documents before this point are kept)", res.Manifest.Inputs[1].Docs)
+	none := "raw/part-2.jsonl.zst: "
+	found1, found2 := false, false
+	for _, l := range logs {
+		if strings.HasPrefix(l, kept) {
+			found1 = strings.HasSuffix(l, tail)
+		}
+		if strings.HasPrefix(l, none) {
+			found2 = strings.HasSuffix(l, "(no document of it was read)")
+		}
+	}
+	if !found1 || !found2 {
+		t.Errorf("log lacks %q or an unreadable file's message:\n%s", tail, joined)
+	}
+	if res.Runner.FatalInputs != 2 {
 		t.Errorf("fatal inputs %d", res.Runner.FatalInputs)
 	}
 	var found bool

@@ -984,7 +984,11 @@ func (r *Runner) produceInputs(ctx context.Context, out chan<- *batch) error {
 				iss.Offset = de.Offset
 			}
 			cur.items = append(cur.items, item{rec: docRecord{Issue: iss}, input: in.Index})
-			r.logf("%s: %v (documents before this point are kept)", in.Display, err)
+			if sum.Docs == 0 {
+				r.logf("%s: %v (no document of it was read)", in.Display, err)
+			} else {
+				r.logf("%s: %v (the %d documents before this point are kept)", in.Display, err, sum.Docs)
+			}
 		} else if err == nil {
 			sum.Complete = true
 			if sum.Docs == 0 && sum.Issues == 0 && len(sum.Skips) == 0 {
