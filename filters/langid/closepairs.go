@@ -19,8 +19,14 @@ import (
 // closePairTrain in langeval_test.go). The UDHR texts and every other
 // catalogue are held out, with one exception: Indonesian "ketika" was
 // dropped from the list after it turned a held-out Malay glib text into
-// Indonesian. When the markers do not decide, the first stage's answer
-// stands. ACCURACY.md reports both parts separately.
+// Indonesian. A second batch (the last lines of each list: more jat
+// reflexes, Croatian ponovno/upute/naredba/tablica/obvezno/točno against
+// ponovo/uputstvo/tabela/obavezno/tačno, Indonesian -tas and ekspor/proyek/
+// berbeda against Malay -ti and eksport/projek/berbeza) was written from
+// memory and only measured, not amended: held-out long texts went from
+// Bosnian 71% to 76%, Indonesian 86% to 89%, Serbian 94% to 96%, none
+// lower. When the markers do not decide, the first stage's answer stands.
+// ACCURACY.md reports both parts separately.
 
 // Marker classes of the Serbo-Croatian standards.
 const (
@@ -61,7 +67,8 @@ func init() {
 		rešenje rešenja rešiti reši rešen   
 		sledi vrednost vrednosti
 		zameniti zamenite zameni zamena zamenu zamenjen zamenjena
-		uspeo uspela uspelo uspeli menjanje`)
+		uspeo uspela uspelo uspeli menjanje
+		dve mesec meseca meseci rečnik rečnika provera proveri proveriti proverite zahtev zahteva zahtevi izmena izmene izmeniti ocena oceniti procena proceniti svetlo svetlost senka senke vest vesti poslednji poslednja poslednje živeti razumeti celina celobrojni usled`)
 	addMarkers(mkIjekav, `mlijeko rijeka rijeke riječ riječi riječima lijepo lijep lijepa lijepe vrijeme
 		 djeca djece dijete djeteta uvijek gdje prije poslije pjesma pjesme primjer primjera primjeri
 		primjere primjena primjene promjena promjene promijeni promjenu promijeniti promijenite promijenjen
@@ -77,7 +84,8 @@ func init() {
 		dodijeljen dodijeli dodjela rješenje rješenja riješiti riješi riješen tjedan tjedna zamijeniti
 		zamjena zamijeni vjerski dijeliti dijeli podijeljen nasljeđe
 		slijedi vrijednost vrijednosti također
-		uspio uspjela uspjelo uspjeli mijenjanje zamjenski zamjenama`)
+		uspio uspjela uspjelo uspjeli mijenjanje zamjenski zamjenama
+		dvije mjesec mjeseca mjeseci rječnik rječnika provjera provjeri provjeriti provjerite zahtjev zahtjeva zahtjevi izmjena izmjene izmijeniti ocjena ocijeniti procjena procijeniti svjetlo svjetlost sjena sjene vijest vijesti posljednji posljednja posljednje živjeti razumjeti cjelina cjelobrojni uslijed`)
 	// Croatian word choices where Serbian and Bosnian share another word
 	// (from memory): pronouns, months, numerals and computing terms.
 	addMarkers(mkCroatian, `tko netko svatko nitko itko tisuća tisuće tisuću tjedan tjedna kruh siječanj
@@ -94,7 +102,8 @@ func init() {
 		trenutačno trenutačni gumb gumba gumbi  brisanje    
 		nadogradnja pristupnik sučelje sučelja sučelju  dopušteno dopuštenja  
 		  
-		utječe utječu utjecaj utjecaja odlomak odlomka`)
+		utječe utječu utjecaj utjecaja odlomak odlomka
+		ponovno pričekajte pričekaj pričekati upute uputa naredba naredbe naredbu naredbi tablica tablice tablicu poveznica poveznice poveznicu obvezno obvezan obvezna obvezni točno točan točna zaporka zaporke zaporku`)
 	// Serbian and Bosnian word choices where Croatian has another word.
 	addMarkers(mkEastern, `ko neko svako niko iko šta  hiljada hiljade hiljadu sedmica sedmice uslov
 		uslovi uslova uslovima porodica porodice porodici univerzitet univerziteta voz muzika muzike pozorište
@@ -106,7 +115,8 @@ func init() {
 		podrazumijevana  trenutni dugme dugmeta  fajl fajla fajlu fajlove interfejs
 		interfejsa komanda komande komandu    
 		poređenje poredi takođe zavisno menija
-		utiče utiču uticaj uticaja pasus pasusa manuelno režim režima`)
+		utiče utiču uticaj uticaja pasus pasusa manuelno režim režima
+		ponovo sačekajte sačekaj sačekati uputstvo uputstva tabela tabele tabelu obavezno obavezan obavezna obavezni tačno tačan tačna taster tastera`)
 	// Bosnian only (from memory): the Bosnian forms with h and a few
 	// loanwords, set apart from both Serbian and Croatian.
 	addMarkers(mkBosnian, `historija historije historiji hljeb lahko mehko polahko kahva sahat hudovati
@@ -122,7 +132,13 @@ func init() {
 		pengaturan setelan diatur kembali ulang mengulang dapatkan mendapatkan diperbarui pembaruan
 		perbarui memperbarui unduh mengunduh diunduh tidak dapat belum terhubung menghubungkan tombol
 		direktori folder berhasil gagal untuk mengubah diubah penyimpanan masukan keluaran sistem
-		menjalankan dijalankan berjalan hanya secara otomatis disetel atur`)
+		menjalankan dijalankan berjalan hanya secara otomatis disetel atur
+		ekspor mengekspor diekspor impor mengimpor diimpor proyek perbedaan berbeda membedakan bawaan
+		peramban situs tempel urungkan informasi akun gratis uang kantor pemrograman lunak nonaktif
+		nonaktifkan sinkronisasi dukungan mendukung didukung telepon kualitas aktivitas universitas
+		identitas kapasitas komunitas fasilitas stabilitas kompatibilitas integritas otoritas agustus
+		maret juni juli desember baterai karakter spasi standar layar ketik mengetik diketik nomor menit
+		unggah mengunggah diunggah perserikatan`)
 	addMarkers(mkMalay, `boleh kerana bahawa iaitu sahaja baharu fail peranti laluan sila padam memadam
 		dipadam tetingkap pelayan  sambungan pautan paparan memaparkan dipaparkan paparkan mesti
 		ralat perkhidmatan khidmat ciri tajuk lajur saiz imej cuba mencuba apabila mula memulakan dimulakan
@@ -133,7 +149,12 @@ func init() {
 		output menjalankan dilaksanakan berjalan hanya secara automatik ditetapkan tetap pertubuhan
 		perlembagaan negeri pendapatan berkenaan bagaimanapun walau
 		bahawasanya
-		patut`)
+		patut
+		eksport mengeksport dieksport projek perbezaan berbeza membezakan lalai pelayar tampal maklumat
+		akaun percuma wang pejabat pengaturcaraan perisian perkakasan nyahaktif nyahaktifkan penyegerakan
+		segerak sokongan menyokong disokong telefon kualiti aktiviti universiti identiti kapasiti komuniti
+		keserasian integriti autoriti mesej tarikh ogos julai disember bateri aksara piawai skrin menaip
+		taip ditaip nombor minit rangkaian`)
 	// Words both standards use alike that slipped into both lists above
 	// count for neither.
 	for _, w := range strings.Fields(`tidak dapat belum gagal menjalankan berjalan hanya secara untuk
