@@ -22,10 +22,12 @@ import (
 // Indonesian. A second batch (the last lines of each list: more jat
 // reflexes, Croatian ponovno/upute/naredba/tablica/obvezno/točno against
 // ponovo/uputstvo/tabela/obavezno/tačno, Indonesian -tas and ekspor/proyek/
-// berbeda against Malay -ti and eksport/projek/berbeza) was written from
-// memory and only measured, not amended: held-out long texts went from
-// Bosnian 71% to 76%, Indonesian 86% to 89%, Serbian 94% to 96%, none
-// lower. When the markers do not decide, the first stage's answer stands.
+// berbeda against Malay -ti and eksport/projek/berbeza) and a third
+// (Croatian odustani/knjižnica/milijun/postotak/licencija against
+// otkaži/biblioteka/milion/procenat/licenca, osvježi/osveži) were written
+// from memory and only measured, not amended: held-out long texts went
+// from Bosnian 71% to 76%, Croatian 92% to 96%, Indonesian 86% to 89%,
+// Serbian 94% to 96%, none lower. When the markers do not decide, the first stage's answer stands.
 // ACCURACY.md reports both parts separately.
 
 // Marker classes of the Serbo-Croatian standards.
@@ -68,7 +70,8 @@ func init() {
 		sledi vrednost vrednosti
 		zameniti zamenite zameni zamena zamenu zamenjen zamenjena
 		uspeo uspela uspelo uspeli menjanje
-		dve mesec meseca meseci rečnik rečnika provera proveri proveriti proverite zahtev zahteva zahtevi izmena izmene izmeniti ocena oceniti procena proceniti svetlo svetlost senka senke vest vesti poslednji poslednja poslednje živeti razumeti celina celobrojni usled`)
+		dve mesec meseca meseci rečnik rečnika provera proveri proveriti proverite zahtev zahteva zahtevi izmena izmene izmeniti ocena oceniti procena proceniti svetlo svetlost senka senke vest vesti poslednji poslednja poslednje živeti razumeti celina celobrojni usled
+		osveži osvežiti osvežavanje promenljiva promenljive mesečno`)
 	addMarkers(mkIjekav, `mlijeko rijeka rijeke riječ riječi riječima lijepo lijep lijepa lijepe vrijeme
 		 djeca djece dijete djeteta uvijek gdje prije poslije pjesma pjesme primjer primjera primjeri
 		primjere primjena primjene promjena promjene promijeni promjenu promijeniti promijenite promijenjen
@@ -85,7 +88,8 @@ func init() {
 		zamjena zamijeni vjerski dijeliti dijeli podijeljen nasljeđe
 		slijedi vrijednost vrijednosti također
 		uspio uspjela uspjelo uspjeli mijenjanje zamjenski zamjenama
-		dvije mjesec mjeseca mjeseci rječnik rječnika provjera provjeri provjeriti provjerite zahtjev zahtjeva zahtjevi izmjena izmjene izmijeniti ocjena ocijeniti procjena procijeniti svjetlo svjetlost sjena sjene vijest vijesti posljednji posljednja posljednje živjeti razumjeti cjelina cjelobrojni uslijed`)
+		dvije mjesec mjeseca mjeseci rječnik rječnika provjera provjeri provjeriti provjerite zahtjev zahtjeva zahtjevi izmjena izmjene izmijeniti ocjena ocijeniti procjena procijeniti svjetlo svjetlost sjena sjene vijest vijesti posljednji posljednja posljednje živjeti razumjeti cjelina cjelobrojni uslijed
+		osvježi osvježiti osvježavanje mjesečno`)
 	// Croatian word choices where Serbian and Bosnian share another word
 	// (from memory): pronouns, months, numerals and computing terms.
 	addMarkers(mkCroatian, `tko netko svatko nitko itko tisuća tisuće tisuću tjedan tjedna kruh siječanj
@@ -103,7 +107,8 @@ func init() {
 		nadogradnja pristupnik sučelje sučelja sučelju  dopušteno dopuštenja  
 		  
 		utječe utječu utjecaj utjecaja odlomak odlomka
-		ponovno pričekajte pričekaj pričekati upute uputa naredba naredbe naredbu naredbi tablica tablice tablicu poveznica poveznice poveznicu obvezno obvezan obvezna obvezni točno točan točna zaporka zaporke zaporku`)
+		ponovno pričekajte pričekaj pričekati upute uputa naredba naredbe naredbu naredbi tablica tablice tablicu poveznica poveznice poveznicu obvezno obvezan obvezna obvezni točno točan točna zaporka zaporke zaporku
+		odustani odustati spremište spremišta prilagodba prilagodbe knjižnica knjižnice varijabla varijable varijablu milijun milijuna postotak postotka kut kuta licencija licencije licenciju`)
 	// Serbian and Bosnian word choices where Croatian has another word.
 	addMarkers(mkEastern, `ko neko svako niko iko šta  hiljada hiljade hiljadu sedmica sedmice uslov
 		uslovi uslova uslovima porodica porodice porodici univerzitet univerziteta voz muzika muzike pozorište
@@ -116,7 +121,8 @@ func init() {
 		interfejsa komanda komande komandu    
 		poređenje poredi takođe zavisno menija
 		utiče utiču uticaj uticaja pasus pasusa manuelno režim režima
-		ponovo sačekajte sačekaj sačekati uputstvo uputstva tabela tabele tabelu obavezno obavezan obavezna obavezni tačno tačan tačna taster tastera`)
+		ponovo sačekajte sačekaj sačekati uputstvo uputstva tabela tabele tabelu obavezno obavezan obavezna obavezni tačno tačan tačna taster tastera
+		otkaži otkazati skladište skladišta zavisnosti biblioteka biblioteke promjenljiva promjenljive milion miliona procenat procenta procenata ugao ugla licenca licence licencu`)
 	// Bosnian only (from memory): the Bosnian forms with h and a few
 	// loanwords, set apart from both Serbian and Croatian.
 	addMarkers(mkBosnian, `historija historije historiji hljeb lahko mehko polahko kahva sahat hudovati
