@@ -17,6 +17,7 @@ import (
 	"testing"
 	"time"
 
+	"winnow/stages/record"
 	"winnow/stages/run"
 	"winnow/stages/termtext"
 )
@@ -602,6 +603,19 @@ func TestSplitRunRefusesChangedInputs(t *testing.T) {
 	b, err := cmd.CombinedOutput()
 	if err == nil || !strings.Contains(string(b), "a.jsonl") || !strings.Contains(string(b), "inputs differ") {
 		t.Errorf("a changed input was not refused: %v\n%s", err, b)
+	}
+	// The message says how to start over, and doing so works.
+	units := filepath.Join(out, ".units")
+	if !strings.Contains(string(b), "remove "+units) {
+		t.Errorf("the refusal does not say how to start over:\n%s", b)
+	}
+	if err := os.RemoveAll(units); err != nil {
+		t.Fatal(err)
+	}
+	cliRun(t, nil, "run", spec, "--out", out, "--phase", "read", "-q")
+	cliRun(t, nil, "run", spec, "--out", out, "--phase", "all", "-q")
+	if m, err := record.ReadManifest(out); err != nil || m.Totals.DocsOut != 1 {
+		t.Errorf("started over: %v, want 1 document out", err)
 	}
 	std := filepath.Join(dir, "stdin.yaml")
 	if err := os.WriteFile(std, []byte("name: x\ninputs:\n  - source: s\n    paths: [\"-\"]\nstages:\n  - kind: exact_dedup\n"), 0o644); err != nil {

@@ -87,7 +87,7 @@ func checkFrozen(dir string, now *frozenInputs, first bool) error {
 		return fmt.Errorf("%s: %w", path, err)
 	}
 	if was.ConfigHash != now.ConfigHash {
-		return fmt.Errorf("%s belongs to config %s, the spec is %s: use another --out", dir, was.ConfigHash, now.ConfigHash)
+		return fmt.Errorf("%s belongs to config %s, the spec is %s: use another --out, or remove %s to start the split run over", dir, was.ConfigHash, now.ConfigHash, filepath.Join(dir, unitsDir))
 	}
 	var diffs []string
 	seen := map[string]frozenInput{}
@@ -115,7 +115,7 @@ func checkFrozen(dir string, now *frozenInputs, first bool) error {
 		diffs = append(diffs, "the order of the files changed")
 	}
 	if len(diffs) > 0 {
-		return fmt.Errorf("the inputs differ from the list the run's first phase froze in %s: %s", path, strings.Join(diffs, ", "))
+		return fmt.Errorf("the inputs differ from the list the run's first phase froze in %s: %s (to start the split run over on the inputs as they are now, remove %s)", path, strings.Join(diffs, ", "), filepath.Join(dir, unitsDir))
 	}
 	return nil
 }
