@@ -73,11 +73,18 @@ type Stopwords struct {
 	maxTokens int       // most space-separated tokens in one entry
 }
 
+// stopwordList is one language's list, loaded on first use. The map of
+// them is filled in init and only read afterwards, so concurrent callers
+// asking for different languages never write a shared map.
+type stopwordList struct {
+	once sync.Once
+	set  *Stopwords
+	err  error
+}
+
 var (
-	stopwordOnce = map[string]*sync.Once{}
-	stopwordSets = map[string]*Stopwords{}
-	stopwordErrs = map[string]error{}
-	stopwordLang []string
+	stopwordLists = map[string]*stopwordList{}
+	stopwordLang  []string
 )
 
 func init() {
@@ -88,7 +95,7 @@ func init() {
 	for _, e := range entries {
 		if name, ok := strings.CutSuffix(e.Name(), ".txt"); ok {
 			stopwordLang = append(stopwordLang, name)
-			stopwordOnce[name] = new(sync.Once)
+			stopwordLists[name] = &stopwordList{}
 		}
 	}
 	sort.Strings(stopwordLang)
@@ -137,22 +144,22 @@ func StopwordsFor(lang string) (*Stopwords, error) {
 	if to, ok := stopwordAliases[lang]; ok {
 		lang = to
 	}
-	once, ok := stopwordOnce[lang]
+	l, ok := stopwordLists[lang]
 	if !ok {
 		return nil, fmt.Errorf("stop words: language %q is not supported (supported: %s)", lang, strings.Join(stopwordLang, " "))
 	}
-	once.Do(func() {
+	l.once.Do(func() {
 		raw, err := RawStopwords(lang)
 		if err != nil {
-			stopwordErrs[lang] = err
+			l.err = err
 			return
 		}
-		stopwordSets[lang] = newStopwords(lang, raw)
+		l.set = newStopwords(lang, raw)
 	})
-	if err := stopwordErrs[lang]; err != nil {
-		return nil, err
+	if l.err != nil {
+		return nil, l.err
 	}
-	return stopwordSets[lang], nil
+	return l.set, nil
 }
 
 // NormalizeEntry is how a dataset entry becomes a lookup key: each

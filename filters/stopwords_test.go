@@ -6,6 +6,7 @@ import (
 	"path/filepath"
 	"sort"
 	"strings"
+	"sync"
 	"testing"
 )
 
@@ -169,5 +170,46 @@ func TestStopwordsZeroAllocs(t *testing.T) {
 	i := 0
 	if a := testing.AllocsPerRun(50, func() { MeasureQuality(&s, docs[i%2], en); i++ }); a != 0 {
 		t.Fatalf("MeasureQuality allocates %.1f times per document", a)
+	}
+}
+
+// TestStopwordsForConcurrent: goroutines asking for different languages
+// at once (as workers over a multilingual corpus do) load each list once
+// and share it; run with -race, this found a shared map written while
+// read.
+func TestStopwordsForConcurrent(t *testing.T) {
+	langs := StopwordLanguages()
+	got := make([][]*Stopwords, 8)
+	var wg sync.WaitGroup
+	for g := range got {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range langs {
+				sw, err := StopwordsFor(langs[(i+g*7)%len(langs)])
+				if err != nil {
+					t.Error(err)
+					return
+				}
+				got[g] = append(got[g], sw)
+			}
+		}()
+	}
+	wg.Wait()
+	for _, lang := range langs {
+		want, _ := StopwordsFor(lang)
+		if want == nil || want.Lang != lang {
+			t.Fatalf("%s: %+v", lang, want)
+		}
+	}
+	for g := range got {
+		for i, sw := range got[g] {
+			if lang := langs[(i+g*7)%len(langs)]; sw == nil || sw.Lang != lang {
+				t.Fatalf("goroutine %d, call %d: list of %v, want %s", g, i, sw, lang)
+			}
+			if want, _ := StopwordsFor(sw.Lang); want != sw {
+				t.Errorf("%s: two lists loaded", sw.Lang)
+			}
+		}
 	}
 }
