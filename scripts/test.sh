@@ -33,3 +33,7 @@ if [ -n "$unformatted" ]; then
 fi
 go vet ./...
 go test ./... "$@"
+# The packages where goroutines share state (workers, collector,
+# compressors, shared models and lists) once more under the race detector
+# (it needs cgo: gcc is on the machine).
+go test -race ./filters/... ./dedup ./shard ./stages/record ./stages/run ./stages/audit "$@"
