@@ -126,11 +126,23 @@ type Skipper interface {
 var ErrBinary = errors.New("binary data: not text, gzip or zstd (wrong format or a corrupt file)")
 
 // ErrMultilineJSON is returned for a JSON input whose first line opens an
-// object or array and holds nothing else: one JSON value written over many
-// lines (pretty-printed), not one document per line. Read as JSON Lines,
+// object and holds nothing else: one JSON value written over many lines
+// (pretty-printed), not one document per line. (An input that starts
+// with "[" is read as an array of documents: jsonarray.go.) Read as JSON Lines,
 // every one of its lines would be a malformed record.
-var ErrMultilineJSON = errors.New("a JSON document written over many lines (its first line is only \"{\" or \"[\"), not JSON Lines: " +
-	"write one document per line (e.g. jq -c '.[]' for an array of documents)")
+var ErrMultilineJSON = errors.New("a JSON object written over many lines (its first line is only \"{\"), not JSON Lines " +
+	"or an array of documents: write one document per line")
+
+// firstJSONByte returns the first byte of head that is not JSON white
+// space (0 if none).
+func firstJSONByte(head []byte) byte {
+	for _, c := range head {
+		if !isJSONSpace(c) {
+			return c
+		}
+	}
+	return 0
+}
 
 // looksMultilineJSON reports whether the first non-blank line of head is a
 // lone "{" or "[" (white space around it allowed). A JSON Lines record is
@@ -180,6 +192,9 @@ func NewRecordReader(r io.Reader, file string, input int, opt ReadOptions) (Reco
 	case FormatJSONL, FormatText:
 		if looksBinary(head) {
 			return nil, format, ErrBinary
+		}
+		if format == FormatJSONL && firstJSONByte(head) == '[' {
+			return newJSONArrayReader(base, br, skip), format, nil
 		}
 		if format == FormatJSONL && looksMultilineJSON(head) {
 			return nil, format, ErrMultilineJSON

@@ -300,7 +300,6 @@ func TestMultilineJSONIsOneError(t *testing.T) {
 		text  string
 		multi bool
 	}{
-		"array.json":    {"[\n  {\"text\": \"a\"}\n]\n", true},
 		"indented.json": {"\n\n   {  \n\"text\": \"a\"}\n", true},
 		"crlf.json":     {"{\r\n\"text\": \"a\"}\r\n", true},
 		"blank.jsonl":   {"\n\n{\"text\": \"a\"}\n{\"text\": \"b\"}\n", false},
