@@ -129,7 +129,7 @@ func TestLoadEvalSetErrors(t *testing.T) {
 	contamWriteFile(t, filepath.Join(dir, "mc.jsonl"), []byte(`{"id":"a","question":"one two","choices":["x","y"],"label":1}`+"\n"+
 		`{"id":"b","question":"one two","choices":["x","y"],"label":"E"}`+"\n"))
 	contamWriteFile(t, filepath.Join(dir, "ragged.csv"), []byte("id,question\na,one two\nb,three,four\n"))
-	contamWriteFile(t, filepath.Join(dir, "arr.json"), []byte(`[{"id":"a","question":"one"}]`))
+	contamWriteFile(t, filepath.Join(dir, "arr.json"), []byte(`[{"id":"a","question":"one"}, ["not", "an", "item"]]`))
 	contamWriteFile(t, filepath.Join(dir, "bin.dat"), []byte("\x00\x01\x02PK"))
 	contamWriteFile(t, filepath.Join(dir, "fake.parquet"), []byte(`{"id":"a","question":"one"}`+"\n"))
 	contamWriteFile(t, filepath.Join(dir, "numfield.jsonl"), []byte(`{"id":"a","question":"Which cleat?","answer":"horn"}`+"\n"+`{"id":"b","question":"How many bolts?","answer":12}`+"\n"))
@@ -149,7 +149,7 @@ func TestLoadEvalSetErrors(t *testing.T) {
 		{EvalSpec{Paths: []string{"mc.jsonl"}, Fields: []string{"choices[label]"}}, `mc.jsonl:2: item "b": field choices[label]: label "E" is out of range for 2 elements`},
 		{EvalSpec{Paths: []string{"mc.jsonl"}, Fields: []string{"question[label]"}}, `mc.jsonl:1: item "a": field question[label]: "question" is not a list`},
 		{EvalSpec{Paths: []string{"ragged.csv"}}, `ragged.csv: record on line 3: wrong number of fields`},
-		{EvalSpec{Paths: []string{"arr.json"}}, `arr.json: cannot read as an eval set: a JSON array, not JSON lines`},
+		{EvalSpec{Paths: []string{"arr.json"}}, `arr.json: item 2: want a JSON object`},
 		{EvalSpec{Paths: []string{"bin.dat"}}, `bin.dat: cannot read as an eval set: binary data`},
 		{EvalSpec{Paths: []string{"fake.parquet"}, Format: "parquet"}, `fake.parquet: not a Parquet file`},
 		// A field of the wrong type or an empty one is named with its line,

@@ -86,8 +86,9 @@ type EvalSpec struct {
 }
 
 // EvalFormats lists the accepted eval-set formats ("auto" sniffs jsonl,
-// parquet, csv or tsv; lines and blocks are plain text, never guessed).
-var EvalFormats = []string{"auto", "jsonl", "parquet", "csv", "tsv", "lines", "blocks"}
+// json (an array of items), parquet, csv or tsv; lines and blocks are
+// plain text, never guessed).
+var EvalFormats = []string{"auto", "jsonl", "json", "parquet", "csv", "tsv", "lines", "blocks"}
 
 // EvalItem is one loaded eval item.
 type EvalItem struct {
@@ -195,6 +196,8 @@ func readEvalFile(path, disp string, spec EvalSpec) ([]EvalItem, string, error) 
 	switch format {
 	case "csv", "tsv":
 		items, err = readEvalCSV(br, disp, format, spec)
+	case "json":
+		items, err = readEvalArray(br, disp, spec)
 	default:
 		spec.Format = format
 		items, err = parseEvalItems(br, disp, spec)
@@ -232,6 +235,9 @@ func sniffEvalFormat(disp string, br *bufio.Reader) (string, error) {
 	if len(t) > 0 && t[0] == '{' {
 		return "jsonl", nil
 	}
+	if len(t) > 0 && t[0] == '[' {
+		return "json", nil // an array of items
+	}
 	name := strings.ToLower(disp)
 	for _, suf := range []string{".gz", ".gzip", ".zst", ".zstd"} {
 		name = strings.TrimSuffix(name, suf)
@@ -250,10 +256,8 @@ func sniffEvalFormat(disp string, br *bufio.Reader) (string, error) {
 		what = "empty"
 	case bytes.IndexByte(head, 0) >= 0:
 		what = "binary data"
-	case t[0] == '[':
-		what = "a JSON array, not JSON lines"
 	}
-	return "", fmt.Errorf("%s: cannot read as an eval set: %s; eval files are JSON lines, Parquet, or CSV/TSV with a header row "+
+	return "", fmt.Errorf("%s: cannot read as an eval set: %s; eval files are JSON lines, a JSON array of items, Parquet, or CSV/TSV with a header row "+
 		"(named .csv, .tsv), optionally gzip or zstd; for plain text set format: lines or blocks", disp, what)
 }
 
@@ -270,7 +274,10 @@ func parseEvalItems(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error)
 		if format, err = sniffEvalFormat(disp, br); err != nil {
 			return nil, err
 		}
-		if format != "jsonl" {
+		switch format {
+		case "json":
+			return readEvalArray(br, disp, spec)
+		case "csv", "tsv":
 			return readEvalCSV(br, disp, format, spec)
 		}
 	}
@@ -317,6 +324,43 @@ func parseEvalItems(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error)
 	case "jsonl":
 	default:
 		return nil, fmt.Errorf("%s: unknown eval format %q (want %s)", disp, format, strings.Join(EvalFormats, " | "))
+	}
+	if err := checkEvalWords(items, disp); err != nil {
+		return nil, err
+	}
+	return items, nil
+}
+
+// readEvalArray reads a JSON array of item objects ("[{...}, ...]", on
+// one line or over many); item n (from 1) is line n in ids and errors.
+func readEvalArray(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error) {
+	dec := json.NewDecoder(r)
+	dec.UseNumber()
+	if tok, err := dec.Token(); err != nil || tok != json.Delim('[') {
+		return nil, fmt.Errorf("%s: not a JSON array of items (%v)", disp, err)
+	}
+	base := filepath.Base(disp)
+	var items []EvalItem
+	for n := int64(1); dec.More(); n++ {
+		node, err := decodeJSONNode(dec, 0)
+		if err != nil {
+			return nil, fmt.Errorf("%s: item %d: invalid JSON: %v", disp, n, err)
+		}
+		if node.kind != 'o' {
+			return nil, fmt.Errorf("%s: item %d: want a JSON object", disp, n)
+		}
+		it, err := evalItemFromNode(node, base, n, spec)
+		if err != nil {
+			return nil, fmt.Errorf("%s: item %d: %w", disp, n, err)
+		}
+		it.File = disp
+		items = append(items, it)
+	}
+	if _, err := dec.Token(); err != nil {
+		return nil, fmt.Errorf("%s: JSON array not closed: %v", disp, err)
+	}
+	if _, err := dec.Token(); err != io.EOF {
+		return nil, fmt.Errorf("%s: data after the closing \"]\" of the JSON array", disp)
 	}
 	if err := checkEvalWords(items, disp); err != nil {
 		return nil, err

@@ -7,6 +7,7 @@ import (
 	"encoding/json"
 	"os"
 	"path/filepath"
+	"reflect"
 	"slices"
 	"strings"
 	"testing"
@@ -81,6 +82,9 @@ func TestEvalSetsWrittenByDuckDB(t *testing.T) {
 		{filepath.Join(evalFixtureDir, "npm-mc.tsv"), "tsv"},
 		{filepath.Join(dir, "npm-mc.jsonl.gz"), "jsonl"},
 		{filepath.Join(dir, "npm-mc.csv.zst"), "csv"},
+		// The same items as one pretty-printed JSON array, written by
+		// Node.js's JSON.stringify (testdata/nodejs-api).
+		{filepath.Join("..", "testdata", "nodejs-api", "npm-mc.array.json"), "json"},
 	} {
 		set, err := LoadEvalSet(EvalSpec{Name: "npm", Paths: []string{c.path}, Fields: evalFixtureFields})
 		if err != nil {
@@ -232,6 +236,57 @@ func FuzzEvalJSONLine(f *testing.F) {
 		}
 		if gold, ok := choices[int(label)].(string); ok && strings.TrimSpace(gold) != "" && it.Parts[len(it.Parts)-1] != gold {
 			t.Fatalf("choices[label] = %q, want %q (%s)", it.Parts[len(it.Parts)-1], gold, line)
+		}
+	})
+}
+
+// TestEvalArrayErrors: a JSON array of items that is cut short, has data
+// after it or holds a non-object names the file and the item.
+func TestEvalArrayErrors(t *testing.T) {
+	spec := EvalSpec{IDField: "id", Fields: []string{"q"}}
+	for _, c := range []struct{ in, want string }{
+		{`[{"id":"a","q":"one two three"},{"id":"b","q":"four`, "item 2"},
+		{`[{"id":"a","q":"one two three"}`, "not closed"},
+		{`[{"id":"a","q":"one two three"}] [`, "data after"},
+		{`[{"id":"a","q":"one two three"}, 7]`, "item 2: want a JSON object"},
+	} {
+		_, err := readEvalArray(strings.NewReader(c.in), "e.json", spec)
+		if err == nil || !strings.Contains(err.Error(), "e.json") || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: %v, want %q", c.in, err, c.want)
+		}
+	}
+}
+
+// FuzzEvalArray: a JSON array of items gives, when encoding/json accepts
+// it as an array, one item per element, in order, each the item the same
+// object gives as a JSON line; anything else is refused, never a panic.
+func FuzzEvalArray(f *testing.F) {
+	f.Add(`[{"id":"a","q":"Which rig has one mast?"},{"id":"b","q":"How deep is the keel?"}]`)
+	f.Add("[\n  {\"q\": \"x y\"}\n]")
+	f.Add(`[]`)
+	f.Add(`[{"q":"a"},`)
+	f.Fuzz(func(t *testing.T, in string) {
+		spec := EvalSpec{IDField: "id", Fields: []string{"q"}}
+		items, err := readEvalArray(strings.NewReader(in), "f.json", spec)
+		if err != nil {
+			return
+		}
+		var elems []json.RawMessage
+		if jerr := json.Unmarshal([]byte(in), &elems); jerr != nil {
+			t.Fatalf("accepted %q, encoding/json says %v", in, jerr)
+		}
+		if len(items) != len(elems) {
+			t.Fatalf("%d items for %d elements", len(items), len(elems))
+		}
+		for i, e := range elems {
+			want, err := parseEvalJSON(e, "f.json", int64(i+1), spec)
+			if err != nil {
+				t.Fatalf("element %d %s: item from the array, refused as a line: %v", i, e, err)
+			}
+			want.File = "f.json"
+			if !reflect.DeepEqual(items[i], want) {
+				t.Fatalf("element %d: %+v, as a line %+v", i, items[i], want)
+			}
 		}
 	})
 }
