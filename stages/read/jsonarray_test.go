@@ -40,6 +40,14 @@ func readArray(t *testing.T, b []byte, opt ReadOptions) ([]Record, error) {
 	}
 }
 
+// recordLine is the line (element number) of a document or an issue.
+func recordLine(r Record) int64 {
+	if r.Doc != nil {
+		return r.Doc.Line
+	}
+	return r.Issue.Line
+}
+
 // TestJSONArrayMatchesJSONLines: the eval set of testdata/evalsets as a
 // pretty-printed JSON array written by Node.js's JSON.stringify (a JSON
 // writer independent of winnow, testdata/nodejs-api) reads as the same
@@ -98,13 +106,7 @@ func TestJSONArrayCases(t *testing.T) {
 			t.Errorf("%s: error %v, want %q", c.name, err, c.err)
 		}
 		for i, r := range recs {
-			line := int64(0)
-			if r.Doc != nil {
-				line = r.Doc.Line
-			} else {
-				line = r.Issue.Line
-			}
-			if line != int64(i+1) {
+			if line := recordLine(r); line != int64(i+1) {
 				t.Errorf("%s: record %d numbered %d", c.name, i, line)
 			}
 		}
@@ -128,13 +130,7 @@ func FuzzJSONArray(f *testing.F) {
 		}
 		recs, err := readArray(t, b, ReadOptions{MaxDocBytes: 1 << 20})
 		for i, r := range recs {
-			line := int64(0)
-			if r.Doc != nil {
-				line = r.Doc.Line
-			} else {
-				line = r.Issue.Line
-			}
-			if line != int64(i+1) {
+			if line := recordLine(r); line != int64(i+1) {
 				t.Fatalf("record %d numbered %d", i, line)
 			}
 		}
