@@ -4,8 +4,9 @@ package shard
 // in ranges, by several processes. The documents arrive in parts
 // (consecutive runs of input order): a Builder per part (Options.Parts)
 // takes them with Add and keeps them with SavePart instead of Close.
-// WriteRanges then plans the whole output from every part's table (the same plan a single Builder makes: positions and
-// shard cuts come from token counts and id hashes only), cuts the output
+// WriteRanges then plans the whole output from every part's table (the
+// same plan a single Builder makes: positions and shard cuts come from
+// token counts and id hashes only), cuts the output
 // positions into n ranges of whole shards, and writes the ranges asked
 // for; AssembleRanges numbers the ranges' shards into one directory and
 // returns the Report a single Builder's Close would have returned. The

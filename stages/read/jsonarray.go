@@ -19,17 +19,17 @@ import (
 
 // jsonArrayReader yields the elements of a top-level JSON array.
 type jsonArrayReader struct {
-	jsonlReader // parse and the base reader
-	br          *bufio.Reader
-	off         int64 // bytes consumed
-	n           int64 // elements returned
-	started     bool
-	done        bool
-	elem        []byte
+	baseReader
+	br      *bufio.Reader
+	off     int64 // bytes consumed
+	n       int64 // elements returned
+	started bool
+	done    bool
+	elem    []byte
 }
 
 func newJSONArrayReader(base baseReader, br *bufio.Reader, skip int) *jsonArrayReader {
-	return &jsonArrayReader{jsonlReader: jsonlReader{baseReader: base}, br: br, off: int64(skip)}
+	return &jsonArrayReader{baseReader: base, br: br, off: int64(skip)}
 }
 
 var errArrayCut = errors.New("JSON array cut short: no closing \"]\"")
@@ -49,7 +49,7 @@ func (r *jsonArrayReader) skipSpace() (byte, error) {
 		if err != nil {
 			return 0, err
 		}
-		if c != ' ' && c != '\t' && c != '\n' && c != '\r' {
+		if !isJSONSpace(c) {
 			return c, nil
 		}
 	}
@@ -96,7 +96,7 @@ func (r *jsonArrayReader) Next() (Record, error) {
 		rec = Record{Issue: &ReadIssue{File: r.file, Line: r.n, Offset: start, Rule: RuleMalformed,
 			Msg: "empty array element", DocID: r.defaultID(r.n)}}
 	} else {
-		rec = r.parse(r.elem, r.n, start)
+		rec = r.parseJSON(r.elem, r.n, start)
 	}
 	if last == ']' {
 		return rec, r.end()

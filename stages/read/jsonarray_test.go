@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"encoding/json"
 	"errors"
-	"io"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -25,19 +24,7 @@ func readArray(t *testing.T, b []byte, opt ReadOptions) ([]Record, error) {
 	if err != nil {
 		return nil, err
 	}
-	var out []Record
-	for {
-		rec, err := rr.Next()
-		if rec.Doc != nil || rec.Issue != nil {
-			out = append(out, rec)
-		}
-		if err == io.EOF {
-			return out, nil
-		}
-		if err != nil {
-			return out, err
-		}
-	}
+	return drainRecords(rr)
 }
 
 // recordLine is the line (element number) of a document or an issue.

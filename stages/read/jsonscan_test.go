@@ -15,8 +15,8 @@ func parseLine(line string, opt ReadOptions) Record {
 	if opt.TextField == "" {
 		opt.TextField = "text"
 	}
-	r := &jsonlReader{baseReader: baseReader{file: "f.jsonl", opt: opt}}
-	return r.parse([]byte(line), 1, 0)
+	r := &baseReader{file: "f.jsonl", opt: opt}
+	return r.parseJSON([]byte(line), 1, 0)
 }
 
 // Numbers with leading zeros are not JSON (RFC 8259 section 6: "Leading

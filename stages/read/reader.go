@@ -399,12 +399,14 @@ func (r *jsonlReader) Next() (Record, error) {
 			}
 			continue
 		}
-		rec := r.parse(line, ln, off)
+		rec := r.parseJSON(line, ln, off)
 		return rec, err
 	}
 }
 
-func (r *jsonlReader) parse(line []byte, ln, off int64) Record {
+// parseJSON turns one JSON object (a JSON Lines line or an array element)
+// into a record numbered ln at byte offset off.
+func (r *baseReader) parseJSON(line []byte, ln, off int64) Record {
 	sc := jsonObjectScanner{b: line}
 	var text, id []byte
 	var meta map[string]any
@@ -452,7 +454,7 @@ func (r *jsonlReader) parse(line []byte, ln, off int64) Record {
 		if rec.Issue != nil {
 			rec.Issue.Offset = off
 		} else if bad {
-			rec.Issue = repairIssue(&r.baseReader, rec.Doc, true, 0)
+			rec.Issue = repairIssue(r, rec.Doc, true, 0)
 		}
 		return rec
 	}
