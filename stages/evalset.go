@@ -268,19 +268,7 @@ func parseEvalItems(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error)
 	if !ok {
 		br = bufio.NewReaderSize(r, 256<<10)
 	}
-	format := spec.Format
-	if format == "auto" || format == "" {
-		var err error
-		if format, err = sniffEvalFormat(disp, br); err != nil {
-			return nil, err
-		}
-		switch format {
-		case "json":
-			return readEvalArray(br, disp, spec)
-		case "csv", "tsv":
-			return readEvalCSV(br, disp, format, spec)
-		}
-	}
+	format := spec.Format // resolved by readEvalFile, never auto
 	var lines []evalLine
 	var items []EvalItem
 	base := filepath.Base(disp)
@@ -346,14 +334,10 @@ func readEvalArray(r io.Reader, disp string, spec EvalSpec) ([]EvalItem, error) 
 		if err != nil {
 			return nil, fmt.Errorf("%s: item %d: invalid JSON: %v", disp, n, err)
 		}
-		if node.kind != 'o' {
-			return nil, fmt.Errorf("%s: item %d: want a JSON object", disp, n)
-		}
-		it, err := evalItemFromNode(node, base, n, spec)
+		it, err := objectItem(node, base, disp, n, spec, "want a JSON object")
 		if err != nil {
 			return nil, fmt.Errorf("%s: item %d: %w", disp, n, err)
 		}
-		it.File = disp
 		items = append(items, it)
 	}
 	if _, err := dec.Token(); err != nil {
@@ -563,10 +547,19 @@ func parseEvalJSON(line []byte, base string, ln int64, spec EvalSpec) (EvalItem,
 	if err != nil {
 		return EvalItem{}, err
 	}
+	return objectItem(root, base, "", ln, spec, "want a JSON object")
+}
+
+// objectItem makes the item of one object of file disp (a JSON line, an
+// array element or a Parquet row; base is the file's name in default
+// ids); anything but an object is refused with notObject.
+func objectItem(root *jsonNode, base, disp string, ln int64, spec EvalSpec, notObject string) (EvalItem, error) {
 	if root.kind != 'o' {
-		return EvalItem{}, errors.New("want a JSON object")
+		return EvalItem{}, errors.New(notObject)
 	}
-	return evalItemFromNode(root, base, ln, spec)
+	it, err := evalItemFromNode(root, base, ln, spec)
+	it.File = disp
+	return it, err
 }
 
 // decodeEvalJSON decodes one complete JSON value.
@@ -824,15 +817,10 @@ func readEvalParquet(path, disp string, spec EvalSpec) ([]EvalItem, error) {
 		n, err := r.Read(buf)
 		for _, v := range buf[:n] {
 			ln++
-			root := parquetNode(v, schema)
-			if root.kind != 'o' {
-				return nil, fmt.Errorf("%s: row %d: not a record", disp, ln)
-			}
-			it, err := evalItemFromNode(root, base, ln, spec)
+			it, err := objectItem(parquetNode(v, schema), base, disp, ln, spec, "not a record")
 			if err != nil {
 				return nil, fmt.Errorf("%s: row %d: %w", disp, ln, err)
 			}
-			it.File = disp
 			items = append(items, it)
 		}
 		if err == io.EOF {
