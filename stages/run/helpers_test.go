@@ -2,8 +2,11 @@ package run
 
 import (
 	"context"
+	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
+	"sync"
 	"testing"
 
 	"winnow/stages/spec"
@@ -41,4 +44,21 @@ func wholeRun(t *testing.T, p string) (string, map[string]string) {
 		t.Fatal(err)
 	}
 	return whole, runDirDigest(t, whole)
+}
+
+// logLines returns a RunOptions.Log that keeps every line, safe for the
+// goroutines that log at once, and a function that returns the lines.
+func logLines() (func(format string, args ...any), func() []string) {
+	var mu sync.Mutex
+	var lines []string
+	logf := func(format string, args ...any) {
+		mu.Lock()
+		lines = append(lines, fmt.Sprintf(format, args...))
+		mu.Unlock()
+	}
+	return logf, func() []string {
+		mu.Lock()
+		defer mu.Unlock()
+		return slices.Clone(lines)
+	}
 }

@@ -76,12 +76,11 @@ func TestRunDirLock(t *testing.T) {
 	if b, err := os.ReadFile(filepath.Join(out, record.LockFile)); err != nil || !strings.Contains(string(b), fmt.Sprint(child.Process.Pid)) {
 		t.Fatalf("stale lock file: %q %v", b, err)
 	}
-	var logged []string
-	logf := func(f string, a ...any) { logged = append(logged, fmt.Sprintf(f, a...)) }
+	logf, lines := logLines()
 	if _, err := RunSpec(context.Background(), s, RunOptions{Out: out, Force: true, Log: logf}); err != nil {
 		t.Fatalf("run after the holder died: %v", err)
 	}
-	if !strings.Contains(strings.Join(logged, "\n"), fmt.Sprintf("taking over the lock of winnow pid %d", child.Process.Pid)) {
+	if logged := lines(); !strings.Contains(strings.Join(logged, "\n"), fmt.Sprintf("taking over the lock of winnow pid %d", child.Process.Pid)) {
 		t.Errorf("log %q", logged)
 	}
 	// A lock written on another host is not guessed stale.

@@ -12,7 +12,6 @@ import (
 	"regexp"
 	"slices"
 	"strings"
-	"sync"
 	"testing"
 	"winnow/stages/record"
 
@@ -218,18 +217,13 @@ func TestRunTruncatedInputRecorded(t *testing.T) {
 	// it is read.
 	os.WriteFile(filepath.Join(dir, "raw", "part-2.jsonl.zst"), []byte{0x7f, 'E', 'L', 'F', 0, 0, 1, 2, 3, 0, 0, 0, 9, 9, 9, 9}, 0o644)
 	s := writeSpec(t, dir, basicSpec)
-	var logs []string
-	var mu sync.Mutex
-	logf := func(format string, args ...any) {
-		mu.Lock()
-		logs = append(logs, fmt.Sprintf(format, args...))
-		mu.Unlock()
-	}
+	logf, lines := logLines()
 	res, err := RunSpec(context.Background(), s, RunOptions{Out: filepath.Join(dir, "out"), Log: logf})
 	if err != nil {
 		t.Fatal(err)
 	}
 	// The messages say how many documents of each broken file were kept.
+	logs := lines()
 	joined := strings.Join(logs, "\n")
 	kept := "raw/part-1.jsonl.zst: "
 	tail := fmt.Sprintf("(the %d documents before this point are kept)", res.Manifest.Inputs[1].Docs)

@@ -26,12 +26,11 @@ func TestResumeMatchesUninterruptedRun(t *testing.T) {
 		if !errors.Is(err, context.Canceled) || !res.Manifest.Interrupted {
 			t.Fatalf("stop after %d: %v", stop, err)
 		}
-		var logged []string
-		logf := func(f string, a ...any) { logged = append(logged, fmt.Sprintf(f, a...)) }
+		logf, lines := logLines()
 		if _, err := RunSpec(context.Background(), loadSpec(t, p), RunOptions{Out: out, Workers: 1, Version: "t", Resume: true, Log: logf}); err != nil {
 			t.Fatalf("resume after %d: %v", stop, err)
 		}
-		if len(logged) == 0 || !strings.Contains(logged[0], fmt.Sprintf("resumed after segment %d of 3", stop)) {
+		if logged := lines(); len(logged) == 0 || !strings.Contains(logged[0], fmt.Sprintf("resumed after segment %d of 3", stop)) {
 			t.Errorf("resume log: %q", logged)
 		}
 		sameRunDir(t, fmt.Sprintf("stop after %d", stop), runDirDigest(t, out), want)
