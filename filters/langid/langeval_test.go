@@ -61,12 +61,13 @@ func loadLangeval(t testing.TB) []evalText {
 var longFloor = map[string]float64{
 	"bs": 0.83, // UDHR texts read as Croatian when they carry no Bosnian word choice (was 20% before the second stage)
 	"hr": 0.90, // catalogue texts read as Bosnian or Serbian (was 85%)
-	"id": 0.90, // read as Malay when no marker word decides (was 60%)
+	"id": 0.96, // one UDHR text read as Malay (was 60% with lingua alone, 90% with marker words alone)
 	"sr": 0.96, // Cyrillic 100%; Latin script 93% (was 80%)
 	"tn": 0.90, // one UDHR text of 15 read as Sotho, its close relative
 	// One text of 20-30 below 97%, each a real quirk of the data:
 	"be": 0.95, // a catalogue text full of English release names, read as en
 	"mr": 0.95, // one catalogue text read as Hindi (same script, shared vocabulary)
+	"ms": 0.96, // one UDHR text read as Indonesian by the catalogue-trained word model (100% with marker words alone)
 	"ro": 0.95, // one glib catalogue text read as Spanish
 	"zu": 0.95, // one text read as Xhosa, its close relative
 }
@@ -74,7 +75,7 @@ var longFloor = map[string]float64{
 // shortFloor is the measured short-text (5-20 words) accuracy per
 // language, rounded down to 5%, where it is below shortDefaultFloor.
 var shortFloor = map[string]float64{
-	"bs": 0.65, "hr": 0.65, "id": 0.75, "sr": 0.70,
+	"bs": 0.65, "hr": 0.65, "sr": 0.70,
 }
 
 // closePairTrain: the part of testdata/langeval the close-pair word lists
@@ -198,8 +199,9 @@ func TestLangEvalAccuracy(t *testing.T) {
 	for _, k := range vs {
 		fmt.Fprintf(&b, "| %s | %s | %s |\n", k.source, fmtTally(variants[k]), fmtTally(variants[key{k.code, "short", k.source}]))
 	}
-	fmt.Fprintf(&b, "\nClose pairs (closepairs.go): the word lists were checked on the GTK catalogues' texts (training part);\n"+
-		"the UDHR texts and all other catalogues are held out.\n\n| lang | long, held out | long, training | short, held out | short, training |\n| --- | --- | --- | --- | --- |\n")
+	fmt.Fprintf(&b, "\nClose pairs (closepairs.go): the marker word lists were checked on the GTK catalogues' texts (training\n"+
+		"part); the UDHR texts and all other catalogues are held out. The Indonesian/Malay word model was learnt from\n"+
+		"other packages' catalogues (pairdata/README.md): every text here is held out from it.\n\n| lang | long, held out | long, training | short, held out | short, training |\n| --- | --- | --- | --- | --- |\n")
 	for _, code := range closePairLangs {
 		fmt.Fprintf(&b, "| %s | %s | %s | %s | %s |\n", code,
 			fmtTally(split[key{code, "long", "held"}]), fmtTally(split[key{code, "long", "train"}]),
