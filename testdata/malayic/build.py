@@ -44,18 +44,12 @@ def main():
             subprocess.run(['dpkg-deb', '-x', path, tmp], check=True)
             used = []
             for lang in ('id', 'ms'):
-                for dirpath, _, files in sorted(os.walk(tmp)):
-                    if not dirpath.endswith('/locale/%s/LC_MESSAGES' % lang):
-                        continue
-                    for name in sorted(files):
-                        if not name.endswith('.mo') or name in skip or langeval.SKIP_DOMAIN.match(name):
-                            continue
-                        units = [u[1] for u in langeval.catalogue_units(os.path.join(dirpath, name))]
-                        longs, _ = langeval.long_and_short(units, lang)
-                        for i, t in enumerate(longs):
-                            rows.append({'id': '%s/%s/%d' % (lang, pkg, i), 'text': t})
-                        if longs:
-                            used.append('%s:%s' % (lang, name))
+                for name, units in pairdata.locale_catalogues(tmp, lang, skip):
+                    longs, _ = langeval.long_and_short(units, lang)
+                    for i, t in enumerate(longs):
+                        rows.append({'id': '%s/%s/%d' % (lang, pkg, i), 'text': t})
+                    if longs:
+                        used.append('%s:%s' % (lang, name))
             if used:
                 sources.append((pkg, ver, ' '.join(used), pairdata.licence(tmp, pkg)))
     with open(os.path.join(a.out, 'texts.jsonl.gz'), 'wb') as raw:

@@ -79,6 +79,17 @@ def licence(root, pkg):
 def one_line(s):
     return re.sub(r'\s+', ' ', s).strip()
 
+def locale_catalogues(root, loc, skip):
+    """(name, translated messages) of each catalogue an unpacked package has
+    for locale loc, in name order, leaving out the domains in skip and the
+    catalogues of names (langeval.SKIP_DOMAIN)."""
+    for dirpath, _, files in sorted(os.walk(root)):
+        if not dirpath.endswith('/locale/%s/LC_MESSAGES' % loc):
+            continue
+        for name in sorted(files):
+            if name.endswith('.mo') and name not in skip and not langeval.SKIP_DOMAIN.match(name):
+                yield name, [u[1] for u in langeval.catalogue_units(os.path.join(dirpath, name))]
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument('--debs', required=True)
@@ -103,34 +114,28 @@ def main():
                 group, label = LOCALES[loc]
                 if group not in groups:
                     continue
-                for dirpath, _, files in sorted(os.walk(tmp)):
-                    if not dirpath.endswith('/locale/%s/LC_MESSAGES' % loc):
+                for name, units in locale_catalogues(tmp, loc, skip):
+                    cyr = loc == 'sr'
+                    units = [u for u in units if (langeval.cyr(u) > 0.8) == cyr and (cyr or langeval.cyr(u) < 0.05)]
+                    if cyr:
+                        units = [to_latin(u) for u in units]
+                    if not units:
                         continue
-                    for name in sorted(files):
-                        if not name.endswith('.mo') or name in skip or langeval.SKIP_DOMAIN.match(name):
-                            continue
-                        units = [u[1] for u in langeval.catalogue_units(os.path.join(dirpath, name))]
-                        cyr = loc == 'sr'
-                        units = [u for u in units if (langeval.cyr(u) > 0.8) == cyr and (cyr or langeval.cyr(u) < 0.05)]
-                        if cyr:
-                            units = [to_latin(u) for u in units]
-                        if not units:
-                            continue
-                        used[loc] += 1
-                        if held_back:
-                            longs, _ = langeval.long_and_short(units, label)
-                            valid += [(label, pkg + '/' + loc + '/' + name, t) for t in longs]
-                            continue
-                        n = 0
-                        for u in units:
-                            for w in words(u):
-                                if n >= MAX_WORDS:
-                                    break
-                                counts[group][(label, w)] += 1
-                                n += 1
+                    used[loc] += 1
+                    if held_back:
+                        longs, _ = langeval.long_and_short(units, label)
+                        valid += [(label, pkg + '/' + loc + '/' + name, t) for t in longs]
+                        continue
+                    n = 0
+                    for u in units:
+                        for w in words(u):
+                            if n >= MAX_WORDS:
+                                break
+                            counts[group][(label, w)] += 1
+                            n += 1
             if used:
                 sources.append((pkg, ver, ' '.join('%s:%d' % kv for kv in sorted(used.items())),
-                                licence(tmp, pkg), 'validation' if held_back else 'counts'))
+                licence(tmp, pkg), 'validation' if held_back else 'counts'))
     totals = collections.Counter()
     rows = []
     for group in sorted(counts):
