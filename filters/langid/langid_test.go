@@ -179,7 +179,8 @@ func TestLangConcurrentDetect(t *testing.T) {
 func FuzzLangDetect(f *testing.F) {
 	for _, s := range []string{"", " ", "\x00", "\xff\xfe", "😀", "<a href='x'>y</a>", "&amp;",
 		"Hello world, this is a test.", "Привет, мир", "שלום עולם", "مرحبا بالعالم", "日本語のテキスト", "中文文本",
-		"e\u0301te\u0301 a\u0300 Paris", strings.Repeat("ab", 600), "<" + strings.Repeat("x", 600)} {
+		"e\u0301te\u0301 a\u0300 Paris", strings.Repeat("ab", 600), "<" + strings.Repeat("x", 600),
+		"Anda bisa menyimpan berkas ini karena jendela sudah terbuka.", "Anda boleh menyimpan fail ini kerana tetingkap sudah dibuka."} {
 		f.Add(s)
 	}
 	d := defaultDetector(f)
