@@ -86,9 +86,9 @@
 // script), or Indonesian or Malay, a second stage counts marker words
 // (ekavian or ijekavian forms, each standard's word choices, Indonesian
 // and Malay spellings) and moves the answer within the group when they
-// decide (see closepairs.go); other answers never reach it. Indonesian and
-// Malay are decided by word counts learnt from translation catalogues
-// (naive Bayes, pairmodel.go and pairdata/) plus the marker words.
+// decide (see closepairs.go); other answers never reach it. Both groups are
+// decided by word counts learnt from translation catalogues (naive Bayes,
+// pairmodel.go and pairdata/) plus the marker words.
 //
 // 6. A document's language is the one with the largest mean confidence
 // over its samples, each weighted by its number of scored trigrams; its

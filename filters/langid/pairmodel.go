@@ -14,14 +14,15 @@ import (
 	"unicode/utf8"
 )
 
-// The close-pair word model: per-word counts of Bosnian, Croatian and
+// The close-pair word models: per-word counts of Bosnian, Croatian and
 // Serbian (Latin letters), and of Indonesian and Malay, learnt from
 // translation catalogues that Debian packages ship and that are not part of
 // the held-out evaluation set (pairdata/README.md, pairdata/build.py). It
 // scores a text as a multinomial naive Bayes classifier with add-one
 // (Laplace) smoothing over the words it has seen (Manning, Raghavan and
 // Schütze, Introduction to Information Retrieval, 2008, §13.2), uniform
-// priors.
+// priors. Loaded on the first text that reaches the second stage: 38,655
+// words of both groups, 5 MB of heap (measured 2026-12-03).
 
 //go:embed pairdata/words.tsv.gz
 var pairWordsGz []byte
@@ -35,7 +36,7 @@ type pairGroup struct {
 
 var (
 	pairOnce   sync.Once
-	pairGroups map[string]*pairGroup // by group name: "ma" (Indonesian/Malay)
+	pairGroups map[string]*pairGroup // by group name: "ma", "sc"
 	pairErr    error
 )
 
@@ -44,15 +45,16 @@ func loadPairGroups() (map[string]*pairGroup, error) {
 	return pairGroups, pairErr
 }
 
-// malayicModel is the Indonesian/Malay word model, or nil if the embedded
-// counts cannot be read (a broken build; TestPairWordsParse fails then) —
-// the marker words alone decide then.
-func malayicModel() *pairGroup {
+// pairModel is the word model of a close group ("ma": Indonesian/Malay,
+// "sc": Bosnian/Croatian/Serbian), or nil if the embedded counts cannot be
+// read (a broken build; TestPairWordsParse fails then): the marker words
+// alone decide then.
+func pairModel(group string) *pairGroup {
 	gs, err := loadPairGroups()
 	if err != nil {
 		return nil
 	}
-	return gs["ma"]
+	return gs[group]
 }
 
 // parsePairWords reads words.tsv.gz: "group label word count" lines; a

@@ -9,53 +9,76 @@ import (
 	"io"
 	"math"
 	"os"
+	"slices"
 	"strings"
 	"testing"
 	"unicode"
 )
 
-// TestPairWordsParse: the embedded counts load, and the learnt model
+// TestPairWordsParse: the embedded counts load, and each learnt model
 // agrees with the marker words, which were written independently from
-// memory: of the Indonesian and Malay marker words the model has seen, at
-// least 90% are more probable under their own language (the rest are
-// words the catalogues use in both standards).
+// memory: of the marker words a model has seen, most lean toward the
+// languages their class speaks for (the rest are words the catalogues use
+// in more than one standard). Measured 2026-12-03: Indonesian/Malay 244
+// of 253, Bosnian/Croatian/Serbian 604 of 620.
 func TestPairWordsParse(t *testing.T) {
 	gs, err := loadPairGroups()
 	if err != nil {
 		t.Fatal(err)
 	}
-	g := gs["ma"]
-	if g == nil || len(g.labels) != 2 || g.labels[0] != "id" || g.labels[1] != "ms" {
-		t.Fatalf("group ma: %+v", g)
-	}
-	if len(g.logp) < 5000 {
-		t.Fatalf("only %d words", len(g.logp))
-	}
-	agree, seen := 0, 0
-	var against []string
-	for w, class := range closeMarkers {
-		want := -1
-		switch class {
-		case mkIndonesian:
-			want = 0
-		case mkMalay:
-			want = 1
+	for _, c := range []struct {
+		group  string
+		labels []string
+		floor  float64
+	}{{"ma", []string{"id", "ms"}, 0.9}, {"sc", []string{"bs", "hr", "sr"}, 0.9}} {
+		g := gs[c.group]
+		if g == nil || !slices.Equal(g.labels, c.labels) {
+			t.Fatalf("group %s: %+v", c.group, g)
 		}
-		lp, ok := g.logp[w]
-		if want < 0 || !ok {
-			continue
+		if len(g.logp) < 5000 {
+			t.Fatalf("group %s: only %d words", c.group, len(g.logp))
 		}
-		seen++
-		if lp[want] > lp[1-want] {
-			agree++
-		} else {
-			against = append(against, w)
+		agree, seen := 0, 0
+		var against []string
+		for w, class := range closeMarkers {
+			lp, ok := g.logp[w]
+			if !ok {
+				continue
+			}
+			// for: the labels the class speaks for; the word agrees when
+			// one of them is more probable than every other label.
+			var forLabels []string
+			for _, l := range g.labels {
+				var one [numMarkers]int
+				one[class] = 1
+				if markerVotes(one, l) > 0 {
+					forLabels = append(forLabels, l)
+				}
+			}
+			if len(forLabels) == 0 || len(forLabels) == len(g.labels) {
+				continue
+			}
+			seen++
+			bestFor, bestOther := math.Inf(-1), math.Inf(-1)
+			for i, l := range g.labels {
+				if slices.Contains(forLabels, l) {
+					bestFor = max(bestFor, float64(lp[i]))
+				} else {
+					bestOther = max(bestOther, float64(lp[i]))
+				}
+			}
+			if bestFor > bestOther {
+				agree++
+			} else {
+				against = append(against, w)
+			}
+		}
+		slices.Sort(against)
+		t.Logf("%s: model agrees with %d of %d marker words; against: %v", c.group, agree, seen, against)
+		if seen < 100 || float64(agree) < c.floor*float64(seen) {
+			t.Errorf("%s: model agrees with only %d of %d marker words", c.group, agree, seen)
 		}
 	}
-	if seen < 100 || float64(agree) < 0.9*float64(seen) {
-		t.Errorf("model agrees with %d of %d marker words it has seen; against: %v", agree, seen, against)
-	}
-	t.Logf("model agrees with %d of %d marker words; against: %v", agree, seen, against)
 }
 
 // TestPairModelDecides: through the detector, a text with no marker word
@@ -63,16 +86,16 @@ func TestPairWordsParse(t *testing.T) {
 // and pencocokan are Indonesian software terms, julat and padanan Malay).
 func TestPairModelDecides(t *testing.T) {
 	d := defaultDetector(t)
-	g := malayicModel()
+	g := pairModel("ma")
 	for _, c := range []struct{ text, want string }{
 		{"nilai tidak berada dalam jangkauan yang diizinkan, pencocokan pola gagal", "id"},
 		{"nilai tidak berada dalam julat yang dibenarkan, padanan corak gagal", "ms"},
 	} {
-		if got := d.decideByModel(g, c.text, closeCounts(c.text, closePairMaxBytes)); got != c.want {
+		if got := d.decideByModel(g, c.text, closeCounts(c.text, closePairMaxBytes), malayicMarkerWeight); got != c.want {
 			t.Errorf("%q: %q, want %q", c.text, got, c.want)
 		}
 	}
-	if got := d.decideByModel(g, "Larkspur 42", [numMarkers]int{}); got != "" {
+	if got := d.decideByModel(g, "Larkspur 42", [numMarkers]int{}, malayicMarkerWeight); got != "" {
 		t.Errorf("no known word: %q, want undecided", got)
 	}
 }
@@ -168,17 +191,17 @@ var pairValidation = flag.String("pairdata.validation", "", "validation.tsv writ
 // labelled is a text and the language it is written in.
 type labelled struct{ code, text string }
 
-// malayicAcc counts, per language, the texts the detector names right with
-// the word model (as Detect does) and with the marker words alone (the
-// decision before the model).
-type malayicAcc struct{ model, markers, n int }
+// closeAcc counts, per language, the texts the detector names right with
+// the word models (as Detect does) and with the marker words alone (the
+// decision before the models).
+type closeAcc struct{ model, markers, n int }
 
-func measureMalayic(d *Detector, texts []labelled) map[string]*malayicAcc {
-	res := map[string]*malayicAcc{}
+func measureClose(d *Detector, texts []labelled) map[string]*closeAcc {
+	res := map[string]*closeAcc{}
 	for _, e := range texts {
 		a := res[e.code]
 		if a == nil {
-			a = &malayicAcc{}
+			a = &closeAcc{}
 			res[e.code] = a
 		}
 		a.n++
@@ -186,11 +209,16 @@ func measureMalayic(d *Detector, texts []labelled) map[string]*malayicAcc {
 			a.model++
 		}
 		first, _ := d.detectStages(e.text, false)
-		got := first.Lang
-		if got == "id" || got == "ms" {
-			if pick := decideMalayic(closeCounts(e.text, closePairMaxBytes)); pick != "" {
-				got = pick
-			}
+		got, pick := first.Lang, ""
+		c := closeCounts(e.text, closePairMaxBytes)
+		switch got {
+		case "bs", "hr", "sr":
+			pick = decideSerboCroatian(c, got)
+		case "id", "ms":
+			pick = decideMalayic(c)
+		}
+		if pick != "" {
+			got = pick
 		}
 		if got == e.code {
 			a.markers++
@@ -199,11 +227,16 @@ func measureMalayic(d *Detector, texts []labelled) map[string]*malayicAcc {
 	return res
 }
 
-// checkMalayic logs the accuracies and fails when the word model does
-// worse than the markers alone, or below floor, for a language.
-func checkMalayic(t *testing.T, res map[string]*malayicAcc, floor float64) {
+// checkClose logs the accuracies and fails when the word models do worse
+// than the markers alone, or below its floor, for a language of codes.
+func checkClose(t *testing.T, res map[string]*closeAcc, floors map[string]float64) {
 	t.Helper()
-	for _, code := range []string{"id", "ms"} {
+	var codes []string
+	for c := range floors {
+		codes = append(codes, c)
+	}
+	slices.Sort(codes)
+	for _, code := range codes {
 		a := res[code]
 		if a == nil || a.n == 0 {
 			t.Errorf("%s: no texts", code)
@@ -214,16 +247,17 @@ func checkMalayic(t *testing.T, res map[string]*malayicAcc, floor float64) {
 		if a.model < a.markers {
 			t.Errorf("%s: the word model does worse than the markers alone", code)
 		}
-		if m < floor {
-			t.Errorf("%s: %.1f%% < %.0f%%", code, 100*m, 100*floor)
+		if m < floors[code] {
+			t.Errorf("%s: %.1f%% < %.0f%%", code, 100*m, 100*floors[code])
 		}
 	}
 }
 
 // TestPairValidation measures, on the validation texts build.py --validate
 // writes (catalogues of packages left out of the counts), the Indonesian
-// and Malay accuracy of the detector with the word model and with the
-// marker words alone; the model must do no worse for either language.
+// Malay, Bosnian, Croatian and Serbian accuracy of the detector with the
+// word models and with the marker words alone; the models must do no worse
+// for any of them.
 // Without -pairdata.validation it is skipped (the file is not kept: it is
 // 0.4 MB of text rebuilt from .deb files; pairdata/README.md).
 func TestPairValidation(t *testing.T) {
@@ -245,16 +279,20 @@ func TestPairValidation(t *testing.T) {
 		}
 		texts = append(texts, labelled{p[0], p[2]})
 	}
-	checkMalayic(t, measureMalayic(defaultDetector(t), texts), 0)
+	checkClose(t, measureClose(defaultDetector(t), texts), map[string]float64{"bs": 0, "hr": 0, "id": 0, "ms": 0, "sr": 0})
 }
 
-// TestMalayicHeldOut: Indonesian and Malay texts from the catalogues of 14
-// Debian packages that neither the counts nor testdata/langeval read
-// (testdata/malayic, its README). Measured 2026-12-03: word model 99.7%
-// Indonesian (324 texts), 99.5% Malay (188); marker words alone 96.3% and
-// 97.9%. The floor is 98%.
-func TestMalayicHeldOut(t *testing.T) {
-	f, err := os.Open("../../testdata/malayic/texts.jsonl.gz")
+// TestCloseSecondSet: Indonesian, Malay, Bosnian, Croatian and Serbian
+// (Latin script) texts from the catalogues of 14 Debian packages that
+// neither the counts nor testdata/langeval read (testdata/closepairs, its
+// README). Measured 2026-12-03, word models against marker words alone:
+// Bosnian 76.2% / 58.3% (151 texts), Croatian 96.8% / 92.6% (311),
+// Indonesian 99.7% / 96.3% (324), Malay 99.5% / 97.9% (188), Serbian
+// 98.9% / 85.4% (261). Floors: one point or so below. The Serbo-Croatian part was looked at before the
+// Bosnian/Croatian/Serbian model was adopted (pairdata/README.md), so for
+// those three it is a second measurement, not a blind one.
+func TestCloseSecondSet(t *testing.T) {
+	f, err := os.Open("../../testdata/closepairs/texts.jsonl.gz")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -278,8 +316,8 @@ func TestMalayicHeldOut(t *testing.T) {
 		}
 		texts = append(texts, labelled{code, r.Text})
 	}
-	if len(texts) != 512 {
-		t.Fatalf("%d texts, want 512", len(texts))
+	if len(texts) != 1235 {
+		t.Fatalf("%d texts, want 1235", len(texts))
 	}
-	checkMalayic(t, measureMalayic(defaultDetector(t), texts), 0.98)
+	checkClose(t, measureClose(defaultDetector(t), texts), map[string]float64{"bs": 0.75, "hr": 0.95, "id": 0.98, "ms": 0.98, "sr": 0.97})
 }

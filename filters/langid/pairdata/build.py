@@ -95,7 +95,7 @@ def main():
     ap.add_argument('--debs', required=True)
     ap.add_argument('--out', default=HERE)
     ap.add_argument('--validate', type=int, default=0)
-    ap.add_argument('--groups', default='ma', help='ma (Indonesian/Malay), sc (Bosnian/Croatian/Serbian) or ma,sc')
+    ap.add_argument('--groups', default='ma,sc', help='ma (Indonesian/Malay), sc (Bosnian/Croatian/Serbian) or both')
     a = ap.parse_args()
     groups = set(a.groups.split(','))
     skip = held_out_domains()

@@ -1,16 +1,18 @@
 #!/usr/bin/env python3
-"""Build testdata/malayic: Indonesian and Malay texts from the gettext
-catalogues of Debian bookworm packages that neither the held-out set
-testdata/langeval nor the close-pair word counts (filters/langid/pairdata)
-read. A second held-out check of the Indonesian/Malay decision.
+"""Build testdata/closepairs: Indonesian, Malay, Bosnian, Croatian and
+Serbian (Latin script) texts from the gettext catalogues of Debian bookworm
+packages that neither the held-out set testdata/langeval nor the close-pair
+word counts (filters/langid/pairdata) read. A second check of the close-pair
+decisions.
 
-    mkdir /tmp/malayic-debs && cd /tmp/malayic-debs && apt-get download PACKAGES...
-    python3 build.py --debs /tmp/malayic-debs     # texts.jsonl.gz, SOURCES.tsv
+    mkdir /tmp/cp-debs && cd /tmp/cp-debs && apt-get download PACKAGES...
+    python3 build.py --debs /tmp/cp-debs     # texts.jsonl.gz, SOURCES.tsv
 
 PACKAGES are those of SOURCES.tsv (the packages that had catalogues and were
 read). Each catalogue is cut into long texts (>= 50 words) exactly as
 testdata/langeval/build.py does; one JSON line per text: id "LANG/PACKAGE/N"
-(LANG the catalogue's locale, the label) and text. Deterministic.
+(LANG the label: the catalogue's locale, sr for sr@latin) and text. Texts of a
+Latin-script catalogue with Cyrillic letters are dropped. Deterministic.
 """
 import argparse, gzip, importlib.util, json, os, subprocess, tempfile
 
@@ -43,13 +45,14 @@ def main():
         with tempfile.TemporaryDirectory() as tmp:
             subprocess.run(['dpkg-deb', '-x', path, tmp], check=True)
             used = []
-            for lang in ('id', 'ms'):
-                for name, units in pairdata.locale_catalogues(tmp, lang, skip):
+            for loc, lang in (('bs', 'bs'), ('hr', 'hr'), ('id', 'id'), ('ms', 'ms'), ('sr@latin', 'sr')):
+                for name, units in pairdata.locale_catalogues(tmp, loc, skip):
+                    units = [u for u in units if langeval.cyr(u) < 0.05]
                     longs, _ = langeval.long_and_short(units, lang)
                     for i, t in enumerate(longs):
                         rows.append({'id': '%s/%s/%d' % (lang, pkg, i), 'text': t})
                     if longs:
-                        used.append('%s:%s' % (lang, name))
+                        used.append('%s:%s' % (loc, name))
             if used:
                 sources.append((pkg, ver, ' '.join(used), pairdata.licence(tmp, pkg)))
     with open(os.path.join(a.out, 'texts.jsonl.gz'), 'wb') as raw:
