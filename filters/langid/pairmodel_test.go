@@ -186,7 +186,7 @@ func FuzzForWords(f *testing.F) {
 	})
 }
 
-var pairValidation = flag.String("pairdata.validation", "", "validation.tsv written by pairdata/build.py --validate K")
+var pairValidation = flag.String("pairdata.validation", "", "validation.tsv written by pairdata/build.py --validate")
 
 // labelled is a text and the language it is written in.
 type labelled struct{ code, text string }
@@ -259,7 +259,7 @@ func checkClose(t *testing.T, res map[string]*closeAcc, floors map[string]float6
 // word models and with the marker words alone; the models must do no worse
 // for any of them.
 // Without -pairdata.validation it is skipped (the file is not kept: it is
-// 0.4 MB of text rebuilt from .deb files; pairdata/README.md).
+// 3 MB of text rebuilt from .deb files; pairdata/README.md).
 func TestPairValidation(t *testing.T) {
 	if *pairValidation == "" {
 		t.Skip("no -pairdata.validation file")
