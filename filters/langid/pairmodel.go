@@ -30,8 +30,7 @@ var pairWordsGz []byte
 // pairGroup is one close group's model.
 type pairGroup struct {
 	labels []string             // language codes, in model order
-	logp   map[string][]float32 // word -> log P(word | label)
-	unseen []float32            // log P of a word a label never had
+	logp   map[string][]float32 // word -> log P(word | label); words it never saw are skipped
 }
 
 var (
@@ -126,9 +125,6 @@ func parsePairWords(gz []byte) (map[string]*pairGroup, error) {
 	for name, g := range groups {
 		v := float64(len(g.counts))
 		pg := &pairGroup{labels: g.labels, logp: make(map[string][]float32, len(g.counts))}
-		for _, l := range g.labels {
-			pg.unseen = append(pg.unseen, float32(math.Log(1/(g.totals[l]+v))))
-		}
 		for w, m := range g.counts {
 			lp := make([]float32, len(g.labels))
 			for i, l := range g.labels {
@@ -141,7 +137,7 @@ func parsePairWords(gz []byte) (map[string]*pairGroup, error) {
 	return out, nil
 }
 
-// pairScores sums the log-probabilities of text's known words (at most
+// scores sums the log-probabilities of text's known words (at most
 // maxBytes of text) under each label of g, and counts those words.
 func (g *pairGroup) scores(text string, maxBytes int) (s []float64, known int) {
 	if len(text) > maxBytes {
