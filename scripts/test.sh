@@ -33,7 +33,10 @@ if [ -n "$unformatted" ]; then
 fi
 go vet ./...
 go test ./... "$@"
-# The packages where goroutines share state (workers, collector,
-# compressors, shared models and lists) once more under the race detector
-# (it needs cgo: gcc is on the machine).
-go test -race ./filters/... ./dedup ./shard ./stages/record ./stages/run ./stages/audit "$@"
+# Every package but configs/cluster (its private Slurm runs the same code
+# as cmd/winnow's split tests) once more under the race detector: the
+# workers, collector, compressors, shared models and lists (it needs cgo:
+# gcc is on the machine). cmd/winnow takes about 12 minutes instrumented,
+# past go test's default 10-minute timeout.
+go test -race ./filters/... ./dedup ./shard ./stages/... "$@"
+go test -race -timeout 45m ./cmd/winnow "$@"
