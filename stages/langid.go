@@ -33,9 +33,9 @@ import (
 //
 // The stage is a ThresholdStage: every rule is a limit on a stored metric
 // (language on lang_allowed, 1 when the detected code is allowed), so
-// what-if recomputes drops exactly. Only the language rule has no spec key
-// (what-if cannot change `languages`: the stored metrics do not hold the
-// code) and its ledger value is the code, not the metric.
+// what-if recomputes drops exactly. The language rule is also a LabelRule:
+// what-if recomputes lang_allowed from the stored "lang" for another
+// `languages`; its ledger value is the code, not the metric.
 type langidStage struct {
 	opts      langid.Options
 	languages []string
@@ -125,8 +125,8 @@ func newLangid(p *Params, env Env) (Stage, error) {
 	s.rules = []Rule{
 		{Name: "no_language", Key: "min_letters", Metric: "letters", Cmp: AtLeast, Limit: float64(minLetters), Enabled: minLetters > 0},
 		{Name: "no_language", Key: "min_letter_share", Metric: "letter_share", Cmp: AtLeast, Limit: minShare, Enabled: minShare > 0},
-		// No key sets this limit: `languages` is a set, not a number, and
-		// what-if cannot vary it from the stored metrics.
+		// No key sets this limit: `languages` is a set, not a number
+		// (LabelRules: what-if varies it through the stored label).
 		{Name: "language", Key: "", Metric: "lang_allowed", Cmp: AtLeast, Limit: 1, Enabled: true},
 		{Name: "low_confidence", Key: "min_confidence", Metric: "lang_conf", Cmp: AtLeast, Limit: minConf, Enabled: minConf > 0},
 	}
@@ -153,6 +153,12 @@ func (s *langidStage) Name() string          { return "langid" }
 func (s *langidStage) Kind() string          { return "langid" }
 func (s *langidStage) MetricNames() []string { return langidMetrics }
 func (s *langidStage) Rules() []Rule         { return s.rules }
+
+// LabelRules: the language rule keeps a document whose stored "lang" is one
+// of `languages`.
+func (s *langidStage) LabelRules() []LabelRule {
+	return []LabelRule{{Rule: "language", Key: "languages", Metric: "lang_allowed", Label: "lang", Allowed: s.languages}}
+}
 
 // Process detects the document's language and applies the rules.
 func (s *langidStage) Process(d *Doc) Decision {

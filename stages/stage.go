@@ -148,6 +148,23 @@ type ThresholdStage interface {
 	Rules() []Rule
 }
 
+// LabelRule is a rule on a text label rather than a number: a document
+// passes when its Label (a text value the stage stores with its metrics)
+// is one of Allowed. The stage stores the test's outcome, 1 or 0, as
+// Metric, and its rule table has a rule Rule that keeps Metric >= 1, so
+// ApplyRules decides it like any limit. What-if recomputes Metric from the
+// stored label for another Allowed, set through Key.
+type LabelRule struct {
+	Rule, Key, Metric, Label string
+	Allowed                  []string
+}
+
+// LabelRuler is a ThresholdStage with rules on labels.
+type LabelRuler interface {
+	ThresholdStage
+	LabelRules() []LabelRule
+}
+
 // ApplyRules returns the decision of rules over metrics named by names:
 // the first enabled rule whose metric fails its limit drops the document.
 func ApplyRules(rules []Rule, names []string, metrics []float64) Decision {

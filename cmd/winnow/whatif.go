@@ -32,10 +32,12 @@ per-document stages (shadow measurement), so loosening an early rule is
 exact through those stages. Global stages (exact_dedup, near_dedup, and
 decontaminate with a counting pass) are not recomputed: when a change
 alters what reaches them, or reaches anything after them, the figures are
-marked as an estimate and say why. Only limits can change; keys that
+marked as an estimate and say why. Only limits can change, and langid's
+languages (each document's detected language is stored); keys that
 change what is measured need a re-run (winnow run --set).`,
 	Example: `  winnow whatif out/ --set quality.fewest_words=80
   winnow whatif out/ --set quality.fewest_words=80 --set repetition.most_repeated_lines=0.2
+  winnow whatif out/ --set langid.languages=en,de
   winnow whatif out/ --sweep quality.fewest_words=20:200:20 --json`,
 	Args: cobra.ExactArgs(1),
 	RunE: func(cmd *cobra.Command, args []string) error {

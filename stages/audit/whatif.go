@@ -35,8 +35,10 @@ import (
 //     the kept twin of duplicates, one of those would be kept instead;
 //     such duplicates are counted as estimates and assumed still removed).
 //
-// Only limits can change: a key that changes what a stage measures
-// (n-gram sizes, word lists, languages) needs a re-run (winnow run --set).
+// Only limits can change, and the allowed values of a label rule
+// (stages.LabelRule: langid's languages, from the stored "lang"): a key
+// that changes what a stage measures (n-gram sizes, word lists, candidate
+// languages) needs a re-run (winnow run --set).
 // Edits are never recomputed: a changed threshold stage only keeps or
 // drops, so every later stage measured the same text it would measure in
 // the scenario.
@@ -87,6 +89,10 @@ type RuleChange struct {
 	ToLimit     float64 `json:"to_limit"`
 	FromEnabled bool    `json:"from_enabled"`
 	ToEnabled   bool    `json:"to_enabled"`
+	// A rule on a label (langid's language): the allowed values, run and
+	// scenario; Metric is then the label and KeepWhen "in".
+	FromAllowed []string `json:"from_allowed,omitempty"`
+	ToAllowed   []string `json:"to_allowed,omitempty"`
 }
 
 // ScenarioResult is what one scenario changes against the run. "Kept"
@@ -211,8 +217,9 @@ const (
 
 // scenario is the engine's form of one scenario.
 type scenario struct {
-	res   *ScenarioResult
-	rules [][]stages.Rule // per step; nil: recorded decisions
+	res    *ScenarioResult
+	rules  [][]stages.Rule   // per step; nil: recorded decisions
+	labels [][]labelOverride // per step: metrics recomputed from stored labels
 	// sweep point bookkeeping
 	sweepStep int
 	point     *SweepPoint
@@ -261,12 +268,12 @@ func RunWhatIf(r *Run, opt WhatIfOptions) (*WhatIf, error) {
 		w.TokensKnown = true
 	}
 	var scs []*scenario
-	newScenario := func(label string, ss []parsedSet, rules [][]stages.Rule) *scenario {
+	newScenario := func(label string, ss []parsedSet, rules [][]stages.Rule, labels [][]labelOverride) *scenario {
 		res := &ScenarioResult{Label: label, Sets: []string{}, FlipsRemoved: []Flip{}, FlipsKept: []Flip{}, Notes: []string{}}
 		for _, s := range ss {
 			res.Sets = append(res.Sets, s.raw)
 		}
-		sc := &scenario{res: res, rules: rules, sweepStep: -1, removed: map[string]bool{},
+		sc := &scenario{res: res, rules: rules, labels: labels, sweepStep: -1, removed: map[string]bool{},
 			stepRemoved: make([]int64, len(r.Steps)), ruleRemoved: map[string]int64{},
 			newInput: make([]int64, len(r.Steps)), lostInput: make([]int64, len(r.Steps)),
 			srcKept: map[string]int64{}, srcTokens: map[string]int64{}}
@@ -274,19 +281,19 @@ func RunWhatIf(r *Run, opt WhatIfOptions) (*WhatIf, error) {
 		return sc
 	}
 	if len(sets) > 0 {
-		rules, changes, err := r.scenarioRules(sets)
+		rules, labels, changes, err := r.scenarioRules(sets)
 		if err != nil {
 			return nil, err
 		}
 		w.Changes = changes
-		w.Combined = newScenario("combined", sets, rules).res
+		w.Combined = newScenario("combined", sets, rules, labels).res
 		if len(sets) > 1 {
 			for _, s := range sets {
-				rs, _, err := r.scenarioRules([]parsedSet{s})
+				rs, ls, _, err := r.scenarioRules([]parsedSet{s})
 				if err != nil {
 					return nil, err
 				}
-				w.PerSet = append(w.PerSet, newScenario(s.raw, []parsedSet{s}, rs).res)
+				w.PerSet = append(w.PerSet, newScenario(s.raw, []parsedSet{s}, rs, ls).res)
 			}
 		}
 	}
@@ -304,11 +311,11 @@ func RunWhatIf(r *Run, opt WhatIfOptions) (*WhatIf, error) {
 		for k, v := range vals {
 			pt := parsedSet{raw: ps.stage + "." + ps.key + "=" + fmtValue(v), stage: ps.stage, key: ps.key, value: fmtValue(v)}
 			all := append(append([]parsedSet(nil), sets...), pt)
-			rules, _, err := r.scenarioRules(all)
+			rules, labels, _, err := r.scenarioRules(all)
 			if err != nil {
 				return nil, err
 			}
-			sc := newScenario(pt.raw, all, rules)
+			sc := newScenario(pt.raw, all, rules, labels)
 			res.Points[k] = SweepPoint{Value: v}
 			sc.point = &res.Points[k]
 			sc.sweepStep = ts[0].Index
@@ -398,7 +405,7 @@ func (e *engine) simulate(t *Trail, orig int, sc *scenario) outcome {
 			continue
 		}
 		if rules := sc.rules[i]; rules != nil && tr.Row != nil {
-			dec := stages.ApplyRules(rules, st.MetricNames, tr.Row.Values)
+			dec := stages.ApplyRules(rules, st.MetricNames, relabel(tr.Row.Values, st.MetricNames, tr.Row.Labels, sc.labels[i]))
 			if dec.Action == stages.Drop {
 				return outcome{step: i, rule: dec.Rule, value: floatOf(dec.Value, math.NaN()), est: est}
 			}

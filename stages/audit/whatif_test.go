@@ -217,6 +217,50 @@ func TestWhatIfGlobalStagesEstimate(t *testing.T) {
 	}
 }
 
+// TestWhatIfLanguages: what-if on langid's `languages` recomputes the
+// language rule from each document's stored "lang" and must agree, document
+// for document, with a real re-run that detects again with those languages
+// (the re-run is the reference); a stricter confidence set with it too.
+func TestWhatIfLanguages(t *testing.T) {
+	const st = `stages:
+  - kind: normalize
+  - kind: langid
+    languages: [en]
+  - kind: quality
+output:
+  tokenizer: cl100k_base
+`
+	run := cachedRun(t, "langs-en", st)
+	for _, sets := range [][]string{
+		{"langid.languages=en,de,fr"},
+		{"langid.languages=de,es", "langid.min_confidence=0.9"},
+	} {
+		name := "langs-" + strings.NewReplacer(".", "-", "=", "-", ",", "-").Replace(strings.Join(sets, "-"))
+		rerun := cachedRun(t, name, st, sets...)
+		w := whatIf(t, run, audit.WhatIfOptions{Sets: sets})
+		want := num(manifestStage(t, readManifest(t, rerun), "write")["docs_in"])
+		if !w.Combined.Exact || w.Combined.DocsKept != want {
+			t.Errorf("%v: what-if keeps %d (exact %v), the re-run wrote %d", sets, w.Combined.DocsKept, w.Combined.Exact, want)
+		}
+		t.Logf("%v: %d kept, %d newly kept, %d newly removed", sets, w.Combined.DocsKept, w.Combined.NewlyKept, w.Combined.NewlyRemoved)
+		if w.Combined.NewlyKept == 0 {
+			t.Errorf("%v: no document newly kept", sets)
+		}
+		var kept []string
+		for _, row := range readJSONL(t, rerun+"/metrics/quality.jsonl.zst") {
+			if row["action"] == "keep" && row["dropped_by"] == nil {
+				kept = append(kept, row["doc"].(string))
+			}
+		}
+		if int64(len(kept)) != want {
+			t.Errorf("%v: the re-run's quality metrics keep %d, its manifest says %d", sets, len(kept), want)
+		}
+		if len(w.Changes) != len(sets) || w.Changes[0].Rules[0].KeepWhen != "in" || len(w.Changes[0].Rules[0].FromAllowed) != 1 {
+			t.Errorf("%v: changes %+v", sets, w.Changes)
+		}
+	}
+}
+
 // TestWhatIfRejectsWhatItCannotRecompute: global stages, keys that change
 // what is measured, unknown stages and keys, non-numbers.
 func TestWhatIfRejectsWhatItCannotRecompute(t *testing.T) {
@@ -224,7 +268,7 @@ func TestWhatIfRejectsWhatItCannotRecompute(t *testing.T) {
 	r := openRun(t, run, audit.OpenOptions{})
 	for set, want := range map[string]string{
 		"near_dedup.threshold=0.5": "global stage",
-		"langid.languages=de":      "numeric limits only",
+		"langid.languages=xx":      "unknown language code",
 		"quality.language=de":      "numeric limits only",
 		"lines.longest_word=500":   "not a threshold",
 		"nosuch.fewest_words=3":    "no stage",

@@ -156,7 +156,7 @@ func buildWhatIf(r *Run, s *Summary) (*ReportWhatIf, error) {
 			var vals []string
 			for _, v := range sweepValues(l, sw.Fraction) {
 				ps := parsedSet{raw: st.Name + "." + key + "=" + fmtValue(v), stage: st.Name, key: key, value: fmtValue(v)}
-				if _, _, err := r.scenarioRules([]parsedSet{ps}); err == nil {
+				if _, _, _, err := r.scenarioRules([]parsedSet{ps}); err == nil {
 					vals = append(vals, fmtValue(v))
 				}
 			}

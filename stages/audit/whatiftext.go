@@ -22,6 +22,11 @@ func (w *WhatIf) WriteText(out io.Writer) error {
 		fmt.Fprintln(out, "\nchanges")
 		for _, c := range w.Changes {
 			for _, ru := range c.Rules {
+				if ru.KeepWhen == "in" {
+					fmt.Fprintf(out, "  %s: rule %s keeps %s in [%s] (run: [%s])\n", c.Set, ru.Rule, ru.Metric,
+						strings.Join(ru.ToAllowed, ", "), strings.Join(ru.FromAllowed, ", "))
+					continue
+				}
 				fmt.Fprintf(out, "  %s: rule %s keeps %s %s %s (run: %s)\n", c.Set, ru.Rule, ru.Metric, ru.KeepWhen,
 					limitText(ru.ToLimit, ru.ToEnabled), limitText(ru.FromLimit, ru.FromEnabled))
 			}
