@@ -182,9 +182,20 @@ func init() {
 }
 
 // closeCounts counts the marker words of text (at most maxBytes of it).
-func closeCounts(text string, maxBytes int) (c [numMarkers]int) {
+func closeCounts(text string, maxBytes int) [numMarkers]int {
+	c, _, _ := closeEvidence(text, maxBytes, nil)
+	return c
+}
+
+// closeEvidence reads at most maxBytes of text once and returns its marker
+// word counts and, when g is not nil, the sums of its known words'
+// log-probabilities under each of g's labels and the number of those words.
+func closeEvidence(text string, maxBytes int, g *pairGroup) (c [numMarkers]int, s []float64, known int) {
 	if len(text) > maxBytes {
 		text = text[:snapBackward(text, maxBytes)]
+	}
+	if g != nil {
+		s = make([]float64, len(g.labels))
 	}
 	var buf [64]byte
 	prevDa := false
@@ -198,8 +209,17 @@ func closeCounts(text string, maxBytes int) (c [numMarkers]int) {
 			c[mkEastern]++
 		}
 		prevDa = string(w) == "da"
+		if g == nil {
+			return
+		}
+		if lp, ok := g.logp[string(w)]; ok {
+			known++
+			for i, v := range lp {
+				s[i] += float64(v)
+			}
+		}
 	})
-	return c
+	return c, s, known
 }
 
 // decideSerboCroatian returns "sr", "hr", "bs" or "" (undecided) for a
@@ -261,16 +281,18 @@ func (d *Detector) closePair(top int, text string) int {
 	var pick string
 	switch d.codes[top] {
 	case "bs", "hr", "sr":
-		c := closeCounts(text, closePairMaxBytes)
-		if g := pairModel("sc"); g != nil {
-			pick = d.decideByModel(g, text, c, serboCroatMarkerWeight)
+		g := pairModel("sc")
+		c, s, known := closeEvidence(text, closePairMaxBytes, g)
+		if g != nil {
+			pick = d.decideByModel(g, s, known, c, serboCroatMarkerWeight)
 		} else {
 			pick = decideSerboCroatian(c, d.codes[top])
 		}
 	case "id", "ms":
-		c := closeCounts(text, closePairMaxBytes)
-		if g := pairModel("ma"); g != nil {
-			pick = d.decideByModel(g, text, c, malayicMarkerWeight)
+		g := pairModel("ma")
+		c, s, known := closeEvidence(text, closePairMaxBytes, g)
+		if g != nil {
+			pick = d.decideByModel(g, s, known, c, malayicMarkerWeight)
 		} else {
 			pick = decideMalayic(c)
 		}
@@ -287,10 +309,9 @@ func (d *Detector) closePair(top int, text string) int {
 }
 
 // decideByModel returns the candidate of g with the highest word-model
-// score plus weight per marker word, or "" when the text has no word the
-// model or the markers know.
-func (d *Detector) decideByModel(g *pairGroup, text string, c [numMarkers]int, weight float64) string {
-	s, known := g.scores(text, closePairMaxBytes)
+// score s (over known words, closeEvidence) plus weight per marker word, or
+// "" when the text has no word the model or the markers know.
+func (d *Detector) decideByModel(g *pairGroup, s []float64, known int, c [numMarkers]int, weight float64) string {
 	best, votes := -1, 0
 	for i, l := range g.labels {
 		v := markerVotes(c, l)

@@ -137,27 +137,6 @@ func parsePairWords(gz []byte) (map[string]*pairGroup, error) {
 	return out, nil
 }
 
-// scores sums the log-probabilities of text's known words (at most
-// maxBytes of text) under each label of g, and counts those words.
-func (g *pairGroup) scores(text string, maxBytes int) (s []float64, known int) {
-	if len(text) > maxBytes {
-		text = text[:snapBackward(text, maxBytes)]
-	}
-	s = make([]float64, len(g.labels))
-	var buf [64]byte
-	forWords(text, buf[:0], func(w []byte) {
-		lp, ok := g.logp[string(w)]
-		if !ok {
-			return
-		}
-		known++
-		for i, v := range lp {
-			s[i] += float64(v)
-		}
-	})
-	return s, known
-}
-
 // forWords calls f with each word of text lower-cased (runs of letters
 // with inner hyphens), in buf; f must not keep the slice.
 func forWords(text string, buf []byte, f func(w []byte)) {

@@ -91,11 +91,13 @@ func TestPairModelDecides(t *testing.T) {
 		{"nilai tidak berada dalam jangkauan yang diizinkan, pencocokan pola gagal", "id"},
 		{"nilai tidak berada dalam julat yang dibenarkan, padanan corak gagal", "ms"},
 	} {
-		if got := d.decideByModel(g, c.text, closeCounts(c.text, closePairMaxBytes), malayicMarkerWeight); got != c.want {
+		m, sc, known := closeEvidence(c.text, closePairMaxBytes, g)
+		if got := d.decideByModel(g, sc, known, m, malayicMarkerWeight); got != c.want {
 			t.Errorf("%q: %q, want %q", c.text, got, c.want)
 		}
 	}
-	if got := d.decideByModel(g, "Larkspur 42", [numMarkers]int{}, malayicMarkerWeight); got != "" {
+	m, sc, known := closeEvidence("Larkspur 42", closePairMaxBytes, g)
+	if got := d.decideByModel(g, sc, known, m, malayicMarkerWeight); got != "" {
 		t.Errorf("no known word: %q, want undecided", got)
 	}
 }
