@@ -1,11 +1,9 @@
 package langid
 
 import (
-	"bufio"
 	"bytes"
 	"compress/gzip"
 	"encoding/json"
-	"flag"
 	"io"
 	"math"
 	"os"
@@ -188,8 +186,6 @@ func FuzzForWords(f *testing.F) {
 	})
 }
 
-var pairValidation = flag.String("pairdata.validation", "", "validation.tsv written by pairdata/build.py --validate")
-
 // labelled is a text and the language it is written in.
 type labelled struct{ code, text string }
 
@@ -253,35 +249,6 @@ func checkClose(t *testing.T, res map[string]*closeAcc, floors map[string]float6
 			t.Errorf("%s: %.1f%% < %.0f%%", code, 100*m, 100*floors[code])
 		}
 	}
-}
-
-// TestPairValidation measures, on the validation texts build.py --validate
-// writes (catalogues of packages left out of the counts), the Indonesian
-// Malay, Bosnian, Croatian and Serbian accuracy of the detector with the
-// word models and with the marker words alone; the models must do no worse
-// for any of them.
-// Without -pairdata.validation it is skipped (the file is not kept: it is
-// 3 MB of text rebuilt from .deb files; pairdata/README.md).
-func TestPairValidation(t *testing.T) {
-	if *pairValidation == "" {
-		t.Skip("no -pairdata.validation file")
-	}
-	f, err := os.Open(*pairValidation)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	var texts []labelled
-	sc := bufio.NewScanner(f)
-	sc.Buffer(make([]byte, 1<<20), 1<<20)
-	for sc.Scan() {
-		p := strings.SplitN(sc.Text(), "\t", 3)
-		if len(p) != 3 {
-			t.Fatalf("malformed line %q", sc.Text())
-		}
-		texts = append(texts, labelled{p[0], p[2]})
-	}
-	checkClose(t, measureClose(defaultDetector(t), texts), map[string]float64{"bs": 0, "hr": 0, "id": 0, "ms": 0, "sr": 0})
 }
 
 // TestCloseSecondSet: Indonesian, Malay, Bosnian, Croatian and Serbian
